@@ -1,0 +1,103 @@
+#pragma once
+// Streaming CSV reader: reads the file in fixed-size blocks, never the whole file.
+// Accepts a header row, a configurable delimiter, quoted fields (embedded delimiters,
+// doubled quotes, newlines), CRLF or LF line ends and a UTF-8 byte-order mark.
+// Every error is an InputError naming file:line:column and the offending text.
+
+#include <cstdint>
+#include <filesystem>
+#include <fstream>
+#include <functional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+namespace stepledger {
+
+/// Options of reading a CSV file.
+struct CsvOptions {
+  /// Field separator; one byte, not a quote, CR or LF. Default: comma.
+  char delimiter = ',';
+  /// Cell texts (after unquoting) that mean "missing". Default: empty and "NA".
+  std::vector<std::string> missing_tokens = {"", "NA"};
+  /// Bytes read from the file at a time; memory of the reader is O(this + longest record).
+  std::size_t block_bytes = 1 << 20;
+
+  /// Throws InputError naming the field when an option is out of range.
+  void Validate() const;
+};
+
+/// One field of a record. text stays valid until the next call of CsvReader::Next.
+struct CsvField {
+  std::string_view text;    ///< unquoted, with doubled quotes collapsed
+  std::uint64_t line = 0;   ///< 1-based line on which the field starts
+  std::uint64_t column = 0; ///< 1-based byte column at which the field starts
+  bool quoted = false;
+};
+
+/// One data record (the header is not one).
+struct CsvRecord {
+  std::uint64_t line = 0;        ///< 1-based line on which the record starts
+  std::uint64_t row_index = 0;   ///< 0-based index among data records
+  std::vector<CsvField> fields;  ///< exactly header().size() of them
+};
+
+/// How a cell parses as a number.
+enum class CellKind { kNumber, kMissing, kText, kNonFinite };
+
+/// Classifies a cell: missing token, finite number (std::from_chars, whole text, optional
+/// leading '+'; surrounding spaces are not allowed), non-finite number ("nan", "inf", ...) or text.
+CellKind ClassifyCell(std::string_view text, const std::vector<std::string>& missing_tokens,
+                      double& value);
+
+class CsvReader {
+ public:
+  /// Opens the file and reads the header. Throws InputError on an unreadable file,
+  /// an empty file, and duplicate or empty header names.
+  CsvReader(std::filesystem::path path, CsvOptions options = {});
+
+  const std::filesystem::path& path() const { return path_; }
+  const CsvOptions& options() const { return options_; }
+  const std::vector<std::string>& header() const { return header_; }
+  /// Index of a header name, or -1.
+  std::ptrdiff_t ColumnIndex(std::string_view name) const;
+
+  /// Reads the next data record; false at end of file. A line that is entirely empty
+  /// at the end of the file is not a record. Throws InputError on a ragged row (naming the
+  /// expected and found field counts) or an unterminated quote (naming where it opened).
+  bool Next(CsvRecord& record);
+
+  /// Bytes consumed so far.
+  std::uint64_t bytes_read() const { return bytes_read_; }
+
+  /// Called with every block of raw bytes as it is read, in file order, including the header.
+  /// Set it before the first Next() to see every byte (the constructor reads the header, so the
+  /// reader replays the bytes already read to a newly set observer). Used for data fingerprints.
+  void SetByteObserver(std::function<void(std::string_view)> observer);
+
+  /// file:line:column of a field, for messages.
+  std::string Where(const CsvField& field) const;
+
+ private:
+  bool FillBuffer();
+  bool ParseRecord(std::vector<CsvField>& fields, std::uint64_t& start_line);
+
+  std::filesystem::path path_;
+  std::string display_name_;
+  CsvOptions options_;
+  std::ifstream stream_;
+  std::vector<std::string> header_;
+  std::string buffer_;        // bytes not yet consumed start at cursor_
+  std::size_t cursor_ = 0;
+  std::string record_storage_;  // unquoted field texts of the current record
+  bool eof_ = false;
+  std::uint64_t line_ = 1;
+  std::uint64_t line_start_offset_ = 0;  // absolute offset of current line start
+  std::uint64_t buffer_offset_ = 0;      // absolute offset of buffer_[0]
+  std::uint64_t bytes_read_ = 0;
+  std::uint64_t next_row_index_ = 0;
+  std::string header_bytes_;             // raw bytes read before an observer was set
+  std::function<void(std::string_view)> observer_;
+};
+
+}  // namespace stepledger

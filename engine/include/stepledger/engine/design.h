@@ -1,0 +1,135 @@
+#pragma once
+// Term expansion: from a DesignSpec (what the plan asks for) and the DataProfile (what the
+// data hold) to the Design: the design columns, grouped into terms, and the per-row
+// evaluation used by every pass over the data. The engine never sees JSON; the plan file
+// parser (audit/plan_file.h) fills a DesignSpec.
+
+#include <cstdint>
+#include <limits>
+#include <map>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include "stepledger/engine/csv.h"
+#include "stepledger/engine/profile.h"
+
+namespace stepledger {
+
+enum class TermKind {
+  kNumeric,      ///< a numeric column as it is
+  kPower,        ///< column^degree (degree >= 2), computed by repeated products in long double
+  kLog,          ///< natural log of a column; a non-positive value is an error naming the row
+  kCategorical,  ///< k levels -> k-1 indicator columns against a baseline level
+  kProduct,      ///< product of two terms: every column of one times every column of the other
+};
+const char* ToString(TermKind kind);
+
+/// One candidate term as the plan names it.
+struct TermSpec {
+  std::string name;
+  TermKind kind = TermKind::kNumeric;
+  std::string column;                   ///< source column (all kinds but kProduct)
+  int degree = 1;                       ///< kPower: 2 or more
+  std::optional<std::string> baseline;  ///< kCategorical: the reference level, if given
+  std::vector<std::string> parts;       ///< kProduct: exactly two term names
+  std::string key_path;                 ///< where the plan said it, e.g. "terms[3]"; for messages
+};
+
+enum class ResponseTransform { kNone, kLog };
+const char* ToString(ResponseTransform transform);
+
+/// The design part of a plan.
+struct DesignSpec {
+  std::string response;
+  ResponseTransform response_transform = ResponseTransform::kNone;
+  /// Include an intercept column (column 0 of the design). Default: yes.
+  bool intercept = true;
+  /// Column of precision weights; rows with weight 0 are excluded and counted.
+  std::optional<std::string> weights;
+  /// When true, terms is ignored and every column other than the response and the weights
+  /// becomes a term named after it (numeric, or categorical when not numeric; empty
+  /// columns and columns with too many levels are skipped and reported).
+  bool all_terms = false;
+  std::vector<TermSpec> terms;
+};
+
+inline constexpr std::size_t kNoTerm = std::numeric_limits<std::size_t>::max();
+
+struct DesignColumn {
+  std::string name;            ///< "intercept", "age", "grade[A]", "age:grade[A]"
+  std::size_t term = kNoTerm;  ///< owning term index; kNoTerm for the intercept
+  /// Exact power of two by which the factor scales this column (see Design::scales).
+  double scale = 1.0;
+};
+
+struct DesignTerm {
+  std::string name;
+  TermKind kind = TermKind::kNumeric;
+  std::size_t first_column = 0;  ///< index of its first design column
+  std::size_t column_count = 0;  ///< 1, or k-1 for a categorical, or the product of the parts'
+  /// Terms this one is built on, for hierarchy: a product's two parts; for a power of degree
+  /// d, the numeric term and the lower powers of the same column that the plan has.
+  std::vector<std::size_t> parts;
+  std::string source_column;               ///< empty for products
+  int degree = 1;
+  std::string baseline;                    ///< kCategorical: the baseline used
+  std::vector<std::string> levels;         ///< kCategorical: the non-baseline levels, in column order
+  std::string key_path;                    ///< from the TermSpec
+};
+
+/// Why a row was not used. Rows are counted once, under the first reason found
+/// (response, weights, then the terms' columns in plan order).
+struct RowOutcome {
+  bool used = false;
+  std::string reason;  ///< e.g. "missing age_months", "zero weight"; empty when used
+};
+
+/// The expanded design. Column 0 is the intercept when there is one.
+class Design {
+ public:
+  std::string response;
+  ResponseTransform response_transform = ResponseTransform::kNone;
+  bool intercept = true;
+  std::optional<std::string> weights;
+  std::vector<DesignColumn> columns;
+  std::vector<DesignTerm> terms;
+  /// Terms of the spec that could not be used and why (e.g. all_terms skipping an id column).
+  std::vector<std::pair<std::string, std::string>> skipped;
+  /// Power-of-two scale of the response inside the factor.
+  double response_scale = 1.0;
+
+  std::size_t column_count() const { return columns.size(); }
+  /// Index of a term by name, or kNoTerm.
+  std::size_t FindTerm(std::string_view name) const;
+  /// Column indices of a term.
+  std::vector<std::size_t> TermColumns(std::size_t term) const;
+  /// Scales of the design columns then the response: what FactorBuilder multiplies by.
+  std::vector<double> scales() const;
+
+  /// Evaluates one record into x (column_count() values, unscaled), y (transformed
+  /// response) and w (weight, 1 without weights). Returns whether the row is used and
+  /// otherwise why not. Throws InputError naming file:line:column for a log of a
+  /// non-positive value, a negative or non-finite weight, and a text cell in a numeric column.
+  RowOutcome Expand(const CsvReader& reader, const CsvRecord& record, std::span<double> x,
+                    double& y, double& w) const;
+
+  // Filled by BuildDesign: header positions of the source columns of each term etc.
+  struct Source {
+    std::ptrdiff_t response = -1;
+    std::ptrdiff_t weights = -1;
+    std::vector<std::ptrdiff_t> term_column;  ///< per term; -1 for products
+    std::vector<std::map<std::string, std::size_t, std::less<>>> level_index;  ///< per term
+  } source;
+};
+
+/// Builds the design; throws PlanError naming the key path for: unknown columns, duplicate
+/// term names, a product part that is not a term (or a cycle of products), a power of degree
+/// < 2, a power/log/numeric term on a non-numeric column, a categorical baseline that is not a
+/// level, a categorical or empty response, a weights column that is not numeric.
+/// Default baseline of a categorical term: its most frequent level, ties broken by byte-wise
+/// order (the largest cell gives the most precise contrasts); recorded in DesignTerm::baseline.
+Design BuildDesign(const DesignSpec& spec, const DataProfile& profile);
+
+}  // namespace stepledger

@@ -1,0 +1,121 @@
+#pragma once
+// The fit of one model: coefficients, SE, t, p, intervals, covariance, VIF, ANOVA and the
+// criteria, all from the factor, then refined against the rows.
+//
+// Refinement (the final model of every command): starting from the factor's solution,
+// each pass over the rows accumulates r = y - X b and X'W r in double-double (compensated)
+// arithmetic, then solves R'R d = X'W r through the factor and sets b += d (the corrected
+// semi-normal equations). The same pass refines (X'WX)^-1 for the standard errors, and the
+// residual SD and R^2 are taken from the refined residuals. Stops when the largest relative
+// correction is below refinement_tolerance or after max_refinement_passes.
+
+#include <cstdint>
+#include <optional>
+#include <span>
+#include <string>
+#include <vector>
+
+#include <armadillo>
+
+#include "stepledger/engine/criteria.h"
+#include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/design.h"
+#include "stepledger/engine/factor.h"
+#include "stepledger/engine/kernel.h"
+
+namespace stepledger {
+
+struct FitOptions {
+  /// Level of the confidence intervals, in (0, 1). Default 0.95.
+  double confidence_level = 0.95;
+  /// sigma^2 of the full model for Mallows' Cp (data units); Cp is undefined without it.
+  std::optional<double> cp_sigma2;
+  /// Passes over the rows to refine the final fit (0: factor only). Default 10.
+  int max_refinement_passes = 10;
+  /// Stop refining when max_j |d_j| / |b_j| (and the same for the inverse) is below this.
+  double refinement_tolerance = 1e-15;
+  KernelOptions kernel;
+  /// Throws InputError naming the field when out of range.
+  void Validate() const;
+};
+
+struct CoefficientEstimate {
+  std::string name;   ///< design column name ("intercept", "age", "grade[A]", ...)
+  std::string term;   ///< owning term ("intercept" for the intercept)
+  double estimate = 0;
+  std::optional<double> se, t, p, ci_low, ci_high;  ///< undefined when n <= k
+  std::optional<double> vif;  ///< undefined for the intercept and for one-column models
+};
+
+struct AnovaRow {
+  std::string source;  ///< a term (sequential SS in model order), "regression", "residual", "total"
+  double df = 0;
+  double ss = 0;
+  std::optional<double> ms, f, p;
+};
+
+enum class FitStatus {
+  kCompleted,       ///< all coefficients estimated
+  kAliased,         ///< some columns are aliased with earlier ones; they are not estimated
+  kNoResidualDf,    ///< n <= k: coefficients estimated (or not), no SE, t, p
+};
+const char* ToString(FitStatus status);
+
+struct FitResult {
+  FitStatus status = FitStatus::kCompleted;
+  std::vector<std::string> terms;        ///< term names in model order (no intercept)
+  std::vector<std::size_t> term_indices; ///< same, as Design term indices
+  std::vector<std::size_t> columns;      ///< design columns estimated, model order
+  std::vector<std::string> aliased_columns;  ///< design columns left out as aliased
+  bool intercept = true;
+  std::uint64_t n = 0;                   ///< rows used
+  std::size_t k = 0;                     ///< coefficients estimated, intercept included
+  double df_residual = 0;                ///< n - k
+  double rss = 0, tss = 0, ssr = 0;      ///< SSE, SST, SSR = SST - SSE
+  double weight_sum = 0, log_weight_sum = 0;
+  CriteriaValues criteria;
+  std::optional<double> f, f_p;          ///< overall F test against the intercept-only (or empty) model
+  std::vector<CoefficientEstimate> coefficients;
+  arma::vec beta;                        ///< estimates, same order as columns
+  arma::mat xtwx_inverse;                ///< refined (X'WX)^-1
+  arma::mat covariance;                  ///< sigma^2 (X'WX)^-1
+  std::vector<AnovaRow> anova;
+  double confidence_level = 0.95;
+  double rcond = 0;                      ///< reciprocal condition number of R11
+  double alias_tolerance = 0;
+  int refinement_passes = 0;             ///< passes made
+  double refinement_correction = 0;      ///< last largest relative correction
+
+  /// A few lines: terms, n, R^2, sigma, AIC, BIC.
+  std::string BriefReport() const;
+  /// Coefficient table, ANOVA and fit statistics, as `stepledger fit` prints them.
+  std::string FullReport() const;
+};
+
+/// Fits the intercept (when the design has one) plus the given terms in that order.
+/// replay, when given and options.max_refinement_passes > 0, refines the fit against the rows.
+FitResult FitModel(const Factor& factor, const Design& design,
+                   std::span<const std::size_t> term_indices, const FitOptions& options,
+                   const RowReplay* replay = nullptr);
+
+struct RowDiagnostic {
+  std::uint64_t row_index = 0;
+  std::uint64_t line = 0;
+  double fitted = 0;
+  double residual = 0;        ///< y - fitted (unweighted)
+  double leverage = 0;        ///< h_ii = w_i x_i' (X'WX)^-1 x_i
+  std::optional<double> standardized_residual;  ///< sqrt(w) e / (sigma sqrt(1 - h)); undefined when h = 1 or sigma = 0
+  std::optional<double> cooks_distance;         ///< r^2 h / (k (1 - h))
+};
+
+struct DiagnosticsResult {
+  std::vector<RowDiagnostic> rows;  ///< file order
+  std::optional<double> press;      ///< sum w (e / (1 - h))^2; undefined when some h = 1
+  double max_leverage = 0;
+};
+
+/// One more pass over the rows for the per-row diagnostics of a fitted model.
+DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
+                                     const RowReplay& replay);
+
+}  // namespace stepledger

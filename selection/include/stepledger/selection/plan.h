@@ -1,0 +1,58 @@
+#pragma once
+// A plan: what to model (the engine's DesignSpec) and how to search (SearchOptions).
+// The plan file's JSON form is read and written by audit/plan_file.h; this header knows no JSON.
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include "stepledger/engine/design.h"
+
+namespace stepledger {
+
+enum class Method { kForward, kBackward, kStepwise, kAllSubsets, kNone };
+enum class Criterion { kAdjR2, kAic, kAicc, kBic, kCp, kPartialF, kCv };
+
+/// Contract names: "forward", "backward", "stepwise", "all-subsets", "none".
+const char* ToString(Method method);
+std::optional<Method> MethodFromString(std::string_view text);
+/// Contract names: "adj-r2", "aic", "aicc", "bic", "cp", "partial-f", "cv".
+const char* ToString(Criterion criterion);
+std::optional<Criterion> CriterionFromString(std::string_view text);
+
+struct SearchOptions {
+  /// Search method. Default: stepwise.
+  Method method = Method::kStepwise;
+  /// Score of a model. Default: BIC (consistent; favours small, stable pricing models).
+  Criterion criterion = Criterion::kBic;
+  /// Terms in every model (besides the intercept).
+  std::vector<std::string> keep;
+  /// Terms in no model.
+  std::vector<std::string> never;
+  /// partial-f: a term enters when its entry p-value is below this. In (0, 1). Default 0.05.
+  double entry_p = 0.05;
+  /// partial-f: a term leaves when its exit p-value is above this. In (0, 1), and for stepwise
+  /// not below entry_p (else the search can cycle). Default 0.10.
+  double exit_p = 0.10;
+  /// A product or power only with its parts in the model. Default: true.
+  bool hierarchy = true;
+  /// Largest number of terms (besides the intercept); nullopt: no limit.
+  std::optional<std::size_t> max_terms;
+  /// all-subsets: models kept per size (>= 1). Default 3.
+  std::size_t best_per_size = 3;
+  /// cv: folds (>= 2). Default 10.
+  int folds = 10;
+  /// Seed of every random choice (fold assignment, bootstrap). Recorded in the audit.
+  std::uint64_t seed = 20261201;
+};
+
+struct Plan {
+  DesignSpec design;
+  SearchOptions search;
+  /// Cell texts meaning "missing"; the plan's "missing" key. Default: empty and "NA".
+  std::vector<std::string> missing_tokens = {"", "NA"};
+};
+
+}  // namespace stepledger
