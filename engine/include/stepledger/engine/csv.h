@@ -50,11 +50,17 @@ enum class CellKind { kNumber, kMissing, kText, kNonFinite };
 CellKind ClassifyCell(std::string_view text, const std::vector<std::string>& missing_tokens,
                       double& value);
 
+/// Line and column numbers: lines are 1-based and count every LF, including LFs inside
+/// quoted fields. Columns are 1-based byte offsets from the start of the line (not
+/// characters); a UTF-8 byte-order mark at the start of the file is skipped and not counted,
+/// so the first header field is at 1:1 with or without one.
 class CsvReader {
  public:
   /// Opens the file and reads the header. Throws InputError on an unreadable file,
   /// an empty file, and duplicate or empty header names.
   CsvReader(std::filesystem::path path, CsvOptions options = {});
+  CsvReader(CsvReader&&) noexcept = default;
+  CsvReader& operator=(CsvReader&&) noexcept = default;
 
   const std::filesystem::path& path() const { return path_; }
   const CsvOptions& options() const { return options_; }
@@ -62,35 +68,78 @@ class CsvReader {
   /// Index of a header name, or -1.
   std::ptrdiff_t ColumnIndex(std::string_view name) const;
 
-  /// Reads the next data record; false at end of file. A line that is entirely empty
-  /// at the end of the file is not a record. Throws InputError on a ragged row (naming the
-  /// expected and found field counts) or an unterminated quote (naming where it opened).
+  /// Reads the next data record; false at end of file. Lines that are entirely empty
+  /// at the end of the file are not records (an empty line elsewhere is a record of one
+  /// empty field, hence a ragged row unless the header has one column). Throws InputError on
+  /// a ragged row (naming the expected and found field counts), an unterminated quote (naming
+  /// where it opened), a quote inside an unquoted field or text after a closing quote.
+  /// Cost: O(bytes of the record); no heap allocation once the buffers have grown, except for
+  /// quoted fields holding doubled quotes (collapsed into storage owned by the reader).
   bool Next(CsvRecord& record);
 
-  /// Bytes consumed so far.
+  /// Bytes of the file parsed so far (through the last record returned, BOM included);
+  /// equals the file size once Next() has returned false.
   std::uint64_t bytes_read() const { return bytes_read_; }
 
   /// Called with every block of raw bytes as it is read, in file order, including the header.
   /// Set it before the first Next() to see every byte (the constructor reads the header, so the
   /// reader replays the bytes already read to a newly set observer). Used for data fingerprints.
+  /// Throws std::logic_error when called after the first Next() (bytes would be missed).
   void SetByteObserver(std::function<void(std::string_view)> observer);
 
   /// file:line:column of a field, for messages.
   std::string Where(const CsvField& field) const;
 
  private:
-  bool FillBuffer();
-  bool ParseRecord(std::vector<CsvField>& fields, std::uint64_t& start_line);
+  // Owns a POSIX file descriptor (read(2) straight into our buffer, no stream copies).
+  class FileHandle {
+   public:
+    FileHandle() = default;
+    explicit FileHandle(int fd) : fd_(fd) {}
+    FileHandle(FileHandle&& other) noexcept : fd_(other.fd_) { other.fd_ = -1; }
+    FileHandle& operator=(FileHandle&& other) noexcept;
+    FileHandle(const FileHandle&) = delete;
+    FileHandle& operator=(const FileHandle&) = delete;
+    ~FileHandle();
+    int get() const { return fd_; }
+
+   private:
+    int fd_ = -1;
+  };
+  // A field whose text lives in record_storage_; its view is made once the record is
+  // complete, because appending to the storage may move it.
+  struct StoredText {
+    std::size_t field_index;
+    std::size_t offset;
+    std::size_t length;
+  };
+
+  // Reads more bytes (at least one block, and at least as many as are pending so that
+  // re-parsing a long record costs amortised O(its length)); sets eof_ at end of file.
+  void ReadMore();
+  // Parses one record starting at cursor_ into fields. Returns false when the buffer ends
+  // before the record does and the file has more bytes (nothing is consumed then).
+  bool TryParseRecord(std::vector<CsvField>& fields, std::uint64_t& start_line);
+  bool TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& start_line);
+  // Parses the next record, reading as needed; false at end of file.
+  bool ReadRecord(std::vector<CsvField>& fields, std::uint64_t& start_line);
+  // True when only CR and LF bytes remain in the file.
+  bool OnlyLineBreaksRemain();
+  std::uint64_t ColumnAt(const char* position, std::uint64_t line_start) const;
+  [[noreturn]] void Fail(std::uint64_t line, std::uint64_t column, const std::string& what) const;
+  void ReadHeader();
 
   std::filesystem::path path_;
   std::string display_name_;
   CsvOptions options_;
-  std::ifstream stream_;
+  FileHandle file_;
   std::vector<std::string> header_;
   std::string buffer_;        // bytes not yet consumed start at cursor_
   std::size_t cursor_ = 0;
-  std::string record_storage_;  // unquoted field texts of the current record
+  std::string record_storage_;  // collapsed texts of quoted fields of the current record
+  std::vector<StoredText> stored_texts_;
   bool eof_ = false;
+  bool next_called_ = false;
   std::uint64_t line_ = 1;
   std::uint64_t line_start_offset_ = 0;  // absolute offset of current line start
   std::uint64_t buffer_offset_ = 0;      // absolute offset of buffer_[0]

@@ -35,6 +35,7 @@ struct TermSpec {
   std::optional<std::string> baseline;  ///< kCategorical: the reference level, if given
   std::vector<std::string> parts;       ///< kProduct: exactly two term names
   std::string key_path;                 ///< where the plan said it, e.g. "terms[3]"; for messages
+  bool operator==(const TermSpec&) const = default;
 };
 
 enum class ResponseTransform { kNone, kLog };
@@ -53,7 +54,15 @@ struct DesignSpec {
   /// columns and columns with too many levels are skipped and reported).
   bool all_terms = false;
   std::vector<TermSpec> terms;
+  bool operator==(const DesignSpec&) const = default;
 };
+
+/// The checks that need no data: a non-empty response, term names non-empty, unique and not
+/// "intercept", a power of degree >= 2, a source column named for every kind but products,
+/// a baseline only on categorical terms, products of two existing, different terms and no
+/// cycle among products, and at least one term (unless all_terms). Throws PlanError naming
+/// the key path (TermSpec::key_path + ".name", ".product[1]", ...). BuildDesign calls it.
+void ValidateDesignSpec(const DesignSpec& spec);
 
 inline constexpr std::size_t kNoTerm = std::numeric_limits<std::size_t>::max();
 
@@ -112,15 +121,39 @@ class Design {
   /// response) and w (weight, 1 without weights). Returns whether the row is used and
   /// otherwise why not. Throws InputError naming file:line:column for a log of a
   /// non-positive value, a negative or non-finite weight, and a text cell in a numeric column.
+  /// Cost: O(columns used + design columns) per row, no heap allocation for a used row.
+  /// Every used cell of the row is checked (so a bad cell is reported even in a dropped row),
+  /// but log and the response transform are evaluated only for used rows.
   RowOutcome Expand(const CsvReader& reader, const CsvRecord& record, std::span<double> x,
                     double& y, double& w) const;
+
+  /// Throws InputError when the reader's header does not put the design's source columns
+  /// where the profile found them (the file changed since it was profiled).
+  void CheckHeader(const CsvReader& reader) const;
 
   // Filled by BuildDesign: header positions of the source columns of each term etc.
   struct Source {
     std::ptrdiff_t response = -1;
     std::ptrdiff_t weights = -1;
     std::vector<std::ptrdiff_t> term_column;  ///< per term; -1 for products
-    std::vector<std::map<std::string, std::size_t, std::less<>>> level_index;  ///< per term
+    /// Per term: level -> offset among the term's columns; the baseline maps to kNoTerm.
+    std::vector<std::map<std::string, std::size_t, std::less<>>> level_index;
+    /// Distinct (header column, as numeric or as categorical) cells Expand reads, in the
+    /// order of the drop reasons: response, weights, then the terms' columns in plan order.
+    struct Cell {
+      std::ptrdiff_t header_index = -1;
+      std::string column_name;
+      bool categorical = false;
+      std::size_t term = kNoTerm;  ///< categorical: the term whose levels apply
+      std::string missing_reason;  ///< "missing <column>"
+    };
+    std::vector<Cell> cells;
+    std::ptrdiff_t response_cell = -1;   ///< index into cells
+    std::ptrdiff_t weights_cell = -1;    ///< index into cells, -1 without weights
+    std::vector<std::ptrdiff_t> term_cell;  ///< per term: index into cells; -1 for products
+    /// Terms in an order where a product comes after its parts.
+    std::vector<std::size_t> evaluation_order;
+    std::string file_name;  ///< profile path, for the changed-file message
   } source;
 };
 

@@ -1,0 +1,44 @@
+#pragma once
+// Private, thin wrappers over the few LAPACK/BLAS routines the engine calls (column-major,
+// Fortran calling convention). Each wrapper documents the routine's contract, runs the
+// workspace query first where LAPACK has one, treats info < 0 as a bug (NumericalError naming
+// the routine and argument) and returns info > 0 to the caller as an outcome to report.
+//
+// Nothing outside engine/src includes this file.
+
+#include <cstddef>
+
+namespace stepledger::lapack {
+
+/// Triangular-pentagonal QR (dtpqrt): on entry a is the n x n upper triangle R, b is m x n
+/// and pentagonal (its first m - l rows dense, its last l rows upper trapezoidal; l = 0 for
+/// a dense block of rows, l = n = m for another triangle). On exit a holds R' with
+/// R'^T R' = R^T R + B^T B and b is overwritten (Householder vectors). The work array is of
+/// the fixed size nb x n (LAPACK has no workspace query for this routine); the block size
+/// nb is chosen here. Never fails for finite input (info > 0 does not exist).
+void FoldPentagonal(int m, int n, int l, double* a, int lda, double* b, int ldb);
+
+/// dlartg: plane rotation [c s; -s c] with c f + s g = r, -s f + c g = 0.
+void GenerateRotation(double f, double g, double& c, double& s, double& r);
+
+/// drot: applies the plane rotation to the vectors x and y of length n with strides.
+void ApplyRotation(int n, double* x, int incx, double* y, int incy, double c, double s);
+
+/// dtrtrs: solves op(A) X = B for X (overwriting B), A upper triangular n x n.
+/// transpose: false for A X = B, true for A^T X = B. Returns info (> 0: A(info, info) is zero).
+int SolveUpperTriangular(bool transpose, int n, int nrhs, const double* a, int lda, double* b,
+                         int ldb);
+
+/// dpotri: given the upper triangular U (any diagonal signs), overwrites its upper triangle with
+/// the upper triangle of (U^T U)^-1. Returns info (> 0: U(info, info) is zero).
+int InverseFromUpperFactor(int n, double* a, int lda);
+
+/// dtrcon: reciprocal condition number, 1-norm, of the upper triangular A (n x n).
+/// Returns 1 for n = 0.
+double UpperTriangularRcond(int n, const double* a, int lda);
+
+/// dgeqrf: Householder QR of the m x n matrix a in place (R in the upper triangle, vectors
+/// below). Workspace query first.
+void HouseholderQr(int m, int n, double* a, int lda);
+
+}  // namespace stepledger::lapack
