@@ -37,14 +37,20 @@ struct ColumnProfile {
   ColumnKind kind = ColumnKind::kEmpty;
   std::uint64_t present = 0;  ///< non-missing cells
   std::uint64_t missing = 0;
-  /// Numeric columns: over present cells (Welford, unweighted). NaN otherwise.
+  /// Numeric columns: over present cells (Welford, unweighted; sd is the sample standard
+  /// deviation with n-1, NaN when only one cell is present). NaN for other kinds.
   double min = 0, max = 0, mean = 0, sd = 0;
-  /// Categorical columns: distinct levels sorted byte-wise with counts (up to max_levels).
+  /// Categorical columns: distinct texts of the present cells, sorted byte-wise, with counts
+  /// (up to max_levels). Numeric columns keep them too when they have at most max_levels
+  /// distinct texts (so that a numeric code can be a categorical term); a numeric column with
+  /// more has empty levels and too_many_levels false. Empty columns: no levels.
   std::vector<LevelCount> levels;
-  /// True when the column had more distinct levels than ProfileOptions::max_levels;
-  /// levels then holds only the first ones seen and the column cannot be a term.
+  /// Categorical columns: true when the column had more distinct levels than
+  /// ProfileOptions::max_levels; levels then holds only the first max_levels seen, counted until
+  /// the limit was reached, and the column cannot be a term. Always false for other kinds.
   bool too_many_levels = false;
-  /// Categorical columns: the first cell that is not a number.
+  /// Categorical columns: the first cell that is not a number (line, column as in csv.h and
+  /// the cell's text). Unset for other kinds.
   std::optional<CellLocation> first_text;
   /// Numeric cells count: how many present cells parsed as numbers (for a categorical column
   /// that is mostly numbers, this helps say "column 'price' has 2 text cells").
@@ -52,7 +58,8 @@ struct ColumnProfile {
 };
 
 struct ProfileOptions {
-  /// Distinct levels kept per categorical column before it is marked too_many_levels.
+  /// Distinct levels kept per column before a categorical column is marked too_many_levels.
+  /// Default 10000; 0 keeps none (every non-empty categorical column is then too_many_levels).
   std::size_t max_levels = 10000;
 };
 
@@ -64,8 +71,9 @@ struct DataProfile {
   const ColumnProfile* Find(std::string_view name) const;
 };
 
-/// Reads the whole file once. Throws InputError naming file:line:column for any cell that
-/// parses as a non-finite number ("nan", "inf"), and for the reader's own errors.
+/// Reads the whole file once (one CsvReader pass; memory O(columns x max_levels)). Throws
+/// InputError naming file:line:column for any cell that parses as a non-finite number ("nan",
+/// "inf", or a number too large for a double), and for the reader's own errors.
 DataProfile ProfileCsv(const std::filesystem::path& path, const CsvOptions& csv,
                        const ProfileOptions& options = {});
 

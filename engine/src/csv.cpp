@@ -1,0 +1,442 @@
+#include "stepledger/engine/csv.h"
+
+#include <fcntl.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <charconv>
+#include <cmath>
+#include <cstdlib>
+#include <cstring>
+#include <stdexcept>
+#include <system_error>
+
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+namespace {
+
+constexpr char kQuote = '"';
+constexpr std::string_view kByteOrderMark = "\xEF\xBB\xBF";
+
+const char* FindByte(const char* begin, const char* end, char byte) {
+  return static_cast<const char*>(std::memchr(begin, byte, static_cast<std::size_t>(end - begin)));
+}
+
+// The unquoted field that contains position: from begin to the next delimiter or LF.
+std::string_view FieldAround(const char* begin, const char* end, char delimiter) {
+  const char* stop = begin;
+  while (stop < end && *stop != delimiter && *stop != '\n') ++stop;
+  if (stop > begin && stop[-1] == '\r') --stop;
+  return {begin, static_cast<std::size_t>(stop - begin)};
+}
+
+std::string Quoted(std::string_view text) { return "'" + QuoteForMessage(text) + "'"; }
+
+}  // namespace
+
+void CsvOptions::Validate() const {
+  if (delimiter == kQuote || delimiter == '\r' || delimiter == '\n') {
+    throw InputError("CSV option 'delimiter' is '" + QuoteForMessage(std::string_view(&delimiter, 1)) +
+                     "'; it must be one byte other than a double quote, CR or LF");
+  }
+  if (block_bytes == 0) {
+    throw InputError("CSV option 'block_bytes' is 0; it must be at least 1");
+  }
+}
+
+CellKind ClassifyCell(std::string_view text, const std::vector<std::string>& missing_tokens,
+                      double& value) {
+  for (const std::string& token : missing_tokens) {
+    if (text == token) return CellKind::kMissing;
+  }
+  std::string_view digits = text;
+  // from_chars rejects a leading '+'; accept exactly one, but not "+-1" or a lone "+".
+  if (!digits.empty() && digits.front() == '+') {
+    digits.remove_prefix(1);
+    if (digits.empty() || digits.front() == '+' || digits.front() == '-') return CellKind::kText;
+  }
+  if (digits.empty()) return CellKind::kText;
+  const char* first = digits.data();
+  const char* last = first + digits.size();
+  double parsed = 0;
+  const auto [end, error] = std::from_chars(first, last, parsed, std::chars_format::general);
+  if (end != last) return CellKind::kText;
+  if (error == std::errc::result_out_of_range) {
+    // from_chars leaves the value unset on overflow and underflow; strtod on the same
+    // (already validated) text gives +-HUGE_VAL for overflow and 0 or a subnormal otherwise.
+    const std::string copy(digits);
+    parsed = std::strtod(copy.c_str(), nullptr);
+  } else if (error != std::errc()) {
+    return CellKind::kText;
+  }
+  value = parsed;
+  return std::isfinite(parsed) ? CellKind::kNumber : CellKind::kNonFinite;
+}
+
+CsvReader::FileHandle& CsvReader::FileHandle::operator=(FileHandle&& other) noexcept {
+  if (this != &other) {
+    if (fd_ >= 0) ::close(fd_);
+    fd_ = other.fd_;
+    other.fd_ = -1;
+  }
+  return *this;
+}
+
+CsvReader::FileHandle::~FileHandle() {
+  if (fd_ >= 0) ::close(fd_);
+}
+
+CsvReader::CsvReader(std::filesystem::path path, CsvOptions options)
+    : path_(std::move(path)), display_name_(path_.string()), options_(std::move(options)) {
+  options_.Validate();
+  const int fd = ::open(path_.c_str(), O_RDONLY | O_CLOEXEC);
+  if (fd < 0) {
+    throw InputError("cannot open data file '" + display_name_ + "': " + std::strerror(errno));
+  }
+  file_ = FileHandle(fd);
+  ReadHeader();
+}
+
+void CsvReader::ReadMore() {
+  if (eof_) return;
+  // Keep only the unconsumed bytes; views of the previous record die here (allowed: they
+  // are valid until the next Next()).
+  if (cursor_ > 0) {
+    buffer_.erase(0, cursor_);
+    buffer_offset_ += cursor_;
+    cursor_ = 0;
+  }
+  const std::size_t pending = buffer_.size();
+  const std::size_t wanted = std::max(options_.block_bytes, pending);
+  std::size_t appended = 0;
+  while (appended < wanted) {
+    const std::size_t old_size = buffer_.size();
+    buffer_.resize(old_size + options_.block_bytes);
+    ssize_t got;
+    do {
+      got = ::read(file_.get(), buffer_.data() + old_size, options_.block_bytes);
+    } while (got < 0 && errno == EINTR);
+    if (got < 0) {
+      const int error = errno;
+      buffer_.resize(old_size);
+      throw InputError("cannot read data file '" + display_name_ + "': " + std::strerror(error));
+    }
+    buffer_.resize(old_size + static_cast<std::size_t>(got));
+    if (got == 0) {
+      eof_ = true;
+      break;
+    }
+    const std::string_view block(buffer_.data() + old_size, static_cast<std::size_t>(got));
+    if (observer_) {
+      observer_(block);
+    } else if (!next_called_) {
+      header_bytes_.append(block);
+    }
+    appended += static_cast<std::size_t>(got);
+  }
+}
+
+std::uint64_t CsvReader::ColumnAt(const char* position, std::uint64_t line_start) const {
+  return buffer_offset_ + static_cast<std::uint64_t>(position - buffer_.data()) - line_start + 1;
+}
+
+void CsvReader::Fail(std::uint64_t line, std::uint64_t column, const std::string& what) const {
+  throw InputError(FormatLocation(display_name_, line, column) + ": " + what);
+}
+
+bool CsvReader::TryParseRecord(std::vector<CsvField>& fields, std::uint64_t& start_line) {
+  const char* const base = buffer_.data();
+  const char* const record_begin = base + cursor_;
+  const char* const end = base + buffer_.size();
+  const char* const newline = FindByte(record_begin, end, '\n');
+  if (newline == nullptr && !eof_) return false;
+  const char* const line_end = newline != nullptr ? newline : end;
+  if (FindByte(record_begin, line_end, kQuote) != nullptr) {
+    return TryParseQuoted(fields, start_line);
+  }
+
+  // Common case: a line without quotes. Split it at delimiters; texts are views of buffer_.
+  const char* text_end = line_end;
+  if (text_end > record_begin && text_end[-1] == '\r') --text_end;
+  fields.clear();
+  stored_texts_.clear();
+  const std::uint64_t first_column = ColumnAt(record_begin, line_start_offset_);
+  const char delimiter = options_.delimiter;
+  const char* field_begin = record_begin;
+  for (;;) {
+    const char* field_end = FindByte(field_begin, text_end, delimiter);
+    const char* stop = field_end != nullptr ? field_end : text_end;
+    CsvField& field = fields.emplace_back();
+    field.text = std::string_view(field_begin, static_cast<std::size_t>(stop - field_begin));
+    field.line = line_;
+    field.column = first_column + static_cast<std::uint64_t>(field_begin - record_begin);
+    field.quoted = false;
+    if (field_end == nullptr) break;
+    field_begin = field_end + 1;
+  }
+  start_line = line_;
+  if (newline != nullptr) {
+    ++line_;
+    cursor_ = static_cast<std::size_t>(newline + 1 - base);
+    line_start_offset_ = buffer_offset_ + cursor_;
+  } else {
+    cursor_ = buffer_.size();
+  }
+  return true;
+}
+
+// General case: the record holds a quote somewhere. A byte-wise state machine over local
+// copies of the position state, committed only when the whole record is in the buffer.
+bool CsvReader::TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& start_line) {
+  const char* const base = buffer_.data();
+  const char* const end = base + buffer_.size();
+  const char delimiter = options_.delimiter;
+  fields.clear();
+  stored_texts_.clear();
+  record_storage_.clear();
+  std::uint64_t line = line_;
+  std::uint64_t line_start = line_start_offset_;
+  const char* position = base + cursor_;
+
+  for (;;) {  // one field per iteration
+    CsvField& field = fields.emplace_back();
+    field.line = line;
+    field.column = ColumnAt(position, line_start);
+    field.quoted = false;
+    const char* after_field = nullptr;  // the delimiter, LF or end that closes the field
+
+    if (position < end && *position == kQuote) {
+      field.quoted = true;
+      const char* const opening = position;
+      const char* const content_begin = position + 1;
+      const char* scan = content_begin;
+      bool has_doubled_quotes = false;
+      const char* content_end = nullptr;
+      for (;;) {
+        const char* quote = FindByte(scan, end, kQuote);
+        const char* segment_end = quote != nullptr ? quote : end;
+        for (const char* lf = FindByte(scan, segment_end, '\n'); lf != nullptr;
+             lf = FindByte(lf + 1, segment_end, '\n')) {
+          ++line;
+          line_start = buffer_offset_ + static_cast<std::uint64_t>(lf + 1 - base);
+        }
+        if (quote == nullptr) {
+          if (!eof_) return false;
+          Fail(field.line, field.column,
+               "quoted field opened here is never closed (it starts " +
+                   Quoted(std::string_view(opening, static_cast<std::size_t>(end - opening))) + ")");
+        }
+        if (quote + 1 == end && !eof_) return false;
+        if (quote + 1 < end && quote[1] == kQuote) {
+          has_doubled_quotes = true;
+          scan = quote + 2;
+          continue;
+        }
+        content_end = quote;
+        position = quote + 1;
+        break;
+      }
+      // After the closing quote only a delimiter, a line end or the end of the file may follow.
+      if (position == end) {
+        if (!eof_) return false;
+        after_field = end;
+      } else if (*position == delimiter || *position == '\n') {
+        after_field = position;
+      } else if (*position == '\r' && (position + 1 == end || position[1] == '\n')) {
+        if (position + 1 == end && !eof_) return false;
+        after_field = position + 1;
+      } else {
+        Fail(line, ColumnAt(position, line_start),
+             "unexpected text after the closing quote of field " +
+                 Quoted(std::string_view(opening, static_cast<std::size_t>(
+                                                      FieldAround(position, end, delimiter).end() -
+                                                      opening))) +
+                 "; a quoted field ends at its closing quote");
+      }
+      const std::string_view raw(content_begin, static_cast<std::size_t>(content_end - content_begin));
+      if (has_doubled_quotes) {
+        const std::size_t offset = record_storage_.size();
+        // Every quote inside the content is doubled (checked above): keep the first of each pair.
+        for (std::string_view rest = raw; !rest.empty();) {
+          const std::size_t quote = rest.find(kQuote);
+          if (quote == std::string_view::npos) {
+            record_storage_.append(rest);
+            break;
+          }
+          record_storage_.append(rest.substr(0, quote + 1));
+          rest.remove_prefix(quote + 2);
+        }
+        stored_texts_.push_back({fields.size() - 1, offset, record_storage_.size() - offset});
+      } else {
+        field.text = raw;
+      }
+    } else {
+      const char* scan = position;
+      while (scan < end && *scan != delimiter && *scan != '\n' && *scan != kQuote) ++scan;
+      if (scan < end && *scan == kQuote) {
+        Fail(line, ColumnAt(scan, line_start),
+             "quote character inside unquoted field " + Quoted(FieldAround(position, end, delimiter)) +
+                 "; quote the whole field and double each quote inside it");
+      }
+      if (scan == end && !eof_) return false;
+      const char* text_end = scan;
+      if (scan == end || *scan == '\n') {
+        if (text_end > position && text_end[-1] == '\r') --text_end;
+      }
+      field.text = std::string_view(position, static_cast<std::size_t>(text_end - position));
+      after_field = scan;
+    }
+
+    if (after_field < end && *after_field == delimiter) {
+      position = after_field + 1;
+      continue;
+    }
+    // End of the record: at a LF or at the end of the file.
+    start_line = line_;
+    if (after_field < end) {  // *after_field == '\n'
+      ++line;
+      cursor_ = static_cast<std::size_t>(after_field + 1 - base);
+      line_start = buffer_offset_ + cursor_;
+    } else {
+      cursor_ = buffer_.size();
+    }
+    line_ = line;
+    line_start_offset_ = line_start;
+    for (const StoredText& stored : stored_texts_) {
+      fields[stored.field_index].text =
+          std::string_view(record_storage_.data() + stored.offset, stored.length);
+    }
+    return true;
+  }
+}
+
+bool CsvReader::ReadRecord(std::vector<CsvField>& fields, std::uint64_t& start_line) {
+  for (;;) {
+    if (cursor_ == buffer_.size()) {
+      if (eof_) return false;
+      ReadMore();
+      continue;
+    }
+    if (TryParseRecord(fields, start_line)) return true;
+    ReadMore();
+  }
+}
+
+bool CsvReader::OnlyLineBreaksRemain() {
+  std::size_t checked = 0;  // bytes after cursor_ known to be CR or LF
+  for (;;) {
+    while (cursor_ + checked < buffer_.size()) {
+      const char byte = buffer_[cursor_ + checked];
+      if (byte != '\n' && byte != '\r') return false;
+      ++checked;
+    }
+    if (eof_) return true;
+    ReadMore();  // keeps the bytes from cursor_ on, so checked stays valid
+  }
+}
+
+void CsvReader::ReadHeader() {
+  // A BOM needs three bytes to be recognised, whatever the block size.
+  while (buffer_.size() < kByteOrderMark.size() && !eof_) ReadMore();
+  if (std::string_view(buffer_).substr(0, kByteOrderMark.size()) == kByteOrderMark) {
+    cursor_ = kByteOrderMark.size();
+    line_start_offset_ = kByteOrderMark.size();  // columns count from after the BOM
+  }
+  std::vector<CsvField> fields;
+  std::uint64_t start_line = 0;
+  if (!ReadRecord(fields, start_line)) {
+    Fail(1, 1, "the file is empty; expected a header row of column names");
+  }
+  if (fields.size() == 1 && !fields[0].quoted && fields[0].text.empty()) {
+    Fail(1, 1, "the header line is empty; expected a row of column names");
+  }
+  header_.reserve(fields.size());
+  for (std::size_t index = 0; index < fields.size(); ++index) {
+    const CsvField& field = fields[index];
+    if (field.text.empty()) {
+      Fail(field.line, field.column,
+           "header field " + std::to_string(index + 1) + " has an empty name; every column needs one");
+    }
+    for (std::size_t earlier = 0; earlier < index; ++earlier) {
+      if (header_[earlier] == field.text) {
+        Fail(field.line, field.column,
+             "duplicate column name " + Quoted(field.text) + " in header fields " +
+                 std::to_string(earlier + 1) + " and " + std::to_string(index + 1) +
+                 " (first at column " + std::to_string(fields[earlier].column) + ")");
+      }
+    }
+    header_.emplace_back(field.text);
+  }
+  bytes_read_ = buffer_offset_ + cursor_;
+}
+
+std::ptrdiff_t CsvReader::ColumnIndex(std::string_view name) const {
+  const auto found = std::find(header_.begin(), header_.end(), name);
+  return found == header_.end() ? -1 : found - header_.begin();
+}
+
+void CsvReader::SetByteObserver(std::function<void(std::string_view)> observer) {
+  if (next_called_) {
+    throw std::logic_error("CsvReader::SetByteObserver called after Next(); bytes would be missed");
+  }
+  observer_ = std::move(observer);
+  if (observer_ && !header_bytes_.empty()) observer_(header_bytes_);
+  header_bytes_.clear();
+  header_bytes_.shrink_to_fit();
+}
+
+bool CsvReader::Next(CsvRecord& record) {
+  if (!next_called_) {
+    next_called_ = true;
+    header_bytes_.clear();
+    header_bytes_.shrink_to_fit();
+  }
+  std::uint64_t start_line = 0;
+  // Absolute, because reading more bytes moves the unconsumed part to the buffer's front.
+  const std::uint64_t record_offset = buffer_offset_ + cursor_;
+  if (!ReadRecord(record.fields, start_line)) {
+    bytes_read_ = buffer_offset_ + cursor_;
+    return false;
+  }
+  const bool empty_line =
+      record.fields.size() == 1 && !record.fields[0].quoted && record.fields[0].text.empty();
+  if (empty_line) {
+    record.fields[0].text = std::string_view();  // OnlyLineBreaksRemain may move the buffer
+    if (OnlyLineBreaksRemain()) {
+      cursor_ = buffer_.size();
+      bytes_read_ = buffer_offset_ + cursor_;
+      return false;
+    }
+  }
+  bytes_read_ = buffer_offset_ + cursor_;
+  const std::size_t expected = header_.size();
+  if (record.fields.size() != expected) {
+    if (empty_line) {
+      Fail(start_line, 1,
+           "expected " + std::to_string(expected) + " fields as in the header, found an empty line");
+    }
+    const std::string counts = "expected " + std::to_string(expected) +
+                               " fields as in the header, found " +
+                               std::to_string(record.fields.size());
+    if (record.fields.size() > expected) {
+      const CsvField& extra = record.fields[expected];
+      Fail(extra.line, extra.column, counts + "; the first extra field is " + Quoted(extra.text));
+    }
+    // The record's raw bytes, without its line end, for the message.
+    const std::size_t record_begin = static_cast<std::size_t>(record_offset - buffer_offset_);
+    std::string_view raw(buffer_.data() + record_begin, cursor_ - record_begin);
+    while (!raw.empty() && (raw.back() == '\n' || raw.back() == '\r')) raw.remove_suffix(1);
+    Fail(start_line, record.fields.front().column, counts + " in the record " + Quoted(raw));
+  }
+  record.line = start_line;
+  record.row_index = next_row_index_++;
+  return true;
+}
+
+std::string CsvReader::Where(const CsvField& field) const {
+  return FormatLocation(display_name_, field.line, field.column);
+}
+
+}  // namespace stepledger
