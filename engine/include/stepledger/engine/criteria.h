@@ -45,9 +45,13 @@ struct PartialF {
 /// Partial F of d columns: RSS0 without them, RSS1 with them, k1 coefficients with them.
 PartialF ComputePartialF(double rss_without, double rss_with, double d, double n, double k_with);
 
-/// Upper-tail probabilities and quantiles (Boost.Math).
+/// Upper-tail probabilities and quantiles (Boost.Math; upper tails through complement(), never
+/// 1 - cdf). Each returns NaN when a degree of freedom is not > 0 or an argument is NaN.
+/// P(|T| >= |t|) on df degrees of freedom; 0 for infinite t.
 double StudentTTwoSidedP(double t, double df);
+/// The t value with P(T <= value) = probability; NaN unless 0 < probability < 1.
 double StudentTQuantile(double probability, double df);
+/// P(F >= f) on (df1, df2) degrees of freedom; 1 for f <= 0, 0 for f = +inf.
 double FisherFUpperP(double f, double df1, double df2);
 
 }  // namespace stepledger

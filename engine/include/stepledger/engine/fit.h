@@ -7,7 +7,11 @@
 // arithmetic, then solves R'R d = X'W r through the factor and sets b += d (the corrected
 // semi-normal equations). The same pass refines (X'WX)^-1 for the standard errors, and the
 // residual SD and R^2 are taken from the refined residuals. Stops when the largest relative
-// correction is below refinement_tolerance or after max_refinement_passes.
+// correction is below refinement_tolerance or after max_refinement_passes (or when a pass
+// corrects more than the one before, which keeps the better estimate). The rows' design values
+// are x + x_low (UsedRow::x_low): with the low parts of long double powers the refinement fits
+// the long double design (NIST StRD Filip: 11 digits instead of the 7.6 that x^k rounded to
+// double allows whatever the solver). Without a replay the fit comes from the factor alone.
 
 #include <cstdint>
 #include <optional>
@@ -43,10 +47,19 @@ struct CoefficientEstimate {
   std::string name;   ///< design column name ("intercept", "age", "grade[A]", ...)
   std::string term;   ///< owning term ("intercept" for the intercept)
   double estimate = 0;
-  std::optional<double> se, t, p, ci_low, ci_high;  ///< undefined when n <= k
-  std::optional<double> vif;  ///< undefined for the intercept and for one-column models
+  /// Undefined when n <= k. With an exact fit (se = 0), t is +-inf and p = 0 for a non-zero
+  /// estimate, and t and p are undefined for a zero one.
+  std::optional<double> se, t, p, ci_low, ci_high;
+  /// Variance inflation factor C_jj * (weighted sum of squares of x_j about its weighted mean);
+  /// without an intercept about zero (the uncentred VIF). Undefined for the intercept and when
+  /// the model has no intercept and a single column. 1 for a lone predictor beside the intercept.
+  std::optional<double> vif;
 };
 
+/// ANOVA rows: one per term (sequential SS in model order: the drop in RSS when the term's
+/// columns join the model, read from the factor), then "regression" (SSR = SST - SSE, so that
+/// SSE + SSR = SST by construction; the terms' rows sum to it to the factor's rounding),
+/// "residual" (SSE) and "total" (SST; df n-1 with an intercept, n without).
 struct AnovaRow {
   std::string source;  ///< a term (sequential SS in model order), "regression", "residual", "total"
   double df = 0;
@@ -57,7 +70,8 @@ struct AnovaRow {
 enum class FitStatus {
   kCompleted,       ///< all coefficients estimated
   kAliased,         ///< some columns are aliased with earlier ones; they are not estimated
-  kNoResidualDf,    ///< n <= k: coefficients estimated (or not), no SE, t, p
+  kNoResidualDf,    ///< n <= k: coefficients estimated (or not), no SE, t, p (takes precedence
+                    ///< over kAliased; aliased_columns is filled either way)
 };
 const char* ToString(FitStatus status);
 
@@ -77,8 +91,13 @@ struct FitResult {
   std::optional<double> f, f_p;          ///< overall F test against the intercept-only (or empty) model
   std::vector<CoefficientEstimate> coefficients;
   arma::vec beta;                        ///< estimates, same order as columns
-  arma::mat xtwx_inverse;                ///< refined (X'WX)^-1
-  arma::mat covariance;                  ///< sigma^2 (X'WX)^-1
+  arma::mat xtwx_inverse;                ///< refined (X'WX)^-1 (data units, model order)
+  arma::mat covariance;                  ///< sigma^2 (X'WX)^-1; empty when n <= k
+  /// R11 of the model in the factor's scaled units (see ModelState::ModelTriangle) and the
+  /// scales of the model columns then the response: what diagnostics use for leverages
+  /// without cancellation (h = w ||R11^-T D x||^2).
+  arma::mat model_triangle;
+  std::vector<double> model_scales;
   std::vector<AnovaRow> anova;
   double confidence_level = 0.95;
   double rcond = 0;                      ///< reciprocal condition number of R11
@@ -97,6 +116,10 @@ struct FitResult {
 FitResult FitModel(const Factor& factor, const Design& design,
                    std::span<const std::size_t> term_indices, const FitOptions& options,
                    const RowReplay* replay = nullptr);
+
+/// h_ii at or above 1 - kLeverageOneTolerance counts as 1 (the row fits itself exactly):
+/// its standardised residual, Cook's distance and PRESS are undefined.
+inline constexpr double kLeverageOneTolerance = 1e-10;
 
 struct RowDiagnostic {
   std::uint64_t row_index = 0;

@@ -7,7 +7,9 @@
 //  - adding one candidate column j scores as RSS - (R22[:,j]' r2y)^2 / ||R22[:,j]||^2, so all
 //    candidates score in O(m^2); a group of d columns (a categorical term) scores with a small
 //    QR of its d columns of R22, O(m d^2);
-//  - removing model columns G raises RSS by beta_G' [C_GG]^-1 beta_G, C = (R11'R11)^-1;
+//  - removing model columns G raises RSS by beta_G' [C_GG]^-1 beta_G, C = (R11'R11)^-1; the
+//    kernel evaluates it without forming C, by rotating G to the end of the model in a copy
+//    of R and reading the freed entries of r1y (O(m^2 d), no inverse, no cancellation);
 //  - moving a column into or out of S is a sequence of Givens rotations on R (LAPACK dlartg,
 //    BLAS drot), O(m^2) per column.
 // A column is aliased with the model when the norm of its part orthogonal to the model
@@ -91,10 +93,25 @@ class ModelState {
   void Remove(std::span<const std::size_t> columns);
 
   /// Coefficients and (X'WX)^-1 of the model from R11 alone (no refinement). O(s^3).
+  /// Throws NumericalError if R11 has an exact zero on its diagonal (cannot happen for models
+  /// built with Add, which refuses aliased columns).
   ModelSolution Solve() const;
+
+  /// R11 of the current model (s x s, upper triangular, model order) in the factor's scaled
+  /// units: R11'R11 = D X_S' W X_S D with D = diag(scales of the model columns).
+  arma::mat ModelTriangle() const;
+  /// Scales of the factor's columns (design columns then the response), see Factor::scales.
+  const std::vector<double>& scales() const { return scales_; }
+
+  // Programmer errors (a column index out of range, adding a model column, removing a
+  // column that is not in the model, repeating a column in a group) throw std::logic_error.
 
  private:
   void MoveColumn(std::size_t from_position, std::size_t to_position);
+  void SwapAdjacent(std::size_t position);           // positions position, position+1
+  double SingleAddRssScaled(std::size_t position) const;  // factor units
+  double RssScaled() const;
+  void CheckColumn(std::size_t column, const char* caller) const;
   std::size_t columns_;        // m
   KernelOptions options_;
   arma::mat r_;                // (m+1)x(m+1) triangle, columns permuted by position_to_column_

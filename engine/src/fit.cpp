@@ -1,0 +1,580 @@
+#include "stepledger/engine/fit.h"
+
+#include <algorithm>
+#include <cmath>
+#include <iomanip>
+#include <limits>
+#include <sstream>
+#include <stdexcept>
+#include <string>
+
+#include "lapack.h"
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+namespace {
+
+// ---- double-double arithmetic --------------------------------------------------------------
+// A value hi + lo with |lo| <= ulp(hi)/2: about 32 significant digits. Error-free
+// transformations: Knuth's TwoSum and the fused multiply-add product (Dekker/Ogita-Rump-Oishi).
+// Refinement needs them because the residuals of an ill-conditioned fit are the difference of
+// nearly equal numbers; a plain double (or long double) sum leaves digits to the row order.
+struct DoubleDouble {
+  double hi = 0;
+  double lo = 0;
+  double value() const { return hi + lo; }
+};
+
+DoubleDouble TwoSum(double a, double b) {
+  const double s = a + b;
+  const double bb = s - a;
+  return {s, (a - (s - bb)) + (b - bb)};
+}
+
+DoubleDouble QuickTwoSum(double a, double b) {  // requires |a| >= |b| or a = 0
+  const double s = a + b;
+  return {s, b - (s - a)};
+}
+
+DoubleDouble TwoProduct(double a, double b) {
+  const double p = a * b;
+  return {p, std::fma(a, b, -p)};
+}
+
+DoubleDouble operator+(DoubleDouble a, DoubleDouble b) {
+  DoubleDouble s = TwoSum(a.hi, b.hi);
+  const DoubleDouble t = TwoSum(a.lo, b.lo);
+  s.lo += t.hi;
+  s = QuickTwoSum(s.hi, s.lo);
+  s.lo += t.lo;
+  return QuickTwoSum(s.hi, s.lo);
+}
+
+DoubleDouble operator-(DoubleDouble a) { return {-a.hi, -a.lo}; }
+
+DoubleDouble operator*(DoubleDouble a, double b) {
+  DoubleDouble p = TwoProduct(a.hi, b);
+  p.lo += a.lo * b;
+  return QuickTwoSum(p.hi, p.lo);
+}
+
+DoubleDouble operator*(DoubleDouble a, DoubleDouble b) {
+  DoubleDouble p = TwoProduct(a.hi, b.hi);
+  p.lo += a.hi * b.lo + a.lo * b.hi;
+  return QuickTwoSum(p.hi, p.lo);
+}
+
+// ---- solves through the factor -------------------------------------------------------------
+
+// rhs := (R'R)^-1 rhs with two triangular solves (R' z = rhs, then R x = z): the factor stands in
+// for X'WX without ever forming it.
+void SolveThroughFactor(const arma::mat& triangle, arma::mat& rhs) {
+  const int n = static_cast<int>(triangle.n_rows);
+  const int columns = static_cast<int>(rhs.n_cols);
+  int info = lapack::SolveUpperTriangular(true, n, columns, triangle.memptr(), n, rhs.memptr(), n);
+  if (info == 0) info = lapack::SolveUpperTriangular(false, n, columns, triangle.memptr(), n, rhs.memptr(), n);
+  if (info > 0) throw NumericalError("fit: the model's triangular factor is singular at position " + std::to_string(info));
+}
+
+struct Refinement {
+  arma::vec beta;      // scaled units
+  arma::mat inverse;   // (X'WX)^-1 in scaled units
+  double rss = 0;      // scaled units, from the last pass's residuals
+  double tss = 0;      // scaled units
+  int passes = 0;
+  double correction = 0;
+};
+
+// The corrected semi-normal equations (Bjorck): each pass over the rows accumulates
+// r = y - X b and g = X'W r in double-double, then b += (R'R)^-1 g. The first pass also
+// accumulates A = X'WX in double-double, with which (X'WX)^-1 is refined in memory by
+// C += (R'R)^-1 (I - A C). Everything is in the factor's scaled units (exact powers of two).
+Refinement Refine(const arma::mat& triangle, const std::vector<std::size_t>& columns,
+                  const std::vector<double>& column_scales, double y_scale, bool intercept,
+                  double y_shift, arma::vec beta, arma::mat inverse, std::uint64_t factor_rows,
+                  const FitOptions& options, const RowReplay& replay) {
+  const std::size_t k = columns.size();
+  Refinement out;
+  std::vector<DoubleDouble> gram(k * k);
+  DoubleDouble weight_sum, shifted_sum, shifted_squares;
+  std::vector<DoubleDouble> x(k);
+  double previous_correction = std::numeric_limits<double>::infinity();
+  for (int pass = 1; pass <= options.max_refinement_passes; ++pass) {
+    const bool first = pass == 1;
+    std::vector<DoubleDouble> gradient(k);
+    DoubleDouble rss;
+    std::uint64_t rows = 0;
+    replay([&](const UsedRow& row) {
+      ++rows;
+      // The design value is x + x_low (x_low empty: exact in double); scaling by 2^e is exact.
+      const bool has_low = !row.x_low.empty();
+      for (std::size_t j = 0; j < k; ++j) {
+        x[j] = {row.x[columns[j]] * column_scales[j], has_low ? row.x_low[columns[j]] * column_scales[j] : 0.0};
+      }
+      const double y = row.y * y_scale;
+      DoubleDouble fitted;
+      for (std::size_t j = 0; j < k; ++j) fitted = fitted + x[j] * beta(j);
+      const DoubleDouble residual = DoubleDouble{y, 0} + (-fitted);
+      const DoubleDouble weighted_residual = residual * row.weight;
+      rss = rss + weighted_residual * residual;
+      for (std::size_t j = 0; j < k; ++j) gradient[j] = gradient[j] + weighted_residual * x[j];
+      if (first) {
+        for (std::size_t i = 0; i < k; ++i) {
+          const DoubleDouble weighted_x = x[i] * row.weight;
+          for (std::size_t j = i; j < k; ++j) gram[i * k + j] = gram[i * k + j] + weighted_x * x[j];
+        }
+        const DoubleDouble centred = TwoSum(y, -y_shift);
+        const DoubleDouble weighted_centred = centred * row.weight;
+        weight_sum = weight_sum + DoubleDouble{row.weight, 0};
+        shifted_sum = shifted_sum + weighted_centred;
+        shifted_squares = shifted_squares + weighted_centred * centred;
+      }
+    });
+    if (rows != factor_rows) {
+      throw NumericalError("fit: the rows replayed for refinement (" + std::to_string(rows) +
+                           ") are not the rows of the factor (" + std::to_string(factor_rows) + ")");
+    }
+    out.rss = rss.value();
+    if (first) {
+      // Sum of squares about the weighted mean, shifted by an estimate of the mean so that the
+      // subtraction below cancels little; about zero without an intercept (shift 0).
+      const DoubleDouble correction_term =
+          intercept && weight_sum.hi > 0
+              ? shifted_sum * shifted_sum * (1.0 / weight_sum.value())
+              : DoubleDouble{};
+      out.tss = std::max(0.0, (shifted_squares + (-correction_term)).value());
+    }
+    arma::mat delta(k, 1);
+    for (std::size_t j = 0; j < k; ++j) delta(j, 0) = gradient[j].value();
+    SolveThroughFactor(triangle, delta);
+    double correction = 0;
+    for (std::size_t j = 0; j < k; ++j) {
+      const double size = std::max(std::abs(beta(j)), std::abs(beta(j) + delta(j, 0)));
+      if (size > 0) correction = std::max(correction, std::abs(delta(j, 0)) / size);
+    }
+    out.passes = pass;
+    if (pass > 1 && correction > previous_correction) {
+      // Diverging (the factor is too ill-conditioned for this data): keep the better estimate.
+      out.correction = previous_correction;
+      break;
+    }
+    beta += delta.col(0);
+    out.correction = correction;
+    previous_correction = correction;
+    if (correction < options.refinement_tolerance) break;
+  }
+  out.beta = beta;
+
+  // Iterative refinement of the inverse against the double-double Gram matrix.
+  for (std::size_t i = 0; i < k; ++i)
+    for (std::size_t j = 0; j < i; ++j) gram[i * k + j] = gram[j * k + i];
+  for (int iteration = 0; iteration < options.max_refinement_passes; ++iteration) {
+    arma::mat residual(k, k);
+    for (std::size_t j = 0; j < k; ++j) {
+      for (std::size_t i = 0; i < k; ++i) {
+        DoubleDouble sum{i == j ? 1.0 : 0.0, 0};
+        for (std::size_t l = 0; l < k; ++l) sum = sum + (-(gram[i * k + l] * inverse(l, j)));
+        residual(i, j) = sum.value();
+      }
+    }
+    SolveThroughFactor(triangle, residual);
+    double correction = 0;
+    for (std::size_t j = 0; j < k; ++j) {
+      for (std::size_t i = 0; i < k; ++i) {
+        const double size = std::sqrt(std::abs(inverse(i, i) * inverse(j, j)));
+        if (size > 0) correction = std::max(correction, std::abs(residual(i, j)) / size);
+      }
+    }
+    inverse += residual;
+    if (correction < options.refinement_tolerance) break;
+  }
+  out.inverse = 0.5 * (inverse + inverse.t());
+  return out;
+}
+
+std::optional<double> Defined(double value) {
+  if (std::isnan(value)) return std::nullopt;
+  return value;
+}
+
+// ---- text layout ---------------------------------------------------------------------------
+
+std::string Number(double value, int digits = 6) {
+  if (std::isnan(value)) return "undefined";
+  if (std::isinf(value)) return value > 0 ? "infinite" : "-infinite";
+  std::ostringstream text;
+  text << std::setprecision(digits) << value;
+  return text.str();
+}
+
+std::string Number(const std::optional<double>& value, int digits = 6) {
+  return value ? Number(*value, digits) : "undefined";
+}
+
+// Columns of text: the first `left_columns` left-aligned (names), the rest right-aligned.
+std::string Layout(const std::vector<std::vector<std::string>>& rows, std::size_t left_columns,
+                   const std::string& indent = "  ") {
+  std::vector<std::size_t> widths;
+  for (const auto& row : rows) {
+    widths.resize(std::max(widths.size(), row.size()));
+    for (std::size_t c = 0; c < row.size(); ++c) widths[c] = std::max(widths[c], row[c].size());
+  }
+  std::ostringstream text;
+  for (const auto& row : rows) {
+    std::string line = indent;
+    for (std::size_t c = 0; c < row.size(); ++c) {
+      if (c > 0) line += "  ";
+      const std::string padding(widths[c] - row[c].size(), ' ');
+      line += c < left_columns ? row[c] + padding : padding + row[c];
+    }
+    while (!line.empty() && line.back() == ' ') line.pop_back();
+    text << line << '\n';
+  }
+  return text.str();
+}
+
+}  // namespace
+
+const char* ToString(FitStatus status) {
+  switch (status) {
+    case FitStatus::kCompleted: return "completed";
+    case FitStatus::kAliased: return "aliased";
+    case FitStatus::kNoResidualDf: return "no-residual-df";
+  }
+  return "unknown";
+}
+
+void FitOptions::Validate() const {
+  auto fail = [](const std::string& field, double value, const std::string& rule) {
+    std::ostringstream message;
+    message << "fit option " << field << " = " << value << " is out of range: " << rule;
+    throw InputError(message.str());
+  };
+  if (!(confidence_level > 0 && confidence_level < 1)) fail("confidence_level", confidence_level, "it must lie in (0, 1)");
+  if (cp_sigma2 && !(*cp_sigma2 > 0 && std::isfinite(*cp_sigma2))) fail("cp_sigma2", *cp_sigma2, "it must be a positive finite number");
+  if (max_refinement_passes < 0) fail("max_refinement_passes", max_refinement_passes, "it must be 0 or more");
+  if (!(refinement_tolerance > 0 && refinement_tolerance < 1)) fail("refinement_tolerance", refinement_tolerance, "it must lie in (0, 1)");
+  kernel.Validate();
+}
+
+FitResult FitModel(const Factor& factor, const Design& design,
+                   std::span<const std::size_t> term_indices, const FitOptions& options,
+                   const RowReplay* replay) {
+  options.Validate();
+  if (factor.column_count() != design.column_count()) {
+    throw std::invalid_argument("FitModel: the factor has " + std::to_string(factor.column_count()) +
+                                " design columns, the design " + std::to_string(design.column_count()));
+  }
+  FitResult fit;
+  fit.intercept = design.intercept;
+  fit.n = factor.rows;
+  fit.weight_sum = factor.weight_sum;
+  fit.log_weight_sum = factor.log_weight_sum;
+  fit.confidence_level = options.confidence_level;
+  fit.alias_tolerance = options.kernel.alias_tolerance;
+
+  ModelState state(factor, options.kernel);
+  std::vector<std::string> column_terms;  // owning term's name per estimated column
+  auto try_add = [&](std::size_t column, const std::string& term) {
+    if (state.IsAliased(column)) {
+      fit.aliased_columns.push_back(design.columns[column].name);
+      return false;
+    }
+    const std::size_t single[] = {column};
+    state.Add(single);
+    fit.columns.push_back(column);
+    column_terms.push_back(term);
+    return true;
+  };
+  if (design.intercept) {
+    if (design.columns.empty() || design.columns[0].term != kNoTerm) {
+      throw std::invalid_argument("FitModel: a design with an intercept must have it as column 0");
+    }
+    try_add(0, "intercept");
+  }
+  const double tss_from_factor = state.Rss();  // about the mean with an intercept, else about zero
+  double rss_before = tss_from_factor;
+  std::vector<AnovaRow> term_rows;
+  for (std::size_t term_index : term_indices) {
+    if (term_index >= design.terms.size()) {
+      throw std::invalid_argument("FitModel: term index " + std::to_string(term_index) +
+                                  " out of range (" + std::to_string(design.terms.size()) + " terms)");
+    }
+    if (std::find(fit.term_indices.begin(), fit.term_indices.end(), term_index) != fit.term_indices.end()) {
+      throw std::invalid_argument("FitModel: term '" + design.terms[term_index].name + "' listed twice");
+    }
+    const DesignTerm& term = design.terms[term_index];
+    fit.terms.push_back(term.name);
+    fit.term_indices.push_back(term_index);
+    double df = 0;
+    for (std::size_t column = term.first_column; column < term.first_column + term.column_count; ++column) {
+      if (try_add(column, term.name)) df += 1;
+    }
+    const double rss_after = state.Rss();
+    AnovaRow row;
+    row.source = term.name;
+    row.df = df;
+    row.ss = std::max(0.0, rss_before - rss_after);
+    term_rows.push_back(row);
+    rss_before = rss_after;
+  }
+
+  const ModelSolution solution = state.Solve();
+  const std::size_t k = fit.columns.size();
+  fit.k = k;
+  fit.rcond = solution.rcond;
+  fit.model_triangle = state.ModelTriangle();
+  for (std::size_t column : fit.columns) fit.model_scales.push_back(factor.scales[column]);
+  fit.model_scales.push_back(factor.scales.back());
+  fit.beta = solution.beta;
+  fit.xtwx_inverse = solution.xtwx_inverse;
+  fit.rss = solution.rss;
+  fit.tss = tss_from_factor;
+
+  if (replay != nullptr && *replay && options.max_refinement_passes > 0 && k > 0) {
+    const double y_scale = factor.scales.back();
+    arma::vec beta_scaled(k);
+    arma::mat inverse_scaled(k, k);
+    for (std::size_t i = 0; i < k; ++i) {
+      beta_scaled(i) = fit.beta(i) * y_scale / fit.model_scales[i];
+      for (std::size_t j = 0; j < k; ++j) {
+        inverse_scaled(i, j) = fit.xtwx_inverse(i, j) / (fit.model_scales[i] * fit.model_scales[j]);
+      }
+    }
+    const double y_shift = design.intercept && !factor.column_stats.empty()
+                               ? factor.column_stats.back().mean * y_scale
+                               : 0.0;
+    const std::vector<double> column_scales(fit.model_scales.begin(), fit.model_scales.end() - 1);
+    const Refinement refined =
+        Refine(fit.model_triangle, fit.columns, column_scales, y_scale, design.intercept, y_shift,
+               beta_scaled, inverse_scaled, factor.rows, options, *replay);
+    for (std::size_t i = 0; i < k; ++i) {
+      fit.beta(i) = refined.beta(i) * fit.model_scales[i] / y_scale;
+      for (std::size_t j = 0; j < k; ++j) {
+        fit.xtwx_inverse(i, j) = refined.inverse(i, j) * fit.model_scales[i] * fit.model_scales[j];
+      }
+    }
+    fit.rss = refined.rss / (y_scale * y_scale);
+    fit.tss = refined.tss / (y_scale * y_scale);
+    fit.refinement_passes = refined.passes;
+    fit.refinement_correction = refined.correction;
+  }
+
+  const double n = static_cast<double>(fit.n);
+  const double k_value = static_cast<double>(k);
+  fit.df_residual = n - k_value;
+  fit.ssr = fit.tss - fit.rss;  // SSE + SSR = SST by construction
+  if (fit.n <= k) {
+    fit.status = FitStatus::kNoResidualDf;
+  } else if (!fit.aliased_columns.empty()) {
+    fit.status = FitStatus::kAliased;
+  }
+
+  CriteriaInputs inputs;
+  inputs.n = n;
+  inputs.k = k_value;
+  inputs.rss = fit.rss;
+  inputs.tss = fit.tss;
+  inputs.intercept = design.intercept;
+  inputs.log_weight_sum = factor.log_weight_sum;
+  inputs.full_sigma2 = options.cp_sigma2;
+  fit.criteria = ComputeCriteria(inputs);
+
+  const bool has_residual_df = fit.n > k;
+  const double sigma2 = has_residual_df ? fit.rss / fit.df_residual : 0.0;
+  if (has_residual_df) fit.covariance = sigma2 * fit.xtwx_inverse;
+  const double t_quantile =
+      has_residual_df ? StudentTQuantile(0.5 + 0.5 * options.confidence_level, fit.df_residual) : 0.0;
+
+  // Weighted sums of squares of each model column about its weighted mean (with an intercept,
+  // which sits at model position 0) or about zero (without), read from R11 in scaled units:
+  // column p of R11 below row 0 is the part of x_p orthogonal to the intercept.
+  const std::size_t first_row = design.intercept ? 1 : 0;
+  // Without an intercept a lone column's uncentred VIF is 1 by construction and says nothing.
+  const bool vif_defined_for_model = design.intercept || k >= 2;
+  for (std::size_t position = 0; position < k; ++position) {
+    CoefficientEstimate coefficient;
+    const std::size_t column = fit.columns[position];
+    coefficient.name = design.columns[column].name;
+    coefficient.term = column_terms[position];
+    coefficient.estimate = fit.beta(position);
+    if (has_residual_df) {
+      const double se = std::sqrt(std::max(0.0, sigma2 * fit.xtwx_inverse(position, position)));
+      coefficient.se = se;
+      if (se > 0) {
+        coefficient.t = coefficient.estimate / se;
+      } else if (coefficient.estimate != 0) {
+        coefficient.t = std::copysign(std::numeric_limits<double>::infinity(), coefficient.estimate);
+      }
+      if (coefficient.t) coefficient.p = Defined(StudentTTwoSidedP(*coefficient.t, fit.df_residual));
+      coefficient.ci_low = coefficient.estimate - t_quantile * se;
+      coefficient.ci_high = coefficient.estimate + t_quantile * se;
+    }
+    const bool is_intercept = design.intercept && position == 0;
+    if (!is_intercept && vif_defined_for_model) {
+      double centred_squares = 0;  // scaled units; C'_jj * SS'_j equals the data-unit product
+      for (std::size_t row = first_row; row <= position; ++row) {
+        centred_squares += fit.model_triangle(row, position) * fit.model_triangle(row, position);
+      }
+      const double scale = fit.model_scales[position];
+      coefficient.vif = fit.xtwx_inverse(position, position) / (scale * scale) * centred_squares;
+    }
+    fit.coefficients.push_back(std::move(coefficient));
+  }
+
+  // Overall F against the intercept-only model (or the empty model without an intercept).
+  const double regression_df = design.intercept ? k_value - 1 : k_value;
+  const double mse = has_residual_df ? fit.rss / fit.df_residual : 0.0;
+  auto f_test = [&](double ss, double df, std::optional<double>& f, std::optional<double>& p) {
+    if (!(df > 0) || !has_residual_df) return;
+    if (mse > 0) {
+      f = (std::max(0.0, ss) / df) / mse;
+      p = Defined(FisherFUpperP(*f, df, fit.df_residual));
+    } else if (ss > 0) {
+      f = std::numeric_limits<double>::infinity();
+      p = 0.0;
+    }
+  };
+  f_test(fit.ssr, regression_df, fit.f, fit.f_p);
+
+  for (AnovaRow& row : term_rows) {
+    if (row.df > 0) row.ms = row.ss / row.df;
+    f_test(row.ss, row.df, row.f, row.p);
+    fit.anova.push_back(row);
+  }
+  AnovaRow regression{"regression", regression_df, fit.ssr, std::nullopt, fit.f, fit.f_p};
+  if (regression_df > 0) regression.ms = fit.ssr / regression_df;
+  AnovaRow residual{"residual", fit.df_residual, fit.rss, std::nullopt, std::nullopt, std::nullopt};
+  if (has_residual_df) residual.ms = mse;
+  AnovaRow total{"total", design.intercept ? n - 1 : n, fit.tss, std::nullopt, std::nullopt, std::nullopt};
+  fit.anova.push_back(regression);
+  fit.anova.push_back(residual);
+  fit.anova.push_back(total);
+  return fit;
+}
+
+std::string FitResult::BriefReport() const {
+  std::ostringstream text;
+  text << "model: " << (intercept ? "intercept" : "no intercept");
+  for (const std::string& term : terms) text << " + " << term;
+  text << '\n'
+       << "  " << n << " rows, " << k << " coefficients, status " << ToString(status) << '\n'
+       << "  R-squared " << Number(criteria.r2) << ", adjusted " << Number(criteria.adj_r2)
+       << ", residual SD " << Number(criteria.sigma) << '\n'
+       << "  AIC " << Number(criteria.aic, 8) << ", BIC " << Number(criteria.bic, 8) << '\n';
+  return text.str();
+}
+
+std::string FitResult::FullReport() const {
+  std::ostringstream text;
+  text << "Fitted model (" << ToString(status) << ")\n";
+  text << "  response explained by: " << (intercept ? "intercept" : "no intercept");
+  for (const std::string& term : terms) text << ", " << term;
+  text << "\n  rows used " << n << ", coefficients " << k << ", residual df " << Number(df_residual)
+       << '\n';
+  if (!aliased_columns.empty()) {
+    text << "  left out as aliased (relative residual norm below " << Number(alias_tolerance, 3)
+         << "):";
+    for (const std::string& name : aliased_columns) text << ' ' << name;
+    text << '\n';
+  }
+  if (status == FitStatus::kNoResidualDf) {
+    text << "  no residual degrees of freedom: standard errors, t and p are undefined\n";
+  }
+
+  const std::string level = Number(100 * confidence_level, 4) + "%";
+  text << "\nCoefficients\n";
+  std::vector<std::vector<std::string>> table = {
+      {"column", "term", "estimate", "std error", "t", "p", level + " low", level + " high", "VIF"}};
+  for (const CoefficientEstimate& c : coefficients) {
+    table.push_back({c.name, c.term, Number(c.estimate, 8), Number(c.se), Number(c.t, 5),
+                     Number(c.p, 4), Number(c.ci_low), Number(c.ci_high),
+                     c.vif ? Number(c.vif, 4) : (c.term == "intercept" ? "-" : "undefined")});
+  }
+  text << Layout(table, 2);
+
+  text << "\nAnalysis of variance (term rows: sequential sums of squares in model order)\n";
+  std::vector<std::vector<std::string>> anova_table = {{"source", "df", "sum of squares", "mean square", "F", "p"}};
+  for (const AnovaRow& row : anova) {
+    // The residual and total rows have no F test (and the total no mean square): left blank,
+    // which is not the same as "undefined" (a test that exists but has no value).
+    const bool residual_or_total = row.source == "residual" || row.source == "total";
+    anova_table.push_back({row.source, Number(row.df), Number(row.ss, 10),
+                           row.source == "total" ? "" : Number(row.ms, 8),
+                           residual_or_total ? "" : Number(row.f, 6),
+                           residual_or_total ? "" : Number(row.p, 4)});
+  }
+  text << Layout(anova_table, 1);
+
+  text << "\nFit statistics\n";
+  std::vector<std::vector<std::string>> statistics = {
+      {"R-squared", Number(criteria.r2, 8)},
+      {"adjusted R-squared", Number(criteria.adj_r2, 8)},
+      {"residual SD", Number(criteria.sigma, 8)},
+      {"F (overall)", Number(f, 6) + " on " + Number(intercept ? static_cast<double>(k) - 1 : static_cast<double>(k)) +
+                          " and " + Number(df_residual) + " df, p " + Number(f_p, 4)},
+      {"log-likelihood", Number(criteria.log_likelihood, 10)},
+      {"AIC", Number(criteria.aic, 10)},
+      {"AICc", Number(criteria.aicc, 10)},
+      {"BIC", Number(criteria.bic, 10)},
+      {"Mallows' Cp", Number(criteria.cp, 8)},
+      {"reciprocal condition of R11", Number(rcond, 3)},
+      {"refinement", std::to_string(refinement_passes) + " passes, last relative correction " +
+                         Number(refinement_correction, 3)}};
+  text << Layout(statistics, 2);
+  return text.str();
+}
+
+DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
+                                     const RowReplay& replay) {
+  const std::size_t k = fit.columns.size();
+  if (fit.model_triangle.n_rows != k || fit.model_scales.size() != k + 1) {
+    throw std::invalid_argument("ComputeDiagnostics: the fit carries no model factor (not made by FitModel)");
+  }
+  (void)design;
+  DiagnosticsResult result;
+  const std::optional<double> sigma = fit.criteria.sigma;
+  double press = 0;
+  bool press_defined = true;
+  arma::vec scaled_x(k);
+  replay([&](const UsedRow& row) {
+    RowDiagnostic diagnostic;
+    diagnostic.row_index = row.row_index;
+    diagnostic.line = row.line;
+    DoubleDouble fitted;
+    for (std::size_t j = 0; j < k; ++j) {
+      fitted = fitted + TwoProduct(row.x[fit.columns[j]], fit.beta(j));
+      scaled_x(j) = row.x[fit.columns[j]] * fit.model_scales[j];
+    }
+    diagnostic.fitted = fitted.value();
+    diagnostic.residual = (DoubleDouble{row.y, 0} + (-fitted)).value();
+    // h = w x'(X'WX)^-1 x = w ||R11^-T D x||^2 (a sum of squares: no cancellation).
+    if (k > 0) {
+      const int info = lapack::SolveUpperTriangular(true, static_cast<int>(k), 1, fit.model_triangle.memptr(),
+                                                    static_cast<int>(k), scaled_x.memptr(), static_cast<int>(k));
+      if (info > 0) throw NumericalError("diagnostics: the model's triangular factor is singular");
+      diagnostic.leverage = row.weight * arma::dot(scaled_x, scaled_x);
+    }
+    const bool leverage_one = diagnostic.leverage >= 1 - kLeverageOneTolerance;
+    if (!leverage_one) {
+      const double root_w = std::sqrt(row.weight);
+      const double one_minus_h = 1 - diagnostic.leverage;
+      if (sigma && *sigma > 0 && k > 0) {
+        const double standardized = root_w * diagnostic.residual / (*sigma * std::sqrt(one_minus_h));
+        diagnostic.standardized_residual = standardized;
+        diagnostic.cooks_distance =
+            standardized * standardized * diagnostic.leverage / (static_cast<double>(k) * one_minus_h);
+      }
+      const double deleted = diagnostic.residual / one_minus_h;
+      press += row.weight * deleted * deleted;
+    } else {
+      press_defined = false;
+    }
+    result.max_leverage = std::max(result.max_leverage, diagnostic.leverage);
+    result.rows.push_back(diagnostic);
+  });
+  if (press_defined) result.press = press;
+  return result;
+}
+
+}  // namespace stepledger

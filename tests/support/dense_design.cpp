@@ -1,0 +1,91 @@
+#include "support/dense_design.h"
+
+#include <cmath>
+#include <memory>
+#include <stdexcept>
+
+namespace stepledger::testing {
+
+double PowerOfTwoScale(const arma::vec& values) {
+  const double largest = values.is_empty() ? 0.0 : arma::abs(values).max();
+  if (largest == 0 || !std::isfinite(largest)) return 1.0;
+  return std::ldexp(1.0, -static_cast<int>(std::lround(std::log2(largest))));
+}
+
+std::vector<double> PowerOfTwoScales(const arma::mat& x, const arma::vec& y) {
+  std::vector<double> scales;
+  for (arma::uword column = 0; column < x.n_cols; ++column) scales.push_back(PowerOfTwoScale(x.col(column)));
+  scales.push_back(PowerOfTwoScale(y));
+  return scales;
+}
+
+Factor BuildFactor(const arma::mat& x, const arma::vec& y, const arma::vec& w, std::size_t block_rows,
+                   std::vector<double> scales) {
+  if (scales.empty()) scales = PowerOfTwoScales(x, y);
+  FactorBuilder builder(scales, block_rows);
+  std::vector<double> row(x.n_cols);
+  for (arma::uword i = 0; i < x.n_rows; ++i) {
+    for (arma::uword j = 0; j < x.n_cols; ++j) row[j] = x(i, j);
+    builder.AddRow(row, y(i), w.is_empty() ? 1.0 : w(i));
+  }
+  return builder.Finish();
+}
+
+RowReplay MemoryRowReplay(const arma::mat& x, const arma::vec& y, const arma::vec& w, const arma::mat& x_low) {
+  if (!x_low.is_empty() && (x_low.n_rows != x.n_rows || x_low.n_cols != x.n_cols)) {
+    throw std::invalid_argument("MemoryRowReplay: x_low must have the shape of x");
+  }
+  // Rows stored as columns so that each row is contiguous for UsedRow::x.
+  auto rows = std::make_shared<const arma::mat>(x.t());
+  auto low_rows = std::make_shared<const arma::mat>(x_low.t());
+  auto responses = std::make_shared<const arma::vec>(y);
+  auto weights = std::make_shared<const arma::vec>(w.is_empty() ? arma::vec(y.n_elem, arma::fill::ones) : w);
+  return [rows, low_rows, responses, weights](const std::function<void(const UsedRow&)>& visit) {
+    for (arma::uword i = 0; i < rows->n_cols; ++i) {
+      UsedRow row;
+      row.row_index = i;
+      row.line = i + 2;
+      row.x = std::span<const double>(rows->colptr(i), rows->n_rows);
+      if (!low_rows->is_empty()) row.x_low = std::span<const double>(low_rows->colptr(i), low_rows->n_rows);
+      row.y = (*responses)(i);
+      row.weight = (*weights)(i);
+      visit(row);
+    }
+  };
+}
+
+Design MakeDenseDesign(bool intercept, const std::vector<std::pair<std::string, std::size_t>>& terms,
+                       const std::vector<double>& scales) {
+  Design design;
+  design.response = "y";
+  design.intercept = intercept;
+  if (intercept) design.columns.push_back({"intercept", kNoTerm, 1.0});
+  for (std::size_t term_index = 0; term_index < terms.size(); ++term_index) {
+    const auto& [name, count] = terms[term_index];
+    DesignTerm term;
+    term.name = name;
+    term.kind = count == 1 ? TermKind::kNumeric : TermKind::kCategorical;
+    term.first_column = design.columns.size();
+    term.column_count = count;
+    term.source_column = name;
+    for (std::size_t c = 0; c < count; ++c) {
+      design.columns.push_back({count == 1 ? name : name + "[" + std::to_string(c + 1) + "]", term_index, 1.0});
+    }
+    design.terms.push_back(term);
+  }
+  if (scales.size() != design.columns.size() + 1) {
+    throw std::invalid_argument("MakeDenseDesign: " + std::to_string(scales.size()) + " scales for " +
+                                std::to_string(design.columns.size()) + " columns and the response");
+  }
+  for (std::size_t c = 0; c < design.columns.size(); ++c) design.columns[c].scale = scales[c];
+  design.response_scale = scales.back();
+  return design;
+}
+
+std::vector<std::size_t> AllTerms(const Design& design) {
+  std::vector<std::size_t> indices(design.terms.size());
+  for (std::size_t t = 0; t < indices.size(); ++t) indices[t] = t;
+  return indices;
+}
+
+}  // namespace stepledger::testing
