@@ -48,6 +48,12 @@ struct UsedRow {
   std::uint64_t row_index = 0;  ///< 0-based data record index in the file
   std::uint64_t line = 0;       ///< 1-based line where the record starts
   std::span<const double> x;
+  /// Optional low-order parts of x (empty, or design.column_count() values): the exact value of
+  /// column j is x[j] + x_low[j]. A power computed in long double can pass its rounding error
+  /// here (x_low = (double)(p - (long double)x)); refinement then fits the long double design,
+  /// which an ill-conditioned polynomial needs (NIST StRD Filip: 7.6 digits with x^k rounded to
+  /// double, whatever the solver; 11 digits with the low parts). Empty means all zero.
+  std::span<const double> x_low;
   double y = 0;
   double weight = 1;
 };

@@ -124,8 +124,13 @@ class Design {
   /// Cost: O(columns used + design columns) per row, no heap allocation for a used row.
   /// Every used cell of the row is checked (so a bad cell is reported even in a dropped row),
   /// but log and the response transform are evaluated only for used rows.
+  /// x_low (optional, empty or column_count() values): the low-order parts of x, so that the
+  /// exact value of column j is x[j] + x_low[j]; nonzero only for power columns (the rounding
+  /// error of the long double power), 0 elsewhere. Written only for used rows.
   RowOutcome Expand(const CsvReader& reader, const CsvRecord& record, std::span<double> x,
-                    double& y, double& w) const;
+                    double& y, double& w, std::span<double> x_low = {}) const;
+  /// True when some term is a power (so x_low can be nonzero).
+  bool HasLowOrderParts() const;
 
   /// Throws InputError when the reader's header does not put the design's source columns
   /// where the profile found them (the file changed since it was profiled).

@@ -46,6 +46,7 @@ struct SearchOptions {
   int folds = 10;
   /// Seed of every random choice (fold assignment, bootstrap). Recorded in the audit.
   std::uint64_t seed = 20261201;
+  bool operator==(const SearchOptions&) const = default;
 };
 
 struct Plan {
@@ -53,6 +54,7 @@ struct Plan {
   SearchOptions search;
   /// Cell texts meaning "missing"; the plan's "missing" key. Default: empty and "NA".
   std::vector<std::string> missing_tokens = {"", "NA"};
+  bool operator==(const Plan&) const = default;
 };
 
 }  // namespace stepledger

@@ -1,0 +1,79 @@
+#pragma once
+// Checking an audit (`stepledger verify`): the step chain, the section digests, the seal and
+// the signature; and, given the data, the fingerprint and a replay of the recorded plan whose
+// route is compared step by step with the recorded one.
+//
+// Every check names the first place that does not hold: "step 3 digest does not match",
+// "key 'model' does not match its digest", "fingerprint mismatch: the data are not the bytes the
+// audit was made from", "route diverges at step 2: key 'steps[2].term' ...".
+// What the checks prove: digests and seal are unkeyed, so they catch accidental and casual
+// edits; anyone can recompute them. A signature checked against a public key obtained
+// elsewhere (--public-key) shows who produced the file and that nobody recomputed the chain.
+
+#include <filesystem>
+#include <optional>
+#include <string>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "stepledger/audit/audit_document.h"
+
+namespace stepledger {
+
+struct VerifyOptions {
+  /// Ed25519 public key (PEM) the signature must verify against; empty: the signature, when
+  /// present, is checked against the key recorded in the audit (integrity only, not identity).
+  std::filesystem::path public_key;
+  /// Data file to fingerprint and replay on; empty: no replay.
+  std::filesystem::path data;
+  /// Threads of the replay's data pass (0: as recorded in settings).
+  int threads = 0;
+  /// Numbers in a replay agree when |a - b| <= relative_tolerance * max(|a|, |b|).
+  /// Default 1e-9 (the issue's contract); actions, terms and texts must match exactly.
+  double relative_tolerance = 1e-9;
+};
+
+/// The outcome of each check: a value type that starts at "not run".
+struct VerifyReport {
+  enum class Check { kNotRun, kHolds, kFails };
+  Check chain = Check::kNotRun;        ///< step digests from the genesis (plan and data) on
+  Check sections = Check::kNotRun;     ///< per-section digests
+  Check seal = Check::kNotRun;
+  Check signature = Check::kNotRun;    ///< not run when the audit has none and no key was given
+  Check fingerprint = Check::kNotRun;  ///< with data
+  Check replay = Check::kNotRun;       ///< with data
+  /// Problems, each naming its place; the first one is the first place that differs.
+  std::vector<std::string> problems;
+  /// Facts worth saying that are not problems (what was checked, against which key).
+  std::vector<std::string> notes;
+  /// True when every check that ran holds.
+  bool Holds() const { return problems.empty(); }
+  /// One line per check and per problem, for the terminal.
+  std::string FullReport() const;
+  nlohmann::json ToJson() const;
+};
+const char* ToString(VerifyReport::Check check);
+
+/// Chain, section digests, seal and signature of a parsed audit. Never throws for content
+/// problems (they are reported); throws InputError when the public key file cannot be used.
+VerifyReport CheckAuditIntegrity(const nlohmann::json& document,
+                                 const std::filesystem::path& public_key = {});
+
+/// CheckAuditIntegrity, then with options.data the fingerprint and the replay. Throws
+/// InputError when the data cannot be read or the recorded plan cannot be run on it.
+VerifyReport VerifyAudit(const nlohmann::json& document, const VerifyOptions& options);
+
+/// The first difference between two JSON values at path (numbers within relative_tolerance,
+/// everything else exactly), as "key 'PATH': A in the audit, B on replay"; nullopt when equal.
+std::optional<std::string> FirstJsonDifference(const nlohmann::json& recorded,
+                                               const nlohmann::json& replayed,
+                                               const std::string& path,
+                                               double relative_tolerance,
+                                               const char* recorded_name = "in the audit",
+                                               const char* replayed_name = "on replay");
+
+/// Numbers a and b agree to relative_tolerance (|a - b| <= tol * max(|a|, |b|)).
+bool NumbersAgree(double a, double b, double relative_tolerance);
+
+}  // namespace stepledger

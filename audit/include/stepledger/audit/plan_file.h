@@ -1,0 +1,82 @@
+#pragma once
+// The plan file (CONTRACT.md "Plan file (JSON)") to a Plan and back.
+//
+// Reading is strict: every error is a PlanError whose key_path() names the offending key
+// ("terms[2].power.degree") and whose message says what was expected and what was found.
+// Unknown keys are errors at every level. Malformed JSON names the file, line and column.
+//
+// Keys and their rules:
+//   response          string, required, non-empty
+//   response_transform "none" (default) or "log"
+//   intercept         bool, default true
+//   weights           string (a numeric column) or null (default: no weights)
+//   terms             required: a non-empty array of term objects, or the string "all"
+//                     (every column but the response and the weights, categorical where
+//                     not numeric)
+//   keep, never       arrays of term names (default empty); with explicit terms they must name
+//                     terms of the plan and no term may be in both; with "all" they are checked
+//                     against the design by CheckPlanAgainstDesign
+//   method            "forward", "backward", "stepwise" (default), "all-subsets", "none"
+//   criterion         "adj-r2", "aic", "aicc", "bic" (default), "cp", "partial-f", "cv"
+//   entry_p, exit_p   numbers in the open interval (0, 1); defaults 0.05 and 0.10; for stepwise
+//                     entry_p must not exceed exit_p (else a term can enter and leave in turn)
+//   hierarchy         bool, default true
+//   max_terms         integer >= 1, or null for no limit (default); at least the size of keep
+//   best_per_size     integer >= 1, default 3
+//   folds             integer >= 2, default 10
+//   seed              integer >= 0 (up to 2^64 - 1), default 20261201
+//   missing           array of strings: cell texts meaning missing; default ["", "NA"]
+// A term object has "name" (non-empty, unique, not "intercept") and exactly one of
+//   "column": C                                a numeric column as it is
+//   "power": {"column": C, "degree": D}        C^D, D an integer >= 2
+//   "log": C                                   natural log of C (values must be > 0)
+//   "categorical": C, optional "baseline": L   k levels -> k-1 indicator columns
+//   "product": [A, B]                          product of the terms named A and B (A != B)
+// Integers must be JSON integers (2, not 2.0).
+
+#include <filesystem>
+#include <string>
+#include <string_view>
+
+#include <nlohmann/json.hpp>
+
+#include "stepledger/engine/design.h"
+#include "stepledger/selection/plan.h"
+
+namespace stepledger {
+
+/// A plan as read from its file: the parsed Plan, the file's text byte for byte (for the
+/// audit's verbatim copy) and the parsed JSON.
+struct LoadedPlan {
+  Plan plan;
+  std::string verbatim;
+  nlohmann::json json;
+};
+
+/// Reads and parses a plan file. Throws PlanError (empty key path) when the file cannot be
+/// read ("cannot open plan file 'x': ...") or is not JSON ("x:3:14: malformed JSON: ..."),
+/// and PlanError naming the key for any content error.
+LoadedPlan LoadPlanFile(const std::filesystem::path& path);
+
+/// The same from text; source_name stands for the file name in messages.
+LoadedPlan ParsePlanText(std::string text, std::string_view source_name = "plan");
+
+/// The plan of a parsed JSON value (the checks of LoadPlanFile but the JSON syntax).
+Plan PlanFromJson(const nlohmann::json& json);
+
+/// The normalised plan: every key present with its value or default (null for no weights
+/// and no max_terms), in the form PlanFromJson reads, so PlanFromJson(PlanToJson(p)) == p.
+/// Given the design built from the plan, the terms are the design's: "all" resolved into
+/// the list of terms it made, and every categorical term with the baseline chosen.
+nlohmann::json PlanToJson(const Plan& plan, const Design* design = nullptr);
+
+/// The plan of the quick form `select DATA --response COL`: every other column a candidate
+/// term (DesignSpec::all_terms), every other setting at its default.
+Plan MakeQuickPlan(std::string response_column);
+
+/// The checks that need the design: keep and never name terms of the design (needed for
+/// "terms": "all"), and max_terms is at least the number of kept terms. Throws PlanError
+/// naming "keep[i]" or "never[i]".
+void CheckPlanAgainstDesign(const Plan& plan, const Design& design);
+
+}  // namespace stepledger

@@ -1,0 +1,460 @@
+#include "stepledger/audit/audit_verify.h"
+
+#include <algorithm>
+#include <cmath>
+#include <set>
+#include <sstream>
+
+#include "stepledger/audit/canonical_json.h"
+#include "stepledger/audit/signature.h"
+#include "stepledger/engine/errors.h"
+#include "stepledger/engine/fingerprint.h"
+
+namespace stepledger {
+namespace {
+
+using json = nlohmann::json;
+using Check = VerifyReport::Check;
+
+std::string Shown(const json& value) {
+  std::string text = value.dump();
+  if (text.size() > 60) text = text.substr(0, 57) + "...";
+  return text;
+}
+
+std::string StepLabel(const json& step, std::size_t position) {
+  std::string label = "step " + std::to_string(position);
+  if (!step.is_object()) return label;
+  if (step.contains("index") && step["index"] != json(position)) {
+    label += " (recorded index " + Shown(step["index"]) + ")";
+  }
+  if (step.contains("action") && step["action"].is_string()) {
+    label += " [" + step["action"].get<std::string>();
+    if (step.contains("term") && step["term"].is_string()) label += " " + step["term"].get<std::string>();
+    label += "]";
+  }
+  return label;
+}
+
+std::string Hex(const std::string& text) { return ToHex(Sha256(text)); }
+
+void CheckSections(const json& document, VerifyReport& report) {
+  report.sections = Check::kHolds;
+  const json* recorded = nullptr;
+  if (document.contains("digests") && document["digests"].is_object() &&
+      document["digests"].contains("sections") && document["digests"]["sections"].is_object()) {
+    recorded = &document["digests"]["sections"];
+  }
+  if (recorded == nullptr) {
+    report.sections = Check::kFails;
+    report.problems.push_back("key 'digests.sections' is missing: the audit is not sealed");
+    return;
+  }
+  std::set<std::string> keys;
+  for (const std::string& key : DigestedSections(document)) keys.insert(key);
+  for (auto it = recorded->begin(); it != recorded->end(); ++it) keys.insert(it.key());
+  for (const std::string& key : keys) {
+    if (!document.contains(key)) {
+      report.sections = Check::kFails;
+      report.problems.push_back("key '" + key + "' is missing but its digest is recorded");
+      continue;
+    }
+    if (!recorded->contains(key)) {
+      report.sections = Check::kFails;
+      report.problems.push_back("key '" + key + "' was added after sealing (no digest recorded)");
+      continue;
+    }
+    std::string actual;
+    try {
+      actual = Hex(CanonicalJson(document[key]));
+    } catch (const InputError& error) {
+      actual = std::string("unusable: ") + error.what();
+    }
+    if ((*recorded)[key] != json(actual)) {
+      report.sections = Check::kFails;
+      report.problems.push_back("key '" + key + "' does not match its digest: it was edited");
+    }
+  }
+}
+
+void CheckChain(const json& document, VerifyReport& report) {
+  report.chain = Check::kHolds;
+  if (!document.contains("steps") || !document["steps"].is_array()) {
+    report.chain = Check::kFails;
+    report.problems.push_back("key 'steps' is missing or not an array");
+    return;
+  }
+  const json& steps = document["steps"];
+  const json digests = document.contains("digests") ? document["digests"] : json::object();
+  const std::string genesis = GenesisDigest(document);
+  if (digests.contains("genesis") && digests["genesis"] != json(genesis)) {
+    report.chain = Check::kFails;
+    report.problems.push_back(
+        "genesis digest does not match: key 'plan' or 'data' (where the chain starts) was edited");
+  }
+  // Each step is checked against the digest recorded for the one before it, so that an edit is
+  // named at the step where it was made rather than at every later step.
+  std::string previous = genesis;
+  for (std::size_t position = 0; position < steps.size(); ++position) {
+    const json& step = steps[position];
+    const std::string label = StepLabel(step, position);
+    if (!step.is_object() || !step.contains("digest") || !step["digest"].is_string()) {
+      report.chain = Check::kFails;
+      report.problems.push_back(label + " has no digest");
+      previous.clear();
+      continue;
+    }
+    std::string actual;
+    try {
+      actual = StepDigest(previous, step);
+    } catch (const InputError& error) {
+      actual.clear();
+    }
+    const std::string recorded = step["digest"].get<std::string>();
+    if (actual != recorded) {
+      report.chain = Check::kFails;
+      std::string why = position == 0 ? "its content, the plan or the data changed"
+                                      : "its content changed, or a step before it was moved or deleted";
+      if (step.contains("index") && step["index"] != json(position)) {
+        why = "a step was moved or deleted (recorded index " + Shown(step["index"]) + " at position " +
+              std::to_string(position) + ")";
+      }
+      report.problems.push_back(label + " digest does not match: " + why);
+    }
+    previous = recorded;
+  }
+  if (digests.contains("step_count") && digests["step_count"] != json(steps.size())) {
+    report.chain = Check::kFails;
+    report.problems.push_back("key 'steps' has " + std::to_string(steps.size()) +
+                              " steps but the digests record " + Shown(digests["step_count"]) +
+                              ": a step was added or deleted");
+  } else if (digests.contains("route") && digests["route"] != json(previous)) {
+    report.chain = Check::kFails;
+    report.problems.push_back("the last step's digest is not the recorded route digest: a step "
+                              "was added or deleted at the end");
+  }
+  if (!digests.contains("genesis") || !digests.contains("route") || !digests.contains("step_count")) {
+    report.chain = Check::kFails;
+    report.problems.push_back("key 'digests' lacks genesis, route or step_count");
+  }
+}
+
+void CheckSeal(const json& document, VerifyReport& report) {
+  if (!document.contains("seal") || !document["seal"].is_string()) {
+    report.seal = Check::kFails;
+    report.problems.push_back("key 'seal' is missing");
+    return;
+  }
+  std::string actual;
+  try {
+    actual = ComputeSeal(document);
+  } catch (const InputError& error) {
+    report.seal = Check::kFails;
+    report.problems.push_back(std::string("seal cannot be computed: ") + error.what());
+    return;
+  }
+  if (actual != document["seal"].get<std::string>()) {
+    report.seal = Check::kFails;
+    report.problems.push_back("seal does not match the document: something outside the steps "
+                              "was edited, added or removed");
+  } else {
+    report.seal = Check::kHolds;
+  }
+}
+
+void CheckSignature(const json& document, const std::filesystem::path& public_key,
+                    VerifyReport& report) {
+  const bool present = document.contains("signature");
+  if (!present) {
+    if (!public_key.empty()) {
+      report.signature = Check::kFails;
+      report.problems.push_back("key 'signature' is missing: nothing to check against the public key " +
+                                public_key.string());
+    } else {
+      report.notes.push_back("no signature: the digests and seal catch accidental and casual "
+                             "edits only (anyone can recompute them)");
+    }
+    return;
+  }
+  const json& signature = document["signature"];
+  if (!signature.is_object() || !signature.contains("value") || !signature["value"].is_string() ||
+      signature.value("algorithm", std::string()) != "ed25519") {
+    report.signature = Check::kFails;
+    report.problems.push_back("key 'signature' is not an ed25519 signature {algorithm, public_key, value}");
+    return;
+  }
+  const std::string seal = document.contains("seal") && document["seal"].is_string()
+                               ? document["seal"].get<std::string>()
+                               : std::string();
+  const std::string value = signature["value"].get<std::string>();
+  bool holds = false;
+  if (!public_key.empty()) {
+    try {
+      holds = VerifyEd25519WithPemFile(public_key, seal, value);
+    } catch (const InputError& error) {
+      const std::string text = error.what();
+      // A key file that cannot be used is bad input; a malformed signature is a difference.
+      if (text.find(public_key.string()) != std::string::npos) throw;
+      holds = false;
+    }
+    if (holds) {
+      report.notes.push_back("signature verified against the public key " + public_key.string() +
+                             ": the holder of its private key signed this seal");
+    }
+  } else {
+    const std::string embedded = signature.value("public_key", std::string());
+    try {
+      holds = VerifyEd25519WithRawKeyHex(embedded, seal, value);
+    } catch (const InputError&) {
+      holds = false;
+    }
+    if (holds) {
+      report.notes.push_back("signature checked only against the public key recorded in the audit "
+                             "(" + embedded.substr(0, 16) + "...): give --public-key to check who signed");
+    }
+  }
+  if (holds) {
+    report.signature = Check::kHolds;
+  } else {
+    report.signature = Check::kFails;
+    report.problems.push_back(public_key.empty()
+                                  ? "signature does not verify against the key recorded in the audit"
+                                  : "signature does not verify against the public key " +
+                                        public_key.string());
+  }
+}
+
+std::string DataFileForMessage(const std::filesystem::path& path) { return path.string(); }
+
+// The parts of a replayed document compared with the recorded one, in the order of reporting.
+const char* const kReplayedSections[] = {"search", "subsets", "model", "numerics",
+                                         "design", "data",    "cautions"};
+
+}  // namespace
+
+const char* ToString(VerifyReport::Check check) {
+  switch (check) {
+    case Check::kNotRun: return "not run";
+    case Check::kHolds: return "holds";
+    case Check::kFails: return "FAILS";
+  }
+  return "?";
+}
+
+std::string VerifyReport::FullReport() const {
+  std::ostringstream text;
+  auto line = [&text](const char* name, Check check) {
+    if (check == Check::kNotRun) return;
+    text << "  " << name << ": " << ToString(check) << "\n";
+  };
+  text << "Checks:\n";
+  line("step chain", chain);
+  line("section digests", sections);
+  line("seal", seal);
+  line("signature", signature);
+  line("fingerprint", fingerprint);
+  line("replay", replay);
+  for (const std::string& note : notes) text << "Note: " << note << "\n";
+  if (problems.empty()) {
+    text << "The audit holds.\n";
+  } else {
+    text << "The audit does NOT hold. First difference: " << problems.front() << "\n";
+    for (std::size_t i = 1; i < problems.size(); ++i) text << "  also: " << problems[i] << "\n";
+  }
+  return text.str();
+}
+
+nlohmann::json VerifyReport::ToJson() const {
+  return {{"holds", Holds()},
+          {"checks",
+           {{"chain", ToString(chain)},
+            {"sections", ToString(sections)},
+            {"seal", ToString(seal)},
+            {"signature", ToString(signature)},
+            {"fingerprint", ToString(fingerprint)},
+            {"replay", ToString(replay)}}},
+          {"problems", problems},
+          {"notes", notes}};
+}
+
+bool NumbersAgree(double a, double b, double relative_tolerance) {
+  if (a == b) return true;
+  return std::fabs(a - b) <= relative_tolerance * std::max(std::fabs(a), std::fabs(b));
+}
+
+std::optional<std::string> FirstJsonDifference(const json& recorded, const json& replayed,
+                                               const std::string& path, double relative_tolerance,
+                                               const char* recorded_name, const char* replayed_name) {
+  auto differs = [&](const std::string& what) -> std::optional<std::string> {
+    return "key '" + path + "' " + what;
+  };
+  if (recorded.is_number() && replayed.is_number()) {
+    if (NumbersAgree(recorded.get<double>(), replayed.get<double>(), relative_tolerance)) return std::nullopt;
+    return differs("is " + Shown(recorded) + " " + recorded_name + ", " + Shown(replayed) + " " +
+                   replayed_name);
+  }
+  if (recorded.type() != replayed.type()) {
+    return differs("is " + Shown(recorded) + " " + recorded_name + ", " + Shown(replayed) + " " +
+                   replayed_name);
+  }
+  if (recorded.is_object()) {
+    std::set<std::string> keys;
+    for (auto it = recorded.begin(); it != recorded.end(); ++it) keys.insert(it.key());
+    for (auto it = replayed.begin(); it != replayed.end(); ++it) keys.insert(it.key());
+    for (const std::string& key : keys) {
+      const std::string child = path.empty() ? key : path + "." + key;
+      if (!recorded.contains(key)) return "key '" + child + "' is missing " + recorded_name;
+      if (!replayed.contains(key)) return "key '" + child + "' is missing " + replayed_name;
+      if (auto difference = FirstJsonDifference(recorded[key], replayed[key], child, relative_tolerance,
+                                                recorded_name, replayed_name)) {
+        return difference;
+      }
+    }
+    return std::nullopt;
+  }
+  if (recorded.is_array()) {
+    const std::size_t common = std::min(recorded.size(), replayed.size());
+    for (std::size_t i = 0; i < common; ++i) {
+      if (auto difference = FirstJsonDifference(recorded[i], replayed[i], path + "[" + std::to_string(i) + "]",
+                                                relative_tolerance, recorded_name, replayed_name)) {
+        return difference;
+      }
+    }
+    if (recorded.size() != replayed.size()) {
+      return differs("has " + std::to_string(recorded.size()) + " entries " + recorded_name + ", " +
+                     std::to_string(replayed.size()) + " " + replayed_name);
+    }
+    return std::nullopt;
+  }
+  if (recorded != replayed) {
+    return differs("is " + Shown(recorded) + " " + recorded_name + ", " + Shown(replayed) + " " +
+                   replayed_name);
+  }
+  return std::nullopt;
+}
+
+VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::path& public_key) {
+  VerifyReport report;
+  if (!document.is_object()) {
+    report.problems.push_back("the audit is not a JSON object");
+    report.chain = report.sections = report.seal = Check::kFails;
+    return report;
+  }
+  CheckSections(document, report);
+  CheckChain(document, report);
+  CheckSeal(document, report);
+  CheckSignature(document, public_key, report);
+  return report;
+}
+
+VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
+  VerifyReport report = CheckAuditIntegrity(document, options.public_key);
+  if (options.data.empty()) return report;
+
+  // Fingerprint: unreadable data is bad input (exit 2), a different file a difference.
+  const std::string actual = FingerprintFile(options.data);
+  const json data = document.value("data", json::object());
+  const std::string recorded = data.is_object() ? data.value("sha256", std::string()) : std::string();
+  if (actual == recorded) {
+    report.fingerprint = Check::kHolds;
+  } else {
+    report.fingerprint = Check::kFails;
+    report.problems.push_back("fingerprint mismatch: the data are not the bytes the audit was made from (" +
+                              DataFileForMessage(options.data) + " has sha256 " + actual.substr(0, 16) +
+                              "..., the audit records " + recorded.substr(0, 16) + "...)");
+  }
+
+  // Replay the recorded plan with the recorded settings and compare.
+  report.replay = Check::kHolds;
+  json replayed;
+  try {
+    const json plan = document.at("plan");
+    const LoadedPlan loaded = ParsePlanText(plan.at("verbatim").get<std::string>(), "audit plan.verbatim");
+    AuditRunOptions run_options = RunOptionsFromSettings(document.value("settings", json::object()));
+    if (options.threads > 0) run_options.threads = options.threads;
+    const AuditRun run = RunPlanForAudit(options.data, loaded, run_options);
+    AuditDocumentOptions document_options;
+    document_options.created_at = document.value("created_at", std::string("unknown"));
+    replayed = BuildAuditDocument(run, document_options);
+  } catch (const json::exception& error) {
+    report.replay = Check::kFails;
+    report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
+    return report;
+  } catch (const InputError& error) {
+    report.replay = Check::kFails;
+    report.problems.push_back(std::string("replay failed on the data: ") + error.what());
+    return report;
+  }
+
+  const double tolerance = options.relative_tolerance;
+  // The route: the first step whose action or term differs, then the first step whose numbers
+  // (or any other content) differ; a changed row moves numbers from step 0 on, so the route
+  // divergence is named first.
+  const json recorded_steps = document.value("steps", json::array());
+  const json& replayed_steps = replayed["steps"];
+  const std::size_t common = std::min(recorded_steps.size(), replayed_steps.size());
+  auto move_text = [](const json& step) {
+    std::string text = step.is_object() && step.contains("action") && step["action"].is_string()
+                           ? step["action"].get<std::string>()
+                           : std::string("?");
+    if (step.is_object() && step.contains("term") && step["term"].is_string()) {
+      text += " " + step["term"].get<std::string>();
+    }
+    return "'" + text + "'";
+  };
+  std::optional<std::string> route_problem;
+  for (std::size_t index = 0; index < common && !route_problem; ++index) {
+    const json& a = recorded_steps[index];
+    const json& b = replayed_steps[index];
+    if (!a.is_object() || a.value("action", json(nullptr)) != b.value("action", json(nullptr)) ||
+        a.value("term", json(nullptr)) != b.value("term", json(nullptr))) {
+      route_problem = "route diverges at step " + std::to_string(index) + ": the audit has " +
+                      move_text(a) + ", the replay " + move_text(b);
+    }
+  }
+  if (!route_problem && recorded_steps.size() != replayed_steps.size()) {
+    route_problem = "route diverges at step " + std::to_string(common) + ": the audit has " +
+                    std::to_string(recorded_steps.size()) + " steps, the replay " +
+                    std::to_string(replayed_steps.size());
+  }
+  std::optional<std::string> step_problem;
+  for (std::size_t index = 0; index < common && !step_problem; ++index) {
+    json recorded_step = recorded_steps[index];
+    if (recorded_step.is_object()) recorded_step.erase("digest");
+    if (auto difference = FirstJsonDifference(recorded_step, replayed_steps[index],
+                                              "steps[" + std::to_string(index) + "]", tolerance)) {
+      step_problem = "step " + std::to_string(index) + ": " + *difference;
+    }
+  }
+  if (route_problem) {
+    report.replay = Check::kFails;
+    report.problems.push_back(*route_problem);
+    if (step_problem) report.problems.push_back("content first differs at " + *step_problem);
+  } else if (step_problem) {
+    report.replay = Check::kFails;
+    report.problems.push_back("same actions and terms, but content differs at " + *step_problem);
+  }
+
+  for (const char* section : kReplayedSections) {
+    json recorded_section = document.contains(section) ? document[section] : json(nullptr);
+    json replayed_section = replayed.contains(section) ? replayed[section] : json(nullptr);
+    if (std::string(section) == "data") {
+      // The file's name and bytes are checked by the fingerprint; a renamed copy replays alike.
+      for (json* part : {&recorded_section, &replayed_section}) {
+        if (part->is_object()) {
+          part->erase("file");
+          part->erase("sha256");
+          part->erase("bytes");
+        }
+      }
+    }
+    if (auto difference = FirstJsonDifference(recorded_section, replayed_section, section, tolerance)) {
+      report.replay = Check::kFails;
+      report.problems.push_back("replay differs: " + *difference);
+      break;
+    }
+  }
+  return report;
+}
+
+}  // namespace stepledger

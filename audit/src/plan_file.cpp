@@ -1,0 +1,513 @@
+#include "stepledger/audit/plan_file.h"
+
+#include <algorithm>
+#include <cerrno>
+#include <cstring>
+#include <fstream>
+#include <iterator>
+#include <limits>
+#include <map>
+#include <set>
+#include <sstream>
+#include <utility>
+#include <vector>
+
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+namespace {
+
+using nlohmann::json;
+
+std::string Quote(std::string_view text) { return "'" + QuoteForMessage(text) + "'"; }
+// File names are quoted whole: a shortened path does not say which file.
+std::string QuotePath(const std::filesystem::path& path) {
+  return "'" + QuoteForMessage(path.string(), 4096) + "'";
+}
+
+// What the plan holds at a key, for "expected ..., found ..." (JSON text, shortened).
+std::string Found(const json& value) { return QuoteForMessage(value.dump(), 60); }
+
+std::string Join(const std::string& path, std::string_view key) {
+  return path.empty() ? std::string(key) : path + "." + std::string(key);
+}
+
+std::string Index(const std::string& path, std::size_t index) {
+  return path + "[" + std::to_string(index) + "]";
+}
+
+std::string JoinNames(const std::vector<const char*>& names) {
+  std::string text;
+  for (std::size_t i = 0; i < names.size(); ++i) {
+    if (i > 0) text += ", ";
+    text += names[i];
+  }
+  return text;
+}
+
+// An object whose keys must all be known.
+class ObjectReader {
+ public:
+  ObjectReader(const json& value, std::string path, std::vector<const char*> known)
+      : value_(value), path_(std::move(path)) {
+    if (!value.is_object()) {
+      throw PlanError(path_, "expected an object, found " + Found(value));
+    }
+    for (const auto& [key, item] : value.items()) {
+      const bool is_known = std::any_of(known.begin(), known.end(),
+                                        [&](const char* name) { return key == name; });
+      if (!is_known) {
+        throw PlanError(Join(path_, key), "unknown key; the keys here are " + JoinNames(known));
+      }
+    }
+  }
+  const json* Get(std::string_view key) const {
+    const auto found = value_.find(key);
+    return found == value_.end() ? nullptr : &*found;
+  }
+  std::string Path(std::string_view key) const { return Join(path_, key); }
+
+ private:
+  const json& value_;
+  std::string path_;
+};
+
+std::string ReadString(const json& value, const std::string& path, bool allow_empty = false) {
+  if (!value.is_string()) throw PlanError(path, "expected a string, found " + Found(value));
+  std::string text = value.get<std::string>();
+  if (text.empty() && !allow_empty) {
+    throw PlanError(path, "expected a non-empty string, found \"\"");
+  }
+  return text;
+}
+
+bool ReadBool(const json& value, const std::string& path) {
+  if (!value.is_boolean()) throw PlanError(path, "expected true or false, found " + Found(value));
+  return value.get<bool>();
+}
+
+// A JSON integer (not 2.0) in [minimum, maximum].
+std::uint64_t ReadInteger(const json& value, const std::string& path, std::uint64_t minimum,
+                          std::uint64_t maximum = std::numeric_limits<std::uint64_t>::max()) {
+  const std::string expected = "expected an integer >= " + std::to_string(minimum);
+  if (!value.is_number_integer()) throw PlanError(path, expected + ", found " + Found(value));
+  if (!value.is_number_unsigned() && value.get<std::int64_t>() < 0) {
+    throw PlanError(path, expected + ", found " + Found(value));
+  }
+  const std::uint64_t number = value.get<std::uint64_t>();
+  if (number < minimum) throw PlanError(path, expected + ", found " + Found(value));
+  if (number > maximum) {
+    throw PlanError(path, "expected an integer from " + std::to_string(minimum) + " to " +
+                              std::to_string(maximum) + ", found " + Found(value));
+  }
+  return number;
+}
+
+double ReadProbability(const json& value, const std::string& path) {
+  if (!value.is_number()) {
+    throw PlanError(path, "expected a number in (0, 1), found " + Found(value));
+  }
+  const double number = value.get<double>();
+  if (!(number > 0 && number < 1)) {
+    throw PlanError(path, "expected a number in (0, 1), found " + Found(value));
+  }
+  return number;
+}
+
+std::vector<std::string> ReadStrings(const json& value, const std::string& path, bool allow_empty) {
+  if (!value.is_array()) throw PlanError(path, "expected an array of strings, found " + Found(value));
+  std::vector<std::string> strings;
+  for (std::size_t i = 0; i < value.size(); ++i) {
+    strings.push_back(ReadString(value[i], Index(path, i), allow_empty));
+  }
+  return strings;
+}
+
+constexpr const char* kKindKeys[] = {"column", "power", "log", "categorical", "product"};
+
+TermSpec ReadTerm(const json& value, const std::string& path) {
+  ObjectReader object(value, path,
+                      {"name", "column", "power", "log", "categorical", "baseline", "product"});
+  TermSpec term;
+  term.key_path = path;
+  const json* name = object.Get("name");
+  if (name == nullptr) throw PlanError(object.Path("name"), "missing: every term needs a name");
+  term.name = ReadString(*name, object.Path("name"));
+
+  std::vector<const char*> kinds;
+  for (const char* key : kKindKeys) {
+    if (object.Get(key) != nullptr) kinds.push_back(key);
+  }
+  if (kinds.empty()) {
+    throw PlanError(path, "expected one of the keys column, power, log, categorical, product; "
+                          "found none");
+  }
+  if (kinds.size() > 1) {
+    throw PlanError(path, "a term has exactly one of column, power, log, categorical, product; "
+                          "found " + std::string(kinds[0]) + " and " + kinds[1]);
+  }
+  const std::string kind = kinds.front();
+  if (kind != "categorical" && object.Get("baseline") != nullptr) {
+    throw PlanError(object.Path("baseline"), "a baseline belongs to a categorical term only");
+  }
+  if (kind == "column") {
+    term.kind = TermKind::kNumeric;
+    term.column = ReadString(*object.Get("column"), object.Path("column"));
+  } else if (kind == "log") {
+    term.kind = TermKind::kLog;
+    term.column = ReadString(*object.Get("log"), object.Path("log"));
+  } else if (kind == "categorical") {
+    term.kind = TermKind::kCategorical;
+    term.column = ReadString(*object.Get("categorical"), object.Path("categorical"));
+    if (const json* baseline = object.Get("baseline")) {
+      // A level may be any text but a missing token; an empty level is allowed when "" is not
+      // a missing token, so an empty string is accepted here and checked against the data.
+      term.baseline = ReadString(*baseline, object.Path("baseline"), /*allow_empty=*/true);
+    }
+  } else if (kind == "power") {
+    term.kind = TermKind::kPower;
+    const std::string power_path = object.Path("power");
+    ObjectReader power(*object.Get("power"), power_path, {"column", "degree"});
+    const json* column = power.Get("column");
+    if (column == nullptr) throw PlanError(power.Path("column"), "missing: a power names its column");
+    term.column = ReadString(*column, power.Path("column"));
+    const json* degree = power.Get("degree");
+    if (degree == nullptr) throw PlanError(power.Path("degree"), "missing: a power needs a degree");
+    term.degree = static_cast<int>(ReadInteger(*degree, power.Path("degree"), 2,
+                                               std::numeric_limits<int>::max()));
+  } else {
+    term.kind = TermKind::kProduct;
+    const json& parts = *object.Get("product");
+    const std::string parts_path = object.Path("product");
+    if (!parts.is_array() || parts.size() != 2) {
+      throw PlanError(parts_path, "expected an array of two term names, found " + Found(parts));
+    }
+    term.parts = ReadStrings(parts, parts_path, /*allow_empty=*/false);
+  }
+  return term;
+}
+
+// keep and never: unique names, and names of the plan's terms when it lists them.
+void CheckTermNames(const std::vector<std::string>& names, const std::string& key,
+                    const DesignSpec& design) {
+  for (std::size_t i = 0; i < names.size(); ++i) {
+    for (std::size_t j = 0; j < i; ++j) {
+      if (names[j] == names[i]) {
+        throw PlanError(Index(key, i), "term " + Quote(names[i]) + " is listed twice (also " +
+                                           Index(key, j) + ")");
+      }
+    }
+    if (design.all_terms) continue;
+    const bool known = std::any_of(design.terms.begin(), design.terms.end(),
+                                   [&](const TermSpec& term) { return term.name == names[i]; });
+    if (!known) throw PlanError(Index(key, i), "no term named " + Quote(names[i]) + " in the plan");
+  }
+}
+
+// Tracks the key path while nlohmann parses, to refuse duplicate keys (which it would
+// otherwise resolve silently by keeping the last).
+class DuplicateKeyGuard {
+ public:
+  bool operator()(int /*depth*/, json::parse_event_t event, json& parsed) {
+    switch (event) {
+      case json::parse_event_t::object_start:
+        StartElement();
+        frames_.push_back({false, 0, {}, {}});
+        break;
+      case json::parse_event_t::array_start:
+        StartElement();
+        frames_.push_back({true, 0, {}, {}});
+        break;
+      case json::parse_event_t::object_end:
+      case json::parse_event_t::array_end:
+        frames_.pop_back();
+        break;
+      case json::parse_event_t::key: {
+        Frame& frame = frames_.back();
+        frame.key = parsed.get<std::string>();
+        if (!frame.keys.insert(frame.key).second) {
+          throw PlanError(Path(), "duplicate key; each key may appear once");
+        }
+        break;
+      }
+      case json::parse_event_t::value:
+        StartElement();
+        break;
+    }
+    return true;
+  }
+
+ private:
+  struct Frame {
+    bool array = false;
+    std::size_t elements = 0;
+    std::set<std::string> keys;
+    std::string key;
+  };
+  void StartElement() {
+    if (!frames_.empty() && frames_.back().array) ++frames_.back().elements;
+  }
+  std::string Path() const {
+    std::string path;
+    for (const auto& frame : frames_) {
+      path = frame.array ? Index(path, frame.elements - 1) : Join(path, frame.key);
+    }
+    return path;
+  }
+  std::vector<Frame> frames_;
+};
+
+json TermSpecToJson(const TermSpec& term) {
+  json object = json::object();
+  object["name"] = term.name;
+  switch (term.kind) {
+    case TermKind::kNumeric: object["column"] = term.column; break;
+    case TermKind::kPower: object["power"] = {{"column", term.column}, {"degree", term.degree}}; break;
+    case TermKind::kLog: object["log"] = term.column; break;
+    case TermKind::kCategorical:
+      object["categorical"] = term.column;
+      if (term.baseline) object["baseline"] = *term.baseline;
+      break;
+    case TermKind::kProduct: object["product"] = term.parts; break;
+  }
+  return object;
+}
+
+json DesignTermToJson(const Design& design, const DesignTerm& term) {
+  TermSpec spec;
+  spec.name = term.name;
+  spec.kind = term.kind;
+  spec.column = term.source_column;
+  spec.degree = term.degree;
+  if (term.kind == TermKind::kCategorical) spec.baseline = term.baseline;
+  if (term.kind == TermKind::kProduct) {
+    spec.parts = {design.terms[term.parts[0]].name, design.terms[term.parts[1]].name};
+  }
+  return TermSpecToJson(spec);
+}
+
+}  // namespace
+
+Plan PlanFromJson(const json& value) {
+  if (!value.is_object()) {
+    throw PlanError("", "expected a JSON object at the top level, found " + Found(value));
+  }
+  ObjectReader root(value, "",
+                    {"response", "response_transform", "intercept", "weights", "terms", "keep",
+                     "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
+                     "max_terms", "best_per_size", "folds", "seed", "missing"});
+  Plan plan;
+  DesignSpec& design = plan.design;
+  SearchOptions& search = plan.search;
+
+  const json* response = root.Get("response");
+  if (response == nullptr) {
+    throw PlanError("response", "missing: the plan must name the response column");
+  }
+  design.response = ReadString(*response, "response");
+  if (const json* transform = root.Get("response_transform")) {
+    const std::string text = transform->is_string() ? transform->get<std::string>() : "";
+    if (text == "log") {
+      design.response_transform = ResponseTransform::kLog;
+    } else if (text == "none") {
+      design.response_transform = ResponseTransform::kNone;
+    } else {
+      throw PlanError("response_transform", "expected \"log\" or \"none\", found " + Found(*transform));
+    }
+  }
+  if (const json* intercept = root.Get("intercept")) design.intercept = ReadBool(*intercept, "intercept");
+  if (const json* weights = root.Get("weights"); weights != nullptr && !weights->is_null()) {
+    design.weights = ReadString(*weights, "weights");
+  }
+
+  const json* terms = root.Get("terms");
+  if (terms == nullptr) {
+    throw PlanError("terms", "missing: the plan must list its terms, or say \"all\"");
+  }
+  if (terms->is_string()) {
+    if (terms->get<std::string>() != "all") {
+      throw PlanError("terms", "expected an array of term objects or \"all\", found " + Found(*terms));
+    }
+    design.all_terms = true;
+  } else if (terms->is_array()) {
+    for (std::size_t i = 0; i < terms->size(); ++i) {
+      design.terms.push_back(ReadTerm((*terms)[i], Index("terms", i)));
+    }
+  } else {
+    throw PlanError("terms", "expected an array of term objects or \"all\", found " + Found(*terms));
+  }
+  // Empty names, duplicates, product parts and cycles, with the same key paths as here.
+  ValidateDesignSpec(design);
+
+  if (const json* keep = root.Get("keep")) search.keep = ReadStrings(*keep, "keep", false);
+  if (const json* never = root.Get("never")) search.never = ReadStrings(*never, "never", false);
+  CheckTermNames(search.keep, "keep", design);
+  CheckTermNames(search.never, "never", design);
+  for (std::size_t i = 0; i < search.never.size(); ++i) {
+    const auto kept = std::find(search.keep.begin(), search.keep.end(), search.never[i]);
+    if (kept != search.keep.end()) {
+      throw PlanError(Index("never", i),
+                      "term " + Quote(search.never[i]) + " is also in " +
+                          Index("keep", static_cast<std::size_t>(kept - search.keep.begin())) +
+                          "; a term cannot be both kept and never used");
+    }
+  }
+
+  if (const json* method = root.Get("method")) {
+    const auto parsed = method->is_string() ? MethodFromString(method->get<std::string>()) : std::nullopt;
+    if (!parsed) {
+      throw PlanError("method", "expected one of \"forward\", \"backward\", \"stepwise\", "
+                                "\"all-subsets\", \"none\", found " + Found(*method));
+    }
+    search.method = *parsed;
+  }
+  if (const json* criterion = root.Get("criterion")) {
+    const auto parsed =
+        criterion->is_string() ? CriterionFromString(criterion->get<std::string>()) : std::nullopt;
+    if (!parsed) {
+      throw PlanError("criterion", "expected one of \"adj-r2\", \"aic\", \"aicc\", \"bic\", \"cp\", "
+                                   "\"partial-f\", \"cv\", found " + Found(*criterion));
+    }
+    search.criterion = *parsed;
+  }
+  if (const json* entry = root.Get("entry_p")) search.entry_p = ReadProbability(*entry, "entry_p");
+  if (const json* exit = root.Get("exit_p")) search.exit_p = ReadProbability(*exit, "exit_p");
+  if (search.method == Method::kStepwise && search.entry_p > search.exit_p) {
+    throw PlanError("entry_p", "entry_p " + json(search.entry_p).dump() + " is above exit_p " +
+                                   json(search.exit_p).dump() +
+                                   ": with stepwise a term could enter and leave in turn and the "
+                                   "search can cycle; choose entry_p <= exit_p");
+  }
+  if (const json* hierarchy = root.Get("hierarchy")) search.hierarchy = ReadBool(*hierarchy, "hierarchy");
+  if (const json* max_terms = root.Get("max_terms"); max_terms != nullptr && !max_terms->is_null()) {
+    search.max_terms = static_cast<std::size_t>(ReadInteger(*max_terms, "max_terms", 1));
+    if (*search.max_terms < search.keep.size()) {
+      throw PlanError("max_terms", "expected at least " + std::to_string(search.keep.size()) +
+                                       ", the number of terms in keep, found " + Found(*max_terms));
+    }
+  }
+  if (const json* best = root.Get("best_per_size")) {
+    search.best_per_size = static_cast<std::size_t>(ReadInteger(*best, "best_per_size", 1));
+  }
+  if (const json* folds = root.Get("folds")) {
+    search.folds = static_cast<int>(ReadInteger(*folds, "folds", 2, std::numeric_limits<int>::max()));
+  }
+  if (const json* seed = root.Get("seed")) search.seed = ReadInteger(*seed, "seed", 0);
+  if (const json* missing = root.Get("missing")) {
+    plan.missing_tokens = ReadStrings(*missing, "missing", /*allow_empty=*/true);
+  }
+  return plan;
+}
+
+LoadedPlan ParsePlanText(std::string text, std::string_view source_name) {
+  LoadedPlan loaded;
+  try {
+    DuplicateKeyGuard guard;
+    loaded.json = json::parse(text, std::ref(guard));
+  } catch (const json::parse_error& error) {
+    // error.byte is the 1-based position of the last byte read; line and column from it.
+    const std::size_t offset = std::min<std::size_t>(error.byte == 0 ? 0 : error.byte - 1, text.size());
+    std::uint64_t line = 1;
+    std::size_t line_start = 0;
+    for (std::size_t i = 0; i < offset; ++i) {
+      if (text[i] == '\n') {
+        ++line;
+        line_start = i + 1;
+      }
+    }
+    std::string reason = error.what();
+    // nlohmann's text starts "[json.exception.parse_error.101] parse error at line L, column C: ".
+    if (const auto column_at = reason.find(", column "); column_at != std::string::npos) {
+      if (const auto colon = reason.find(": ", column_at); colon != std::string::npos) {
+        reason = reason.substr(colon + 2);
+      }
+    }
+    throw PlanError("", FormatLocation(source_name, line, offset - line_start + 1) +
+                            ": malformed JSON: " + reason);
+  }
+  loaded.plan = PlanFromJson(loaded.json);
+  loaded.verbatim = std::move(text);
+  return loaded;
+}
+
+LoadedPlan LoadPlanFile(const std::filesystem::path& path) {
+  std::error_code error;
+  if (std::filesystem::is_directory(path, error)) {
+    throw PlanError("", "cannot open plan file " + QuotePath(path) + ": it is a folder");
+  }
+  std::ifstream stream(path, std::ios::binary);
+  if (!stream) {
+    throw PlanError("", "cannot open plan file " + QuotePath(path) + ": " + std::strerror(errno));
+  }
+  std::string text((std::istreambuf_iterator<char>(stream)), std::istreambuf_iterator<char>());
+  if (stream.bad()) {
+    throw PlanError("", "cannot read plan file " + QuotePath(path) + ": " + std::strerror(errno));
+  }
+  return ParsePlanText(std::move(text), path.string());
+}
+
+json PlanToJson(const Plan& plan, const Design* design) {
+  const DesignSpec& spec = plan.design;
+  const SearchOptions& search = plan.search;
+  json out = json::object();
+  out["response"] = spec.response;
+  out["response_transform"] = ToString(spec.response_transform);
+  out["intercept"] = spec.intercept;
+  out["weights"] = spec.weights ? json(*spec.weights) : json(nullptr);
+  if (design != nullptr) {
+    json terms = json::array();
+    for (const auto& term : design->terms) terms.push_back(DesignTermToJson(*design, term));
+    out["terms"] = std::move(terms);
+  } else if (spec.all_terms) {
+    out["terms"] = "all";
+  } else {
+    json terms = json::array();
+    for (const auto& term : spec.terms) terms.push_back(TermSpecToJson(term));
+    out["terms"] = std::move(terms);
+  }
+  out["keep"] = search.keep;
+  out["never"] = search.never;
+  out["method"] = ToString(search.method);
+  out["criterion"] = ToString(search.criterion);
+  out["entry_p"] = search.entry_p;
+  out["exit_p"] = search.exit_p;
+  out["hierarchy"] = search.hierarchy;
+  out["max_terms"] = search.max_terms ? json(*search.max_terms) : json(nullptr);
+  out["best_per_size"] = search.best_per_size;
+  out["folds"] = search.folds;
+  out["seed"] = search.seed;
+  out["missing"] = plan.missing_tokens;
+  return out;
+}
+
+Plan MakeQuickPlan(std::string response_column) {
+  Plan plan;
+  plan.design.response = std::move(response_column);
+  plan.design.all_terms = true;
+  return plan;
+}
+
+void CheckPlanAgainstDesign(const Plan& plan, const Design& design) {
+  auto check = [&](const std::vector<std::string>& names, const std::string& key) {
+    for (std::size_t i = 0; i < names.size(); ++i) {
+      if (design.FindTerm(names[i]) == kNoTerm) {
+        std::string made;
+        for (std::size_t t = 0; t < design.terms.size() && t < 12; ++t) {
+          made += (t == 0 ? "" : ", ") + Quote(design.terms[t].name);
+        }
+        if (design.terms.size() > 12) made += ", ...";
+        throw PlanError(Index(key, i), "no term named " + Quote(names[i]) +
+                                           " in the design (its terms: " + made + ")");
+      }
+    }
+  };
+  check(plan.search.keep, "keep");
+  check(plan.search.never, "never");
+  if (plan.search.max_terms && *plan.search.max_terms < plan.search.keep.size()) {
+    throw PlanError("max_terms", "expected at least " + std::to_string(plan.search.keep.size()) +
+                                     ", the number of terms in keep, found " +
+                                     std::to_string(*plan.search.max_terms));
+  }
+}
+
+}  // namespace stepledger

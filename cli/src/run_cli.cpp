@@ -1,0 +1,153 @@
+// The composition root: parses the command line with CLI11, runs the chosen command and maps
+// every outcome to the exit statuses of CONTRACT.md.
+
+#include "stepledger/cli/run_cli.h"
+
+#include <algorithm>
+#include <exception>
+#include <sstream>
+
+#include <CLI/CLI.hpp>
+#include <spdlog/sinks/ostream_sink.h>
+#include <spdlog/spdlog.h>
+
+#include "commands.h"
+#include "stepledger/audit/atomic_file.h"
+#include "stepledger/engine/errors.h"
+
+#ifndef STEPLEDGER_VERSION
+#define STEPLEDGER_VERSION "unknown"
+#endif
+
+namespace stepledger {
+namespace cli {
+
+void AddCommonOptions(CLI::App& command, CommonOptions& common) {
+  command.add_flag("--json", common.json, "Machine-readable JSON on stdout instead of tables");
+  command.add_flag("--force", common.force, "Allow overwriting an existing output file");
+  command.add_option("--threads", common.threads, "Threads folding the factor during a data pass")
+      ->check(CLI::Range(1, 256))
+      ->type_name("N");
+  command.add_flag("--quiet", common.quiet, "Print only results and errors");
+  command.add_option("--log-level", common.log_level, "Log detail on stderr")
+      ->check(CLI::IsMember({"trace", "debug", "info", "warn", "error", "off"}))
+      ->type_name("LEVEL");
+  command.add_option("--delimiter", common.delimiter,
+                     "Field separator of the data file: one character, or 'tab'")
+      ->type_name("CHAR");
+}
+
+CsvOptions MakeCsvOptions(const CommonOptions& common) {
+  CsvOptions csv;
+  if (common.delimiter == "tab" || common.delimiter == "\\t") {
+    csv.delimiter = '\t';
+  } else if (common.delimiter.size() == 1) {
+    csv.delimiter = common.delimiter[0];
+  } else {
+    throw InputError("--delimiter: expected one character or 'tab', got '" +
+                     QuoteForMessage(common.delimiter) + "'");
+  }
+  csv.Validate();
+  return csv;
+}
+
+void WriteOutput(CommandContext& context, const std::string& path, const std::string& text) {
+  if (path == "-") {
+    context.out << text;
+    return;
+  }
+  WriteFileAtomically(path, text, AtomicWriteOptions{.overwrite = context.common.force});
+  if (context.log) context.log->info("wrote {}", path);
+}
+
+namespace {
+
+std::shared_ptr<spdlog::logger> MakeLogger(std::ostream& err, const CommonOptions& common) {
+  auto sink = std::make_shared<spdlog::sinks::ostream_sink_st>(err, /*force_flush=*/true);
+  sink->set_pattern("stepledger %l: %v");
+  auto logger = std::make_shared<spdlog::logger>("stepledger", sink);
+  spdlog::level::level_enum level = spdlog::level::from_str(common.log_level);
+  if (common.quiet) level = std::max(level, spdlog::level::err);
+  logger->set_level(level);
+  return logger;
+}
+
+// One line for stderr: messages never spread over several lines (CONTRACT.md).
+std::string OneLine(std::string text) {
+  std::replace(text.begin(), text.end(), '\n', ' ');
+  std::replace(text.begin(), text.end(), '\r', ' ');
+  while (!text.empty() && text.back() == ' ') text.pop_back();
+  return text;
+}
+
+}  // namespace
+}  // namespace cli
+
+int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
+  using cli::CommandContext;
+  CommandContext context{out, err, {}, nullptr, {}};
+
+  CLI::App app{
+      "stepledger chooses the terms of a linear pricing or valuation model and records every "
+      "step of the choice in a tamper-evident audit file.",
+      "stepledger"};
+  app.set_version_flag("--version", std::string("stepledger ") + STEPLEDGER_VERSION);
+  app.option_defaults()->always_capture_default();
+  app.get_formatter()->column_width(34);
+  app.require_subcommand(1);
+  app.footer(
+      "Run 'stepledger COMMAND --help' for a command's options. Commands coming: select, "
+      "report, predict, demo.");
+
+  cli::AddFitCommand(app, context);
+  cli::AddProfileCommand(app, context);
+  cli::AddVerifyCommand(app, context);
+  cli::AddRerunCommand(app, context);
+  cli::AddCompareCommand(app, context);
+  cli::AddSelectCommand(app, context);
+
+  // CLI11 takes the arguments in reverse order.
+  std::vector<std::string> reversed(args.rbegin(), args.rend());
+  try {
+    app.parse(reversed);
+  } catch (const CLI::CallForHelp&) {
+    out << app.help();
+    return static_cast<int>(ExitStatus::kDone);
+  } catch (const CLI::CallForAllHelp&) {
+    out << app.help("", CLI::AppFormatMode::All);
+    return static_cast<int>(ExitStatus::kDone);
+  } catch (const CLI::CallForVersion& version) {
+    out << version.what() << "\n";
+    return static_cast<int>(ExitStatus::kDone);
+  } catch (const CLI::ParseError& error) {
+    // A subcommand's --help arrives here too (CallForHelp is raised from the subcommand).
+    if (error.get_exit_code() == 0) {
+      std::ostringstream help;
+      app.exit(error, help, err);
+      out << help.str();
+      return static_cast<int>(ExitStatus::kDone);
+    }
+    err << "stepledger: " << cli::OneLine(error.what()) << " (see 'stepledger --help')\n";
+    return static_cast<int>(ExitStatus::kBadInput);
+  }
+
+  try {
+    context.log = cli::MakeLogger(err, context.common);
+    if (!context.action) {
+      err << "stepledger: no command given (see 'stepledger --help')\n";
+      return static_cast<int>(ExitStatus::kBadInput);
+    }
+    return context.action();
+  } catch (const InputError& error) {  // PlanError is an InputError
+    err << "stepledger: " << cli::OneLine(error.what()) << "\n";
+    return static_cast<int>(ExitStatus::kBadInput);
+  } catch (const NumericalError& error) {
+    err << "stepledger: numerical failure: " << cli::OneLine(error.what()) << "\n";
+    return static_cast<int>(ExitStatus::kFailure);
+  } catch (const std::exception& error) {
+    err << "stepledger: internal error: " << cli::OneLine(error.what()) << "\n";
+    return static_cast<int>(ExitStatus::kFailure);
+  }
+}
+
+}  // namespace stepledger

@@ -1,0 +1,38 @@
+#!/usr/bin/env bash
+# Installs the Debian 12 packages that building and testing stepledger need, only those
+# that are missing. Quiet when everything is present.
+set -euo pipefail
+
+packages=(
+  cmake g++ make pkg-config
+  libarmadillo-dev libopenblas-dev liblapack-dev
+  nlohmann-json3-dev libspdlog-dev libgtest-dev libgmock-dev libcli11-dev
+  libboost-math-dev libssl-dev
+  python3 python3-numpy python3-scipy python3-statsmodels python3-jsonschema
+)
+
+# One dpkg-query for all: packages it does not know are simply absent from its answer.
+installed=$(dpkg-query -W -f='${Package} ${Status}\n' "${packages[@]}" 2>/dev/null || true)
+missing=()
+for package in "${packages[@]}"; do
+  if ! grep -qx "$package install ok installed" <<<"$installed"; then
+    missing+=("$package")
+  fi
+done
+
+if [[ ${#missing[@]} -eq 0 ]]; then
+  exit 0
+fi
+
+echo "setup-debian: installing ${missing[*]}"
+if [[ $(id -u) -eq 0 ]]; then
+  as_root=()
+elif command -v sudo >/dev/null 2>&1; then
+  as_root=(sudo)
+else
+  echo "setup-debian: missing packages (${missing[*]}) and neither root nor sudo; install them and rerun" >&2
+  exit 1
+fi
+export DEBIAN_FRONTEND=noninteractive
+"${as_root[@]}" env DEBIAN_FRONTEND=noninteractive apt-get update -qq
+"${as_root[@]}" env DEBIAN_FRONTEND=noninteractive apt-get install -y -qq --no-install-recommends "${missing[@]}"

@@ -1,0 +1,90 @@
+#pragma once
+// The one entry point of every selection method.
+//
+// RunSearch works on the factor alone (engine/kernel.h): after the data pass, its cost does
+// not depend on the number of rows. Per step, scoring every candidate is O(m^2) for
+// one-column terms and O(m d^2) for a term of d columns; a move is O(m^2) Givens rotations.
+//
+// Methods (SearchOptions::method):
+//  - forward: from the base model (intercept + keep terms) add the best eligible term while
+//    the criterion improves (partial-f: while the smallest entry p-value < entry_p);
+//  - backward: from every eligible term remove the worst while the criterion improves
+//    (partial-f: while the largest exit p-value > exit_p); while the model has more than
+//    max_terms terms, the least harmful removal is forced;
+//  - stepwise: a forward step, then every term of the model is re-tested for removal
+//    (repeatedly) before the next forward step; a move back to a model seen before ends the
+//    search (kCycleDetected); partial-f with entry_p > exit_p is refused (it can cycle);
+//  - all-subsets: the best_per_size models of every size by RSS, by branch and bound over
+//    the factor (a subtree is bounded by the RSS of the largest model in it, Furnival and
+//    Wilson, Technometrics 1974), then the best of those by the criterion;
+//  - none: the base model plus every eligible term.
+// Constraints (all methods): keep terms are in every model; never terms in none; with
+// hierarchy a product or power enters only when its parts are in the model and a part leaves
+// only when nothing built on it is left (all-subsets: subsets that break hierarchy are
+// dropped); at most max_terms terms; a term aliased with the model is not eligible (the
+// candidate says which column and its relative norm against the tolerance). Ties (scores
+// equal within kTieRelativeTolerance) break by plan order and are recorded in the step.
+// partial-f ranks candidates by p-value, then by F (p-values of strong terms underflow to 0).
+
+#include <string>
+#include <vector>
+
+#include "stepledger/engine/design.h"
+#include "stepledger/engine/factor.h"
+#include "stepledger/engine/kernel.h"
+#include "stepledger/selection/observer.h"
+#include "stepledger/selection/plan.h"
+
+namespace stepledger {
+
+/// The result of a search: a value type, starting at "not run".
+struct SearchResult {
+  SearchOutcome outcome = SearchOutcome::kNotRun;
+  Method method = Method::kStepwise;
+  Criterion criterion = Criterion::kBic;
+  std::vector<RouteStep> steps;          ///< start, moves, stop
+  std::vector<SubsetRecord> subsets;     ///< all-subsets only: by size, then RSS
+  std::vector<ExcludedTerm> excluded;    ///< terms left out before the search, and why
+  std::vector<std::string> final_terms;  ///< model order, no intercept
+  std::vector<std::size_t> final_term_indices;
+  std::optional<double> final_criterion_value;  ///< reported units
+  double final_rss = 0;
+  std::string stop_rule;
+  double n = 0;                          ///< rows used
+  double tss = 0;
+  std::optional<double> cp_sigma2;       ///< sigma^2 of the largest eligible model
+  std::size_t subsets_evaluated = 0;     ///< all-subsets: models whose RSS was computed
+
+  bool IsModelUsable() const { return outcome != SearchOutcome::kNotRun; }
+  /// A few lines: method, criterion, outcome, final terms.
+  std::string BriefReport() const;
+  /// The route table (step, action, term, criterion before -> after, rule), ties, exclusions,
+  /// and for all-subsets the subsets kept.
+  std::string FullReport() const;
+};
+
+/// Extra switches of the search that are not part of a plan.
+struct SearchRunOptions {
+  KernelOptions kernel;
+  /// all-subsets: enumerate every subset in Gray-code order instead of branch and bound
+  /// (one term moved per subset; for cross-checks; refused above 30 candidate terms).
+  bool exhaustive_subsets = false;
+  /// Lets stepwise partial-f run with entry_p > exit_p, which ValidateSearchOptions refuses,
+  /// so that tests can exercise the cycle guard. Never set by the command line.
+  bool allow_cycling_thresholds = false;
+};
+
+/// Validates options against the design: throws PlanError naming the key ("keep[1]",
+/// "never[0]", "entry_p", "exit_p", "max_terms", "best_per_size", "folds", "criterion") for
+/// unknown terms, a term both kept and never, values out of range, stepwise partial-f with
+/// entry_p > exit_p, more keep terms than max_terms, and criterion cv (not available yet).
+void ValidateSearchOptions(const SearchOptions& options, const Design& design,
+                           bool allow_cycling_thresholds = false);
+
+/// Runs the search. The observer (optional) sees every event as it happens; the result holds
+/// the same route. Throws PlanError for invalid options (see ValidateSearchOptions) and for a
+/// keep term aliased with the intercept and earlier keep terms.
+SearchResult RunSearch(const Factor& factor, const Design& design, const SearchOptions& options,
+                       SearchObserver* observer = nullptr, const SearchRunOptions& run = {});
+
+}  // namespace stepledger

@@ -1,0 +1,266 @@
+// All subsets: the best_per_size models of every size by RSS, then the best of those by the
+// criterion.
+//
+// Branch and bound over the factor, in the spirit of Furnival and Wilson ("Regressions by
+// leaps and bounds", Technometrics 16, 1974): RSS never falls when a term leaves, so the RSS
+// of the largest model of a subtree bounds every model in it; a subtree is skipped when, at
+// every size it contains, the bound is already worse than the best_per_size-th model kept.
+// The tree is the "drop" tree: a node is a model M with an ordered list D of terms that may
+// still leave; child i drops D[i] and may drop only D[i+1..]. Children are ordered by the RSS
+// of the child model, largest first, so the large subtrees that lack an important term are
+// the ones bounded away. Each node costs one kernel move and one ScoreRemove per term of D.
+//
+// The exhaustive cross-check visits every subset in Gray-code order: one term enters or
+// leaves per subset (ModelState Add/Remove), 2^m moves.
+//
+// Hierarchy: subsets that break it are not kept (the bound stays valid: it only uses kept
+// models). Terms aliased with the plan-order earlier terms are left out of every subset.
+// Sizes count terms, keep terms included; max_terms caps the size.
+
+#include <algorithm>
+#include <bit>
+#include <cstdint>
+
+#include "search_internal.h"
+#include "stepledger/engine/errors.h"
+
+namespace stepledger::selection_detail {
+namespace {
+
+struct Entry {
+  double rss = 0;
+  std::vector<std::size_t> terms;  // sorted design term indices
+};
+
+/// Orders by RSS; RSS equal within the tie tolerance orders by the term indices (plan order),
+/// so that both enumerations keep the same models.
+bool Better(const Entry& a, const Entry& b) {
+  if (!ScoresTie(a.rss, b.rss)) return a.rss < b.rss;
+  return a.terms < b.terms;
+}
+
+class SizeBoard {
+ public:
+  SizeBoard(std::size_t sizes, std::size_t capacity) : boards_(sizes), capacity_(capacity) {}
+  void Offer(std::size_t size, double rss, const std::vector<char>& in_set) {
+    auto& board = boards_[size];
+    if (board.size() == capacity_ && !(rss <= board.back().rss || ScoresTie(rss, board.back().rss))) return;
+    Entry entry{rss, {}};
+    for (std::size_t term = 0; term < in_set.size(); ++term) {
+      if (in_set[term]) entry.terms.push_back(term);
+    }
+    auto position = std::upper_bound(board.begin(), board.end(), entry, Better);
+    board.insert(position, std::move(entry));
+    if (board.size() > capacity_) board.pop_back();
+  }
+  /// True when no model of sizes [lo, hi] with RSS >= bound could be kept.
+  bool CanPrune(double bound, std::ptrdiff_t lo, std::ptrdiff_t hi) const {
+    lo = std::max<std::ptrdiff_t>(lo, 0);
+    hi = std::min<std::ptrdiff_t>(hi, static_cast<std::ptrdiff_t>(boards_.size()) - 1);
+    for (std::ptrdiff_t size = lo; size <= hi; ++size) {
+      const auto& board = boards_[static_cast<std::size_t>(size)];
+      if (board.size() < capacity_) return false;
+      const double worst = board.back().rss;
+      if (bound <= worst || ScoresTie(bound, worst)) return false;
+    }
+    return true;  // also when no recordable size is in [lo, hi]
+  }
+  const std::vector<std::vector<Entry>>& boards() const { return boards_; }
+
+ private:
+  std::vector<std::vector<Entry>> boards_;
+  std::size_t capacity_;
+};
+
+class SubsetSearch {
+ public:
+  SubsetSearch(SearchContext& ctx, std::vector<std::size_t> free_terms)
+      : ctx_(ctx), free_(std::move(free_terms)),
+        max_free_(MaxFree(ctx, free_.size())),
+        board_(max_free_ + 1, ctx.options().best_per_size),
+        in_set_(ctx.design().terms.size(), 0) {
+    for (std::size_t term : ctx.keep_terms()) in_set_[term] = 1;
+  }
+
+  static std::size_t MaxFree(const SearchContext& ctx, std::size_t free_count) {
+    if (!ctx.options().max_terms) return free_count;
+    const std::size_t keep = ctx.keep_terms().size();
+    return std::min(free_count, *ctx.options().max_terms - std::min(keep, *ctx.options().max_terms));
+  }
+
+  /// Branch and bound; the state must hold base + keep + every free term.
+  void BranchAndBound() {
+    for (std::size_t term : free_) in_set_[term] = 1;
+    std::vector<std::size_t> removable(free_.size());
+    for (std::size_t position = 0; position < free_.size(); ++position) removable[position] = position;
+    Visit(removable, free_.size());
+  }
+
+  /// Every subset in Gray-code order; the state must hold base + keep only.
+  void Exhaustive() {
+    const std::size_t m = free_.size();
+    if (m > 30) {
+      throw InputError("exhaustive all-subsets enumeration is limited to 30 candidate terms (got " +
+                       std::to_string(m) + "); use the branch and bound");
+    }
+    std::uint64_t mask = 0;
+    std::size_t count_in = 0;
+    Record(count_in);
+    const std::uint64_t total = std::uint64_t{1} << m;
+    for (std::uint64_t code = 1; code < total; ++code) {
+      const std::size_t position = static_cast<std::size_t>(std::countr_zero(code));
+      const std::size_t term = free_[position];
+      const std::uint64_t bit = std::uint64_t{1} << position;
+      if (mask & bit) {
+        ctx_.state().Remove(ctx_.term_columns(term));
+        in_set_[term] = 0;
+        --count_in;
+      } else {
+        if (!ctx_.state().Add(ctx_.term_columns(term))) {
+          throw NumericalError("all-subsets: term '" + ctx_.term_name(term) +
+                               "' became aliased within a subset of a non-aliased set");
+        }
+        in_set_[term] = 1;
+        ++count_in;
+      }
+      mask ^= bit;
+      Record(count_in);
+    }
+  }
+
+  const SizeBoard& board() const { return board_; }
+  std::size_t evaluated() const { return evaluated_; }
+
+ private:
+  void Record(std::size_t count_in) {
+    ++evaluated_;
+    if (count_in > max_free_) return;
+    if (!ctx_.SatisfiesHierarchy(in_set_)) return;
+    board_.Offer(count_in, ctx_.state().Rss(), in_set_);
+  }
+
+  void Visit(const std::vector<std::size_t>& removable, std::size_t count_in) {
+    Record(count_in);
+    if (removable.empty()) return;
+    std::vector<std::pair<double, std::size_t>> children;
+    children.reserve(removable.size());
+    for (std::size_t position : removable) {
+      const GroupScore score = ctx_.state().ScoreRemove(ctx_.term_columns(free_[position]));
+      children.emplace_back(score.rss, position);
+    }
+    // Largest child RSS first (the most important term leaves first); plan order on ties.
+    std::stable_sort(children.begin(), children.end(),
+                     [](const auto& a, const auto& b) { return a.first > b.first; });
+    for (std::size_t child = 0; child < children.size(); ++child) {
+      const auto [bound, position] = children[child];
+      const std::size_t later = children.size() - child - 1;
+      const auto hi = static_cast<std::ptrdiff_t>(count_in) - 1;
+      const auto lo = hi - static_cast<std::ptrdiff_t>(later);
+      if (board_.CanPrune(bound, lo, hi)) continue;
+      std::vector<std::size_t> next;
+      next.reserve(later);
+      for (std::size_t other = child + 1; other < children.size(); ++other) next.push_back(children[other].second);
+      const std::size_t term = free_[position];
+      ctx_.state().Remove(ctx_.term_columns(term));
+      in_set_[term] = 0;
+      Visit(next, count_in - 1);
+      if (!ctx_.state().Add(ctx_.term_columns(term))) {
+        throw NumericalError("all-subsets: term '" + ctx_.term_name(term) + "' could not be restored");
+      }
+      in_set_[term] = 1;
+    }
+  }
+
+  SearchContext& ctx_;
+  std::vector<std::size_t> free_;
+  std::size_t max_free_;
+  SizeBoard board_;
+  std::vector<char> in_set_;
+  std::size_t evaluated_ = 0;
+};
+
+}  // namespace
+
+void RunAllSubsets(SearchContext& ctx) {
+  auto excluded = ctx.StartFromFull();
+  std::vector<std::size_t> free_terms;
+  for (std::size_t term : ctx.model_terms()) {
+    if (!ctx.is_keep(term)) free_terms.push_back(term);
+  }
+  std::sort(free_terms.begin(), free_terms.end());
+  SubsetSearch search(ctx, free_terms);
+  if (ctx.run().exhaustive_subsets) {
+    ctx.StartFromBase();
+    ctx.EmitStart("all-subsets (exhaustive, Gray-code order): every subset of the candidate terms",
+                  std::move(excluded));
+    search.Exhaustive();
+  } else {
+    ctx.StartFromBase();
+    ctx.EmitStart("all-subsets (branch and bound): the best " +
+                      std::to_string(ctx.options().best_per_size) + " models of every size by RSS",
+                  std::move(excluded));
+    std::vector<std::size_t> full = ctx.keep_terms();
+    full.insert(full.end(), free_terms.begin(), free_terms.end());
+    ctx.SetModel(full);
+    search.BranchAndBound();
+  }
+  ctx.subsets_evaluated = search.evaluated();
+
+  // Score the kept models and choose the best by the criterion (ties: smaller size, then
+  // smaller RSS, then plan order: the order of the list).
+  std::vector<SubsetRecord> records;
+  std::vector<Score> scores;
+  const auto& boards = search.board().boards();
+  const std::size_t base_width = ctx.base_columns().size();
+  for (std::size_t size = 0; size < boards.size(); ++size) {
+    std::size_t rank = 1;
+    for (const Entry& entry : boards[size]) {
+      SubsetRecord record;
+      record.size = size + ctx.keep_terms().size();
+      record.term_indices = entry.terms;
+      for (std::size_t term : entry.terms) record.terms.push_back(ctx.term_name(term));
+      record.rss = entry.rss;
+      std::vector<std::size_t> columns = ctx.base_columns();
+      for (std::size_t term : entry.terms) {
+        const auto& term_columns = ctx.term_columns(term);
+        columns.insert(columns.end(), term_columns.begin(), term_columns.end());
+      }
+      (void)base_width;
+      const Score score = ctx.criterion().ScoreModel({columns, entry.rss, static_cast<double>(columns.size())});
+      if (score.value) record.score = ctx.criterion().Reported(*score.value);
+      record.rank_in_size = rank++;
+      records.push_back(std::move(record));
+      scores.push_back(score);
+    }
+  }
+  ctx.sink().OnSubsets(records);
+
+  std::optional<std::size_t> best;
+  for (std::size_t index = 0; index < records.size(); ++index) {
+    if (!scores[index].value) continue;
+    if (!best || (*scores[index].value < *scores[*best].value &&
+                  !ScoresTie(*scores[index].value, *scores[*best].value))) {
+      best = index;
+    }
+  }
+  if (!best) {
+    ctx.Stop(SearchOutcome::kNoEligibleTerms,
+             "no kept subset has a defined " + ctx.criterion().ValueName() +
+                 (scores.empty() ? std::string() : " (" + scores.front().undefined_reason + ")"));
+    return;
+  }
+  std::vector<std::size_t> chosen = ctx.keep_terms();
+  for (std::size_t term : records[*best].term_indices) {
+    if (!ctx.is_keep(term)) chosen.push_back(term);
+  }
+  ctx.SetModel(chosen);
+  std::string names;
+  for (const auto& name : records[*best].terms) names += (names.empty() ? "" : ", ") + name;
+  if (names.empty()) names = "no terms";
+  ctx.Stop(SearchOutcome::kCompleted,
+           "best of " + std::to_string(records.size()) + " kept subsets by " +
+               ctx.criterion().ValueName() + ": " + names + " (" + ctx.criterion().ValueName() +
+               " " + Num(*records[*best].score) + ")");
+}
+
+}  // namespace stepledger::selection_detail

@@ -1,0 +1,114 @@
+#include "stepledger/selection/criterion.h"
+
+#include <cmath>
+#include <sstream>
+
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+namespace {
+
+std::string FormatNumber(double value) {
+  std::ostringstream text;
+  text.precision(6);
+  text << value;
+  return text.str();
+}
+
+/// The RSS-based criteria: one formula each from engine/criteria.h.
+class FormulaCriterion final : public ModelCriterion {
+ public:
+  FormulaCriterion(Criterion kind, CriterionContext context) : kind_(kind), context_(context) {}
+  Criterion kind() const override { return kind_; }
+  bool is_p_value_rule() const override { return kind_ == Criterion::kPartialF; }
+
+  Score ScoreModel(const ModelToScore& model) const override {
+    Score score;
+    // Every criterion is undefined without residual degrees of freedom (module comment).
+    if (context_.n <= model.k) {
+      score.undefined_reason = "n <= k (n = " + FormatNumber(context_.n) +
+                               ", k = " + FormatNumber(model.k) + ")";
+      return score;
+    }
+    if (kind_ == Criterion::kPartialF) {
+      score.value = model.rss / (context_.n - model.k);
+      return score;
+    }
+    CriteriaInputs inputs;
+    inputs.n = context_.n;
+    inputs.k = model.k;
+    inputs.rss = model.rss;
+    inputs.tss = context_.tss;
+    inputs.intercept = context_.intercept;
+    inputs.log_weight_sum = context_.log_weight_sum;
+    inputs.full_sigma2 = context_.full_sigma2;
+    const CriteriaValues values = ComputeCriteria(inputs);
+    std::optional<double> chosen;
+    switch (kind_) {
+      case Criterion::kAdjR2:
+        if (values.adj_r2) chosen = -*values.adj_r2;
+        else score.undefined_reason = "adjusted R^2 undefined (total sum of squares is 0)";
+        break;
+      case Criterion::kAic:
+        chosen = values.aic;
+        if (!chosen) score.undefined_reason = "aic undefined (RSS = 0: exact fit)";
+        break;
+      case Criterion::kAicc:
+        chosen = values.aicc;
+        if (!chosen) {
+          score.undefined_reason = values.aic ? "aicc undefined (n - k - 2 <= 0)"
+                                              : "aicc undefined (RSS = 0: exact fit)";
+        }
+        break;
+      case Criterion::kBic:
+        chosen = values.bic;
+        if (!chosen) score.undefined_reason = "bic undefined (RSS = 0: exact fit)";
+        break;
+      case Criterion::kCp:
+        chosen = values.cp;
+        if (!chosen) {
+          score.undefined_reason =
+              "cp undefined (sigma^2 of the largest eligible model is undefined: n <= k or RSS = 0 there)";
+        }
+        break;
+      case Criterion::kPartialF:
+      case Criterion::kCv:
+        break;
+    }
+    if (chosen && std::isfinite(*chosen)) score.value = chosen;
+    else if (chosen) score.undefined_reason = std::string(ToString(kind_)) + " is not finite";
+    return score;
+  }
+
+  double Reported(double internal_score) const override {
+    return kind_ == Criterion::kAdjR2 ? -internal_score : internal_score;
+  }
+
+  std::string ValueName() const override {
+    return kind_ == Criterion::kPartialF ? "residual mean square" : ToString(kind_);
+  }
+
+ private:
+  Criterion kind_;
+  CriterionContext context_;
+};
+
+}  // namespace
+
+std::unique_ptr<ModelCriterion> MakeCriterion(Criterion criterion,
+                                              const CriterionContext& context) {
+  if (criterion == Criterion::kCv) {
+    throw PlanError("criterion",
+                    "criterion 'cv' (cross-validated error) is not available yet; use adj-r2, "
+                    "aic, aicc, bic, cp or partial-f");
+  }
+  return std::make_unique<FormulaCriterion>(criterion, context);
+}
+
+bool ScoresTie(double a, double b) {
+  if (a == b) return true;  // also equal infinities
+  if (!std::isfinite(a) || !std::isfinite(b)) return false;
+  return std::fabs(a - b) <= kTieRelativeTolerance * std::max(std::fabs(a), std::fabs(b));
+}
+
+}  // namespace stepledger

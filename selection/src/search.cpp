@@ -1,0 +1,185 @@
+#include "stepledger/selection/search.h"
+
+#include <algorithm>
+#include <iomanip>
+#include <set>
+#include <sstream>
+
+#include "search_internal.h"
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+
+using selection_detail::Num;
+using selection_detail::SearchContext;
+
+void ValidateSearchOptions(const SearchOptions& options, const Design& design,
+                           bool allow_cycling_thresholds) {
+  if (options.criterion == Criterion::kCv) {
+    throw PlanError("criterion",
+                    "criterion 'cv' (cross-validated error) is not available yet; use adj-r2, "
+                    "aic, aicc, bic, cp or partial-f");
+  }
+  auto check_probability = [](const char* key, double value) {
+    if (!(value > 0 && value < 1)) {
+      throw PlanError(key, std::string(key) + " must be in (0, 1); got " + Num(value));
+    }
+  };
+  check_probability("entry_p", options.entry_p);
+  check_probability("exit_p", options.exit_p);
+  if (!allow_cycling_thresholds && options.method == Method::kStepwise &&
+      options.criterion == Criterion::kPartialF && options.entry_p > options.exit_p) {
+    throw PlanError("entry_p", "entry_p " + Num(options.entry_p) + " is above exit_p " +
+                                   Num(options.exit_p) +
+                                   ": stepwise partial-f could add and remove the same term "
+                                   "forever; make entry_p <= exit_p");
+  }
+  if (options.best_per_size < 1) throw PlanError("best_per_size", "best_per_size must be at least 1");
+  if (options.folds < 2) {
+    throw PlanError("folds", "folds must be at least 2; got " + std::to_string(options.folds));
+  }
+  std::set<std::string> kept;
+  for (std::size_t position = 0; position < options.keep.size(); ++position) {
+    const std::string key = "keep[" + std::to_string(position) + "]";
+    const auto& name = options.keep[position];
+    if (design.FindTerm(name) == kNoTerm) throw PlanError(key, "unknown term '" + name + "'");
+    if (!kept.insert(name).second) throw PlanError(key, "term '" + name + "' is listed twice");
+  }
+  std::set<std::string> never;
+  for (std::size_t position = 0; position < options.never.size(); ++position) {
+    const std::string key = "never[" + std::to_string(position) + "]";
+    const auto& name = options.never[position];
+    if (design.FindTerm(name) == kNoTerm) throw PlanError(key, "unknown term '" + name + "'");
+    if (kept.count(name)) throw PlanError(key, "term '" + name + "' is also in keep");
+    if (!never.insert(name).second) throw PlanError(key, "term '" + name + "' is listed twice");
+  }
+  if (options.max_terms && options.keep.size() > *options.max_terms) {
+    throw PlanError("max_terms", "max_terms " + std::to_string(*options.max_terms) + " is below the " +
+                                     std::to_string(options.keep.size()) + " kept terms");
+  }
+}
+
+SearchResult RunSearch(const Factor& factor, const Design& design, const SearchOptions& options,
+                       SearchObserver* observer, const SearchRunOptions& run) {
+  ValidateSearchOptions(options, design, run.allow_cycling_thresholds);
+  run.kernel.Validate();
+  if (factor.column_count() != design.column_count()) {
+    throw InputError("search: the factor has " + std::to_string(factor.column_count()) +
+                     " design columns but the design has " + std::to_string(design.column_count()));
+  }
+  RouteRecorder recorder;
+  ObserverFanOut fan_out({&recorder, observer});
+  SearchContext ctx(factor, design, options, run, fan_out);
+
+  if (ctx.candidates().empty() && options.method != Method::kNone) {
+    ctx.StartFromBase();
+    ctx.EmitStart(std::string(ToString(options.method)) + ": start from the intercept and the kept terms", {});
+    ctx.Stop(SearchOutcome::kNoEligibleTerms,
+             "no candidate terms: of " + std::to_string(design.terms.size()) + " terms, " +
+                 std::to_string(options.keep.size()) + " kept and " +
+                 std::to_string(options.never.size()) + " never");
+  } else {
+    switch (options.method) {
+      case Method::kForward: selection_detail::RunForward(ctx); break;
+      case Method::kBackward: selection_detail::RunBackward(ctx); break;
+      case Method::kStepwise: selection_detail::RunStepwise(ctx); break;
+      case Method::kAllSubsets: selection_detail::RunAllSubsets(ctx); break;
+      case Method::kNone: {
+        auto excluded = ctx.StartFromFull();
+        ctx.EmitStart("none: the intercept, the kept terms and every eligible term", std::move(excluded));
+        ctx.Stop(SearchOutcome::kCompleted, "method none: no selection");
+        break;
+      }
+    }
+  }
+
+  SearchResult result;
+  result.outcome = ctx.outcome();
+  result.method = options.method;
+  result.criterion = options.criterion;
+  result.steps = recorder.steps();
+  result.subsets = recorder.subsets();
+  result.excluded = recorder.excluded();
+  result.final_terms = ctx.ModelTermNames();
+  result.final_term_indices = ctx.model_terms();
+  result.final_criterion_value = ctx.Reported(ctx.CurrentScore());
+  result.final_rss = ctx.state().Rss();
+  result.stop_rule = ctx.stop_rule();
+  result.n = ctx.criterion_context().n;
+  result.tss = ctx.criterion_context().tss;
+  result.cp_sigma2 = ctx.criterion_context().full_sigma2;
+  result.subsets_evaluated = ctx.subsets_evaluated;
+  return result;
+}
+
+namespace {
+
+std::string Optional(const std::optional<double>& value) { return value ? Num(*value) : "-"; }
+
+std::string JoinNames(const std::vector<std::string>& names) {
+  if (names.empty()) return "(none)";
+  std::string text;
+  for (const auto& name : names) text += (text.empty() ? "" : ", ") + name;
+  return text;
+}
+
+std::string ValueName(Criterion criterion) {
+  return criterion == Criterion::kPartialF ? "residual mean square" : ToString(criterion);
+}
+
+}  // namespace
+
+std::string SearchResult::BriefReport() const {
+  std::ostringstream out;
+  out << ToString(method) << " selection by " << ToString(criterion) << ": " << ToString(outcome)
+      << "\n";
+  out << "final terms (" << final_terms.size() << "): " << JoinNames(final_terms) << "\n";
+  out << ValueName(criterion) << " " << Optional(final_criterion_value) << ", RSS " << Num(final_rss)
+      << ", n " << Num(n) << "\n";
+  out << "stop rule: " << stop_rule << "\n";
+  return out.str();
+}
+
+std::string SearchResult::FullReport() const {
+  std::ostringstream out;
+  out << BriefReport() << "\n";
+  std::size_t term_width = 4;
+  for (const auto& step : steps) term_width = std::max(term_width, step.term.size());
+  const std::string value_name = ValueName(criterion);
+  out << "route (" << value_name << " before -> after)\n";
+  out << std::left << std::setw(5) << "step" << std::setw(8) << "action"
+      << std::setw(static_cast<int>(term_width + 2)) << "term" << std::setw(28) << "criterion"
+      << "rule\n";
+  for (const auto& step : steps) {
+    std::string change;
+    if (step.action == StepAction::kAdd || step.action == StepAction::kRemove) {
+      change = Optional(step.criterion_before) + " -> " + Optional(step.criterion_value);
+    } else {
+      change = Optional(step.criterion_value);
+    }
+    out << std::left << std::setw(5) << step.index << std::setw(8) << ToString(step.action)
+        << std::setw(static_cast<int>(term_width + 2)) << (step.term.empty() ? "." : step.term)
+        << std::setw(28) << change << step.rule << "\n";
+    if (!step.ties.empty()) {
+      out << "     tie: " << JoinNames(step.ties) << " scored the same; plan order chose "
+          << step.term << "\n";
+    }
+  }
+  if (!excluded.empty()) {
+    out << "\nleft out before the search\n";
+    for (const auto& item : excluded) out << "  " << item.term << ": " << item.reason << "\n";
+  }
+  if (!subsets.empty()) {
+    out << "\nbest subsets by RSS (" << subsets_evaluated << " models evaluated)\n";
+    out << std::left << std::setw(6) << "size" << std::setw(6) << "rank" << std::setw(16) << "RSS"
+        << std::setw(16) << value_name << "terms\n";
+    for (const auto& subset : subsets) {
+      out << std::left << std::setw(6) << subset.size << std::setw(6) << subset.rank_in_size
+          << std::setw(16) << Num(subset.rss) << std::setw(16) << Optional(subset.score)
+          << JoinNames(subset.terms) << "\n";
+    }
+  }
+  return out.str();
+}
+
+}  // namespace stepledger

@@ -1,0 +1,113 @@
+// WriteFileAtomically: the whole content or nothing, never an overwrite without permission,
+// no temporary file left behind, and errors that name the path.
+
+#include <gtest/gtest.h>
+
+#include <sys/stat.h>
+
+#include <filesystem>
+#include <fstream>
+#include <sstream>
+#include <string>
+
+#include "stepledger/audit/atomic_file.h"
+#include "stepledger/engine/errors.h"
+#include "support/test_paths.h"
+
+namespace stepledger {
+namespace {
+
+std::string ReadText(const std::filesystem::path& path) {
+  std::ifstream in(path, std::ios::binary);
+  std::ostringstream text;
+  text << in.rdbuf();
+  return text.str();
+}
+
+int FileCount(const std::filesystem::path& folder) {
+  int count = 0;
+  for ([[maybe_unused]] const auto& entry : std::filesystem::directory_iterator(folder)) ++count;
+  return count;
+}
+
+TEST(AtomicFile, WritesTheContentAndLeavesNoTemporaryFile) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "out.json";
+  const std::string content = std::string("{\"a\": 1}\n") + std::string(100000, 'x');
+  WriteFileAtomically(path, content);
+  EXPECT_EQ(ReadText(path), content);
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFile, EmptyContentMakesAnEmptyFile) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "empty.txt";
+  WriteFileAtomically(path, "");
+  EXPECT_TRUE(std::filesystem::exists(path));
+  EXPECT_EQ(std::filesystem::file_size(path), 0u);
+}
+
+TEST(AtomicFile, RefusesToOverwriteWithoutPermissionAndNamesThePath) {
+  testing::TempDir folder;
+  const auto path = folder.Write("audit.json", "original");
+  try {
+    WriteFileAtomically(path, "replacement");
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    const std::string message = error.what();
+    EXPECT_NE(message.find(path.string()), std::string::npos) << message;
+    EXPECT_NE(message.find("--force"), std::string::npos) << message;
+  }
+  EXPECT_EQ(ReadText(path), "original");
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFile, OverwritesWhenAllowed) {
+  testing::TempDir folder;
+  const auto path = folder.Write("audit.json", "original");
+  WriteFileAtomically(path, "replacement", AtomicWriteOptions{.overwrite = true});
+  EXPECT_EQ(ReadText(path), "replacement");
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFile, MissingFolderNamesThePathAndCreatesNothing) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "no-such-folder" / "audit.json";
+  try {
+    WriteFileAtomically(path, "content");
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find(path.string()), std::string::npos) << error.what();
+  }
+  EXPECT_EQ(FileCount(folder.path()), 0);
+}
+
+TEST(AtomicFile, RenameOntoAFolderFailsCleanly) {
+  // A folder of that name exists: with overwrite the rename fails (EISDIR); the temporary file
+  // must be gone and the message must name the path and the system's reason.
+  testing::TempDir folder;
+  const auto path = folder.path() / "taken";
+  std::filesystem::create_directory(path);
+  try {
+    WriteFileAtomically(path, "content", AtomicWriteOptions{.overwrite = true});
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find(path.string()), std::string::npos) << error.what();
+  }
+  EXPECT_EQ(FileCount(folder.path()), 1);
+  EXPECT_TRUE(std::filesystem::is_directory(path));
+}
+
+TEST(AtomicFile, PermissionsFollowTheUmask) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "plan.json";
+  const mode_t old_mask = ::umask(022);
+  WriteFileAtomically(path, "{}");
+  ::umask(old_mask);
+  struct stat status {};
+  ASSERT_EQ(::stat(path.c_str(), &status), 0);
+  EXPECT_EQ(status.st_mode & 0777, 0644u);  // not mkstemp's 0600
+}
+
+}  // namespace
+}  // namespace stepledger

@@ -1,0 +1,370 @@
+// The plan file: every key, every error (key path and message), malformed JSON positions,
+// the normalised form and its round trip, and the quick plan.
+
+#include "stepledger/audit/plan_file.h"
+
+#include <string>
+#include <vector>
+
+#include <gtest/gtest.h>
+
+#include "stepledger/engine/errors.h"
+#include "stepledger/engine/profile.h"
+#include "support/test_paths.h"
+
+namespace stepledger {
+namespace {
+
+using nlohmann::json;
+using testing::TempDir;
+
+// The contract's example plan (CONTRACT.md "Plan file (JSON)"), minus never (no postcode term).
+constexpr const char* kContractPlan = R"({
+  "response": "resale_price",
+  "response_transform": "log",
+  "intercept": true,
+  "weights": "units",
+  "terms": [
+    {"name": "age",        "column": "age_months"},
+    {"name": "age^2",      "power": {"column": "age_months", "degree": 2}},
+    {"name": "log_disk",   "log": "disk_gb"},
+    {"name": "grade",      "categorical": "grade", "baseline": "C"},
+    {"name": "age:grade",  "product": ["age", "grade"]}
+  ],
+  "keep": ["age"],
+  "never": ["log_disk"],
+  "method": "stepwise",
+  "criterion": "bic",
+  "entry_p": 0.05,
+  "exit_p": 0.10,
+  "hierarchy": true,
+  "max_terms": 15,
+  "best_per_size": 3,
+  "folds": 10,
+  "seed": 20261201,
+  "missing": ["", "NA"]
+})";
+
+PlanError ParseError(const std::string& text) {
+  try {
+    ParsePlanText(text, "p.json");
+  } catch (const PlanError& error) {
+    return error;
+  }
+  ADD_FAILURE() << "expected a PlanError for " << text;
+  return PlanError("", "none");
+}
+
+// A minimal valid plan with one key replaced or added (value as JSON text).
+std::string With(const std::string& key, const std::string& value) {
+  json plan = json::parse(R"({"response": "price", "terms": [{"name": "age", "column": "age"},
+                               {"name": "grade", "categorical": "grade"}]})");
+  plan[key] = json::parse(value);
+  return plan.dump();
+}
+
+std::string WithTerm(const std::string& term) {
+  return R"({"response": "price", "terms": [{"name": "age", "column": "age"}, )" + term + "]}";
+}
+
+struct ErrorCase {
+  std::string label;
+  std::string text;
+  std::string key_path;
+  std::string message_part;
+};
+
+class PlanFileErrorTest : public ::testing::TestWithParam<ErrorCase> {};
+
+TEST_P(PlanFileErrorTest, NamesKeyAndSaysWhatWasExpected) {
+  const ErrorCase& c = GetParam();
+  const PlanError error = ParseError(c.text);
+  EXPECT_EQ(error.key_path(), c.key_path) << error.what();
+  EXPECT_NE(std::string(error.what()).find(c.message_part), std::string::npos) << error.what();
+  if (!c.key_path.empty()) {
+    EXPECT_EQ(std::string(error.what()).rfind("plan key '" + c.key_path + "': ", 0), 0u) << error.what();
+  }
+}
+
+const std::vector<ErrorCase> kErrorCases = {
+    {"MissingResponse", R"({"terms": "all"})", "response", "missing"},
+    {"ResponseNotString", With("response", "3"), "response", "expected a string, found 3"},
+    {"EmptyResponse", With("response", R"("")"), "response", "expected a non-empty string"},
+    {"BadTransform", With("response_transform", R"("sqrt")"), "response_transform",
+     R"(expected "log" or "none", found "sqrt")"},
+    {"InterceptNotBool", With("intercept", "1"), "intercept", "expected true or false, found 1"},
+    {"WeightsNotString", With("weights", "[1]"), "weights", "expected a string, found [1]"},
+    {"MissingTerms", R"({"response": "price"})", "terms", "missing"},
+    {"TermsOtherString", With("terms", R"("every")"), "terms",
+     R"(expected an array of term objects or "all", found "every")"},
+    {"TermsNumber", With("terms", "4"), "terms", "found 4"},
+    {"TermsEmpty", With("terms", "[]"), "terms", "expected at least one term"},
+    {"TermNotObject", With("terms", R"(["age"])"), "terms[0]", R"(expected an object, found "age")"},
+    {"TermWithoutName", WithTerm(R"({"column": "disk"})"), "terms[1].name", "missing"},
+    {"TermEmptyName", WithTerm(R"({"name": "", "column": "disk"})"), "terms[1].name",
+     "non-empty"},
+    {"TermNamedIntercept", WithTerm(R"({"name": "intercept", "column": "disk"})"),
+     "terms[1].name", "reserved"},
+    {"TermWithoutKind", WithTerm(R"({"name": "disk"})"), "terms[1]", "found none"},
+    {"TermWithTwoKinds", WithTerm(R"({"name": "disk", "column": "disk", "log": "disk"})"),
+     "terms[1]", "exactly one of"},
+    {"TermUnknownKey", WithTerm(R"({"name": "disk", "column": "disk", "colour": "red"})"),
+     "terms[1].colour", "unknown key"},
+    {"BaselineOnNumeric", WithTerm(R"({"name": "disk", "column": "disk", "baseline": "A"})"),
+     "terms[1].baseline", "categorical term only"},
+    {"PowerNotObject", WithTerm(R"({"name": "a2", "power": "age"})"), "terms[1].power",
+     R"(expected an object, found "age")"},
+    {"PowerUnknownKey", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 2, "exp": 1}})"),
+     "terms[1].power.exp", "unknown key"},
+    {"PowerWithoutDegree", WithTerm(R"({"name": "a2", "power": {"column": "age"}})"),
+     "terms[1].power.degree", "missing"},
+    {"PowerFractionalDegree", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 1.5}})"),
+     "terms[1].power.degree", "expected an integer >= 2, found 1.5"},
+    {"PowerDegreeOne", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 1}})"),
+     "terms[1].power.degree", "expected an integer >= 2, found 1"},
+    {"PowerDegreeAsFloat", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 2.0}})"),
+     "terms[1].power.degree", "expected an integer >= 2, found 2.0"},
+    {"LogNotString", WithTerm(R"({"name": "l", "log": 3})"), "terms[1].log",
+     "expected a string, found 3"},
+    {"CategoricalBaselineNotString", WithTerm(R"({"name": "g", "categorical": "g", "baseline": 1})"),
+     "terms[1].baseline", "expected a string, found 1"},
+    {"ProductOfOne", WithTerm(R"({"name": "p", "product": ["age"]})"), "terms[1].product",
+     "expected an array of two term names"},
+    {"ProductUnknownPart", WithTerm(R"({"name": "p", "product": ["age", "disk"]})"),
+     "terms[1].product[1]", "no term named 'disk'"},
+    {"ProductWithItself", WithTerm(R"({"name": "p", "product": ["age", "age"]})"),
+     "terms[1].product", "with itself"},
+    {"ProductCycle",
+     WithTerm(R"({"name": "p", "product": ["age", "q"]}, {"name": "q", "product": ["p", "age"]})"),
+     "terms[1].product", "cycle"},
+    {"DuplicateTermNames", WithTerm(R"({"name": "age", "column": "disk"})"), "terms[1].name",
+     "duplicate term name 'age', also terms[0].name"},
+    {"KeepUnknown", With("keep", R"(["disk"])"), "keep[0]", "no term named 'disk' in the plan"},
+    {"KeepNotArray", With("keep", R"("age")"), "keep", R"(expected an array of strings, found "age")"},
+    {"NeverItemNotString", With("never", "[1]"), "never[0]", "expected a string, found 1"},
+    {"KeepTwice", With("keep", R"(["age", "age"])"), "keep[1]", "listed twice (also keep[0])"},
+    {"KeepAndNever",
+     R"({"response": "price", "terms": [{"name": "age", "column": "age"}], "keep": ["age"],
+        "never": ["age"]})",
+     "never[0]", "also in keep[0]"},
+    {"UnknownMethod", With("method", R"("sideways")"), "method", R"(found "sideways")"},
+    {"UnknownCriterion", With("criterion", R"("r2")"), "criterion", R"(found "r2")"},
+    {"EntryPOutOfRange", With("entry_p", "1"), "entry_p", "expected a number in (0, 1), found 1"},
+    {"ExitPNotNumber", With("exit_p", R"("0.1")"), "exit_p", R"(found "0.1")"},
+    {"StepwiseEntryAboveExit",
+     R"({"response": "price", "terms": [{"name": "age", "column": "age"}], "method": "stepwise",
+        "entry_p": 0.2, "exit_p": 0.1})",
+     "entry_p", "can cycle"},
+    {"HierarchyNotBool", With("hierarchy", R"("yes")"), "hierarchy", "expected true or false"},
+    {"MaxTermsZero", With("max_terms", "0"), "max_terms", "expected an integer >= 1, found 0"},
+    {"MaxTermsBelowKeep",
+     R"({"response": "price", "terms": [{"name": "a", "column": "a"}, {"name": "b", "column": "b"}],
+        "keep": ["a", "b"], "max_terms": 1})",
+     "max_terms", "expected at least 2"},
+    {"BestPerSizeZero", With("best_per_size", "0"), "best_per_size", "expected an integer >= 1, found 0"},
+    {"FoldsOne", With("folds", "1"), "folds", "expected an integer >= 2, found 1"},
+    {"SeedNegative", With("seed", "-5"), "seed", "expected an integer >= 0, found -5"},
+    {"SeedFraction", With("seed", "1.5"), "seed", "found 1.5"},
+    {"MissingNotStrings", With("missing", R"(["", 0])"), "missing[1]", "expected a string, found 0"},
+    {"UnknownTopKey", With("respnse", R"("price")"), "respnse", "unknown key"},
+    {"DuplicateKey", R"({"response": "price", "response": "cost", "terms": "all"})", "response",
+     "duplicate key"},
+    {"DuplicateKeyInTerm",
+     R"({"response": "price", "terms": [{"name": "a", "column": "a"}, {"name": "b", "name": "c", "column": "b"}]})",
+     "terms[1].name", "duplicate key"},
+    {"TopLevelArray", "[1, 2]", "", "expected a JSON object at the top level, found [1,2]"},
+};
+
+INSTANTIATE_TEST_SUITE_P(Errors, PlanFileErrorTest, ::testing::ValuesIn(kErrorCases),
+                         [](const auto& info) { return info.param.label; });
+
+TEST(PlanFileTest, ReadsEveryKeyOfTheContractExample) {
+  const LoadedPlan loaded = ParsePlanText(kContractPlan);
+  const Plan& plan = loaded.plan;
+  EXPECT_EQ(loaded.verbatim, kContractPlan);
+  EXPECT_EQ(loaded.json.at("seed"), 20261201);
+  EXPECT_EQ(plan.design.response, "resale_price");
+  EXPECT_EQ(plan.design.response_transform, ResponseTransform::kLog);
+  EXPECT_TRUE(plan.design.intercept);
+  EXPECT_EQ(plan.design.weights, "units");
+  ASSERT_EQ(plan.design.terms.size(), 5u);
+  EXPECT_EQ(plan.design.terms[0].kind, TermKind::kNumeric);
+  EXPECT_EQ(plan.design.terms[0].column, "age_months");
+  EXPECT_EQ(plan.design.terms[1].kind, TermKind::kPower);
+  EXPECT_EQ(plan.design.terms[1].degree, 2);
+  EXPECT_EQ(plan.design.terms[1].key_path, "terms[1]");
+  EXPECT_EQ(plan.design.terms[2].kind, TermKind::kLog);
+  EXPECT_EQ(plan.design.terms[2].column, "disk_gb");
+  EXPECT_EQ(plan.design.terms[3].kind, TermKind::kCategorical);
+  EXPECT_EQ(plan.design.terms[3].baseline, "C");
+  EXPECT_EQ(plan.design.terms[4].kind, TermKind::kProduct);
+  EXPECT_EQ(plan.design.terms[4].parts, (std::vector<std::string>{"age", "grade"}));
+  EXPECT_EQ(plan.search.keep, (std::vector<std::string>{"age"}));
+  EXPECT_EQ(plan.search.never, (std::vector<std::string>{"log_disk"}));
+  EXPECT_EQ(plan.search.method, Method::kStepwise);
+  EXPECT_EQ(plan.search.criterion, Criterion::kBic);
+  EXPECT_EQ(plan.search.entry_p, 0.05);
+  EXPECT_EQ(plan.search.exit_p, 0.10);
+  EXPECT_TRUE(plan.search.hierarchy);
+  EXPECT_EQ(plan.search.max_terms, 15u);
+  EXPECT_EQ(plan.search.best_per_size, 3u);
+  EXPECT_EQ(plan.search.folds, 10);
+  EXPECT_EQ(plan.search.seed, 20261201u);
+  EXPECT_EQ(plan.missing_tokens, (std::vector<std::string>{"", "NA"}));
+}
+
+TEST(PlanFileTest, DefaultsOfAMinimalPlan) {
+  const Plan plan = ParsePlanText(R"({"response": "price", "terms": "all"})").plan;
+  const Plan defaults = MakeQuickPlan("price");
+  EXPECT_EQ(plan, defaults);
+  EXPECT_TRUE(plan.design.all_terms);
+  EXPECT_EQ(plan.design.response_transform, ResponseTransform::kNone);
+  EXPECT_TRUE(plan.design.intercept);
+  EXPECT_FALSE(plan.design.weights);
+  EXPECT_EQ(plan.search.method, Method::kStepwise);
+  EXPECT_EQ(plan.search.criterion, Criterion::kBic);
+  EXPECT_FALSE(plan.search.max_terms);
+  EXPECT_EQ(plan.search.seed, 20261201u);
+}
+
+TEST(PlanFileTest, LargeSeedsAndNullsAreAccepted) {
+  const Plan plan = ParsePlanText(
+      R"({"response": "y", "terms": "all", "seed": 18446744073709551615, "weights": null,
+          "max_terms": null, "method": "forward", "entry_p": 0.2, "exit_p": 0.1})").plan;
+  EXPECT_EQ(plan.search.seed, 18446744073709551615ull);
+  EXPECT_FALSE(plan.design.weights);
+  EXPECT_FALSE(plan.search.max_terms);
+  // entry_p above exit_p is refused for stepwise only.
+  EXPECT_EQ(plan.search.entry_p, 0.2);
+}
+
+TEST(PlanFileTest, NormalisedPlanRoundTrips) {
+  const Plan plan = ParsePlanText(kContractPlan).plan;
+  const json normalised = PlanToJson(plan);
+  EXPECT_EQ(PlanFromJson(normalised), plan);
+  // Through text too, and every key is present.
+  EXPECT_EQ(ParsePlanText(normalised.dump(2)).plan, plan);
+  for (const char* key : {"response", "response_transform", "intercept", "weights", "terms", "keep",
+                          "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
+                          "max_terms", "best_per_size", "folds", "seed", "missing"}) {
+    EXPECT_TRUE(normalised.contains(key)) << key;
+  }
+  const Plan quick = MakeQuickPlan("price");
+  const json quick_json = PlanToJson(quick);
+  EXPECT_EQ(quick_json.at("terms"), "all");
+  EXPECT_TRUE(quick_json.at("weights").is_null());
+  EXPECT_TRUE(quick_json.at("max_terms").is_null());
+  EXPECT_EQ(PlanFromJson(quick_json), quick);
+}
+
+class PlanWithDataTest : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    path_ = folder_.Write("laptops.csv",
+                          "price,age,grade,colour\n"
+                          "100,10,A,red\n"
+                          "200,20,B,blue\n"
+                          "150,30,A,blue\n"
+                          "120,25,C,red\n");
+    profile_ = ProfileCsv(path_, CsvOptions{});
+  }
+  TempDir folder_;
+  std::filesystem::path path_;
+  DataProfile profile_;
+};
+
+TEST_F(PlanWithDataTest, NormalisedPlanNamesChosenBaselinesAndResolvedTerms) {
+  const Plan quick = MakeQuickPlan("price");
+  const Design design = BuildDesign(quick.design, profile_);
+  const json normalised = PlanToJson(quick, &design);
+  // Common practice: the default baseline is the most frequent level (A twice); colour ties
+  // (red, blue twice each) go to the byte-wise smallest, blue.
+  const json expected_terms = json::parse(R"([
+      {"name": "age", "column": "age"},
+      {"name": "grade", "categorical": "grade", "baseline": "A"},
+      {"name": "colour", "categorical": "colour", "baseline": "blue"}])");
+  EXPECT_EQ(normalised.at("terms"), expected_terms);
+  // The resolved plan builds the same design.
+  const Plan resolved = PlanFromJson(normalised);
+  EXPECT_FALSE(resolved.design.all_terms);
+  const Design rebuilt = BuildDesign(resolved.design, profile_);
+  ASSERT_EQ(rebuilt.column_count(), design.column_count());
+  for (std::size_t c = 0; c < design.column_count(); ++c) {
+    EXPECT_EQ(rebuilt.columns[c].name, design.columns[c].name);
+  }
+  EXPECT_EQ(PlanToJson(resolved, &rebuilt), normalised);
+}
+
+TEST_F(PlanWithDataTest, ProductsAndPowersSurviveNormalisation) {
+  const Plan plan = ParsePlanText(R"({"response": "price", "terms": [
+      {"name": "age", "column": "age"}, {"name": "age^2", "power": {"column": "age", "degree": 2}},
+      {"name": "grade", "categorical": "grade"}, {"name": "age:grade", "product": ["age", "grade"]}]})")
+                        .plan;
+  const Design design = BuildDesign(plan.design, profile_);
+  const Plan resolved = PlanFromJson(PlanToJson(plan, &design));
+  Plan expected = plan;
+  expected.design.terms[2].baseline = "A";
+  EXPECT_EQ(resolved, expected);
+}
+
+TEST_F(PlanWithDataTest, KeepAndNeverAreCheckedAgainstTheDesign) {
+  Plan plan = MakeQuickPlan("price");
+  plan.search.keep = {"age"};
+  plan.search.never = {"colour", "postcode"};
+  const Design design = BuildDesign(plan.design, profile_);
+  try {
+    CheckPlanAgainstDesign(plan, design);
+    ADD_FAILURE() << "expected a PlanError";
+  } catch (const PlanError& error) {
+    EXPECT_EQ(error.key_path(), "never[1]");
+    EXPECT_NE(std::string(error.what()).find("no term named 'postcode'"), std::string::npos);
+  }
+  plan.search.never = {"colour"};
+  EXPECT_NO_THROW(CheckPlanAgainstDesign(plan, design));
+  // With "all", keep and never cannot be checked before the data are seen.
+  EXPECT_NO_THROW(ParsePlanText(R"({"response": "price", "terms": "all", "keep": ["anything"]})"));
+}
+
+TEST(PlanFileTest, MalformedJsonNamesLineAndColumn) {
+  // After the stray comma a key is expected; the error is at the '}' that comes instead (4:1).
+  const std::string text = "{\n  \"response\": \"price\",\n  \"terms\": \"all\",\n}";
+  const PlanError error = ParseError(text);
+  EXPECT_EQ(error.key_path(), "");
+  EXPECT_NE(std::string(error.what()).find("p.json:4:1: malformed JSON"), std::string::npos)
+      << error.what();
+  const PlanError second = ParseError("{\"response\": \"price\", \"terms\": [1 2]}");
+  EXPECT_NE(std::string(second.what()).find("p.json:1:35: malformed JSON"), std::string::npos)
+      << second.what();
+  const PlanError empty = ParseError("");
+  EXPECT_NE(std::string(empty.what()).find("p.json:1:1: malformed JSON"), std::string::npos)
+      << empty.what();
+}
+
+TEST(PlanFileTest, FileErrorsNameTheFile) {
+  TempDir folder;
+  try {
+    LoadPlanFile(folder.path() / "absent.json");
+    ADD_FAILURE() << "expected a PlanError";
+  } catch (const PlanError& error) {
+    EXPECT_NE(std::string(error.what()).find("cannot open plan file '" +
+                                             (folder.path() / "absent.json").string() + "'"),
+              std::string::npos)
+        << error.what();
+    EXPECT_NE(std::string(error.what()).find("No such file"), std::string::npos) << error.what();
+  }
+  const auto path = folder.Write("plan.json", kContractPlan);
+  const LoadedPlan loaded = LoadPlanFile(path);
+  EXPECT_EQ(loaded.verbatim, kContractPlan);
+  EXPECT_EQ(loaded.plan.design.response, "resale_price");
+  const auto broken = folder.Write("broken.json", "{\"response\": }");
+  try {
+    LoadPlanFile(broken);
+    ADD_FAILURE() << "expected a PlanError";
+  } catch (const PlanError& error) {
+    EXPECT_NE(std::string(error.what()).find(broken.string() + ":1:14"), std::string::npos)
+        << error.what();
+  }
+}
+
+}  // namespace
+}  // namespace stepledger

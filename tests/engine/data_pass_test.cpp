@@ -1,0 +1,302 @@
+// The factor pass over a file: row accounting, the byte observer, the thread-count
+// invariance of the factor, and the replay of used rows.
+
+#include "stepledger/engine/data_pass.h"
+
+#include <cmath>
+#include <cstdio>
+#include <filesystem>
+#include <limits>
+#include <random>
+#include <string>
+#include <vector>
+
+#include <gtest/gtest.h>
+
+#include "stepledger/engine/errors.h"
+#include "stepledger/engine/profile.h"
+#include "support/test_paths.h"
+
+namespace stepledger {
+namespace {
+
+using testing::TempDir;
+
+// Row 3 misses age, row 4 has weight 0, row 5 misses the price: 3 rows used (weights 1, 2, 3).
+constexpr const char* kLaptops =
+    "price,age,grade,units\n"
+    "100,10,A,1\n"
+    "200,20,B,2\n"
+    "150,,A,1\n"
+    "300,30,C,0\n"
+    "NA,5,B,1\n"
+    "250,40,A,3\n";
+
+TermSpec Term(std::string name, TermKind kind, std::string column, std::size_t index) {
+  TermSpec term;
+  term.name = std::move(name);
+  term.kind = kind;
+  term.column = std::move(column);
+  term.key_path = "terms[" + std::to_string(index) + "]";
+  return term;
+}
+
+DesignSpec LaptopSpec() {
+  DesignSpec spec;
+  spec.response = "price";
+  spec.weights = "units";
+  spec.terms = {Term("age", TermKind::kNumeric, "age", 0),
+                Term("grade", TermKind::kCategorical, "grade", 1)};
+  return spec;
+}
+
+// An invented data set with missing cells, zero weights and a categorical column; the
+// generator counts the drops it makes, so the accounting has known answers.
+struct Generated {
+  std::string text;
+  std::uint64_t rows = 0, missing_y = 0, zero_weight = 0, missing_a = 0, used = 0;
+};
+
+Generated Generate(std::size_t rows) {
+  std::mt19937_64 random(20261201);
+  std::uniform_real_distribution<double> uniform(0.0, 1.0);
+  std::normal_distribution<double> normal(0.0, 1.0);
+  const char* levels[] = {"north", "south", "east", "west"};
+  Generated data;
+  data.text = "y,a,b,region,w\n";
+  char line[256];
+  for (std::size_t i = 0; i < rows; ++i) {
+    const double a = 50 + 20 * normal(random);
+    const double b = 1000 * uniform(random);
+    const char* region = levels[random() % 4];
+    const double y = 3 + 0.5 * a - 0.01 * b + normal(random);
+    const double w = uniform(random) < 0.03 ? 0.0 : 0.5 + uniform(random);
+    const bool y_missing = uniform(random) < 0.02;
+    const bool a_missing = uniform(random) < 0.02;
+    std::snprintf(line, sizeof line, "%s,%s,%.6f,%s,%.4f\n",
+                  y_missing ? "NA" : std::to_string(y).c_str(),
+                  a_missing ? "" : std::to_string(a).c_str(), b, region, w);
+    data.text += line;
+    ++data.rows;
+    if (y_missing) {
+      ++data.missing_y;
+    } else if (w == 0.0) {
+      ++data.zero_weight;
+    } else if (a_missing) {
+      ++data.missing_a;
+    } else {
+      ++data.used;
+    }
+  }
+  return data;
+}
+
+DesignSpec GeneratedSpec() {
+  DesignSpec spec;
+  spec.response = "y";
+  spec.weights = "w";
+  spec.terms = {Term("a", TermKind::kNumeric, "a", 0), Term("b", TermKind::kNumeric, "b", 1),
+                Term("region", TermKind::kCategorical, "region", 2)};
+  TermSpec square = Term("a^2", TermKind::kPower, "a", 3);
+  square.degree = 2;
+  spec.terms.push_back(square);
+  TermSpec product;
+  product.name = "a:region";
+  product.kind = TermKind::kProduct;
+  product.parts = {"a", "region"};
+  product.key_path = "terms[4]";
+  spec.terms.push_back(product);
+  return spec;
+}
+
+// Largest |R1 - R2| in a column relative to that column's norm, over all columns.
+double ColumnRelativeDifference(const arma::mat& a, const arma::mat& b) {
+  double worst = 0;
+  for (arma::uword j = 0; j < b.n_cols; ++j) {
+    const double norm = arma::norm(b.col(j));
+    if (norm > 0) worst = std::max(worst, arma::abs(a.col(j) - b.col(j)).max() / norm);
+  }
+  return worst;
+}
+
+TEST(DataPassTest, AccountingAndFactorOfTheSmallFile) {
+  TempDir folder;
+  const auto path = folder.Write("laptops.csv", kLaptops);
+  const Design design = BuildDesign(LaptopSpec(), ProfileCsv(path, CsvOptions{}));
+  const PassResult result = RunFactorPass(path, design, PassOptions{});
+  // Counted by hand from kLaptops.
+  EXPECT_EQ(result.accounting.rows_read, 6u);
+  EXPECT_EQ(result.accounting.rows_used, 3u);
+  const std::map<std::string, std::uint64_t> dropped = {
+      {"missing age", 1}, {"missing price", 1}, {"zero weight", 1}};
+  EXPECT_EQ(result.accounting.rows_dropped, dropped);
+  EXPECT_EQ(result.factor.rows, 3u);
+  EXPECT_DOUBLE_EQ(result.factor.weight_sum, 6.0);
+  EXPECT_DOUBLE_EQ(result.factor.log_weight_sum, std::log(2.0) + std::log(3.0));
+  EXPECT_EQ(result.factor.scales, design.scales());
+  ASSERT_EQ(result.factor.r.n_rows, design.column_count() + 1);
+  // Common practice: R'R = X'WX of the scaled augmented matrix; the (0,0) entry is the sum of
+  // the weights times the intercept's scale squared (1).
+  const arma::mat gram = result.factor.r.t() * result.factor.r;
+  EXPECT_NEAR(gram(0, 0), 6.0, 6.0 * 1e-14);
+  // (age, age): sum w age^2 = 1*100 + 2*400 + 3*1600 = 5700, age scale 2^-5 (bound 40).
+  EXPECT_NEAR(gram(1, 1), 5700.0 * std::ldexp(1.0, -10), 1e-12);
+}
+
+TEST(DataPassTest, ByteObserverSeesTheWholeFile) {
+  TempDir folder;
+  const auto path = folder.Write("laptops.csv", kLaptops);
+  const Design design = BuildDesign(LaptopSpec(), ProfileCsv(path, CsvOptions{}));
+  for (int threads : {1, 2}) {
+    std::string seen;
+    PassOptions options;
+    options.threads = threads;
+    RunFactorPass(path, design, options, [&](std::string_view bytes) { seen += bytes; });
+    EXPECT_EQ(seen, kLaptops) << threads << " threads";
+  }
+}
+
+TEST(DataPassTest, ThreadCountsGiveTheSameFactorAndAccounting) {
+  TempDir folder;
+  const Generated data = Generate(5000);
+  const auto path = folder.Write("generated.csv", data.text);
+  const Design design = BuildDesign(GeneratedSpec(), ProfileCsv(path, CsvOptions{}));
+  ASSERT_EQ(design.column_count(), 1 + 1 + 1 + 3 + 1 + 3);
+
+  PassOptions options;
+  options.block_rows = 37;  // many blocks, not a divisor of the row count
+  std::vector<PassResult> results;
+  for (int threads : {1, 2, 3}) {
+    options.threads = threads;
+    results.push_back(RunFactorPass(path, design, options));
+  }
+  const RowAccounting& single = results[0].accounting;
+  EXPECT_EQ(single.rows_read, data.rows);
+  EXPECT_EQ(single.rows_used, data.used);
+  EXPECT_EQ(single.rows_dropped.at("missing y"), data.missing_y);
+  EXPECT_EQ(single.rows_dropped.at("zero weight"), data.zero_weight);
+  EXPECT_EQ(single.rows_dropped.at("missing a"), data.missing_a);
+  for (std::size_t r = 1; r < results.size(); ++r) {
+    const PassResult& other = results[r];
+    EXPECT_EQ(other.accounting.rows_read, single.rows_read);
+    EXPECT_EQ(other.accounting.rows_used, single.rows_used);
+    EXPECT_EQ(other.accounting.rows_dropped, single.rows_dropped);
+    EXPECT_EQ(other.factor.rows, results[0].factor.rows);
+    EXPECT_NEAR(other.factor.weight_sum, results[0].factor.weight_sum,
+                1e-12 * results[0].factor.weight_sum);
+    // Common practice: different fold orders agree to rounding (far below 1e-12).
+    EXPECT_LT(ColumnRelativeDifference(other.factor.r, results[0].factor.r), 1e-12)
+        << r + 1 << " threads";
+  }
+  // A given thread count gives the same bits every time.
+  options.threads = 3;
+  const PassResult again = RunFactorPass(path, design, options);
+  EXPECT_TRUE(arma::approx_equal(again.factor.r, results[2].factor.r, "absdiff", 0.0));
+}
+
+TEST(DataPassTest, ForEachUsedRowSeesUsedRowsInOrder) {
+  TempDir folder;
+  const auto path = folder.Write("laptops.csv", kLaptops);
+  const Design design = BuildDesign(LaptopSpec(), ProfileCsv(path, CsvOptions{}));
+  std::vector<std::uint64_t> indices, lines;
+  std::vector<std::vector<double>> xs;
+  std::vector<double> ys, weights;
+  ForEachUsedRow(path, design, CsvOptions{}, [&](const UsedRow& row) {
+    indices.push_back(row.row_index);
+    lines.push_back(row.line);
+    xs.emplace_back(row.x.begin(), row.x.end());
+    ys.push_back(row.y);
+    weights.push_back(row.weight);
+  });
+  EXPECT_EQ(indices, (std::vector<std::uint64_t>{0, 1, 5}));
+  EXPECT_EQ(lines, (std::vector<std::uint64_t>{2, 3, 7}));
+  EXPECT_EQ(ys, (std::vector<double>{100, 200, 250}));
+  EXPECT_EQ(weights, (std::vector<double>{1, 2, 3}));
+  // intercept, age, grade[B], grade[C] (baseline A, the most frequent).
+  EXPECT_EQ(xs[1], (std::vector<double>{1, 20, 1, 0}));
+  EXPECT_EQ(xs[2], (std::vector<double>{1, 40, 0, 0}));
+
+  const RowReplay replay = FileRowReplay(path, design, CsvOptions{});
+  std::vector<std::uint64_t> replayed;
+  replay([&](const UsedRow& row) { replayed.push_back(row.row_index); });
+  EXPECT_EQ(replayed, indices);
+}
+
+TEST(DataPassTest, ReplayCarriesTheLowOrderPartsOfPowers) {
+  TempDir folder;
+  const auto path = folder.Write("p.csv", "y,a\n1,1.1\n2,0.3\n3,7\n");
+  DesignSpec spec;
+  spec.response = "y";
+  spec.terms = {Term("a", TermKind::kNumeric, "a", 0)};
+  TermSpec cube = Term("a^3", TermKind::kPower, "a", 1);
+  cube.degree = 3;
+  spec.terms.push_back(cube);
+  const Design design = BuildDesign(spec, ProfileCsv(path, CsvOptions{}));
+  std::vector<double> values = {1.1, 0.3, 7};
+  std::size_t seen = 0;
+  ForEachUsedRow(path, design, CsvOptions{}, [&](const UsedRow& row) {
+    ASSERT_EQ(row.x_low.size(), design.column_count());
+    const long double a = values[seen++];
+    const long double exact = a * a * a;  // the same long double products as the design
+    // x + x_low holds the long double power exactly (the difference has few significant bits).
+    EXPECT_EQ(static_cast<long double>(row.x[2]) + static_cast<long double>(row.x_low[2]), exact);
+    EXPECT_EQ(row.x_low[0], 0.0);
+    EXPECT_EQ(row.x_low[1], 0.0);
+  });
+  EXPECT_EQ(seen, 3u);
+  // 1.1^3 in long double is not a double: the low part of the first row is not zero.
+  std::vector<double> first_low;
+  ForEachUsedRow(path, design, CsvOptions{}, [&](const UsedRow& row) {
+    if (row.row_index == 0) first_low.assign(row.x_low.begin(), row.x_low.end());
+  });
+  EXPECT_NE(first_low.at(2), 0.0);
+
+  // Without a power, x_low is empty (all zero).
+  DesignSpec linear = spec;
+  linear.terms.pop_back();
+  const Design linear_design = BuildDesign(linear, ProfileCsv(path, CsvOptions{}));
+  ForEachUsedRow(path, linear_design, CsvOptions{},
+                 [&](const UsedRow& row) { EXPECT_TRUE(row.x_low.empty()); });
+}
+
+TEST(DataPassTest, InputErrorsStopEveryThreadCount) {
+  TempDir folder;
+  Generated data = Generate(2000);
+  const auto profiled = folder.Write("generated.csv", data.text);
+  const Design design = BuildDesign(GeneratedSpec(), ProfileCsv(profiled, CsvOptions{}));
+  // Same data with a negative weight near the end, after many blocks went to the workers.
+  const std::size_t last_line_start = data.text.rfind('\n', data.text.size() - 2) + 1;
+  const std::size_t weight_start = data.text.rfind(',') + 1;
+  data.text.replace(weight_start, data.text.size() - 1 - weight_start, "-1");
+  const auto broken = folder.Write("broken.csv", data.text);
+  const std::string where = broken.string() + ":" + std::to_string(data.rows + 1) + ":" +
+                            std::to_string(weight_start - last_line_start + 1);
+  for (int threads : {1, 2, 3}) {
+    PassOptions options;
+    options.threads = threads;
+    options.block_rows = 16;
+    try {
+      RunFactorPass(broken, design, options);
+      ADD_FAILURE() << "expected an InputError with " << threads << " threads";
+    } catch (const InputError& error) {
+      EXPECT_NE(std::string(error.what()).find(where), std::string::npos) << error.what();
+    }
+  }
+}
+
+TEST(DataPassTest, OptionsAreChecked) {
+  TempDir folder;
+  const auto path = folder.Write("laptops.csv", kLaptops);
+  const Design design = BuildDesign(LaptopSpec(), ProfileCsv(path, CsvOptions{}));
+  PassOptions options;
+  options.threads = 0;
+  try {
+    RunFactorPass(path, design, options);
+    ADD_FAILURE() << "expected an InputError";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("threads"), std::string::npos);
+  }
+}
+
+}  // namespace
+}  // namespace stepledger
