@@ -64,6 +64,10 @@ void AddCompareCommand(CLI::App& app, CommandContext& context) {
       ->check(CLI::ExistingFile)
       ->type_name("DATA");
   AddCommonOptions(*command, context.common);
+  command->footer(
+      "The comparison is the same as the one rerun prints; with --data the old model's error on\n"
+      "the new rows is shown beside the new model's.\nExample:\n"
+      "  stepledger compare march/audit.json april/audit.json --data laptops_april.csv");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunCompare(*args, context); };
   });

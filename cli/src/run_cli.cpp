@@ -96,8 +96,8 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
   app.get_formatter()->column_width(34);
   app.require_subcommand(1);
   app.footer(
-      "Run 'stepledger COMMAND --help' for a command's options. Commands coming: select, "
-      "report, predict, demo.");
+      "Run 'stepledger COMMAND --help' for a command's options. Commands coming: report, "
+      "predict, demo.");
 
   cli::AddFitCommand(app, context);
   cli::AddProfileCommand(app, context);

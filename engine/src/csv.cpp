@@ -32,7 +32,13 @@ std::string_view FieldAround(const char* begin, const char* end, char delimiter)
   return {begin, static_cast<std::size_t>(stop - begin)};
 }
 
-std::string Quoted(std::string_view text) { return "'" + QuoteForMessage(text) + "'"; }
+std::string Quoted(std::string_view text) {
+  // Appended piece by piece: GCC 12 at -O3 warns (-Wrestrict, a false positive) on "'" + str.
+  std::string quoted = "'";
+  quoted += QuoteForMessage(text);
+  quoted += '\'';
+  return quoted;
+}
 
 }  // namespace
 

@@ -11,25 +11,16 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/cli/run_cli.h"
+#include "support/cli_run.h"
 #include "support/selection_fixtures.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
 namespace {
 
-struct CliRun {
-  int status = -1;
-  std::string out, err;
-};
+using testing::CliRun;
 
-CliRun RunSelect(const std::vector<std::string>& args) {
-  std::ostringstream out, err;
-  CliRun run;
-  run.status = RunCli(args, out, err);
-  run.out = out.str();
-  run.err = err.str();
-  return run;
-}
+CliRun RunSelect(const std::vector<std::string>& args) { return testing::RunStepledger(args); }
 
 class SelectHald : public ::testing::Test {
  protected:
@@ -78,7 +69,7 @@ TEST_F(SelectHald, JsonHasStepsModelAndNoSubsetsForStepwise) {
   }
 }
 
-TEST_F(SelectHald, QuickFormAllSubsetsListsSubsetsAndOutWritesSelectionJson) {
+TEST_F(SelectHald, QuickFormAllSubsetsListsSubsetsAndOutWritesTheAudit) {
   const auto out_dir = folder_.path() / "run";
   const CliRun run = RunSelect({"select", data_, "--response", "y", "--method", "all-subsets",
                           "--criterion", "bic", "--json", "--out", out_dir.string()});
@@ -86,9 +77,13 @@ TEST_F(SelectHald, QuickFormAllSubsetsListsSubsetsAndOutWritesSelectionJson) {
   const auto json = nlohmann::json::parse(run.out);
   ASSERT_TRUE(json.contains("subsets"));
   EXPECT_EQ(json["subsets"][1]["terms"], nlohmann::json({"x4"}));  // best single term
-  std::ifstream written(out_dir / "selection.json");
+  std::ifstream written(out_dir / "audit.json");
   ASSERT_TRUE(written.good());
-  EXPECT_EQ(nlohmann::json::parse(written), json);
+  const auto audit = nlohmann::json::parse(written);
+  // The audit records the same route and final model as the terminal's JSON.
+  EXPECT_EQ(audit["format"], "stepledger-audit");
+  EXPECT_EQ(audit["subsets"], json["subsets"]);
+  EXPECT_EQ(audit["model"]["terms"], json["model"]["terms"]);
   // A second run refuses to overwrite without --force, and says how.
   const CliRun again = RunSelect({"select", data_, "--response", "y", "--out", out_dir.string()});
   EXPECT_EQ(again.status, 2);
