@@ -206,7 +206,7 @@ std::string FingerprintFile(const std::filesystem::path& path) {
 }
 
 AuditRun RunPlanForAudit(const std::filesystem::path& data, const LoadedPlan& plan,
-                         const AuditRunOptions& options) {
+                         const AuditRunOptions& options, SearchObserver* observer) {
   const auto started = std::chrono::steady_clock::now();
   if (options.threads < 1) {
     throw InputError("threads: expected at least 1, got " + std::to_string(options.threads));
@@ -235,7 +235,7 @@ AuditRun RunPlanForAudit(const std::filesystem::path& data, const LoadedPlan& pl
 
   SearchRunOptions search_run;
   search_run.kernel = options.fit.kernel;
-  run.search = RunSearch(pass.factor, run.design, plan.plan.search, nullptr, search_run);
+  run.search = RunSearch(pass.factor, run.design, plan.plan.search, observer, search_run);
 
   FitOptions fit_options = options.fit;
   fit_options.cp_sigma2 = run.search.cp_sigma2;
@@ -526,42 +526,6 @@ json WriteAuditDocument(const AuditRun& run, const AuditDocumentOptions& documen
     throw;
   }
   return document;
-}
-
-std::filesystem::path WriteAuditForSelection(const SelectionForAudit& selection,
-                                             const AuditOutputOptions& output) {
-  if (selection.plan == nullptr || selection.profile == nullptr || selection.design == nullptr ||
-      selection.accounting == nullptr || selection.search == nullptr || selection.fit == nullptr) {
-    throw std::logic_error("WriteAuditForSelection: every piece of the run must be given");
-  }
-  AuditRun run;
-  run.plan.plan = *selection.plan;
-  run.plan.json = PlanToJson(*selection.plan);
-  run.plan.verbatim =
-      selection.plan_verbatim.empty() ? run.plan.json.dump(2) + "\n" : selection.plan_verbatim;
-  run.data_file_name = selection.data.filename().string();
-  run.data_sha256 = selection.data_sha256;
-  run.data_bytes = selection.data_bytes;
-  run.profile = *selection.profile;
-  run.design = *selection.design;
-  run.accounting = *selection.accounting;
-  run.search = *selection.search;
-  run.fit = *selection.fit;
-  run.options = selection.options;
-  run.options.csv.missing_tokens = selection.plan->missing_tokens;
-  run.duration_seconds = selection.duration_seconds;
-  if (run.options.diagnostics && run.fit.n > 0) {
-    const RowReplay replay = FileRowReplay(selection.data, run.design, run.options.csv);
-    const DiagnosticsResult diagnostics = ComputeDiagnostics(run.fit, run.design, replay);
-    for (const RowDiagnostic& row : diagnostics.rows) {
-      if (!run.max_leverage || row.leverage > *run.max_leverage) {
-        run.max_leverage = row.leverage;
-        run.max_leverage_line = row.line;
-      }
-    }
-  }
-  WriteAuditDocument(run, {}, output);
-  return (output.folder.empty() ? std::filesystem::path(".") : output.folder) / kAuditFileName;
 }
 
 AuditRunOptions RunOptionsFromSettings(const json& settings) {

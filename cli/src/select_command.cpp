@@ -5,7 +5,6 @@
 #include <unistd.h>
 
 #include <algorithm>
-#include <chrono>
 #include <cstdio>
 #include <filesystem>
 #include <memory>
@@ -16,17 +15,13 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
-#include "stepledger/audit/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/audit/plan_file.h"
 #include "stepledger/audit/route_json.h"
-#include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"
-#include "stepledger/engine/fingerprint.h"
 #include "stepledger/engine/fit.h"
-#include "stepledger/engine/profile.h"
 #include "stepledger/selection/search.h"
 
 namespace stepledger::cli {
@@ -91,26 +86,26 @@ std::vector<std::string> SelectionCautions(const FitResult& fit) {
 
 int RunSelect(const SelectArgs& args, CommandContext& context) {
   auto& log = *context.log;
-  const auto started = std::chrono::steady_clock::now();
   if (args.plan.empty() == args.response.empty()) {
     throw InputError("select: give either --plan PLAN or --response COL (exactly one)");
   }
-  Plan plan;
-  std::string plan_verbatim;  // for the audit; empty when the command line shapes the plan
+  LoadedPlan loaded;
   if (!args.plan.empty()) {
-    LoadedPlan loaded = LoadPlanFile(args.plan);
-    plan = std::move(loaded.plan);
-    if (args.method.empty() && args.criterion.empty()) plan_verbatim = std::move(loaded.verbatim);
+    loaded = LoadPlanFile(args.plan);
   } else {
-    plan = MakeQuickPlan(args.response);
+    loaded.plan = MakeQuickPlan(args.response);
   }
+  // The audit records the plan file's text, or, when the command line shapes the plan, the
+  // normalised plan, so that a replay runs what was run.
+  const bool shaped_by_command_line =
+      args.plan.empty() || !args.method.empty() || !args.criterion.empty();
   if (!args.method.empty()) {
     const auto method = MethodFromString(args.method);
     if (!method) {
       throw InputError("--method: unknown method '" + QuoteForMessage(args.method) +
                        "'; use forward, backward, stepwise, all-subsets or none");
     }
-    plan.search.method = *method;
+    loaded.plan.search.method = *method;
   }
   if (!args.criterion.empty()) {
     const auto criterion = CriterionFromString(args.criterion);
@@ -118,39 +113,28 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
       throw InputError("--criterion: unknown criterion '" + QuoteForMessage(args.criterion) +
                        "'; use adj-r2, aic, aicc, bic, cp, partial-f or cv");
     }
-    plan.search.criterion = *criterion;
+    loaded.plan.search.criterion = *criterion;
+  }
+  if (shaped_by_command_line) {
+    loaded.json = PlanToJson(loaded.plan);
+    loaded.verbatim = loaded.json.dump(2) + "\n";
   }
 
-  CsvOptions csv = MakeCsvOptions(context.common);
-  csv.missing_tokens = plan.missing_tokens;
-  log.info("profiling {}", args.data);
-  const DataProfile profile = ProfileCsv(args.data, csv);
-  const Design design = BuildDesign(plan.design, profile);
-  for (const auto& [term, reason] : design.skipped) log.warn("term '{}' skipped: {}", term, reason);
-  CheckPlanAgainstDesign(plan, design);
-  ValidateSearchOptions(plan.search, design);
-
-  PassOptions pass_options;
-  pass_options.csv = csv;
-  pass_options.threads = context.common.threads;
-  DataFingerprint fingerprint;  // over the exact bytes the pass reads, for the audit
-  const PassResult pass = RunFactorPass(args.data, design, pass_options,
-                                        [&fingerprint](std::string_view bytes) { fingerprint.Update(bytes); });
-  const std::uint64_t data_bytes = fingerprint.total_bytes();
-  const std::string data_sha256 = fingerprint.Finish();
-
+  // The same run as the one `verify --data` replays (audit/audit_document.h).
+  AuditRunOptions run_options;
+  run_options.csv = MakeCsvOptions(context.common);
+  run_options.threads = context.common.threads;
+  run_options.fit.max_refinement_passes = args.refinement_passes;
+  run_options.diagnostics = !args.out_dir.empty();  // the audit's extrapolation caution needs it
   ProgressLine progress(context.err);
   const bool show_progress = !context.common.quiet && isatty(STDERR_FILENO) != 0;
-  const SearchResult result =
-      RunSearch(pass.factor, design, plan.search, show_progress ? &progress : nullptr);
-  log.info("search: {} ({} steps)", ToString(result.outcome), result.steps.size());
-
-  FitOptions fit_options;
-  fit_options.cp_sigma2 = result.cp_sigma2;
-  fit_options.max_refinement_passes = args.refinement_passes;
-  fit_options.Validate();
-  const RowReplay replay = FileRowReplay(args.data, design, csv);
-  const FitResult fit = FitModel(pass.factor, design, result.final_term_indices, fit_options, &replay);
+  log.info("running the plan on {}", args.data);
+  const AuditRun run =
+      RunPlanForAudit(args.data, loaded, run_options, show_progress ? &progress : nullptr);
+  for (const auto& [term, reason] : run.design.skipped) log.warn("term '{}' skipped: {}", term, reason);
+  log.info("search: {} ({} steps)", ToString(run.search.outcome), run.search.steps.size());
+  const SearchResult& result = run.search;
+  const FitResult& fit = run.fit;
   const std::vector<std::string> cautions = SelectionCautions(fit);
 
   nlohmann::json document = RouteToJson(result);
@@ -158,29 +142,14 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   document["model"] = ModelToJson(fit);
   document["cautions"] = cautions;
   document["data"] = {{"file", args.data},
-                      {"rows_read", pass.accounting.rows_read},
-                      {"rows_used", pass.accounting.rows_used}};
+                      {"rows_read", run.accounting.rows_read},
+                      {"rows_used", run.accounting.rows_used}};
 
   if (!args.out_dir.empty()) {
-    SelectionForAudit selection;
-    selection.data = args.data;
-    selection.plan = &plan;
-    selection.plan_verbatim = plan_verbatim;
-    selection.profile = &profile;
-    selection.design = &design;
-    selection.accounting = &pass.accounting;
-    selection.search = &result;
-    selection.fit = &fit;
-    selection.data_sha256 = data_sha256;
-    selection.data_bytes = data_bytes;
-    selection.options.csv = csv;
-    selection.options.threads = context.common.threads;
-    selection.options.fit = fit_options;
-    selection.duration_seconds =
-        std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
-    const auto written = WriteAuditForSelection(
-        selection, AuditOutputOptions{args.out_dir, context.common.force, args.sign_key});
-    log.info("wrote {}", written.string());
+    const nlohmann::json written = WriteAuditDocument(
+        run, {}, AuditOutputOptions{args.out_dir, context.common.force, args.sign_key});
+    log.info("wrote {} (seal {})", (std::filesystem::path(args.out_dir) / kAuditFileName).string(),
+             written.value("seal", ""));
   }
 
   if (context.common.json) {

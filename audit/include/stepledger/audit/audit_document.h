@@ -74,8 +74,7 @@ struct AuditRunOptions {
   bool diagnostics = true;
 };
 
-/// Everything one run produced: the value the audit document renders. A command that has run
-/// the pieces itself (profile, design, pass, search, fit) may fill it directly.
+/// Everything one run produced: the value the audit document renders.
 struct AuditRun {
   LoadedPlan plan;
   std::string data_file_name;       ///< the data file's name (no folder), for readers
@@ -94,9 +93,11 @@ struct AuditRun {
 
 /// Runs a plan on a data file the way every audited command does: profile, design, one factor
 /// pass that also fingerprints the bytes, the search, the refined fit of the final model and
-/// (optionally) its diagnostics. Throws InputError/PlanError for bad input.
+/// (optionally) its diagnostics. `select` runs through here too, so a replay takes the very
+/// path the recorded run took. observer (optional) sees the search's events as they happen.
+/// Throws InputError/PlanError for bad input.
 AuditRun RunPlanForAudit(const std::filesystem::path& data, const LoadedPlan& plan,
-                         const AuditRunOptions& options);
+                         const AuditRunOptions& options, SearchObserver* observer = nullptr);
 
 /// The fingerprint of a file (engine/fingerprint.h) computed by reading it; throws InputError
 /// naming the file when it cannot be read.
@@ -153,33 +154,6 @@ struct AuditOutputOptions {
 /// left behind and InputError says why. Returns the written document.
 nlohmann::json WriteAuditDocument(const AuditRun& run, const AuditDocumentOptions& document_options,
                                   const AuditOutputOptions& output);
-
-/// What `select --out DIR` hands over once it has run the selection itself (no second factor
-/// pass): the pieces of the run. data_sha256/data_bytes come from a DataFingerprint fed by
-/// RunFactorPass's byte observer. plan_verbatim is the plan file's text, or empty when the plan
-/// came from the command line (quick form, --method/--criterion overrides): the normalised plan
-/// is then recorded as the verbatim text, so that a replay runs what was run.
-struct SelectionForAudit {
-  std::filesystem::path data;
-  const Plan* plan = nullptr;
-  std::string plan_verbatim;
-  const DataProfile* profile = nullptr;
-  const Design* design = nullptr;
-  const RowAccounting* accounting = nullptr;
-  const SearchResult* search = nullptr;
-  const FitResult* fit = nullptr;
-  std::string data_sha256;
-  std::uint64_t data_bytes = 0;
-  /// Reader options (delimiter), threads and fit options the command used.
-  AuditRunOptions options;
-  double duration_seconds = 0;
-};
-
-/// Writes DIR/audit.json for a selection a command has run (see SelectionForAudit); runs the
-/// diagnostics pass when options.diagnostics. Returns the audit's path. Throws InputError as
-/// WriteAuditDocument does, leaving the folder as it was.
-std::filesystem::path WriteAuditForSelection(const SelectionForAudit& selection,
-                                             const AuditOutputOptions& output);
 
 /// The run options recorded under a document's `settings` (defaults for missing keys), so
 /// that a replay runs the way the original did.
