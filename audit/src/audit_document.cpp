@@ -242,7 +242,8 @@ AuditRun RunPlanForAudit(const std::filesystem::path& data, const LoadedPlan& pl
   const RowReplay replay = FileRowReplay(data, run.design, run.options.csv);
   run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
   if (options.diagnostics && run.fit.n > 0) {
-    const DiagnosticsResult diagnostics = ComputeDiagnostics(run.fit, run.design, replay);
+    const DiagnosticsResult diagnostics =
+        DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
     for (const RowDiagnostic& row : diagnostics.rows) {
       if (!run.max_leverage || row.leverage > *run.max_leverage) {
         run.max_leverage = row.leverage;
@@ -385,6 +386,7 @@ json BuildAuditDocument(const AuditRun& run, const AuditDocumentOptions& options
   }
   document["model"] = ModelToJson(run.fit);
   document["numerics"] = NumericsJson(run);
+  document["prediction"] = PredictionSectionJson(run.fit, run.design, run.prediction_support);
   document["cautions"] = AuditCautions(run);
   if (options.parent) document["parent"] = *options.parent;
   if (options.comparison) document["comparison"] = *options.comparison;

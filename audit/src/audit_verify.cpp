@@ -227,7 +227,7 @@ void CheckSignature(const json& document, const std::filesystem::path& public_ke
 std::string DataFileForMessage(const std::filesystem::path& path) { return path.string(); }
 
 // The parts of a replayed document compared with the recorded one, in the order of reporting.
-const char* const kReplayedSections[] = {"search", "subsets", "model", "numerics",
+const char* const kReplayedSections[] = {"search", "subsets", "model", "numerics", "prediction",
                                          "design", "data",    "cautions"};
 
 }  // namespace

@@ -36,6 +36,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "stepledger/audit/fitted_model.h"
 #include "stepledger/audit/plan_file.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/engine/data_pass.h"
@@ -87,6 +88,9 @@ struct AuditRun {
   FitResult fit;
   std::optional<double> max_leverage;  ///< from the diagnostics pass, when run
   std::uint64_t max_leverage_line = 0;
+  /// What pricing new rows needs (ranges, largest unit leverage, smearing factor); filled by
+  /// the diagnostics pass, empty without it.
+  PredictionSupport prediction_support;
   AuditRunOptions options;
   double duration_seconds = 0;      ///< wall time of the run
 };

@@ -1,0 +1,92 @@
+#pragma once
+// The final model of an audit, rebuilt from the audit alone so that `predict` can price new
+// rows and `report --data` can diagnose the fitted rows without rerunning the selection.
+//
+// The audit's `prediction` section holds what the `model` section does not:
+//   prediction: {
+//     columns:   design column names of the model, model order (the intercept first),
+//     triangle:  R11 of the model in the factor's scaled units, k rows of k numbers (row-major,
+//                zeros below the diagonal), and scales: the k column scales then the response's
+//                (FitResult::model_triangle / model_scales): x'(X'WX)^-1 x = ||R11^-T D x||^2,
+//                a sum of squares, so leverages and standard errors have no cancellation;
+//     ranges:    [{term, column, kind, min, max}]: for every numeric, log and power term that the
+//                model uses (directly or as a part of a product), the range of the term's design
+//                value (the value, its natural log, its power) over the rows used;
+//     max_unit_leverage, max_unit_leverage_line: the largest x_i'(X'WX)^-1 x_i over the rows
+//                used (the leverage at unit weight: h_ii / w_i) and the line of that row;
+//     smearing_factor: with a logged response, the mean over the rows used of
+//                exp(sqrt(w_i) e_i) (the smearing estimate of E[exp(error)]); else null
+//   }
+// Values missing because the run had no diagnostics pass are null (ranges empty).
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <string_view>
+#include <vector>
+
+#include <nlohmann/json.hpp>
+
+#include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/design.h"
+#include "stepledger/engine/fit.h"
+#include "stepledger/engine/profile.h"
+#include "stepledger/selection/plan.h"
+
+namespace stepledger {
+
+/// Range of one term's design value over the rows a model was fitted on.
+struct TermRange {
+  std::string term;    ///< design term name
+  std::string column;  ///< its source column
+  TermKind kind = TermKind::kNumeric;  ///< kNumeric, kLog or kPower
+  double min = 0;      ///< of the design value: the value, its log, or its power
+  double max = 0;
+};
+
+/// What the diagnostics pass of a run learns for pricing new rows (see the section above).
+struct PredictionSupport {
+  std::vector<TermRange> ranges;
+  std::optional<double> max_unit_leverage;
+  std::uint64_t max_unit_leverage_line = 0;
+  std::optional<double> smearing_factor;
+};
+
+/// Terms a model needs evaluated: its terms and, recursively, the parts of its products.
+/// Sorted design term indices.
+std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResult& fit);
+
+/// The diagnostics pass of a run's final model (ComputeDiagnostics, one pass over the rows)
+/// that also learns the model's PredictionSupport: the term ranges, the largest unit leverage
+/// (h_ii / w_i) and, with a logged response, the smearing factor.
+DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
+                                          const RowReplay& replay, PredictionSupport& support);
+
+/// The `prediction` section for a run (the shape above).
+nlohmann::json PredictionSectionJson(const FitResult& fit, const Design& design,
+                                     const PredictionSupport& support);
+
+/// The final model of an audit, rebuilt.
+struct FittedModel {
+  Plan plan;            ///< from plan.normalised (terms explicit, baselines chosen)
+  DataProfile profile;  ///< from data.columns: names in header order, kinds, ranges, levels
+  Design design;        ///< BuildDesign(plan.design, profile): the run's design, same columns
+  /// The final model: terms, term_indices, columns (indices into design.columns), beta,
+  /// coefficients, n, k, df_residual, rss, intercept, criteria (sigma, r2, ...),
+  /// confidence_level, status, model_triangle and model_scales. Not filled: anova,
+  /// xtwx_inverse, covariance.
+  FitResult fit;
+  PredictionSupport support;
+  std::string data_file_name;  ///< data.file
+  std::string data_sha256;     ///< data.sha256
+  std::vector<std::string> missing_tokens;  ///< data.missing
+};
+
+/// Rebuilds the final model of a parsed audit (ReadAuditFile). source_name (the audit's file
+/// name) starts every message. Throws InputError naming the JSON key ("prediction.triangle")
+/// when a needed key is missing or malformed, or when the rebuilt design's columns do not
+/// match the audit's design section; an audit written before the `prediction` section existed
+/// gets a message saying to rerun it with this version.
+FittedModel FittedModelFromAudit(const nlohmann::json& audit, std::string_view source_name);
+
+}  // namespace stepledger

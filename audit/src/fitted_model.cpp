@@ -1,0 +1,412 @@
+#include "stepledger/audit/fitted_model.h"
+
+#include <algorithm>
+#include <cmath>
+#include <limits>
+#include <map>
+
+#include "stepledger/audit/model_json.h"
+#include "stepledger/audit/plan_file.h"
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+namespace {
+
+using json = nlohmann::json;
+
+constexpr double kUndefined = std::numeric_limits<double>::quiet_NaN();
+
+bool IsRangedKind(TermKind kind) {
+  return kind == TermKind::kNumeric || kind == TermKind::kLog || kind == TermKind::kPower;
+}
+
+/// Reads keys of the audit with messages that name the key path ("prediction.triangle[2]").
+class AuditReader {
+ public:
+  explicit AuditReader(std::string_view source) : source_(source) {}
+
+  [[noreturn]] void Fail(const std::string& path, const std::string& message) const {
+    throw InputError(source_ + ": key '" + path + "': " + message);
+  }
+
+  const json& Object(const json& parent, const std::string& parent_path, const std::string& key) const {
+    const std::string path = Join(parent_path, key);
+    if (!parent.is_object() || !parent.contains(key)) Fail(path, "missing");
+    const json& value = parent.at(key);
+    if (!value.is_object()) Fail(path, "expected an object, found " + std::string(value.type_name()));
+    return value;
+  }
+  const json& Array(const json& parent, const std::string& parent_path, const std::string& key) const {
+    const std::string path = Join(parent_path, key);
+    if (!parent.is_object() || !parent.contains(key)) Fail(path, "missing");
+    const json& value = parent.at(key);
+    if (!value.is_array()) Fail(path, "expected an array, found " + std::string(value.type_name()));
+    return value;
+  }
+  std::string String(const json& parent, const std::string& parent_path, const std::string& key) const {
+    const std::string path = Join(parent_path, key);
+    if (!parent.is_object() || !parent.contains(key) || !parent.at(key).is_string()) {
+      Fail(path, "expected a string");
+    }
+    return parent.at(key).get<std::string>();
+  }
+  double Number(const json& parent, const std::string& parent_path, const std::string& key) const {
+    const std::string path = Join(parent_path, key);
+    if (!parent.is_object() || !parent.contains(key) || !parent.at(key).is_number()) {
+      Fail(path, "expected a number");
+    }
+    return parent.at(key).get<double>();
+  }
+  /// A number, or nullopt for null or an absent key (what NumberOrNull writes for undefined).
+  std::optional<double> OptionalNumber(const json& parent, const std::string& parent_path,
+                                       const std::string& key) const {
+    if (!parent.is_object() || !parent.contains(key) || parent.at(key).is_null()) return std::nullopt;
+    if (!parent.at(key).is_number()) Fail(Join(parent_path, key), "expected a number or null");
+    return parent.at(key).get<double>();
+  }
+  std::uint64_t Count(const json& parent, const std::string& parent_path, const std::string& key) const {
+    const std::string path = Join(parent_path, key);
+    if (!parent.is_object() || !parent.contains(key) || !parent.at(key).is_number_unsigned()) {
+      Fail(path, "expected a non-negative integer");
+    }
+    return parent.at(key).get<std::uint64_t>();
+  }
+  std::vector<double> Numbers(const json& array, const std::string& path) const {
+    if (!array.is_array()) Fail(path, "expected an array of numbers");
+    std::vector<double> values;
+    for (std::size_t i = 0; i < array.size(); ++i) {
+      if (!array[i].is_number()) Fail(path + "[" + std::to_string(i) + "]", "expected a number");
+      values.push_back(array[i].get<double>());
+    }
+    return values;
+  }
+  std::vector<std::string> Strings(const json& array, const std::string& path) const {
+    if (!array.is_array()) Fail(path, "expected an array of strings");
+    std::vector<std::string> values;
+    for (std::size_t i = 0; i < array.size(); ++i) {
+      if (!array[i].is_string()) Fail(path + "[" + std::to_string(i) + "]", "expected a string");
+      values.push_back(array[i].get<std::string>());
+    }
+    return values;
+  }
+
+  static std::string Join(const std::string& parent_path, const std::string& key) {
+    return parent_path.empty() ? key : parent_path + "." + key;
+  }
+  static std::string Index(const std::string& path, std::size_t index) {
+    return path + "[" + std::to_string(index) + "]";
+  }
+
+ private:
+  std::string source_;
+};
+
+ColumnKind ColumnKindFromText(const AuditReader& reader, const std::string& text, const std::string& path) {
+  for (ColumnKind kind : {ColumnKind::kNumeric, ColumnKind::kCategorical, ColumnKind::kEmpty}) {
+    if (text == ToString(kind)) return kind;
+  }
+  reader.Fail(path, "unknown column type \"" + text + "\"");
+}
+
+TermKind TermKindFromText(const AuditReader& reader, const std::string& text, const std::string& path) {
+  for (TermKind kind : {TermKind::kNumeric, TermKind::kPower, TermKind::kLog, TermKind::kCategorical,
+                        TermKind::kProduct}) {
+    if (text == ToString(kind)) return kind;
+  }
+  reader.Fail(path, "unknown term kind \"" + text + "\"");
+}
+
+FitStatus FitStatusFromText(const AuditReader& reader, const std::string& text, const std::string& path) {
+  for (FitStatus status : {FitStatus::kCompleted, FitStatus::kAliased, FitStatus::kNoResidualDf}) {
+    if (text == ToString(status)) return status;
+  }
+  reader.Fail(path, "unknown fit status \"" + text + "\"");
+}
+
+DataProfile ProfileFromAudit(const AuditReader& reader, const json& data) {
+  DataProfile profile;
+  profile.path = reader.String(data, "data", "file");
+  profile.rows = reader.Count(data, "data", "rows_read");
+  const json& columns = reader.Array(data, "data", "columns");
+  for (std::size_t i = 0; i < columns.size(); ++i) {
+    const std::string path = AuditReader::Index("data.columns", i);
+    const json& entry = columns[i];
+    ColumnProfile column;
+    column.name = reader.String(entry, path, "name");
+    column.index = i;
+    column.kind = ColumnKindFromText(reader, reader.String(entry, path, "type"), path + ".type");
+    column.present = reader.Count(entry, path, "present");
+    column.missing = reader.Count(entry, path, "missing");
+    column.min = reader.OptionalNumber(entry, path, "min").value_or(kUndefined);
+    column.max = reader.OptionalNumber(entry, path, "max").value_or(kUndefined);
+    column.mean = reader.OptionalNumber(entry, path, "mean").value_or(kUndefined);
+    column.sd = reader.OptionalNumber(entry, path, "sd").value_or(kUndefined);
+    const json& levels = reader.Array(entry, path, "levels");
+    for (std::size_t l = 0; l < levels.size(); ++l) {
+      const std::string level_path = AuditReader::Index(path + ".levels", l);
+      column.levels.push_back({reader.String(levels[l], level_path, "level"),
+                               reader.Count(levels[l], level_path, "count")});
+    }
+    column.too_many_levels = entry.value("too_many_levels", false);
+    profile.columns.push_back(std::move(column));
+  }
+  return profile;
+}
+
+std::vector<std::string> DesignColumnNames(const Design& design) {
+  std::vector<std::string> names;
+  for (const DesignColumn& column : design.columns) names.push_back(column.name);
+  return names;
+}
+
+std::size_t ColumnIndex(const Design& design, const std::string& name) {
+  for (std::size_t c = 0; c < design.columns.size(); ++c) {
+    if (design.columns[c].name == name) return c;
+  }
+  return kNoTerm;
+}
+
+CoefficientEstimate CoefficientFromJson(const AuditReader& reader, const json& entry, const std::string& path) {
+  CoefficientEstimate coefficient;
+  coefficient.name = reader.String(entry, path, "name");
+  coefficient.term = reader.String(entry, path, "term");
+  coefficient.estimate = reader.Number(entry, path, "estimate");
+  coefficient.se = reader.OptionalNumber(entry, path, "se");
+  coefficient.t = reader.OptionalNumber(entry, path, "t");
+  coefficient.p = reader.OptionalNumber(entry, path, "p");
+  coefficient.ci_low = reader.OptionalNumber(entry, path, "ci_low");
+  coefficient.ci_high = reader.OptionalNumber(entry, path, "ci_high");
+  coefficient.vif = reader.OptionalNumber(entry, path, "vif");
+  return coefficient;
+}
+
+}  // namespace
+
+std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResult& fit) {
+  std::vector<bool> needed(design.terms.size(), false);
+  std::vector<std::size_t> pending(fit.term_indices.begin(), fit.term_indices.end());
+  while (!pending.empty()) {
+    const std::size_t term = pending.back();
+    pending.pop_back();
+    if (term >= design.terms.size() || needed[term]) continue;
+    needed[term] = true;
+    // Only a product's parts are needed to evaluate it; a power's hierarchy parts are not.
+    if (design.terms[term].kind == TermKind::kProduct) {
+      pending.insert(pending.end(), design.terms[term].parts.begin(), design.terms[term].parts.end());
+    }
+  }
+  std::vector<std::size_t> terms;
+  for (std::size_t t = 0; t < needed.size(); ++t) {
+    if (needed[t]) terms.push_back(t);
+  }
+  return terms;
+}
+
+DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
+                                          const RowReplay& replay, PredictionSupport& support) {
+  support = PredictionSupport{};
+  std::vector<std::size_t> ranged_terms;
+  for (std::size_t term : TermsNeededByModel(design, fit)) {
+    if (IsRangedKind(design.terms[term].kind)) ranged_terms.push_back(term);
+  }
+  std::vector<double> low(ranged_terms.size(), std::numeric_limits<double>::infinity());
+  std::vector<double> high(ranged_terms.size(), -std::numeric_limits<double>::infinity());
+  // Weights in visit order: ComputeDiagnostics keeps its rows in that order, so h_ii / w_i and
+  // the unit-weight residuals come from its results without repeating its arithmetic.
+  std::vector<double> weights;
+  const RowReplay observing = [&](const std::function<void(const UsedRow&)>& visit) {
+    replay([&](const UsedRow& row) {
+      for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
+        const double value = row.x[design.terms[ranged_terms[i]].first_column];
+        low[i] = std::min(low[i], value);
+        high[i] = std::max(high[i], value);
+      }
+      weights.push_back(row.weight);
+      visit(row);
+    });
+  };
+  DiagnosticsResult diagnostics = ComputeDiagnostics(fit, design, observing);
+
+  if (!weights.empty()) {
+    for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
+      const DesignTerm& term = design.terms[ranged_terms[i]];
+      support.ranges.push_back({term.name, term.source_column, term.kind, low[i], high[i]});
+    }
+  }
+  double smearing_sum = 0;
+  for (std::size_t r = 0; r < diagnostics.rows.size() && r < weights.size(); ++r) {
+    const RowDiagnostic& row = diagnostics.rows[r];
+    const double weight = weights[r];
+    if (weight > 0) {
+      const double unit_leverage = row.leverage / weight;
+      if (!support.max_unit_leverage || unit_leverage > *support.max_unit_leverage) {
+        support.max_unit_leverage = unit_leverage;
+        support.max_unit_leverage_line = row.line;
+      }
+    }
+    smearing_sum += std::exp(std::sqrt(weight) * row.residual);
+  }
+  if (design.response_transform == ResponseTransform::kLog && !diagnostics.rows.empty()) {
+    support.smearing_factor = smearing_sum / static_cast<double>(diagnostics.rows.size());
+  }
+  return diagnostics;
+}
+
+json PredictionSectionJson(const FitResult& fit, const Design& design, const PredictionSupport& support) {
+  json columns = json::array();
+  for (std::size_t column : fit.columns) columns.push_back(design.columns[column].name);
+  json triangle = json::array();
+  for (arma::uword i = 0; i < fit.model_triangle.n_rows; ++i) {
+    json row = json::array();
+    for (arma::uword j = 0; j < fit.model_triangle.n_cols; ++j) {
+      row.push_back(j < i ? 0.0 : fit.model_triangle(i, j));
+    }
+    triangle.push_back(std::move(row));
+  }
+  json ranges = json::array();
+  for (const TermRange& range : support.ranges) {
+    ranges.push_back({{"term", range.term},
+                      {"column", range.column},
+                      {"kind", ToString(range.kind)},
+                      {"min", NumberOrNull(range.min)},
+                      {"max", NumberOrNull(range.max)}});
+  }
+  return {{"columns", std::move(columns)},
+          {"triangle", std::move(triangle)},
+          {"scales", fit.model_scales},
+          {"ranges", std::move(ranges)},
+          {"max_unit_leverage", NumberOrNull(support.max_unit_leverage)},
+          {"max_unit_leverage_line", support.max_unit_leverage_line},
+          {"smearing_factor", NumberOrNull(support.smearing_factor)}};
+}
+
+FittedModel FittedModelFromAudit(const json& audit, std::string_view source_name) {
+  const AuditReader reader(source_name);
+  FittedModel model;
+  if (!audit.is_object() || !audit.contains("prediction")) {
+    reader.Fail("prediction",
+                "missing: this audit was written before stepledger recorded what pricing new rows "
+                "needs; run `stepledger rerun` on it (or select again) with this version");
+  }
+  const json& prediction = reader.Object(audit, "", "prediction");
+  const json& plan = reader.Object(audit, "", "plan");
+  const json& normalised = reader.Object(plan, "plan", "normalised");
+  try {
+    model.plan = PlanFromJson(normalised);
+  } catch (const PlanError& error) {
+    reader.Fail("plan.normalised" + (error.key_path().empty() ? "" : "." + error.key_path()), error.what());
+  }
+
+  const json& data = reader.Object(audit, "", "data");
+  model.profile = ProfileFromAudit(reader, data);
+  model.data_file_name = reader.String(data, "data", "file");
+  model.data_sha256 = reader.String(data, "data", "sha256");
+  model.missing_tokens = reader.Strings(reader.Array(data, "data", "missing"), "data.missing");
+  try {
+    model.design = BuildDesign(model.plan.design, model.profile);
+  } catch (const InputError& error) {
+    reader.Fail("plan.normalised", std::string("does not rebuild on the recorded columns: ") + error.what());
+  }
+  const json& design = reader.Object(audit, "", "design");
+  const json& design_columns = reader.Array(design, "design", "columns");
+  std::vector<std::string> recorded;
+  for (std::size_t i = 0; i < design_columns.size(); ++i) {
+    recorded.push_back(reader.String(design_columns[i], AuditReader::Index("design.columns", i), "name"));
+  }
+  if (recorded != DesignColumnNames(model.design)) {
+    reader.Fail("design.columns", "the plan rebuilds into other design columns than the audit records; "
+                                  "the audit is inconsistent (run `stepledger verify` on it)");
+  }
+
+  // The final model.
+  const json& model_json = reader.Object(audit, "", "model");
+  FitResult& fit = model.fit;
+  fit.terms = reader.Strings(reader.Array(model_json, "model", "terms"), "model.terms");
+  for (std::size_t i = 0; i < fit.terms.size(); ++i) {
+    const std::size_t term = model.design.FindTerm(fit.terms[i]);
+    if (term == kNoTerm) reader.Fail(AuditReader::Index("model.terms", i), "no term \"" + fit.terms[i] + "\" in the design");
+    fit.term_indices.push_back(term);
+  }
+  fit.status = FitStatusFromText(reader, reader.String(model_json, "model", "status"), "model.status");
+  fit.intercept = model_json.value("intercept", model.design.intercept);
+  fit.n = reader.Count(model_json, "model", "n");
+  fit.k = reader.Count(model_json, "model", "k");
+  fit.df_residual = reader.Number(model_json, "model", "df_residual");
+  fit.rss = reader.OptionalNumber(model_json, "model", "rss").value_or(kUndefined);
+  fit.tss = reader.OptionalNumber(model_json, "model", "tss").value_or(kUndefined);
+  fit.ssr = reader.OptionalNumber(model_json, "model", "ssr").value_or(kUndefined);
+  fit.weight_sum = reader.OptionalNumber(model_json, "model", "weight_sum").value_or(kUndefined);
+  fit.log_weight_sum = reader.OptionalNumber(model_json, "model", "log_weight_sum").value_or(kUndefined);
+  fit.criteria.r2 = reader.OptionalNumber(model_json, "model", "r2");
+  fit.criteria.adj_r2 = reader.OptionalNumber(model_json, "model", "adj_r2");
+  fit.criteria.sigma = reader.OptionalNumber(model_json, "model", "sigma");
+  fit.criteria.log_likelihood = reader.OptionalNumber(model_json, "model", "log_likelihood");
+  fit.criteria.aic = reader.OptionalNumber(model_json, "model", "aic");
+  fit.criteria.aicc = reader.OptionalNumber(model_json, "model", "aicc");
+  fit.criteria.bic = reader.OptionalNumber(model_json, "model", "bic");
+  fit.criteria.cp = reader.OptionalNumber(model_json, "model", "cp");
+  fit.f = reader.OptionalNumber(model_json, "model", "f");
+  fit.f_p = reader.OptionalNumber(model_json, "model", "f_p");
+  fit.confidence_level = reader.Number(model_json, "model", "confidence_level");
+  fit.rcond = reader.OptionalNumber(model_json, "model", "rcond").value_or(kUndefined);
+  fit.alias_tolerance = reader.Number(model_json, "model", "alias_tolerance");
+  fit.refinement_passes = model_json.value("refinement_passes", 0);
+  fit.refinement_correction = reader.OptionalNumber(model_json, "model", "refinement_correction").value_or(kUndefined);
+  fit.aliased_columns = reader.Strings(reader.Array(model_json, "model", "aliased_columns"), "model.aliased_columns");
+  const json& coefficients = reader.Array(model_json, "model", "coefficients");
+  std::map<std::string, double> estimates;
+  for (std::size_t i = 0; i < coefficients.size(); ++i) {
+    fit.coefficients.push_back(CoefficientFromJson(reader, coefficients[i], AuditReader::Index("model.coefficients", i)));
+    estimates[fit.coefficients.back().name] = fit.coefficients.back().estimate;
+  }
+
+  // The model's columns, estimates and triangle.
+  const std::vector<std::string> columns = reader.Strings(reader.Array(prediction, "prediction", "columns"), "prediction.columns");
+  if (columns.size() != fit.k) {
+    reader.Fail("prediction.columns", std::to_string(columns.size()) + " columns, but model.k is " + std::to_string(fit.k));
+  }
+  fit.beta.set_size(columns.size());
+  for (std::size_t j = 0; j < columns.size(); ++j) {
+    const std::size_t column = ColumnIndex(model.design, columns[j]);
+    const std::string path = AuditReader::Index("prediction.columns", j);
+    if (column == kNoTerm) reader.Fail(path, "no design column \"" + columns[j] + "\"");
+    const auto estimate = estimates.find(columns[j]);
+    if (estimate == estimates.end()) reader.Fail(path, "\"" + columns[j] + "\" has no entry in model.coefficients");
+    fit.columns.push_back(column);
+    fit.beta(j) = estimate->second;
+  }
+  const json& triangle = reader.Array(prediction, "prediction", "triangle");
+  if (triangle.size() != columns.size()) {
+    reader.Fail("prediction.triangle", "expected " + std::to_string(columns.size()) + " rows, found " +
+                                           std::to_string(triangle.size()));
+  }
+  fit.model_triangle.zeros(columns.size(), columns.size());
+  for (std::size_t i = 0; i < triangle.size(); ++i) {
+    const std::string path = AuditReader::Index("prediction.triangle", i);
+    const std::vector<double> row = reader.Numbers(triangle[i], path);
+    if (row.size() != columns.size()) reader.Fail(path, "expected " + std::to_string(columns.size()) + " numbers");
+    for (std::size_t j = i; j < row.size(); ++j) fit.model_triangle(i, j) = row[j];
+  }
+  fit.model_scales = reader.Numbers(reader.Array(prediction, "prediction", "scales"), "prediction.scales");
+  if (fit.model_scales.size() != columns.size() + 1) {
+    reader.Fail("prediction.scales", "expected " + std::to_string(columns.size() + 1) + " numbers");
+  }
+
+  const json& ranges = reader.Array(prediction, "prediction", "ranges");
+  for (std::size_t i = 0; i < ranges.size(); ++i) {
+    const std::string path = AuditReader::Index("prediction.ranges", i);
+    TermRange range;
+    range.term = reader.String(ranges[i], path, "term");
+    range.column = reader.String(ranges[i], path, "column");
+    range.kind = TermKindFromText(reader, reader.String(ranges[i], path, "kind"), path + ".kind");
+    range.min = reader.Number(ranges[i], path, "min");
+    range.max = reader.Number(ranges[i], path, "max");
+    model.support.ranges.push_back(std::move(range));
+  }
+  model.support.max_unit_leverage = reader.OptionalNumber(prediction, "prediction", "max_unit_leverage");
+  model.support.max_unit_leverage_line = prediction.value("max_unit_leverage_line", std::uint64_t{0});
+  model.support.smearing_factor = reader.OptionalNumber(prediction, "prediction", "smearing_factor");
+  return model;
+}
+
+}  // namespace stepledger
