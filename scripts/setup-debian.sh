@@ -1,7 +1,19 @@
 #!/usr/bin/env bash
 # Installs the Debian 12 packages that building and testing stepledger need, only those
 # that are missing. Quiet when everything is present.
+#
+#   --with-chromium   also install Debian's chromium, so that the report test renders the
+#                     HTML report headless and checks the screenshot (skipped without it)
 set -euo pipefail
+
+with_chromium=0
+for argument in "$@"; do
+  case "$argument" in
+    --with-chromium) with_chromium=1 ;;
+    -h|--help) sed -n '2,6p' "$0" | sed 's/^# \{0,1\}//'; exit 0 ;;
+    *) echo "setup-debian: unknown option '$argument' (see --help)" >&2; exit 2 ;;
+  esac
+done
 
 packages=(
   cmake g++ make pkg-config
@@ -10,6 +22,9 @@ packages=(
   libboost-math-dev libssl-dev
   python3 python3-numpy python3-scipy python3-statsmodels python3-jsonschema
 )
+if [[ $with_chromium -eq 1 ]]; then
+  packages+=(chromium)
+fi
 
 # One dpkg-query for all: packages it does not know are simply absent from its answer.
 installed=$(dpkg-query -W -f='${Package} ${Status}\n' "${packages[@]}" 2>/dev/null || true)

@@ -182,20 +182,7 @@ std::vector<Move> SearchContext::ScoreAdditions() {
     move.score = criterion_->ScoreModel({columns_after, *rss_after, k_after});
     view.score = Reported(move.score);
     const PartialF partial = ComputePartialF(rss_now, *rss_after, static_cast<double>(columns.size()), n, k_after);
-    view.f = partial.f;
-    view.p = partial.p;
-    std::string blocked = AddBlockedReason(term);
-    if (blocked.empty()) {
-      if (criterion_->is_p_value_rule()) {
-        if (!partial.p) blocked = "entry p-value undefined: " + (n <= k_after ? "n <= k after adding (n = " + Num(n) + ", k = " + Num(k_after) + ")" : std::string("exact fit"));
-      } else if (!move.score.defined()) {
-        blocked = "criterion undefined after adding: " + move.score.undefined_reason;
-      }
-    }
-    view.eligible = blocked.empty();
-    view.reason = std::move(blocked);
-    moves.push_back(std::move(move));
-    sink_.OnCandidate(moves.back().view);
+    FinishCandidate(std::move(move), partial, k_after, AddBlockedReason(term), moves);
   }
   return moves;
 }
@@ -227,22 +214,34 @@ std::vector<Move> SearchContext::ScoreRemovals() {
     move.score = criterion_->ScoreModel({columns_after, group.rss, k_after});
     view.score = Reported(move.score);
     const PartialF partial = ComputePartialF(group.rss, rss_now, static_cast<double>(columns.size()), n, k_now);
-    view.f = partial.f;
-    view.p = partial.p;
-    std::string blocked = RemoveBlockedReason(term);
-    if (blocked.empty()) {
-      if (criterion_->is_p_value_rule()) {
-        if (!partial.p) blocked = "exit p-value undefined: " + (n <= k_now ? "n <= k (n = " + Num(n) + ", k = " + Num(k_now) + ")" : std::string("exact fit"));
-      } else if (!move.score.defined()) {
-        blocked = "criterion undefined after removing: " + move.score.undefined_reason;
-      }
-    }
-    view.eligible = blocked.empty();
-    view.reason = std::move(blocked);
-    moves.push_back(std::move(move));
-    sink_.OnCandidate(moves.back().view);
+    FinishCandidate(std::move(move), partial, k_now, RemoveBlockedReason(term), moves);
   }
   return moves;
+}
+
+void SearchContext::FinishCandidate(Move move, const PartialF& partial, double k_tested,
+                                    std::string blocked, std::vector<Move>& moves) {
+  const bool adding = move.view.action == MoveAction::kAdd;
+  move.view.f = partial.f;
+  move.view.p = partial.p;
+  if (blocked.empty()) {
+    if (criterion_->is_p_value_rule()) {
+      if (!partial.p) {
+        const double n = criterion_context_.n;
+        blocked = std::string(adding ? "entry" : "exit") + " p-value undefined: " +
+                  (n <= k_tested ? std::string(adding ? "n <= k after adding" : "n <= k") + " (n = " +
+                                       Num(n) + ", k = " + Num(k_tested) + ")"
+                                 : std::string("exact fit"));
+      }
+    } else if (!move.score.defined()) {
+      blocked = std::string("criterion undefined after ") + (adding ? "adding" : "removing") + ": " +
+                move.score.undefined_reason;
+    }
+  }
+  move.view.eligible = blocked.empty();
+  move.view.reason = std::move(blocked);
+  moves.push_back(std::move(move));
+  sink_.OnCandidate(moves.back().view);
 }
 
 namespace {

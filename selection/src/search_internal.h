@@ -89,6 +89,11 @@ class SearchContext {
   std::vector<Move> ScoreAdditions();
   /// Scores removing every model term that is not kept (plan order); emits OnCandidate.
   std::vector<Move> ScoreRemovals();
+  /// The shared end of scoring one move: sets its partial F, says why it may not be taken
+  /// (blocked, else an undefined p-value or criterion; k_tested is the larger model's k),
+  /// appends it to moves and emits OnCandidate.
+  void FinishCandidate(Move move, const PartialF& partial, double k_tested, std::string blocked,
+                       std::vector<Move>& moves);
   /// The best eligible move (nullptr when none), and the names of moves that tie with it.
   const Move* ChooseBest(const std::vector<Move>& moves, MoveAction action,
                          std::vector<std::string>& ties) const;
