@@ -242,9 +242,8 @@ AuditRun RunPlanForAudit(const std::filesystem::path& data, const LoadedPlan& pl
   const RowReplay replay = FileRowReplay(data, run.design, run.options.csv);
   run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
   if (options.diagnostics && run.fit.n > 0) {
-    const DiagnosticsResult diagnostics =
-        DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
-    for (const RowDiagnostic& row : diagnostics.rows) {
+    run.diagnostics = DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
+    for (const RowDiagnostic& row : run.diagnostics->rows) {
       if (!run.max_leverage || row.leverage > *run.max_leverage) {
         run.max_leverage = row.leverage;
         run.max_leverage_line = row.line;

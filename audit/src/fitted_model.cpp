@@ -4,6 +4,7 @@
 #include <cmath>
 #include <limits>
 #include <map>
+#include <set>
 
 #include "stepledger/audit/model_json.h"
 #include "stepledger/audit/plan_file.h"
@@ -406,6 +407,41 @@ FittedModel FittedModelFromAudit(const json& audit, std::string_view source_name
   model.support.max_unit_leverage = reader.OptionalNumber(prediction, "prediction", "max_unit_leverage");
   model.support.max_unit_leverage_line = prediction.value("max_unit_leverage_line", std::uint64_t{0});
   model.support.smearing_factor = reader.OptionalNumber(prediction, "prediction", "smearing_factor");
+  return model;
+}
+
+PricingModel MakePricingModel(const FittedModel& fitted) {
+  std::set<std::string, std::less<>> needed;
+  for (const std::size_t term : TermsNeededByModel(fitted.design, fitted.fit)) {
+    needed.insert(fitted.design.terms[term].name);
+  }
+  DesignSpec spec = fitted.plan.design;
+  spec.all_terms = false;
+  spec.terms.clear();
+  for (const TermSpec& term : fitted.plan.design.terms) {
+    if (needed.contains(term.name)) spec.terms.push_back(term);
+  }
+  PricingModel model;
+  if (spec.terms.empty()) {
+    // The selection kept no term: the intercept alone, which reads no column of the rows.
+    // (A DesignSpec needs a term, so this design is made by hand.)
+    model.design.response = fitted.design.response;
+    model.design.response_transform = fitted.design.response_transform;
+    model.design.intercept = fitted.design.intercept;
+    model.design.weights = fitted.design.weights;
+    if (fitted.design.intercept) model.design.columns.push_back(fitted.design.columns.front());
+  } else {
+    model.design = BuildDesign(spec, fitted.profile);
+  }
+  model.fit = fitted.fit;
+  for (const std::size_t column : fitted.fit.columns) {
+    model.column_names.push_back(fitted.design.columns[column].name);
+  }
+  for (const TermRange& range : fitted.support.ranges) {
+    model.ranges.push_back({range.term, range.min, range.max});
+  }
+  model.max_unit_leverage = fitted.support.max_unit_leverage;
+  model.smearing_factor = fitted.support.smearing_factor;
   return model;
 }
 

@@ -58,5 +58,8 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context);
 void AddRerunCommand(CLI::App& app, CommandContext& context);
 void AddCompareCommand(CLI::App& app, CommandContext& context);
 void AddSelectCommand(CLI::App& app, CommandContext& context);
+void AddReportCommand(CLI::App& app, CommandContext& context);
+void AddPredictCommand(CLI::App& app, CommandContext& context);
+void AddDemoCommand(CLI::App& app, CommandContext& context);
 
 }  // namespace stepledger::cli

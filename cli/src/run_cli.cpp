@@ -96,8 +96,8 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
   app.get_formatter()->column_width(34);
   app.require_subcommand(1);
   app.footer(
-      "Run 'stepledger COMMAND --help' for a command's options. Commands coming: report, "
-      "predict, demo.");
+      "Run 'stepledger COMMAND --help' for a command's options. New here? 'stepledger demo' "
+      "makes an invented data set, selects a model on it and names the commands to try next.");
 
   cli::AddFitCommand(app, context);
   cli::AddProfileCommand(app, context);
@@ -105,6 +105,9 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
   cli::AddRerunCommand(app, context);
   cli::AddCompareCommand(app, context);
   cli::AddSelectCommand(app, context);
+  cli::AddReportCommand(app, context);
+  cli::AddPredictCommand(app, context);
+  cli::AddDemoCommand(app, context);
 
   // CLI11 takes the arguments in reverse order.
   std::vector<std::string> reversed(args.rbegin(), args.rend());

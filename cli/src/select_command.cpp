@@ -15,10 +15,13 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
+#include "stepledger/audit/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/audit/plan_file.h"
+#include "stepledger/audit/report.h"
 #include "stepledger/audit/route_json.h"
+#include "stepledger/audit/signature.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fit.h"
@@ -84,6 +87,47 @@ std::vector<std::string> SelectionCautions(const FitResult& fit) {
   return cautions;
 }
 
+// Writes DIR/audit.json and DIR/report.html. The report is rendered (with the diagnostics of
+// the final model that the run's diagnostics pass computed) before anything is written; if the report cannot
+// be written, the audit written here is removed again, so that no half-done folder is left.
+void WriteAuditAndReport(const SelectArgs& args, const AuditRun& run, CommandContext& context) {
+  const std::filesystem::path folder = args.out_dir;
+  const std::filesystem::path report_path = folder / kReportFileName;
+  std::error_code error;
+  // Refuse before any work is written; WriteFileAtomically checks again, race-free.
+  for (const std::filesystem::path& path : {folder / kAuditFileName, report_path}) {
+    if (!context.common.force && std::filesystem::exists(path, error)) {
+      throw InputError(path.string() + ": file exists; use --force to overwrite");
+    }
+  }
+  const bool folder_existed = std::filesystem::exists(folder, error);
+  AuditDocumentOptions document_options;
+  document_options.created_at = UtcTimestamp();  // the same document is built twice below
+  std::optional<Ed25519Signer> signer;
+  if (!args.sign_key.empty()) signer.emplace(Ed25519Signer::FromPemFile(args.sign_key));
+  nlohmann::json document = BuildAuditDocument(run, document_options);
+  SealAuditDocument(document, signer ? &*signer : nullptr);
+  std::optional<ReportDiagnostics> diagnostics;
+  if (run.diagnostics) diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma};
+  std::string report = RenderHtmlReport(document, diagnostics ? &*diagnostics : nullptr);
+
+  const nlohmann::json written = WriteAuditDocument(
+      run, document_options, AuditOutputOptions{args.out_dir, context.common.force, args.sign_key});
+  const std::filesystem::path audit_path = folder / kAuditFileName;
+  context.log->info("wrote {} (seal {})", audit_path.string(), written.value("seal", ""));
+  try {
+    if (written != document) {  // cannot happen with a deterministic document; render the file's
+      report = RenderHtmlReport(written, diagnostics ? &*diagnostics : nullptr);
+    }
+    WriteFileAtomically(report_path, report, AtomicWriteOptions{.overwrite = context.common.force});
+  } catch (...) {
+    std::filesystem::remove(audit_path, error);
+    if (!folder_existed) std::filesystem::remove(folder, error);
+    throw;
+  }
+  context.log->info("wrote {}", report_path.string());
+}
+
 int RunSelect(const SelectArgs& args, CommandContext& context) {
   auto& log = *context.log;
   if (args.plan.empty() == args.response.empty()) {
@@ -145,12 +189,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
                       {"rows_read", run.accounting.rows_read},
                       {"rows_used", run.accounting.rows_used}};
 
-  if (!args.out_dir.empty()) {
-    const nlohmann::json written = WriteAuditDocument(
-        run, {}, AuditOutputOptions{args.out_dir, context.common.force, args.sign_key});
-    log.info("wrote {} (seal {})", (std::filesystem::path(args.out_dir) / kAuditFileName).string(),
-             written.value("seal", ""));
-  }
+  if (!args.out_dir.empty()) WriteAuditAndReport(args, run, context);
 
   if (context.common.json) {
     context.out << document.dump(2) << "\n";
@@ -185,7 +224,7 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--criterion", args->criterion,
                       "adj-r2, aic, aicc, bic, cp, partial-f or cv (overrides the plan)")
       ->type_name("C");
-  command->add_option("--out", args->out_dir, "Folder for the audit file audit.json (written atomically)")
+  command->add_option("--out", args->out_dir, "Folder for audit.json and the reviewer report report.html (written atomically)")
       ->type_name("DIR");
   command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the audit with")
       ->check(CLI::ExistingFile)
@@ -199,8 +238,10 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
       "One streaming pass builds the factor of every candidate column; the search then works on "
       "the factor alone. Prints the route (step, action, term, criterion before -> after, the "
       "rule that decided), the final model as `fit` prints it, and the cautions. With --json: "
-      "{steps, subsets (all-subsets), search, model, cautions, data}.\n\n"
-      "Examples:\n  stepledger select examples/data/laptops.csv --plan examples/plans/laptops.json\n"
+      "{steps, subsets (all-subsets), search, model, cautions, data}. With --out DIR: DIR/audit.json "
+      "and DIR/report.html (the report with the diagnostics of the final model; see `stepledger "
+      "report --help`); an existing file is refused without --force.\n\n"
+      "Examples:\n  stepledger select examples/data/laptops.csv --plan examples/plans/stepwise_bic.json --out laptops-review\n"
       "  stepledger select examples/data/laptops.csv --response resale_price --method forward "
       "--criterion bic");
   command->callback([args, &context] {

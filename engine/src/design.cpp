@@ -633,6 +633,23 @@ RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std:
   y = response_value;
   w = source.weights_cell >= 0 ? cell_values[static_cast<std::size_t>(source.weights_cell)] : 1.0;
 
+  const std::size_t bad_log_term = EvaluateTerms(std::span<const double>(cell_values.data(), cell_count),
+                                                 std::span<const std::size_t>(cell_levels.data(), cell_count),
+                                                 x, x_low);
+  if (bad_log_term != kNoTerm) {
+    const DesignTerm& term = terms[bad_log_term];
+    const auto cell = static_cast<std::size_t>(source.term_cell[bad_log_term]);
+    const CsvField& field = record.fields[static_cast<std::size_t>(source.cells[cell].header_index)];
+    throw InputError(reader.Where(field) + ": log term " + Quote(term.name) + " of column " +
+                     Quote(term.source_column) + " needs a positive value, found " +
+                     Quote(field.text));
+  }
+  return RowOutcome{true, {}};
+}
+
+std::size_t Design::EvaluateTerms(std::span<const double> cell_values,
+                                  std::span<const std::size_t> cell_levels, std::span<double> x,
+                                  std::span<double> x_low) const {
   if (!x_low.empty()) std::fill(x_low.begin(), x_low.end(), 0.0);
   if (intercept) x[0] = 1.0;
   for (const std::size_t t : source.evaluation_order) {
@@ -656,13 +673,7 @@ RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std:
       }
       case TermKind::kLog: {
         const double value = cell_values[static_cast<std::size_t>(cell)];
-        if (!(value > 0)) {
-          const CsvField& field =
-              record.fields[static_cast<std::size_t>(source.cells[static_cast<std::size_t>(cell)].header_index)];
-          throw InputError(reader.Where(field) + ": log term " + Quote(term.name) + " of column " +
-                           Quote(term.source_column) + " needs a positive value, found " +
-                           Quote(field.text));
-        }
+        if (!(value > 0)) return t;
         out[0] = std::log(value);
         break;
       }
@@ -686,7 +697,7 @@ RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std:
       }
     }
   }
-  return RowOutcome{true, {}};
+  return kNoTerm;
 }
 
 }  // namespace stepledger

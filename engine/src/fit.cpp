@@ -1,6 +1,7 @@
 #include "stepledger/engine/fit.h"
 
 #include <algorithm>
+#include <cassert>
 #include <cmath>
 #include <iomanip>
 #include <limits>
@@ -209,6 +210,13 @@ std::string Number(double value, int digits = 6) {
 
 std::string Number(const std::optional<double>& value, int digits = 6) {
   return value ? Number(*value, digits) : "undefined";
+}
+
+// A p-value: one that underflowed to 0 is below the smallest double the tail function can
+// return, so "< 1e-300" says what is known instead of a misleading 0.
+std::string PValue(const std::optional<double>& p) {
+  if (p && *p == 0) return "< 1e-300";
+  return Number(p, 4);
 }
 
 // Columns of text: the first `left_columns` left-aligned (names), the rest right-aligned.
@@ -488,7 +496,7 @@ std::string FitResult::FullReport() const {
       {"column", "term", "estimate", "std error", "t", "p", level + " low", level + " high", "VIF"}};
   for (const CoefficientEstimate& c : coefficients) {
     table.push_back({c.name, c.term, Number(c.estimate, 8), Number(c.se), Number(c.t, 5),
-                     Number(c.p, 4), Number(c.ci_low), Number(c.ci_high),
+                     PValue(c.p), Number(c.ci_low), Number(c.ci_high),
                      c.vif ? Number(c.vif, 4) : (c.term == "intercept" ? "-" : "undefined")});
   }
   text << Layout(table, 2);
@@ -502,7 +510,7 @@ std::string FitResult::FullReport() const {
     anova_table.push_back({row.source, Number(row.df), Number(row.ss, 10),
                            row.source == "total" ? "" : Number(row.ms, 8),
                            residual_or_total ? "" : Number(row.f, 6),
-                           residual_or_total ? "" : Number(row.p, 4)});
+                           residual_or_total ? "" : PValue(row.p)});
   }
   text << Layout(anova_table, 1);
 
@@ -512,7 +520,7 @@ std::string FitResult::FullReport() const {
       {"adjusted R-squared", Number(criteria.adj_r2, 8)},
       {"residual SD", Number(criteria.sigma, 8)},
       {"F (overall)", Number(f, 6) + " on " + Number(intercept ? static_cast<double>(k) - 1 : static_cast<double>(k)) +
-                          " and " + Number(df_residual) + " df, p " + Number(f_p, 4)},
+                          " and " + Number(df_residual) + " df, p " + PValue(f_p)},
       {"log-likelihood", Number(criteria.log_likelihood, 10)},
       {"AIC", Number(criteria.aic, 10)},
       {"AICc", Number(criteria.aicc, 10)},
@@ -525,36 +533,63 @@ std::string FitResult::FullReport() const {
   return text.str();
 }
 
-DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
-                                     const RowReplay& replay) {
+namespace {
+
+void RequireModelFactor(const FitResult& fit, const char* caller) {
   const std::size_t k = fit.columns.size();
   if (fit.model_triangle.n_rows != k || fit.model_scales.size() != k + 1) {
-    throw std::invalid_argument("ComputeDiagnostics: the fit carries no model factor (not made by FitModel)");
+    throw std::invalid_argument(std::string(caller) +
+                                ": the fit carries no model factor (not made by FitModel)");
   }
+}
+
+// x'b in double-double; the residual y - x'b keeps its low part too.
+DoubleDouble CompensatedLinearPredictor(const FitResult& fit, std::span<const double> model_x) {
+  assert(model_x.size() == fit.columns.size() && fit.beta.n_elem == fit.columns.size());
+  DoubleDouble sum;
+  for (std::size_t j = 0; j < model_x.size(); ++j) sum = sum + TwoProduct(model_x[j], fit.beta(j));
+  return sum;
+}
+
+}  // namespace
+
+double LinearPredictor(const FitResult& fit, std::span<const double> model_x) {
+  return CompensatedLinearPredictor(fit, model_x).value();
+}
+
+double UnitLeverage(const FitResult& fit, std::span<const double> model_x, std::span<double> scratch) {
+  RequireModelFactor(fit, "UnitLeverage");
+  const std::size_t k = fit.columns.size();
+  assert(model_x.size() == k && scratch.size() >= k);
+  if (k == 0) return 0;
+  for (std::size_t j = 0; j < k; ++j) scratch[j] = model_x[j] * fit.model_scales[j];
+  // x'(X'WX)^-1 x = ||R11^-T D x||^2 (a sum of squares: no cancellation).
+  const int info = lapack::SolveUpperTriangular(true, static_cast<int>(k), 1, fit.model_triangle.memptr(),
+                                                static_cast<int>(k), scratch.data(), static_cast<int>(k));
+  if (info > 0) throw NumericalError("leverage: the model's triangular factor is singular");
+  const arma::vec solved(scratch.data(), k, /*copy_aux_mem=*/false, /*strict=*/true);
+  return arma::dot(solved, solved);
+}
+
+DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
+                                     const RowReplay& replay) {
+  RequireModelFactor(fit, "ComputeDiagnostics");
+  const std::size_t k = fit.columns.size();
   (void)design;
   DiagnosticsResult result;
   const std::optional<double> sigma = fit.criteria.sigma;
   double press = 0;
   bool press_defined = true;
-  arma::vec scaled_x(k);
+  std::vector<double> model_x(k), scratch(k);
   replay([&](const UsedRow& row) {
     RowDiagnostic diagnostic;
     diagnostic.row_index = row.row_index;
     diagnostic.line = row.line;
-    DoubleDouble fitted;
-    for (std::size_t j = 0; j < k; ++j) {
-      fitted = fitted + TwoProduct(row.x[fit.columns[j]], fit.beta(j));
-      scaled_x(j) = row.x[fit.columns[j]] * fit.model_scales[j];
-    }
+    for (std::size_t j = 0; j < k; ++j) model_x[j] = row.x[fit.columns[j]];
+    const DoubleDouble fitted = CompensatedLinearPredictor(fit, model_x);
     diagnostic.fitted = fitted.value();
     diagnostic.residual = (DoubleDouble{row.y, 0} + (-fitted)).value();
-    // h = w x'(X'WX)^-1 x = w ||R11^-T D x||^2 (a sum of squares: no cancellation).
-    if (k > 0) {
-      const int info = lapack::SolveUpperTriangular(true, static_cast<int>(k), 1, fit.model_triangle.memptr(),
-                                                    static_cast<int>(k), scaled_x.memptr(), static_cast<int>(k));
-      if (info > 0) throw NumericalError("diagnostics: the model's triangular factor is singular");
-      diagnostic.leverage = row.weight * arma::dot(scaled_x, scaled_x);
-    }
+    diagnostic.leverage = row.weight * UnitLeverage(fit, model_x, scratch);
     const bool leverage_one = diagnostic.leverage >= 1 - kLeverageOneTolerance;
     if (!leverage_one) {
       const double root_w = std::sqrt(row.weight);

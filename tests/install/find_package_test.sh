@@ -1,13 +1,34 @@
 #!/usr/bin/env bash
-# Installs the built tree into a temporary prefix, then configures, builds and runs a separate
-# project that finds it with find_package(stepledger).
+# Installs the built tree into a temporary prefix, then configures, builds and runs separate
+# projects that find it with find_package(stepledger):
+#   1. tests/install/consumer: a selection on an in-memory factor;
+#   2. examples/api: the example program, run on the bundled demo data with the stepwise BIC
+#      plan; its chosen terms must be the demo data's true model (examples/laptop_listings.h,
+#      kLaptopTrueTerms: invented data whose true model the test knows).
 set -euo pipefail
 build_dir="$1"
 source_dir="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
+repo_dir="$(cd "$source_dir/../.." && pwd)"
 work="$(mktemp -d)"
 trap 'rm -rf "$work"' EXIT
 cmake --install "$build_dir" --prefix "$work/prefix" >/dev/null
+
 cmake -S "$source_dir/consumer" -B "$work/build" -DCMAKE_PREFIX_PATH="$work/prefix" \
   -DCMAKE_BUILD_TYPE=Release >/dev/null
 cmake --build "$work/build" >/dev/null
 "$work/build/consumer"
+
+cmake -S "$repo_dir/examples/api" -B "$work/build-api" -DCMAKE_PREFIX_PATH="$work/prefix" \
+  -DCMAKE_BUILD_TYPE=Release >/dev/null
+cmake --build "$work/build-api" >/dev/null
+output="$(OPENBLAS_NUM_THREADS=1 "$work/build-api/select_with_library" \
+  "$repo_dir/examples/data/laptops.csv" "$repo_dir/examples/plans/stepwise_bic.json")"
+echo "$output"
+chosen="$(grep '^chosen terms:' <<<"$output" | sed 's/^chosen terms://' | tr ' ' '\n' | sed '/^$/d' | sort | tr '\n' ' ')"
+expected="$(printf '%s\n' age 'age^2' battery memory log_storage screen cpu grade 'age:grade' warranty | sort | tr '\n' ' ')"
+if [[ "$chosen" != "$expected" ]]; then
+  echo "examples/api: chose [$chosen], expected the true model [$expected]" >&2
+  exit 1
+fi
+grep -q '^Final model' <<<"$output" || { echo "examples/api: no final model printed" >&2; exit 1; }
+echo "examples/api: recovered the true model"

@@ -91,6 +91,9 @@ struct AuditRun {
   /// What pricing new rows needs (ranges, largest unit leverage, smearing factor); filled by
   /// the diagnostics pass, empty without it.
   PredictionSupport prediction_support;
+  /// The per-row diagnostics of the final model, when the diagnostics pass ran (the report
+  /// shows them; kept so that no second pass is needed).
+  std::optional<DiagnosticsResult> diagnostics;
   AuditRunOptions options;
   double duration_seconds = 0;      ///< wall time of the run
 };

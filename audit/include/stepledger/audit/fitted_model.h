@@ -30,6 +30,7 @@
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/prediction.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/selection/plan.h"
 
@@ -88,5 +89,11 @@ struct FittedModel {
 /// match the audit's design section; an audit written before the `prediction` section existed
 /// gets a message saying to rerun it with this version.
 FittedModel FittedModelFromAudit(const nlohmann::json& audit, std::string_view source_name);
+
+/// The model for pricing new rows (engine/prediction.h): the design restricted to the terms
+/// the model needs (TermsNeededByModel), so that the rows need neither the response nor the
+/// columns of candidates the selection left out; the fit, the ranges, the largest unit leverage
+/// and the smearing factor. An intercept-only model reads no column.
+PricingModel MakePricingModel(const FittedModel& fitted);
 
 }  // namespace stepledger

@@ -132,6 +132,18 @@ class Design {
   /// True when some term is a power (so x_low can be nonzero).
   bool HasLowOrderParts() const;
 
+  /// The term-evaluation half of Expand, shared with the prediction evaluator
+  /// (engine/prediction.h): from the values of the source cells (indexed like source.cells:
+  /// cell_values for numeric cells, cell_levels for categorical cells, holding the offset of
+  /// the level among the term's columns or kNoTerm for the baseline) to the design row x
+  /// (column_count() values; the intercept set to 1) and, when x_low is not empty, its
+  /// low-order parts (see Expand). Only the cells of terms are read (not the response or the
+  /// weights). Returns kNoTerm, or the index of the first log term (in evaluation order) whose
+  /// value is not positive; x is then incomplete. No heap allocation.
+  std::size_t EvaluateTerms(std::span<const double> cell_values,
+                            std::span<const std::size_t> cell_levels, std::span<double> x,
+                            std::span<double> x_low = {}) const;
+
   /// Throws InputError when the reader's header does not put the design's source columns
   /// where the profile found them (the file changed since it was profiled).
   void CheckHeader(const CsvReader& reader) const;

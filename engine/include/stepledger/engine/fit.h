@@ -137,6 +137,19 @@ struct DiagnosticsResult {
   double max_leverage = 0;
 };
 
+/// x'b for one row of the model's values (model_x: the values of fit.columns, model order,
+/// unscaled; k = fit.columns.size() of them), summed in double-double (compensated) arithmetic
+/// so that the order of the columns does not matter to the last digits. ComputeDiagnostics's
+/// fitted values and the prediction evaluator (engine/prediction.h) share it.
+double LinearPredictor(const FitResult& fit, std::span<const double> model_x);
+
+/// x'(X'WX)^-1 x for one row of the model's values (as LinearPredictor): the leverage at unit
+/// weight, computed as ||R11^-T D x||^2 through fit.model_triangle and fit.model_scales (a sum
+/// of squares: no cancellation, no inverse formed). scratch: k doubles, overwritten (so that a
+/// pass over the rows allocates nothing). Throws std::invalid_argument when the fit carries no
+/// model factor and NumericalError when the factor is singular. Cost O(k^2).
+double UnitLeverage(const FitResult& fit, std::span<const double> model_x, std::span<double> scratch);
+
 /// One more pass over the rows for the per-row diagnostics of a fitted model.
 DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
                                      const RowReplay& replay);

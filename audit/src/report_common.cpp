@@ -1,0 +1,437 @@
+// What the text and HTML reports share: reading the audit, wording the plan, the thresholds
+// for rows that stand out, the normal quantiles, the integrity facts.
+
+#include <algorithm>
+#include <cmath>
+#include <cstdio>
+#include <map>
+#include <sstream>
+
+#include <boost/math/distributions/normal.hpp>
+
+#include "report_internal.h"
+#include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/signature.h"
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+
+void ReportOptions::Validate() const {
+  if (!(chart_width >= 320 && chart_width <= 2000)) {
+    throw InputError("ReportOptions.chart_width: expected a number in [320, 2000], got " +
+                     std::to_string(chart_width));
+  }
+}
+
+namespace report_detail {
+namespace {
+
+void Require(bool holds, const std::string& key, const std::string& expected) {
+  if (!holds) throw InputError("audit: " + key + ": expected " + expected);
+}
+
+std::string Join(const std::vector<std::string>& items, std::string_view separator = ", ") {
+  std::string text;
+  for (const std::string& item : items) {
+    if (!text.empty()) text += separator;
+    text += item;
+  }
+  return text;
+}
+
+std::vector<std::string> Strings(const json& array) {
+  std::vector<std::string> items;
+  if (!array.is_array()) return items;
+  for (const json& item : array) items.push_back(Text(item));
+  return items;
+}
+
+// Display width in code points (UTF-8 continuation bytes do not count), for text tables.
+std::size_t DisplayWidth(std::string_view text) {
+  std::size_t width = 0;
+  for (const char character : text) {
+    if ((static_cast<unsigned char>(character) & 0xC0) != 0x80) ++width;
+  }
+  return width;
+}
+
+}  // namespace
+
+void CheckAuditShape(const json& audit) {
+  Require(audit.is_object(), "(document)", "a JSON object");
+  Require(Get(audit, "format").is_string() && audit["format"] == kAuditFormat, "format",
+          "\"" + std::string(kAuditFormat) + "\" (not a stepledger audit)");
+  for (const char* key : {"plan", "data", "design", "search", "model", "tool"}) {
+    Require(audit.contains(key) && audit[key].is_object(), key, "an object");
+  }
+  Require(Get(audit, "steps").is_array(), "steps", "an array");
+  for (std::size_t index = 0; index < audit["steps"].size(); ++index) {
+    const json& step = audit["steps"][index];
+    const std::string key = "steps[" + std::to_string(index) + "]";
+    Require(step.is_object(), key, "an object");
+    Require(Get(step, "action").is_string(), key + ".action", "a string");
+    Require(Get(step, "candidates").is_array() || Get(step, "candidates").is_null(),
+            key + ".candidates", "an array");
+    for (std::size_t candidate = 0; candidate < Get(step, "candidates").size(); ++candidate) {
+      Require(step["candidates"][candidate].is_object(),
+              key + ".candidates[" + std::to_string(candidate) + "]", "an object");
+    }
+  }
+  if (audit.contains("subsets")) {
+    Require(audit["subsets"].is_array(), "subsets", "an array");
+    for (std::size_t index = 0; index < audit["subsets"].size(); ++index) {
+      Require(audit["subsets"][index].is_object(), "subsets[" + std::to_string(index) + "]",
+              "an object");
+    }
+  }
+  const json& coefficients = Get(audit["model"], "coefficients");
+  Require(coefficients.is_array() || coefficients.is_null(), "model.coefficients", "an array");
+  for (std::size_t index = 0; index < coefficients.size(); ++index) {
+    Require(coefficients[index].is_object(), "model.coefficients[" + std::to_string(index) + "]",
+            "an object");
+  }
+  Require(Get(audit, "cautions").is_array() || Get(audit, "cautions").is_null(), "cautions",
+          "an array");
+}
+
+const json& Get(const json& object, std::string_view key) {
+  static const json null_value;
+  if (!object.is_object()) return null_value;
+  const auto found = object.find(key);
+  return found == object.end() ? null_value : *found;
+}
+
+std::optional<double> Number(const json& value) {
+  if (!value.is_number()) return std::nullopt;
+  const double number = value.get<double>();
+  if (!std::isfinite(number)) return std::nullopt;
+  return number;
+}
+
+std::string Text(const json& value) {
+  if (value.is_string()) return value.get<std::string>();
+  if (value.is_null()) return "";
+  return value.dump();
+}
+
+std::string Format(std::optional<double> value, int significant) {
+  if (!value) return "n/a";
+  char buffer[48];
+  std::snprintf(buffer, sizeof buffer, "%.*g", significant, *value);
+  return buffer;
+}
+
+std::string FormatP(std::optional<double> value) {
+  if (!value) return "n/a";
+  if (*value < 1e-16) return "< 1e-16";
+  return Format(value, 3);
+}
+
+std::string FormatCount(const json& value) {
+  if (!value.is_number()) return value.is_null() ? "n/a" : Text(value);
+  const long long count = value.get<long long>();
+  std::string digits = std::to_string(count < 0 ? -count : count);
+  for (int position = static_cast<int>(digits.size()) - 3; position > 0; position -= 3) {
+    digits.insert(static_cast<std::size_t>(position), ",");
+  }
+  return (count < 0 ? "-" : "") + digits;
+}
+
+std::string CriterionName(std::string_view code) {
+  if (code == "adj-r2") return "adjusted R²";
+  if (code == "aic") return "AIC";
+  if (code == "aicc") return "AICc";
+  if (code == "bic") return "BIC";
+  if (code == "cp") return "Mallows' Cp";
+  if (code == "partial-f") return "partial F";
+  if (code == "cv") return "cross-validated error";
+  return std::string(code);
+}
+
+std::string CriterionValueName(std::string_view code) {
+  if (code == "partial-f") return "residual mean square";
+  return CriterionName(code);
+}
+
+bool HigherIsBetter(std::string_view code) { return code == "adj-r2"; }
+
+std::string ResponseLabel(const json& audit) {
+  const json& design = Get(audit, "design");
+  std::string response = Text(Get(design, "response"));
+  if (response.empty()) response = Text(Get(Get(Get(audit, "plan"), "normalised"), "response"));
+  if (Text(Get(design, "response_transform")) == "log") return "log(" + response + ")";
+  return response;
+}
+
+std::vector<std::string> PlanSentences(const json& audit) {
+  const json& plan = Get(Get(audit, "plan"), "normalised");
+  const json& search = Get(audit, "search");
+  std::string method = Text(Get(plan, "method"));
+  if (method.empty()) method = Text(Get(search, "method"));
+  std::string criterion = Text(Get(plan, "criterion"));
+  if (criterion.empty()) criterion = Text(Get(search, "criterion"));
+  std::vector<std::string> sentences;
+
+  if (method == "forward") {
+    sentences.push_back("Forward selection: start from the intercept and any kept terms; at each "
+                        "step add the candidate that improves the criterion most; stop when no "
+                        "addition improves it.");
+  } else if (method == "backward") {
+    sentences.push_back("Backward elimination: start from every candidate term; at each step "
+                        "remove the term whose removal improves the criterion most; stop when no "
+                        "removal improves it.");
+  } else if (method == "stepwise") {
+    sentences.push_back("Stepwise selection: add the candidate that improves the criterion most, "
+                        "then test every term in the model again for removal; stop when no move "
+                        "improves it.");
+  } else if (method == "all-subsets") {
+    sentences.push_back("All subsets: for every model size, branch and bound keeps the best " +
+                        Text(Get(plan, "best_per_size")) +
+                        " models by residual sum of squares; the criterion chooses among them.");
+  } else if (method == "none") {
+    sentences.push_back("No selection: every term of the plan is fitted as given.");
+  } else {
+    sentences.push_back("Method: " + method + ".");
+  }
+
+  if (criterion == "partial-f") {
+    sentences.push_back("Decisions by partial F tests: a term may enter while its p-value is below "
+                        "entry_p = " + Format(Number(Get(plan, "entry_p"))) +
+                        " and must leave while its p-value is above exit_p = " +
+                        Format(Number(Get(plan, "exit_p"))) + ".");
+  } else if (method != "none") {
+    sentences.push_back("Criterion: " + CriterionName(criterion) + " (" +
+                        (HigherIsBetter(criterion) ? "higher" : "lower") + " is better).");
+  }
+  if (criterion == "cv") {
+    sentences.push_back("Cross-validation over " + Text(Get(plan, "folds")) + " folds, seed " +
+                        Text(Get(plan, "seed")) + ".");
+  }
+
+  const json& design = Get(audit, "design");
+  std::string response = Text(Get(plan, "response"));
+  if (response.empty()) response = Text(Get(design, "response"));
+  const std::string transform = Text(Get(plan, "response_transform"));
+  sentences.push_back("Response: " + response +
+                      (transform == "log" ? ", modelled on the log scale (natural log)"
+                                          : ", modelled as recorded") +
+                      (Get(plan, "intercept") == false ? ", without an intercept."
+                                                       : ", with an intercept."));
+  const json& weights = Get(plan, "weights");
+  sentences.push_back(weights.is_string()
+                          ? "Rows are weighted by the column " + weights.get<std::string>() +
+                                " (precision weights)."
+                          : "Rows are not weighted.");
+  if (method != "none") {
+    sentences.push_back(Get(plan, "hierarchy") == false
+                            ? "Hierarchy is off: powers and products may enter without their parts."
+                            : "Hierarchy is on: a power or product enters only after its parts "
+                              "and its parts leave only after it.");
+  }
+  const std::vector<std::string> keep = Strings(Get(plan, "keep"));
+  const std::vector<std::string> never = Strings(Get(plan, "never"));
+  sentences.push_back(keep.empty() ? "No term is forced into the model."
+                                   : "Always in the model: " + Join(keep) + ".");
+  sentences.push_back(never.empty() ? "No term is ruled out by the plan."
+                                    : "Never allowed: " + Join(never) + ".");
+  const json& max_terms = Get(plan, "max_terms");
+  sentences.push_back(max_terms.is_number()
+                          ? "At most " + Text(max_terms) + " terms besides the intercept."
+                          : "No limit on the number of terms.");
+  const std::vector<std::string> missing = Strings(Get(plan, "missing"));
+  if (!missing.empty()) {
+    std::vector<std::string> quoted;
+    for (const std::string& token : missing) quoted.push_back("\"" + token + "\"");
+    sentences.push_back("Cells reading " + Join(quoted, " or ") +
+                        " are missing; a row missing any used column is dropped for every "
+                        "model alike.");
+  }
+  return sentences;
+}
+
+std::vector<std::pair<std::string, std::string>> TermDefinitions(const json& audit) {
+  std::vector<std::pair<std::string, std::string>> definitions;
+  const json& terms = Get(Get(Get(audit, "plan"), "normalised"), "terms");
+  if (!terms.is_array()) return definitions;
+  for (const json& term : terms) {
+    const std::string name = Text(Get(term, "name"));
+    std::string definition;
+    if (term.contains("column")) {
+      definition = "numeric column " + Text(term["column"]);
+    } else if (term.contains("power")) {
+      definition = Text(Get(term["power"], "column")) + " to the power " +
+                   Text(Get(term["power"], "degree"));
+    } else if (term.contains("log")) {
+      definition = "natural log of " + Text(term["log"]);
+    } else if (term.contains("categorical")) {
+      definition = "categorical " + Text(term["categorical"]) + ", one indicator per level against "
+                   "the baseline " + (Get(term, "baseline").is_string() ? Text(term["baseline"]) : "(first level)");
+    } else if (term.contains("product")) {
+      definition = "product of " + Join(Strings(term["product"]), " and ");
+    } else {
+      definition = Text(term);
+    }
+    definitions.emplace_back(name, definition);
+  }
+  return definitions;
+}
+
+std::string StepLabel(const json& step) {
+  const std::string action = Text(Get(step, "action"));
+  const std::string term = Text(Get(step, "term"));
+  if (action == "add") return "+ " + term;
+  if (action == "remove") return "- " + term;
+  return term.empty() ? action : action + " " + term;
+}
+
+std::vector<SubsetBest> BestSubsetBySize(const json& audit) {
+  const bool higher = HigherIsBetter(Text(Get(Get(audit, "search"), "criterion")));
+  std::map<std::int64_t, SubsetBest> best;
+  for (const json& subset : Get(audit, "subsets")) {
+    const std::optional<double> score = Number(Get(subset, "score"));
+    if (!score || !Get(subset, "size").is_number_integer()) continue;
+    const std::int64_t size = subset["size"].get<std::int64_t>();
+    const auto found = best.find(size);
+    if (found == best.end() || (higher ? *score > found->second.score : *score < found->second.score)) {
+      best[size] = SubsetBest{size, *score, Strings(Get(subset, "terms"))};
+    }
+  }
+  std::vector<SubsetBest> out;
+  for (auto& [size, entry] : best) out.push_back(std::move(entry));
+  return out;
+}
+
+StandOutRules MakeStandOutRules(const ReportDiagnostics& diagnostics) {
+  // Common practice thresholds (no single source): Cook's distance above 4/n,
+  // |standardised residual| above 3, leverage above twice its mean k/n.
+  StandOutRules rules;
+  rules.n = diagnostics.result.rows.size();
+  const double n = std::max<double>(1, static_cast<double>(rules.n));
+  rules.cooks = 4.0 / n;
+  rules.leverage = 2.0 * static_cast<double>(diagnostics.k) / n;
+  rules.standardized_residual = 3;
+  return rules;
+}
+
+std::vector<StandOutRow> RowsThatStandOut(const ReportDiagnostics& diagnostics,
+                                          const StandOutRules& rules) {
+  std::vector<StandOutRow> rows;
+  for (const RowDiagnostic& row : diagnostics.result.rows) {
+    StandOutRow entry{&row, {}};
+    if (row.cooks_distance && *row.cooks_distance > rules.cooks) {
+      entry.reasons.push_back("Cook's D > " + Format(rules.cooks, 3));
+    }
+    if (row.standardized_residual && std::abs(*row.standardized_residual) > rules.standardized_residual) {
+      entry.reasons.push_back("|std. residual| > " + Format(rules.standardized_residual, 3));
+    }
+    if (row.leverage > rules.leverage) entry.reasons.push_back("leverage > " + Format(rules.leverage, 3));
+    if (!row.standardized_residual) entry.reasons.push_back("leverage 1: fits itself exactly");
+    if (!entry.reasons.empty()) rows.push_back(std::move(entry));
+  }
+  return rows;
+}
+
+std::vector<std::pair<double, double>> NormalQuantilePairs(const ReportDiagnostics& diagnostics) {
+  std::vector<double> residuals;
+  for (const RowDiagnostic& row : diagnostics.result.rows) {
+    if (row.standardized_residual && std::isfinite(*row.standardized_residual)) {
+      residuals.push_back(*row.standardized_residual);
+    }
+  }
+  std::sort(residuals.begin(), residuals.end());
+  const boost::math::normal_distribution<double> standard_normal(0.0, 1.0);
+  const double n = static_cast<double>(residuals.size());
+  std::vector<std::pair<double, double>> pairs;
+  pairs.reserve(residuals.size());
+  for (std::size_t index = 0; index < residuals.size(); ++index) {
+    const double position = (static_cast<double>(index + 1) - 0.375) / (n + 0.25);
+    pairs.emplace_back(boost::math::quantile(standard_normal, position), residuals[index]);
+  }
+  return pairs;
+}
+
+IntegrityFacts ReadIntegrity(const json& audit) {
+  IntegrityFacts facts;
+  facts.seal = Text(Get(audit, "seal"));
+  if (!facts.seal.empty()) {
+    try {
+      facts.seal_matches = ComputeSeal(audit) == facts.seal;
+    } catch (const std::exception&) {
+      facts.seal_matches = false;
+    }
+  }
+  const json& signature = Get(audit, "signature");
+  facts.signed_document = signature.is_object();
+  if (facts.signed_document) {
+    facts.signature_algorithm = Text(Get(signature, "algorithm"));
+    facts.public_key = Text(Get(signature, "public_key"));
+    try {
+      facts.signature_consistent = VerifyEd25519WithRawKeyHex(
+          facts.public_key, facts.seal, Text(Get(signature, "value")));
+    } catch (const std::exception&) {
+      facts.signature_consistent = false;
+    }
+  }
+  const json& parent = Get(audit, "parent");
+  facts.has_parent = !parent.is_null();
+  if (facts.has_parent) {
+    facts.parent_seal = Text(Get(parent, "seal"));
+    facts.parent_created_at = Text(Get(parent, "created_at"));
+    facts.parent_data_sha256 = Text(Get(parent, "data_sha256"));
+  }
+  const json& tool = Get(audit, "tool");
+  facts.tool_version = Text(Get(tool, "name")) + " " + Text(Get(tool, "version"));
+  facts.tool_commit = Text(Get(tool, "commit"));
+  const json& build = Get(tool, "build");
+  facts.tool_build = Text(Get(build, "compiler")) + ", " + Text(Get(build, "build_type")) + ", BLAS " +
+                     Text(Get(build, "blas"));
+  facts.created_at = Text(Get(audit, "created_at"));
+  facts.format_version = Text(Get(audit, "format")) + " " + Text(Get(audit, "format_version"));
+  const json& digests = Get(audit, "digests");
+  facts.genesis = Text(Get(digests, "genesis"));
+  facts.route_digest = Text(Get(digests, "route"));
+  facts.step_count = Text(Get(digests, "step_count"));
+  return facts;
+}
+
+std::string TextTable(const std::vector<std::string>& headers,
+                      const std::vector<std::vector<std::string>>& rows,
+                      const std::vector<bool>& right_aligned, std::string_view indent) {
+  std::vector<std::size_t> widths(headers.size(), 0);
+  for (std::size_t column = 0; column < headers.size(); ++column) widths[column] = DisplayWidth(headers[column]);
+  for (const auto& row : rows) {
+    for (std::size_t column = 0; column < row.size() && column < widths.size(); ++column) {
+      widths[column] = std::max(widths[column], DisplayWidth(row[column]));
+    }
+  }
+  std::ostringstream out;
+  auto line = [&](const std::vector<std::string>& cells) {
+    std::string text(indent);
+    for (std::size_t column = 0; column < widths.size(); ++column) {
+      const std::string cell = column < cells.size() ? cells[column] : "";
+      const std::string pad(widths[column] - DisplayWidth(cell), ' ');
+      const bool right = column < right_aligned.size() && right_aligned[column];
+      const bool last = column + 1 == widths.size();
+      text += right ? pad + cell : (last ? cell : cell + pad);
+      if (!last) text += "  ";
+    }
+    while (!text.empty() && text.back() == ' ') text.pop_back();
+    out << text << "\n";
+  };
+  line(headers);
+  std::vector<std::string> rule;
+  for (const std::size_t width : widths) rule.push_back(std::string(width, '-'));
+  line(rule);
+  for (const auto& row : rows) line(row);
+  return out.str();
+}
+
+std::string DiagnosticsHowTo(const json& audit) {
+  std::string data = Text(Get(Get(audit, "data"), "file"));
+  if (data.empty()) data = "DATA.csv";
+  return "Not included: residuals, leverage and Cook's distance need one more pass over the data. "
+         "Run: stepledger report AUDIT.json --data " + data + " --html report.html";
+}
+
+}  // namespace report_detail
+}  // namespace stepledger

@@ -1,0 +1,38 @@
+// The diagnostics of an audit's final model on its data file, for `report --data`.
+
+#include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/fitted_model.h"
+#include "stepledger/audit/report.h"
+#include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+
+ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::filesystem::path& data,
+                                    std::string_view audit_name) {
+  const std::string expected =
+      audit.contains("data") && audit["data"].is_object() && audit["data"].contains("sha256") &&
+              audit["data"]["sha256"].is_string()
+          ? audit["data"]["sha256"].get<std::string>()
+          : std::string();
+  if (expected.empty()) {
+    throw InputError(std::string(audit_name) + ": data.sha256: missing; cannot check the data file");
+  }
+  // The fingerprint first: diagnostics of other rows than the audited ones would mislead.
+  const std::string actual = FingerprintFile(data);
+  if (actual != expected) {
+    throw InputError(data.string() + ": not the data of " + std::string(audit_name) + ": its SHA-256 is " +
+                     actual + ", the audit's data.sha256 is " + expected);
+  }
+  const FittedModel model = FittedModelFromAudit(audit, audit_name);
+  CsvOptions csv = RunOptionsFromSettings(audit.contains("settings") ? audit["settings"] : nlohmann::json())
+                       .csv;
+  csv.missing_tokens = model.missing_tokens;
+  ReportDiagnostics diagnostics;
+  diagnostics.result = ComputeDiagnostics(model.fit, model.design, FileRowReplay(data, model.design, csv));
+  diagnostics.k = model.fit.k;
+  diagnostics.sigma = model.fit.criteria.sigma;
+  return diagnostics;
+}
+
+}  // namespace stepledger

@@ -1,0 +1,149 @@
+// `stepledger report` and the report.html that `select --out` writes, run in-process on the
+// invented laptop data.
+
+#include <gtest/gtest.h>
+
+#include <filesystem>
+#include <string>
+
+#include <nlohmann/json.hpp>
+
+#include "stepledger/audit/audit_document.h"
+#include "support/audit_test_data.h"
+#include "support/cli_run.h"
+#include "support/report_audits.h"
+#include "support/report_check.h"
+#include "support/test_paths.h"
+
+namespace stepledger {
+namespace {
+
+using testing::CliRun;
+using testing::RunStepledger;
+
+class ReportCommand : public ::testing::Test {
+ protected:
+  void SetUp() override {
+    data_ = folder_.Write("laptops.csv", testing::LaptopCsv()).string();
+    plan_ = folder_.Write("plan.json", testing::HierarchyLaptopPlan()).string();
+    out_ = (folder_.path() / "run").string();
+  }
+  CliRun Select(const std::vector<std::string>& extra = {}) {
+    std::vector<std::string> args{"select", data_, "--plan", plan_, "--out", out_};
+    args.insert(args.end(), extra.begin(), extra.end());
+    return RunStepledger(args);
+  }
+  testing::TempDir folder_;
+  std::string data_, plan_, out_;
+};
+
+TEST_F(ReportCommand, SelectOutWritesTheReportWithDiagnosticsBesideTheAudit) {
+  const CliRun run = Select();
+  ASSERT_EQ(run.status, 0) << run.err;
+  const auto report = std::filesystem::path(out_) / "report.html";
+  ASSERT_TRUE(std::filesystem::exists(report));
+  const nlohmann::json audit = ReadAuditFile(std::filesystem::path(out_) / "audit.json");
+  const std::string html = testing::ReadText(report);
+  // Rendered from the written audit: its seal is in the header.
+  EXPECT_NE(html.find(audit["seal"].get<std::string>()), std::string::npos);
+  if (!testing::PythonHasModules("html.parser")) GTEST_SKIP() << "Debian's python3 is not available";
+  const auto check = testing::CheckHtmlReport(report);
+  ASSERT_TRUE(check.ran) << check.error;
+  EXPECT_TRUE(check.problems.empty()) << check.problems.front();
+  EXPECT_EQ(check.Count("route-point"), static_cast<int>(audit["steps"].size()));
+  EXPECT_EQ(check.Count("resid"), audit["data"]["rows_used"].get<int>());
+  // verify still holds for the audit written beside the report.
+  EXPECT_EQ(RunStepledger({"verify", (std::filesystem::path(out_) / "audit.json").string()}).status, 0);
+}
+
+TEST_F(ReportCommand, SelectRefusesAnExistingReportAndLeavesNoAuditBehind) {
+  std::filesystem::create_directory(out_);
+  folder_.Write("run/report.html", "old report");
+  const CliRun refused = Select();
+  EXPECT_EQ(refused.status, 2);
+  EXPECT_NE(refused.err.find("report.html: file exists; use --force"), std::string::npos) << refused.err;
+  EXPECT_FALSE(std::filesystem::exists(std::filesystem::path(out_) / "audit.json"));
+  EXPECT_EQ(testing::ReadText(std::filesystem::path(out_) / "report.html"), "old report");
+  const CliRun forced = Select({"--force"});
+  EXPECT_EQ(forced.status, 0) << forced.err;
+  EXPECT_NE(testing::ReadText(std::filesystem::path(out_) / "report.html").find("<!DOCTYPE html>"), std::string::npos);
+}
+
+TEST_F(ReportCommand, SelectRemovesItsAuditWhenTheReportCannotBeWritten) {
+  // A folder named report.html cannot be replaced by a file, even with --force.
+  std::filesystem::create_directories(std::filesystem::path(out_) / "report.html" / "inside");
+  const CliRun run = Select({"--force"});
+  EXPECT_EQ(run.status, 2) << run.err;
+  EXPECT_NE(run.err.find("report.html"), std::string::npos) << run.err;
+  EXPECT_FALSE(std::filesystem::exists(std::filesystem::path(out_) / "audit.json"));
+}
+
+TEST_F(ReportCommand, TextByDefaultHtmlToAFileAndBothTogether) {
+  ASSERT_EQ(Select().status, 0);
+  const std::string audit = (std::filesystem::path(out_) / "audit.json").string();
+  const CliRun text = RunStepledger({"report", audit});
+  ASSERT_EQ(text.status, 0) << text.err;
+  EXPECT_NE(text.out.find("Route (BIC by step)"), std::string::npos);
+  EXPECT_NE(text.out.find("CAUTIONS"), std::string::npos);
+  EXPECT_NE(text.out.find("stepledger report AUDIT.json --data laptops.csv"), std::string::npos);
+
+  const std::string html = (folder_.path() / "review.html").string();
+  const CliRun only_html = RunStepledger({"report", audit, "--html", html});
+  ASSERT_EQ(only_html.status, 0) << only_html.err;
+  EXPECT_EQ(only_html.out, "");
+  EXPECT_NE(testing::ReadText(html).find("</html>"), std::string::npos);
+
+  const CliRun again = RunStepledger({"report", audit, "--html", html});
+  EXPECT_EQ(again.status, 2);
+  EXPECT_NE(again.err.find("review.html"), std::string::npos) << again.err;
+  EXPECT_NE(again.err.find("--force"), std::string::npos) << again.err;
+  ASSERT_EQ(again.ErrLines().size(), 1u);
+
+  const CliRun both = RunStepledger({"report", audit, "--html", html, "--text", "--force"});
+  ASSERT_EQ(both.status, 0) << both.err;
+  EXPECT_EQ(both.out, text.out);
+
+  const CliRun json = RunStepledger({"report", audit, "--json"});
+  ASSERT_EQ(json.status, 0) << json.err;
+  EXPECT_EQ(nlohmann::json::parse(json.out)["diagnostics"], false);
+}
+
+TEST_F(ReportCommand, DataAddsDiagnosticsAndTheWrongFileIsRefusedNamingBothDigests) {
+  ASSERT_EQ(Select().status, 0);
+  const std::string audit = (std::filesystem::path(out_) / "audit.json").string();
+  const CliRun with_data = RunStepledger({"report", audit, "--data", data_});
+  ASSERT_EQ(with_data.status, 0) << with_data.err;
+  EXPECT_NE(with_data.out.find("200 rows diagnosed"), std::string::npos);
+
+  testing::LaptopDataOptions other_options;
+  other_options.rows = 150;
+  const std::string other = folder_.Write("other.csv", testing::LaptopCsv(other_options)).string();
+  const CliRun wrong = RunStepledger({"report", audit, "--data", other, "--html", (folder_.path() / "x.html").string()});
+  EXPECT_EQ(wrong.status, 2);
+  ASSERT_EQ(wrong.ErrLines().size(), 1u) << wrong.err;
+  EXPECT_NE(wrong.err.find(FingerprintFile(other)), std::string::npos) << wrong.err;
+  EXPECT_NE(wrong.err.find(ReadAuditFile(audit)["data"]["sha256"].get<std::string>()), std::string::npos)
+      << wrong.err;
+  EXPECT_FALSE(std::filesystem::exists(folder_.path() / "x.html"));
+}
+
+TEST_F(ReportCommand, BadInputIsOneLineWithExitTwo) {
+  const std::string not_audit = folder_.Write("not-audit.json", "{\"format\": \"other\"}").string();
+  const CliRun run = RunStepledger({"report", not_audit});
+  EXPECT_EQ(run.status, 2);
+  EXPECT_NE(run.err.find("not-audit.json"), std::string::npos) << run.err;
+  ASSERT_EQ(run.ErrLines().size(), 1u);
+  EXPECT_EQ(RunStepledger({"report", (folder_.path() / "missing.json").string()}).status, 2);
+}
+
+TEST(ReportCommandHelp, TeachesTheSectionsAndGivesExamples) {
+  const CliRun help = RunStepledger({"report", "--help"});
+  ASSERT_EQ(help.status, 0);
+  for (const char* text : {"--html", "--text", "--data", "--force", "Cook's distance", "cautions",
+                           "integrity", "Examples:", "stepledger report out/audit.json"}) {
+    EXPECT_NE(help.out.find(text), std::string::npos) << text;
+  }
+}
+
+}  // namespace
+}  // namespace stepledger
