@@ -137,6 +137,19 @@ std::string FormatCount(const json& value) {
   return (count < 0 ? "-" : "") + digits;
 }
 
+std::string LevelsSummary(const json& column, std::size_t max_listed, bool with_counts) {
+  const json& level_list = Get(column, "levels");
+  if (!level_list.is_array() || level_list.empty()) return "";
+  std::string levels = std::to_string(level_list.size()) + " levels";
+  if (level_list.size() > max_listed) return levels;
+  levels += ":";
+  for (const json& level : level_list) {
+    levels += " " + Text(Get(level, "level"));
+    if (with_counts) levels += " (" + Text(Get(level, "count")) + ")";
+  }
+  return levels;
+}
+
 std::string CriterionName(std::string_view code) {
   if (code == "adj-r2") return "adjusted R²";
   if (code == "aic") return "AIC";

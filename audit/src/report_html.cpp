@@ -216,17 +216,7 @@ void Data(std::ostringstream& out, const json& audit, const ReportOptions& optio
     out << "<h3>Columns</h3>"
         << TableStart({"column", "type", "present", "missing", "min", "max", "mean", "SD", "levels"});
     for (const json& column : columns) {
-      std::string levels;
-      const json& level_list = Get(column, "levels");
-      if (level_list.is_array() && !level_list.empty()) {
-        levels = std::to_string(level_list.size()) + " levels";
-        if (level_list.size() <= options.max_levels_listed) {
-          levels += ":";
-          for (const json& level : level_list) {
-            levels += " " + Text(Get(level, "level")) + " (" + Text(Get(level, "count")) + ")";
-          }
-        }
-      }
+      const std::string levels = LevelsSummary(column, options.max_levels_listed, /*with_counts=*/true);
       out << "<tr>" << Cell(Text(Get(column, "name"))) << Cell(Text(Get(column, "type")))
           << Cell(FormatCount(Get(column, "present")), true) << Cell(FormatCount(Get(column, "missing")), true)
           << Cell(Format(Number(Get(column, "min"))), true) << Cell(Format(Number(Get(column, "max"))), true)

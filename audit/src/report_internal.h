@@ -34,6 +34,9 @@ std::string Format(std::optional<double> value, int significant = 4);
 std::string FormatP(std::optional<double> value);
 /// An integer count with thousands separators.
 std::string FormatCount(const json& value);
+/// A data column's levels: "3 levels", and when there are at most max_listed, ": A B C"
+/// (with counts: ": A (12) B (40) C (9)"). Empty for a column without levels.
+std::string LevelsSummary(const json& column, std::size_t max_listed, bool with_counts);
 
 /// "BIC", "AIC", "AICc", "adjusted R²", "Mallows' Cp", "partial F", "CV error".
 std::string CriterionName(std::string_view code);

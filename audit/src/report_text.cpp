@@ -102,15 +102,7 @@ std::string RenderTextReport(const nlohmann::json& audit, const ReportDiagnostic
   }
   std::vector<std::vector<std::string>> column_rows;
   for (const json& column : Get(data, "columns")) {
-    std::string levels;
-    const json& level_list = Get(column, "levels");
-    if (level_list.is_array() && !level_list.empty()) {
-      levels = std::to_string(level_list.size()) + " levels";
-      if (level_list.size() <= options.max_levels_listed) {
-        levels += ":";
-        for (const json& level : level_list) levels += " " + Text(Get(level, "level"));
-      }
-    }
+    const std::string levels = LevelsSummary(column, options.max_levels_listed, /*with_counts=*/false);
     column_rows.push_back({Text(Get(column, "name")), Text(Get(column, "type")),
                            FormatCount(Get(column, "present")), FormatCount(Get(column, "missing")),
                            Format(Number(Get(column, "min"))), Format(Number(Get(column, "max"))),

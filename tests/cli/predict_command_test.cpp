@@ -25,29 +25,14 @@
 #include <nlohmann/json.hpp>
 
 #include "support/cli_run.h"
+#include "support/csv_text.h"
 #include "support/test_paths.h"
+#include "support/test_random.h"
 
 namespace stepledger {
 namespace {
 
 constexpr double kRelativeTolerance = 1e-9;
-
-// Uniforms and normals straight from mt19937_64 (the std:: distributions differ between
-// standard libraries).
-class Random {
- public:
-  explicit Random(std::uint64_t seed) : engine_(seed) {}
-  double Uniform(double low, double high) {
-    return low + (high - low) * static_cast<double>(engine_() >> 11) * 0x1.0p-53;
-  }
-  double Normal() {
-    const double u1 = 1.0 - Uniform(0, 1), u2 = Uniform(0, 1);
-    return std::sqrt(-2.0 * std::log(u1)) * std::cos(2.0 * 3.141592653589793 * u2);
-  }
-
- private:
-  std::mt19937_64 engine_;
-};
 
 std::string Number(double value) {
   char buffer[40];
@@ -59,7 +44,7 @@ std::string Number(double value) {
 // + e / sqrt(w), with b = a + noise (strongly correlated with a) and a `noise` column of no
 // signal that the plans keep out ("never").
 std::string MakeData(std::uint64_t seed, int rows, bool log_response = false) {
-  Random random(seed);
+  testing::TestRandom random(seed);
   std::ostringstream csv;
   csv << "id,a,b,d,g,noise,w,y\n";
   for (int i = 0; i < rows; ++i) {
@@ -97,7 +82,7 @@ std::string Plan(bool weighted, bool log_response = false) {
 
 // New rows: ids, columns in another order than the data, no y and no noise column.
 std::string MakeRows(std::uint64_t seed, int rows) {
-  Random random(seed);
+  testing::TestRandom random(seed);
   std::ostringstream csv;
   csv << "g,w,d,b,a,id\n";
   for (int i = 0; i < rows; ++i) {
@@ -120,32 +105,6 @@ std::filesystem::path MakeAudit(const testing::TempDir& scratch, const std::file
   return out / "audit.json";
 }
 
-// Splits a CSV line (fields may be quoted, no newlines inside).
-std::vector<std::string> SplitCsv(const std::string& line) {
-  std::vector<std::string> fields(1);
-  bool quoted = false;
-  for (std::size_t i = 0; i < line.size(); ++i) {
-    const char c = line[i];
-    if (quoted) {
-      if (c == '"' && i + 1 < line.size() && line[i + 1] == '"') {
-        fields.back() += '"';
-        ++i;
-      } else if (c == '"') {
-        quoted = false;
-      } else {
-        fields.back() += c;
-      }
-    } else if (c == '"') {
-      quoted = true;
-    } else if (c == ',') {
-      fields.emplace_back();
-    } else {
-      fields.back() += c;
-    }
-  }
-  return fields;
-}
-
 struct CsvTable {
   std::vector<std::string> header;
   std::vector<std::vector<std::string>> rows;
@@ -161,8 +120,8 @@ CsvTable ParseCsv(const std::string& text) {
   std::istringstream stream(text);
   std::string line;
   std::getline(stream, line);
-  table.header = SplitCsv(line);
-  while (std::getline(stream, line)) table.rows.push_back(SplitCsv(line));
+  table.header = testing::SplitCsvLine(line);
+  while (std::getline(stream, line)) table.rows.push_back(testing::SplitCsvLine(line));
   return table;
 }
 
@@ -368,7 +327,7 @@ TEST(PredictInterceptOnly, ReadsNoColumnAndGivesTheWeightedMean) {
   // Forward selection by BIC on a response with no signal keeps no term: the model is the
   // intercept alone, which needs no column of the rows (the weights are read when present).
   testing::TempDir scratch;
-  Random random(3);
+  testing::TestRandom random(3);
   std::ostringstream csv;
   csv << "x,w,y\n";
   double weighted_sum = 0, weight_sum = 0;
@@ -412,7 +371,7 @@ TEST(PredictLogResponse, BackTransformAndSmearingFactor) {
   double sum = 0;
   std::size_t count = 0;
   while (std::getline(data_lines, line)) {
-    const double y = std::stod(SplitCsv(line).back());
+    const double y = std::stod(testing::SplitCsvLine(line).back());
     sum += std::exp(std::log(y) - fitted["rows"][count]["prediction"].get<double>());
     ++count;
   }

@@ -20,6 +20,7 @@
 
 #include "support/cli_run.h"
 #include "support/test_paths.h"
+#include "support/test_random.h"
 
 namespace stepledger {
 namespace {
@@ -40,23 +41,6 @@ const DesignCase kCases[] = {
     {"LargeNoisy", 777, 1200, 10.0},
 };
 
-// Uniforms and normals straight from mt19937_64 (the std:: distributions differ between
-// standard libraries).
-class Random {
- public:
-  explicit Random(std::uint64_t seed) : engine_(seed) {}
-  double Uniform(double low, double high) {
-    return low + (high - low) * static_cast<double>(engine_() >> 11) * 0x1.0p-53;
-  }
-  double Normal() {
-    const double u1 = 1.0 - Uniform(0, 1), u2 = Uniform(0, 1);
-    return std::sqrt(-2.0 * std::log(u1)) * std::cos(2.0 * std::numbers::pi * u2);
-  }
-
- private:
-  std::mt19937_64 engine_;
-};
-
 std::string Number(double value) {
   char buffer[40];
   std::snprintf(buffer, sizeof buffer, "%.17g", value);
@@ -66,7 +50,7 @@ std::string Number(double value) {
 // True model (invented for the simulation): y = 1.5 + 2 x1 - 0.7 x2 + 3 ln x3 + 1 [b] - 2 [c]
 // + 0.5 x1[b] - 1 x1[c] + e / sqrt(w).
 std::string MakeCsv(const DesignCase& design) {
-  Random random(design.seed);
+  testing::TestRandom random(design.seed);
   std::ostringstream csv;
   csv << "x1,x2,x3,g,w,y\n";
   for (int row = 0; row < design.rows; ++row) {

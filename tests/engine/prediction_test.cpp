@@ -22,6 +22,7 @@
 #include "stepledger/engine/prediction.h"
 #include "stepledger/engine/profile.h"
 #include "support/test_paths.h"
+#include "support/test_random.h"
 
 namespace stepledger {
 namespace {
@@ -33,23 +34,6 @@ std::string Number(double value) {
   std::snprintf(buffer, sizeof buffer, "%.17g", value);
   return buffer;
 }
-
-// Uniforms and normals straight from mt19937_64 (the std:: distributions differ between
-// standard libraries).
-class Random {
- public:
-  explicit Random(std::uint64_t seed) : engine_(seed) {}
-  double Uniform(double low, double high) {
-    return low + (high - low) * static_cast<double>(engine_() >> 11) * 0x1.0p-53;
-  }
-  double Normal() {
-    const double u1 = 1.0 - Uniform(0, 1), u2 = Uniform(0, 1);
-    return std::sqrt(-2.0 * std::log(u1)) * std::cos(2.0 * 3.141592653589793 * u2);
-  }
-
- private:
-  std::mt19937_64 engine_;
-};
 
 TermSpec Numeric(std::string name, std::string column) {
   TermSpec term;
@@ -158,7 +142,7 @@ TEST(Prediction, SimpleRegressionMatchesTheTextbookFormulas) {
   // Common practice (any regression text): for y = a + b x with n rows,
   //   se_mean = s sqrt(1/n + (x0 - xbar)^2 / Sxx),  se_obs = s sqrt(1 + 1/n + (x0 - xbar)^2 / Sxx).
   testing::TempDir scratch;
-  Random random(5);
+  testing::TestRandom random(5);
   std::ostringstream csv;
   csv << "x,y\n";
   std::vector<double> xs, ys;
@@ -228,7 +212,7 @@ TEST(Prediction, SimpleRegressionMatchesTheTextbookFormulas) {
 // y = 2 + 0.8 a - 0.3 b + 1.5 ln d + 0.05 a^2 + [g=q] 1 - [g=r] 0.5 + 0.2 a [g=q] + e / sqrt(w);
 // b is a + small noise (strongly correlated with a).
 std::string RichCsv(std::uint64_t seed, int rows) {
-  Random random(seed);
+  testing::TestRandom random(seed);
   std::ostringstream csv;
   csv << "id,a,b,d,g,w,y\n";
   for (int i = 0; i < rows; ++i) {
@@ -442,7 +426,7 @@ TEST_F(PredictionFlags, NoMaxLeverageMeansNoHiddenExtrapolationFlag) {
 
 TEST(Prediction, LoggedResponseIsBackTransformed) {
   testing::TempDir scratch;
-  Random random(99);
+  testing::TestRandom random(99);
   std::ostringstream csv;
   csv << "age,grade,price\n";
   for (int i = 0; i < 120; ++i) {

@@ -22,6 +22,7 @@
 #include <nlohmann/json.hpp>
 
 #include "support/cli_run.h"
+#include "support/csv_text.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -52,39 +53,6 @@ std::string ReadBytes(const fs::path& path) {
   std::ostringstream bytes;
   bytes << in.rdbuf();
   return bytes.str();
-}
-
-// Records of a small CSV text (quoted fields with "" escapes; no embedded newlines needed).
-std::vector<std::vector<std::string>> ParseCsv(const std::string& text) {
-  std::vector<std::vector<std::string>> records;
-  std::istringstream lines(text);
-  for (std::string line; std::getline(lines, line);) {
-    if (!line.empty() && line.back() == '\r') line.pop_back();
-    if (line.empty()) continue;
-    std::vector<std::string> fields(1);
-    bool quoted = false;
-    for (std::size_t i = 0; i < line.size(); ++i) {
-      const char c = line[i];
-      if (quoted) {
-        if (c == '"' && i + 1 < line.size() && line[i + 1] == '"') {
-          fields.back() += '"';
-          ++i;
-        } else if (c == '"') {
-          quoted = false;
-        } else {
-          fields.back() += c;
-        }
-      } else if (c == '"') {
-        quoted = true;
-      } else if (c == ',') {
-        fields.emplace_back();
-      } else {
-        fields.back() += c;
-      }
-    }
-    records.push_back(fields);
-  }
-  return records;
 }
 
 // The known flag names a flags cell holds, whatever separates them.
@@ -124,7 +92,7 @@ TEST_F(LaptopsToPrice, EachRowTripsTheFlagItWasBuiltFor) {
   const auto run = RunStepledger({"predict", audit_.string(), rows_.string(), "--id", "listing_id",
                                   "--out", out.string()});
   ASSERT_EQ(run.status, 0) << run.out << run.err;
-  const auto records = ParseCsv(ReadBytes(out));
+  const auto records = testing::ParseCsvRecords(ReadBytes(out));
   ASSERT_FALSE(records.empty());
   const std::vector<std::string>& header = records[0];
   // The --id column's text is under "id" (predict --help), or under its own name.
