@@ -15,6 +15,7 @@
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/profile.h"
 #include "support/test_paths.h"
+#include "support/term_specs.h"
 
 namespace stepledger {
 namespace {
@@ -32,38 +33,11 @@ constexpr const char* kLaptops =
     "NA,5,256,B,blue,1,v,NA\n"
     "250,40,512,A,green,3,u,NA\n";
 
-TermSpec Numeric(std::string name, std::string column) {
-  TermSpec term;
-  term.name = std::move(name);
-  term.kind = TermKind::kNumeric;
-  term.column = std::move(column);
-  return term;
-}
-TermSpec Power(std::string name, std::string column, int degree) {
-  TermSpec term = Numeric(std::move(name), std::move(column));
-  term.kind = TermKind::kPower;
-  term.degree = degree;
-  return term;
-}
-TermSpec Log(std::string name, std::string column) {
-  TermSpec term = Numeric(std::move(name), std::move(column));
-  term.kind = TermKind::kLog;
-  return term;
-}
-TermSpec Categorical(std::string name, std::string column,
-                     std::optional<std::string> baseline = std::nullopt) {
-  TermSpec term = Numeric(std::move(name), std::move(column));
-  term.kind = TermKind::kCategorical;
-  term.baseline = std::move(baseline);
-  return term;
-}
-TermSpec Product(std::string name, std::string first, std::string second) {
-  TermSpec term;
-  term.name = std::move(name);
-  term.kind = TermKind::kProduct;
-  term.parts = {std::move(first), std::move(second)};
-  return term;
-}
+using testing::Categorical;
+using testing::Log;
+using testing::Numeric;
+using testing::Power;
+using testing::Product;
 
 // Key paths as the plan file parser sets them.
 std::vector<TermSpec> Keyed(std::vector<TermSpec> terms) {

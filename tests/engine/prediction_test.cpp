@@ -23,6 +23,7 @@
 #include "stepledger/engine/profile.h"
 #include "support/test_paths.h"
 #include "support/test_random.h"
+#include "support/term_specs.h"
 
 namespace stepledger {
 namespace {
@@ -35,36 +36,11 @@ std::string Number(double value) {
   return buffer;
 }
 
-TermSpec Numeric(std::string name, std::string column) {
-  TermSpec term;
-  term.name = std::move(name);
-  term.column = std::move(column);
-  return term;
-}
-TermSpec Log(std::string name, std::string column) {
-  TermSpec term = Numeric(std::move(name), std::move(column));
-  term.kind = TermKind::kLog;
-  return term;
-}
-TermSpec Power(std::string name, std::string column, int degree) {
-  TermSpec term = Numeric(std::move(name), std::move(column));
-  term.kind = TermKind::kPower;
-  term.degree = degree;
-  return term;
-}
-TermSpec Categorical(std::string name, std::string column, std::string baseline) {
-  TermSpec term = Numeric(std::move(name), std::move(column));
-  term.kind = TermKind::kCategorical;
-  term.baseline = std::move(baseline);
-  return term;
-}
-TermSpec Product(std::string name, std::string a, std::string b) {
-  TermSpec term;
-  term.name = std::move(name);
-  term.kind = TermKind::kProduct;
-  term.parts = {std::move(a), std::move(b)};
-  return term;
-}
+using testing::Categorical;
+using testing::Log;
+using testing::Numeric;
+using testing::Power;
+using testing::Product;
 
 // A model fitted through the real pipeline (profile, design, factor pass, refined fit,
 // diagnostics) plus what pricing needs, computed here from the fitted rows.
