@@ -311,6 +311,19 @@ json AuditCautions(const AuditRun& run) {
   }
 
   // Extrapolation: the ranges of the source columns of the final terms, and the largest leverage.
+  // Over the rows used when the diagnostics pass recorded them (the ranges predict checks: a
+  // numeric term's values are the column's, a log term's bounds are exp of the recorded ones);
+  // else over every row read (the profile), which can only be wider.
+  auto range_over_rows_used = [&run](const std::string& column) -> std::optional<std::pair<double, double>> {
+    const TermRange* log_range = nullptr;
+    for (const TermRange& range : run.prediction_support.ranges) {
+      if (range.column != column) continue;
+      if (range.kind == TermKind::kNumeric) return std::pair{range.min, range.max};
+      if (range.kind == TermKind::kLog) log_range = &range;
+    }
+    if (log_range != nullptr) return std::pair{std::exp(log_range->min), std::exp(log_range->max)};
+    return std::nullopt;
+  };
   json ranges = json::array();
   std::vector<std::string> seen;
   std::string range_text;
@@ -322,12 +335,17 @@ json AuditCautions(const AuditRun& run) {
     }
     if (std::find(seen.begin(), seen.end(), term.source_column) != seen.end()) continue;
     seen.push_back(term.source_column);
-    if (const ColumnProfile* column = run.profile.Find(term.source_column)) {
-      ranges.push_back({{"column", column->name}, {"min", NumberOrNull(column->min)},
-                        {"max", NumberOrNull(column->max)}});
-      range_text += (range_text.empty() ? "" : ", ") + column->name + " " +
-                    FormatShort(column->min) + " to " + FormatShort(column->max);
-    }
+    const ColumnProfile* column = run.profile.Find(term.source_column);
+    if (column == nullptr) continue;
+    const auto used = range_over_rows_used(column->name);
+    const double low = used ? used->first : column->min;
+    const double high = used ? used->second : column->max;
+    ranges.push_back({{"column", column->name},
+                      {"min", NumberOrNull(low)},
+                      {"max", NumberOrNull(high)},
+                      {"over", used ? "rows used" : "rows read"}});
+    range_text += (range_text.empty() ? "" : ", ") + column->name + " " + FormatShort(low) + " to " +
+                  FormatShort(high);
   }
   std::string extrapolation = "Predictions for rows outside the ranges of these data";
   if (!range_text.empty()) extrapolation += " (" + range_text + ")";

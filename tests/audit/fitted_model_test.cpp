@@ -186,6 +186,22 @@ TEST(FittedModel, RangesLeverageAndSmearingComeFromTheRowsUsed) {
   EXPECT_EQ(ranges["log_storage"].min, log_storage_low);
   EXPECT_EQ(ranges["log_storage"].max, log_storage_high);
 
+  // The extrapolation caution quotes the same ranges as predict checks (rows used), not the
+  // profile's: age runs to 60, not to the dropped row's 75; storage is back on its own scale.
+  json extrapolation;
+  for (const json& caution : recorded.audit["cautions"]) {
+    if (caution["kind"] == "extrapolation") extrapolation = caution;
+  }
+  ASSERT_TRUE(extrapolation.is_object());
+  std::map<std::string, json> quoted;
+  for (const json& range : extrapolation["ranges"]) quoted[range["column"].get<std::string>()] = range;
+  ASSERT_TRUE(quoted.contains("age_months"));
+  EXPECT_EQ(quoted["age_months"]["max"], 60);
+  EXPECT_EQ(quoted["age_months"]["over"], "rows used");
+  EXPECT_NEAR(quoted["storage_gb"]["max"].get<double>(), 512, 1e-9);
+  EXPECT_NE(extrapolation["message"].get<std::string>().find("age_months 6 to 60"), std::string::npos)
+      << extrapolation["message"];
+
   // Largest unit leverage and the smearing factor, recomputed from the diagnostics and weights.
   CsvOptions csv;
   csv.missing_tokens = model.missing_tokens;
