@@ -153,13 +153,8 @@ std::vector<Move> SearchContext::ScoreAdditions() {
   for (std::size_t term : candidates_) {
     if (in_model_[term]) continue;
     const auto& columns = term_columns_[term];
-    Move move;
-    move.term = term;
+    Move move = StartMove(term, MoveAction::kAdd);
     CandidateScore& view = move.view;
-    view.term = term_name(term);
-    view.term_index = term;
-    view.action = MoveAction::kAdd;
-    view.df = columns.size();
     std::optional<double> rss_after;
     std::string alias_reason;
     if (columns.size() == 1 && single_rss[columns[0]]) {
@@ -170,9 +165,7 @@ std::vector<Move> SearchContext::ScoreAdditions() {
       else rss_after = group.rss;
     }
     if (!rss_after) {
-      view.reason = "aliased: " + alias_reason;
-      moves.push_back(std::move(move));
-      sink_.OnCandidate(moves.back().view);
+      FinishCandidate(std::move(move), PartialF{}, 0, "aliased: " + alias_reason, moves);
       continue;
     }
     view.rss = rss_after;
@@ -197,13 +190,8 @@ std::vector<Move> SearchContext::ScoreRemovals() {
   for (std::size_t term : model_in_plan_order) {
     if (keep_flag_[term]) continue;
     const auto& columns = term_columns_[term];
-    Move move;
-    move.term = term;
+    Move move = StartMove(term, MoveAction::kRemove);
     CandidateScore& view = move.view;
-    view.term = term_name(term);
-    view.term_index = term;
-    view.action = MoveAction::kRemove;
-    view.df = columns.size();
     const GroupScore group = state_.ScoreRemove(columns);
     view.rss = group.rss;
     const double k_after = k_now - static_cast<double>(columns.size());
@@ -217,6 +205,16 @@ std::vector<Move> SearchContext::ScoreRemovals() {
     FinishCandidate(std::move(move), partial, k_now, RemoveBlockedReason(term), moves);
   }
   return moves;
+}
+
+Move SearchContext::StartMove(std::size_t term, MoveAction action) const {
+  Move move;
+  move.term = term;
+  move.view.term = term_name(term);
+  move.view.term_index = term;
+  move.view.action = action;
+  move.view.df = term_columns_[term].size();
+  return move;
 }
 
 void SearchContext::FinishCandidate(Move move, const PartialF& partial, double k_tested,

@@ -89,6 +89,8 @@ class SearchContext {
   std::vector<Move> ScoreAdditions();
   /// Scores removing every model term that is not kept (plan order); emits OnCandidate.
   std::vector<Move> ScoreRemovals();
+  /// A move of one term, named and sized, not yet scored: the shared start of scoring.
+  Move StartMove(std::size_t term, MoveAction action) const;
   /// The shared end of scoring one move: sets its partial F, says why it may not be taken
   /// (blocked, else an undefined p-value or criterion; k_tested is the larger model's k),
   /// appends it to moves and emits OnCandidate.
