@@ -14,6 +14,7 @@
 
 #include "stepledger/engine/errors.h"
 #include "support/test_paths.h"
+#include "support/input_error.h"
 
 namespace stepledger {
 namespace {
@@ -63,17 +64,7 @@ std::vector<OwnedRecord> ReadAll(const std::filesystem::path& path, CsvOptions o
   return ReadAll(reader);
 }
 
-// The message of the InputError that action throws; fails the test when none is thrown.
-template <typename Action>
-std::string InputErrorOf(Action&& action) {
-  try {
-    action();
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  ADD_FAILURE() << "expected an InputError";
-  return {};
-}
+using testing::InputErrorOf;
 
 std::string ErrorReadingAll(const std::filesystem::path& path, CsvOptions options = {}) {
   return InputErrorOf([&] { ReadAll(path, std::move(options)); });

@@ -16,6 +16,7 @@
 
 #include "stepledger/engine/errors.h"
 #include "support/test_paths.h"
+#include "support/input_error.h"
 
 namespace stepledger {
 namespace {
@@ -43,16 +44,7 @@ void ExpectRelativelyNear(double actual, double expected, double relative_tolera
   EXPECT_NEAR(actual, expected, relative_tolerance * std::abs(expected));
 }
 
-template <typename Action>
-std::string InputErrorOf(Action&& action) {
-  try {
-    action();
-  } catch (const InputError& error) {
-    return error.what();
-  }
-  ADD_FAILURE() << "expected an InputError";
-  return {};
-}
+using testing::InputErrorOf;
 
 class ProfileTest : public ::testing::Test {
  protected:
