@@ -8,7 +8,7 @@
 
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/model_json.h"
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"

@@ -10,8 +10,9 @@
 #include <sstream>
 #include <system_error>
 
-#include "stepledger/audit/atomic_file.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/audit/canonical_json.h"
+#include "stepledger/io/json_reader.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/audit/route_json.h"
 #include "stepledger/engine/errors.h"
@@ -41,12 +42,6 @@ using json = nlohmann::json;
 
 std::string Hex(std::string_view bytes) { return ToHex(Sha256(bytes)); }
 
-std::string FormatShort(double value) {
-  char buffer[32];
-  std::snprintf(buffer, sizeof buffer, "%.4g", value);
-  return buffer;
-}
-
 json ToolJson() {
   return {{"name", "stepledger"},
           {"version", STEPLEDGER_TOOL_VERSION},
@@ -57,7 +52,7 @@ json ToolJson() {
             {"build_type", STEPLEDGER_BUILD_TYPE}}}};
 }
 
-json SettingsJson(const AuditRunOptions& options) {
+json SettingsJson(const RunOptions& options) {
   return {{"delimiter", std::string(1, options.csv.delimiter)},
           {"threads", options.threads},
           {"confidence_level", options.fit.confidence_level},
@@ -89,7 +84,7 @@ json ColumnJson(const ColumnProfile& column) {
   return out;
 }
 
-json DataJson(const AuditRun& run) {
+json DataJson(const RunResult& run) {
   json dropped = json::object();
   for (const auto& [reason, count] : run.accounting.rows_dropped) dropped[reason] = count;
   json columns = json::array();
@@ -161,7 +156,7 @@ json SearchJson(const SearchResult& search) {
           {"subsets_evaluated", search.subsets_evaluated}};
 }
 
-json NumericsJson(const AuditRun& run) {
+json NumericsJson(const RunResult& run) {
   return {{"alias_tolerance", run.fit.alias_tolerance},
           {"rank", run.fit.k},
           {"design_columns", run.design.column_count()},
@@ -172,12 +167,6 @@ json NumericsJson(const AuditRun& run) {
           {"refinement_tolerance", run.options.fit.refinement_tolerance},
           {"tie_relative_tolerance", kTieRelativeTolerance},
           {"replay_relative_tolerance", 1e-9}};
-}
-
-std::string JoinNames(const std::vector<std::string>& names) {
-  std::string text;
-  for (const std::string& name : names) text += (text.empty() ? "" : ", ") + name;
-  return text;
 }
 
 }  // namespace
@@ -191,198 +180,47 @@ std::string UtcTimestamp() {
   return buffer;
 }
 
-std::string FingerprintFile(const std::filesystem::path& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw InputError(path.string() + ": cannot open the data file");
-  DataFingerprint fingerprint;
-  std::vector<char> buffer(1 << 16);
-  while (in) {
-    in.read(buffer.data(), static_cast<std::streamsize>(buffer.size()));
-    const std::streamsize got = in.gcount();
-    if (got > 0) fingerprint.Update(std::string_view(buffer.data(), static_cast<std::size_t>(got)));
-  }
-  if (in.bad()) throw InputError(path.string() + ": read error");
-  return fingerprint.Finish();
-}
-
-AuditRun RunPlanForAudit(const std::filesystem::path& data, const LoadedPlan& plan,
-                         const AuditRunOptions& options, SearchObserver* observer) {
-  const auto started = std::chrono::steady_clock::now();
-  if (options.threads < 1) {
-    throw InputError("threads: expected at least 1, got " + std::to_string(options.threads));
-  }
-  options.fit.Validate();
-  AuditRun run;
-  run.plan = plan;
-  run.options = options;
-  run.options.csv.missing_tokens = plan.plan.missing_tokens;
-  run.data_file_name = data.filename().string();
-
-  run.profile = ProfileCsv(data, run.options.csv);
-  run.design = BuildDesign(plan.plan.design, run.profile);
-  CheckPlanAgainstDesign(plan.plan, run.design);
-  ValidateSearchOptions(plan.plan.search, run.design);
-
-  PassOptions pass_options;
-  pass_options.csv = run.options.csv;
-  pass_options.threads = options.threads;
-  DataFingerprint fingerprint;
-  PassResult pass = RunFactorPass(data, run.design, pass_options,
-                                  [&fingerprint](std::string_view bytes) { fingerprint.Update(bytes); });
-  run.data_bytes = fingerprint.total_bytes();
-  run.data_sha256 = fingerprint.Finish();
-  run.accounting = pass.accounting;
-
-  SearchRunOptions search_run;
-  search_run.kernel = options.fit.kernel;
-  run.search = RunSearch(pass.factor, run.design, plan.plan.search, observer, search_run);
-
-  FitOptions fit_options = options.fit;
-  fit_options.cp_sigma2 = run.search.cp_sigma2;
-  const RowReplay replay = FileRowReplay(data, run.design, run.options.csv);
-  run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
-  if (options.diagnostics && run.fit.n > 0) {
-    run.diagnostics = DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
-    for (const RowDiagnostic& row : run.diagnostics->rows) {
-      if (!run.max_leverage || row.leverage > *run.max_leverage) {
-        run.max_leverage = row.leverage;
-        run.max_leverage_line = row.line;
+json CautionsToJson(const std::vector<Caution>& cautions) {
+  json array = json::array();
+  for (const Caution& caution : cautions) {
+    json entry{{"kind", ToString(caution.kind)}, {"message", caution.message}};
+    switch (caution.kind) {
+      case CautionKind::kPostSelectionInference:
+        entry["candidate_terms"] = caution.candidate_terms.value_or(0);
+        break;
+      case CautionKind::kCollinearity:
+        if (!caution.largest_vif_column.empty()) {
+          entry["largest_vif"] = {{"column", caution.largest_vif_column},
+                                  {"vif", NumberOrNull(caution.largest_vif)}};
+        }
+        entry["vif_threshold"] = NumberOrNull(caution.vif_threshold);
+        entry["ties"] = caution.ties;
+        break;
+      case CautionKind::kExtrapolation: {
+        json ranges = json::array();
+        for (const QuotedRange& range : caution.ranges) {
+          ranges.push_back({{"column", range.column},
+                            {"min", NumberOrNull(range.min)},
+                            {"max", NumberOrNull(range.max)},
+                            {"over", range.over_rows_used ? "rows used" : "rows read"}});
+        }
+        entry["ranges"] = std::move(ranges);
+        entry["max_leverage"] = NumberOrNull(caution.max_leverage);
+        break;
       }
+      case CautionKind::kExcludedTerms:
+        entry["terms"] = caution.terms;
+        break;
+      case CautionKind::kAssociation:
+      case CautionKind::kNoResidualDf:
+        break;
     }
+    array.push_back(std::move(entry));
   }
-  run.duration_seconds =
-      std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
-  return run;
+  return array;
 }
 
-json AuditCautions(const AuditRun& run) {
-  json cautions = json::array();
-  const SearchResult& search = run.search;
-  const FitResult& fit = run.fit;
-
-  if (search.method != Method::kNone) {
-    const std::size_t candidates = run.design.terms.size();
-    cautions.push_back(
-        {{"kind", "post-selection-inference"},
-         {"message",
-          "The p-values, standard errors and confidence intervals of the selected model ignore "
-          "the selection (" + std::string(ToString(search.method)) + " by " +
-              ToString(search.criterion) + " over " + std::to_string(candidates) +
-              " candidate terms) and are optimistic; judge the model on held-out data or by "
-              "cross-validation."},
-         {"candidate_terms", candidates}});
-  }
-
-  // Collinearity: the largest VIF of the final model, the ones above the threshold, and ties.
-  const CoefficientEstimate* largest = nullptr;
-  std::vector<std::string> high;
-  for (const CoefficientEstimate& coefficient : fit.coefficients) {
-    if (!coefficient.vif || !std::isfinite(*coefficient.vif)) continue;
-    if (largest == nullptr || *coefficient.vif > *largest->vif) largest = &coefficient;
-    if (*coefficient.vif > run.options.vif_caution) {
-      high.push_back(coefficient.name + " (" + FormatShort(*coefficient.vif) + ")");
-    }
-  }
-  std::vector<std::string> tied_steps;
-  for (const RouteStep& step : search.steps) {
-    if (!step.ties.empty()) {
-      tied_steps.push_back("step " + std::to_string(step.index) + ": " + step.term + " tied with " +
-                           JoinNames(step.ties));
-    }
-  }
-  if (largest != nullptr || !tied_steps.empty()) {
-    std::string message = "With correlated predictors the route is unstable: terms can trade "
-                          "places on slightly different data.";
-    if (largest != nullptr) {
-      message += " Largest VIF in the final model: " + largest->name + " " +
-                 FormatShort(*largest->vif) + ".";
-    }
-    if (!high.empty()) {
-      message += " VIF above " + FormatShort(run.options.vif_caution) + ": " + JoinNames(high) + ".";
-    }
-    if (!tied_steps.empty()) message += " Ties broken by plan order: " + JoinNames(tied_steps) + ".";
-    json caution{{"kind", "collinearity"}, {"message", message}};
-    if (largest != nullptr) {
-      caution["largest_vif"] = {{"column", largest->name}, {"vif", NumberOrNull(largest->vif)}};
-    }
-    caution["vif_threshold"] = run.options.vif_caution;
-    caution["ties"] = tied_steps;
-    cautions.push_back(std::move(caution));
-  }
-
-  // Extrapolation: the ranges of the source columns of the final terms, and the largest leverage.
-  // Over the rows used when the diagnostics pass recorded them (the ranges predict checks: a
-  // numeric term's values are the column's, a log term's bounds are exp of the recorded ones);
-  // else over every row read (the profile), which can only be wider.
-  auto range_over_rows_used = [&run](const std::string& column) -> std::optional<std::pair<double, double>> {
-    const TermRange* log_range = nullptr;
-    for (const TermRange& range : run.prediction_support.ranges) {
-      if (range.column != column) continue;
-      if (range.kind == TermKind::kNumeric) return std::pair{range.min, range.max};
-      if (range.kind == TermKind::kLog) log_range = &range;
-    }
-    if (log_range != nullptr) return std::pair{std::exp(log_range->min), std::exp(log_range->max)};
-    return std::nullopt;
-  };
-  json ranges = json::array();
-  std::vector<std::string> seen;
-  std::string range_text;
-  for (std::size_t term_index : fit.term_indices) {
-    const DesignTerm& term = run.design.terms[term_index];
-    if (term.kind != TermKind::kNumeric && term.kind != TermKind::kPower &&
-        term.kind != TermKind::kLog) {
-      continue;
-    }
-    if (std::find(seen.begin(), seen.end(), term.source_column) != seen.end()) continue;
-    seen.push_back(term.source_column);
-    const ColumnProfile* column = run.profile.Find(term.source_column);
-    if (column == nullptr) continue;
-    const auto used = range_over_rows_used(column->name);
-    const double low = used ? used->first : column->min;
-    const double high = used ? used->second : column->max;
-    ranges.push_back({{"column", column->name},
-                      {"min", NumberOrNull(low)},
-                      {"max", NumberOrNull(high)},
-                      {"over", used ? "rows used" : "rows read"}});
-    range_text += (range_text.empty() ? "" : ", ") + column->name + " " + FormatShort(low) + " to " +
-                  FormatShort(high);
-  }
-  std::string extrapolation = "Predictions for rows outside the ranges of these data";
-  if (!range_text.empty()) extrapolation += " (" + range_text + ")";
-  if (run.max_leverage) {
-    extrapolation += " or with leverage above " + FormatShort(*run.max_leverage) +
-                     " (the largest here, line " + std::to_string(run.max_leverage_line) + ")";
-  }
-  extrapolation += " are extrapolations and are flagged.";
-  cautions.push_back({{"kind", "extrapolation"},
-                      {"message", extrapolation},
-                      {"ranges", std::move(ranges)},
-                      {"max_leverage", NumberOrNull(run.max_leverage)}});
-
-  cautions.push_back(
-      {{"kind", "association"},
-       {"message",
-        "A selected term is an association in these data, not a cause. In pricing, protected "
-        "characteristics and their proxies must not be used; local law and professional "
-        "standards govern."}});
-
-  if (!search.excluded.empty() || !fit.aliased_columns.empty()) {
-    std::vector<std::string> parts;
-    for (const ExcludedTerm& term : search.excluded) parts.push_back(term.term + ": " + term.reason);
-    for (const std::string& column : fit.aliased_columns) parts.push_back(column + ": aliased");
-    cautions.push_back({{"kind", "excluded-terms"},
-                        {"message", "Left out of the search or the fit: " + JoinNames(parts) + "."},
-                        {"terms", parts}});
-  }
-  if (fit.status == FitStatus::kNoResidualDf) {
-    cautions.push_back({{"kind", "no-residual-df"},
-                        {"message", "No residual degrees of freedom (n <= k): no standard errors "
-                                    "or tests for the final model."}});
-  }
-  return cautions;
-}
-
-json BuildAuditDocument(const AuditRun& run, const AuditDocumentOptions& options) {
+json BuildAuditDocument(const RunResult& run, const AuditDocumentOptions& options) {
   json document;
   document["format"] = kAuditFormat;
   document["format_version"] = kAuditFormatVersion;
@@ -404,7 +242,7 @@ json BuildAuditDocument(const AuditRun& run, const AuditDocumentOptions& options
   document["model"] = ModelToJson(run.fit);
   document["numerics"] = NumericsJson(run);
   document["prediction"] = PredictionSectionJson(run.fit, run.design, run.prediction_support);
-  document["cautions"] = AuditCautions(run);
+  document["cautions"] = CautionsToJson(ComputeCautions(run));
   if (options.parent) document["parent"] = *options.parent;
   if (options.comparison) document["comparison"] = *options.comparison;
   return document;
@@ -478,29 +316,7 @@ void SealAuditDocument(json& document, const Ed25519Signer* signer) {
 std::string SerializeAudit(const json& document) { return document.dump(2) + "\n"; }
 
 json ReadAuditFile(const std::filesystem::path& path) {
-  std::ifstream in(path, std::ios::binary);
-  if (!in) throw InputError(path.string() + ": cannot open the audit file");
-  std::ostringstream buffer;
-  buffer << in.rdbuf();
-  if (in.bad()) throw InputError(path.string() + ": read error");
-  const std::string text = buffer.str();
-  json document;
-  try {
-    document = json::parse(text);
-  } catch (const json::parse_error& error) {
-    // Line and column of the byte where parsing failed.
-    std::uint64_t line = 1, column = 1;
-    const std::size_t end = std::min<std::size_t>(error.byte > 0 ? error.byte - 1 : 0, text.size());
-    for (std::size_t i = 0; i < end; ++i) {
-      if (text[i] == '\n') {
-        ++line;
-        column = 1;
-      } else {
-        ++column;
-      }
-    }
-    throw InputError(FormatLocation(path.string(), line, column) + ": malformed JSON in the audit file");
-  }
+  const json document = ParseStrictJson(ReadWholeFile(path, "audit file"), path.string());
   if (!document.is_object() || !document.contains("format") ||
       document["format"] != std::string(kAuditFormat)) {
     throw InputError(path.string() + ": not a stepledger audit (key 'format' is not \"" +
@@ -517,38 +333,33 @@ json ReadAuditFile(const std::filesystem::path& path) {
   return document;
 }
 
-json WriteAuditDocument(const AuditRun& run, const AuditDocumentOptions& document_options,
-                        const AuditOutputOptions& output) {
-  // Everything that can fail without touching the file system comes first.
+json BuildSealedAudit(const RunResult& run, const AuditDocumentOptions& document_options,
+                      const std::filesystem::path& sign_key) {
   std::optional<Ed25519Signer> signer;
-  if (!output.sign_key.empty()) signer.emplace(Ed25519Signer::FromPemFile(output.sign_key));
+  if (!sign_key.empty()) signer.emplace(Ed25519Signer::FromPemFile(sign_key));
   json document = BuildAuditDocument(run, document_options);
   SealAuditDocument(document, signer ? &*signer : nullptr);
-  const std::string text = SerializeAudit(document);
-
-  const std::filesystem::path folder = output.folder.empty() ? std::filesystem::path(".") : output.folder;
-  const std::filesystem::path file = folder / kAuditFileName;
-  std::error_code error;
-  bool created_folder = false;
-  if (!std::filesystem::exists(folder, error)) {
-    if (!std::filesystem::create_directory(folder, error)) {
-      throw InputError(folder.string() + ": cannot create the output folder: " + error.message());
-    }
-    created_folder = true;
-  } else if (!std::filesystem::is_directory(folder, error)) {
-    throw InputError(folder.string() + ": the output folder is not a folder");
-  }
-  try {
-    WriteFileAtomically(file, text, AtomicWriteOptions{.overwrite = output.overwrite});
-  } catch (...) {
-    if (created_folder) std::filesystem::remove(folder, error);  // leave things as they were
-    throw;
-  }
   return document;
 }
 
-AuditRunOptions RunOptionsFromSettings(const json& settings) {
-  AuditRunOptions options;
+void WriteAuditFolder(const std::filesystem::path& folder, const json& sealed_document,
+                      std::vector<OutputFile> extra_files, bool overwrite) {
+  std::vector<OutputFile> files;
+  files.push_back({std::string(kAuditFileName), SerializeAudit(sealed_document)});
+  for (OutputFile& file : extra_files) files.push_back(std::move(file));
+  WriteOutputFolder(folder.empty() ? std::filesystem::path(".") : folder, files,
+                    AtomicWriteOptions{.overwrite = overwrite});
+}
+
+json WriteAuditDocument(const RunResult& run, const AuditDocumentOptions& document_options,
+                        const AuditOutputOptions& output) {
+  json document = BuildSealedAudit(run, document_options, output.sign_key);
+  WriteAuditFolder(output.folder, document, {}, output.overwrite);
+  return document;
+}
+
+RunOptions RunOptionsFromSettings(const json& settings) {
+  RunOptions options;
   if (!settings.is_object()) return options;
   if (settings.contains("delimiter") && settings["delimiter"].is_string()) {
     const std::string delimiter = settings["delimiter"].get<std::string>();

@@ -6,6 +6,7 @@
 #include <sstream>
 
 #include "stepledger/audit/canonical_json.h"
+#include "stepledger/audit/replay.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
@@ -368,15 +369,17 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   report.replay = Check::kHolds;
   json replayed;
   try {
-    const json plan = document.at("plan");
-    const LoadedPlan loaded = ParsePlanText(plan.at("verbatim").get<std::string>(), "audit plan.verbatim");
-    AuditRunOptions run_options = RunOptionsFromSettings(document.value("settings", json::object()));
-    if (options.threads > 0) run_options.threads = options.threads;
-    const AuditRun run = RunPlanForAudit(options.data, loaded, run_options);
+    ReplayOverrides overrides;
+    if (options.threads > 0) overrides.threads = options.threads;
+    const RunResult run = ReplayRecordedPlan(document, options.data, "audit", overrides);
     AuditDocumentOptions document_options;
     document_options.created_at = document.value("created_at", std::string("unknown"));
     replayed = BuildAuditDocument(run, document_options);
   } catch (const json::exception& error) {
+    report.replay = Check::kFails;
+    report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
+    return report;
+  } catch (const PlanError& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
     return report;

@@ -13,7 +13,7 @@
 
 #include "commands.h"
 #include "laptop_listings.h"
-#include "stepledger/audit/atomic_file.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/cli/run_cli.h"
 #include "stepledger/engine/errors.h"

@@ -12,12 +12,16 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
+#include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/run/cautions.h"
+#include "stepledger/run/run_plan.h"
+#include "stepledger/io/plan_file.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/number_format.h"
 #include "stepledger/engine/profile.h"
 
 namespace stepledger::cli {
@@ -31,12 +35,6 @@ struct FitArgs {
   /// VIF above which a coefficient is named in the cautions (common practice: 10).
   double vif_caution = 10;
 };
-
-std::string Format(double value, const char* format = "%.6g") {
-  char buffer[48];
-  std::snprintf(buffer, sizeof buffer, format, value);
-  return buffer;
-}
 
 struct DiagnosticsSummary {
   std::optional<double> max_leverage, max_cooks_distance, press;
@@ -66,80 +64,6 @@ DiagnosticsSummary Summarize(const DiagnosticsResult& diagnostics) {
   return summary;
 }
 
-// Range of each source column behind a numeric, power or log term: predictions outside
-// these are extrapolations.
-struct ColumnRange {
-  std::string column;
-  double min = 0, max = 0;
-};
-
-std::vector<ColumnRange> SourceRanges(const Design& design, const DataProfile& profile) {
-  std::vector<ColumnRange> ranges;
-  for (const DesignTerm& term : design.terms) {
-    if (term.kind != TermKind::kNumeric && term.kind != TermKind::kPower &&
-        term.kind != TermKind::kLog) {
-      continue;
-    }
-    const bool seen = std::any_of(ranges.begin(), ranges.end(), [&](const ColumnRange& range) {
-      return range.column == term.source_column;
-    });
-    if (seen) continue;
-    if (const ColumnProfile* column = profile.Find(term.source_column)) {
-      // Profile ranges cover every present cell; the used rows lie inside them.
-      ranges.push_back({column->name, column->min, column->max});
-    }
-  }
-  return ranges;
-}
-
-std::vector<std::string> Cautions(const FitResult& fit, const DiagnosticsSummary& diagnostics,
-                                  const std::vector<ColumnRange>& ranges, const FitArgs& args) {
-  std::vector<std::string> cautions;
-  cautions.push_back(
-      "A coefficient is an association in these data, not a cause. In pricing, protected "
-      "characteristics and their proxies must not be used; local law and professional "
-      "standards govern.");
-  std::string extrapolation =
-      "Predictions for rows outside the ranges of these data";
-  if (!ranges.empty()) {
-    extrapolation += " (";
-    for (std::size_t i = 0; i < ranges.size(); ++i) {
-      if (i > 0) extrapolation += ", ";
-      extrapolation += ranges[i].column + " " + Format(ranges[i].min) + " to " +
-                       Format(ranges[i].max);
-    }
-    extrapolation += ")";
-  }
-  if (diagnostics.max_leverage) {
-    extrapolation += " or with leverage above " + Format(*diagnostics.max_leverage, "%.4g") +
-                     " (the largest here)";
-  }
-  extrapolation += " are extrapolations.";
-  cautions.push_back(extrapolation);
-
-  std::string high_vif;
-  for (const CoefficientEstimate& coefficient : fit.coefficients) {
-    if (coefficient.vif && *coefficient.vif > args.vif_caution) {
-      if (!high_vif.empty()) high_vif += ", ";
-      high_vif += coefficient.name + " (" + Format(*coefficient.vif, "%.4g") + ")";
-    }
-  }
-  if (!high_vif.empty()) {
-    cautions.push_back("VIF above " + Format(args.vif_caution) + ": " + high_vif +
-                       "; these estimates are unstable under collinearity and their standard "
-                       "errors are inflated.");
-  }
-  if (!fit.aliased_columns.empty()) {
-    std::string names;
-    for (const std::string& name : fit.aliased_columns) names += (names.empty() ? "" : ", ") + name;
-    cautions.push_back("Aliased with earlier columns and not estimated: " + names + ".");
-  }
-  if (fit.status == FitStatus::kNoResidualDf) {
-    cautions.push_back("No residual degrees of freedom (n <= k): no standard errors or tests.");
-  }
-  return cautions;
-}
-
 std::string RowsText(const RowAccounting& accounting) {
   std::uint64_t dropped = 0;
   for (const auto& [reason, count] : accounting.rows_dropped) dropped += count;
@@ -163,19 +87,18 @@ std::string DiagnosticsText(const DiagnosticsSummary& summary, const FitResult& 
   std::ostringstream text;
   text << "Diagnostics:\n";
   if (summary.max_leverage) {
-    text << "  largest leverage         " << Format(*summary.max_leverage, "%.4g") << " (line "
+    text << "  largest leverage         " << FormatQuantity(summary.max_leverage) << " (line "
          << summary.max_leverage_line << "; average k/n = "
-         << Format(fit.n > 0 ? static_cast<double>(fit.k) / static_cast<double>(fit.n) : 0.0,
-                   "%.4g")
+         << FormatQuantity(fit.n > 0 ? static_cast<double>(fit.k) / static_cast<double>(fit.n) : 0.0)
          << ")\n";
   }
   if (summary.max_cooks_distance) {
-    text << "  largest Cook's distance  " << Format(*summary.max_cooks_distance, "%.4g")
+    text << "  largest Cook's distance  " << FormatQuantity(summary.max_cooks_distance)
          << " (line " << summary.max_cooks_line << ")\n";
   }
   text << "  PRESS                    "
-       << (summary.press ? Format(*summary.press) : std::string("undefined (some leverage is 1)"))
-       << " (RSS " << Format(fit.rss) << ")\n";
+       << (summary.press ? FormatQuantity(summary.press) : std::string("undefined (some leverage is 1)"))
+       << " (RSS " << FormatQuantity(fit.rss) << ")\n";
   text << "  |standardized residual| > 3: " << summary.large_residuals << " rows";
   if (!summary.large_residual_lines.empty()) {
     text << " (lines ";
@@ -196,66 +119,49 @@ nlohmann::json NullableLine(const std::optional<double>& value, std::uint64_t li
 
 int RunFit(const FitArgs& args, CommandContext& context) {
   auto& log = *context.log;
-  const LoadedPlan loaded = LoadPlanFile(args.plan);
-  const Plan& plan = loaded.plan;
-
-  CsvOptions csv = MakeCsvOptions(context.common);
-  csv.missing_tokens = plan.missing_tokens;
-
-  log.info("profiling {}", args.data);
-  const DataProfile profile = ProfileCsv(args.data, csv);
-  const Design design = BuildDesign(plan.design, profile);
-  for (const auto& [term, reason] : design.skipped) log.warn("term '{}' skipped: {}", term, reason);
-
-  PassOptions pass_options;
-  pass_options.csv = csv;
-  pass_options.threads = context.common.threads;
-  log.info("factor pass over {} ({} design columns)", args.data, design.column_count());
-  const PassResult pass = RunFactorPass(args.data, design, pass_options);
-
-  std::vector<std::size_t> all_terms(design.terms.size());
-  std::iota(all_terms.begin(), all_terms.end(), std::size_t{0});
-  FitOptions fit_options;
-  fit_options.confidence_level = args.confidence_level;
-  fit_options.max_refinement_passes = args.refinement_passes;
-  fit_options.Validate();
-  const RowReplay replay = FileRowReplay(args.data, design, csv);
-  const FitResult fit = FitModel(pass.factor, design, all_terms, fit_options, &replay);
+  // fit is a run of the plan with method "none": every eligible term, no selection, the same
+  // pipeline (profile, factor pass, refined fit, diagnostics, cautions) as select, no audit.
+  LoadedPlan loaded = LoadPlanFile(args.plan);
+  loaded.plan.search.method = Method::kNone;
+  RunOptions options;
+  options.csv = MakeCsvOptions(context.common);
+  options.threads = context.common.threads;
+  options.fit.confidence_level = args.confidence_level;
+  options.fit.max_refinement_passes = args.refinement_passes;
+  options.vif_caution = args.vif_caution;
+  log.info("fitting the plan {} on {}", args.plan, args.data);
+  const RunResult run = RunPlan(args.data, loaded, options);
+  for (const auto& [term, reason] : run.design.skipped) log.warn("term '{}' skipped: {}", term, reason);
+  const FitResult& fit = run.fit;
   log.info("fit: {} refinement passes, last correction {:.3g}", fit.refinement_passes,
            fit.refinement_correction);
 
-  const DiagnosticsResult diagnostics = ComputeDiagnostics(fit, design, replay);
-  const DiagnosticsSummary summary = Summarize(diagnostics);
-  const std::vector<ColumnRange> ranges = SourceRanges(design, profile);
-  const std::vector<std::string> cautions = Cautions(fit, summary, ranges, args);
+  const DiagnosticsSummary summary =
+      run.diagnostics ? Summarize(*run.diagnostics) : DiagnosticsSummary{};
+  const std::vector<Caution> cautions = ComputeCautions(run);
 
   if (context.common.json) {
     nlohmann::json result = ModelToJson(fit);
     nlohmann::json dropped = nlohmann::json::object();
-    for (const auto& [reason, count] : pass.accounting.rows_dropped) dropped[reason] = count;
-    nlohmann::json column_ranges = nlohmann::json::array();
-    for (const ColumnRange& range : ranges) {
-      column_ranges.push_back({{"column", range.column}, {"min", range.min}, {"max", range.max}});
-    }
+    for (const auto& [reason, count] : run.accounting.rows_dropped) dropped[reason] = count;
     result["data"] = {{"file", args.data},
-                      {"rows_read", pass.accounting.rows_read},
-                      {"rows_used", pass.accounting.rows_used},
-                      {"rows_dropped", std::move(dropped)},
-                      {"ranges", std::move(column_ranges)}};
+                      {"rows_read", run.accounting.rows_read},
+                      {"rows_used", run.accounting.rows_used},
+                      {"rows_dropped", std::move(dropped)}};
     result["diagnostics"] = {
         {"max_leverage", NullableLine(summary.max_leverage, summary.max_leverage_line)},
         {"max_cooks_distance", NullableLine(summary.max_cooks_distance, summary.max_cooks_line)},
         {"press", NumberOrNull(summary.press)},
         {"large_standardized_residuals", summary.large_residuals}};
-    result["cautions"] = cautions;
+    result["cautions"] = CautionsToJson(cautions);
     context.out << result.dump(2) << "\n";
     return 0;
   }
 
-  context.out << fit.FullReport() << "\n" << RowsText(pass.accounting);
+  context.out << fit.FullReport() << "\n" << RowsText(run.accounting);
   if (!context.common.quiet) {
     context.out << "\n" << DiagnosticsText(summary, fit) << "\nCautions:\n";
-    for (const std::string& caution : cautions) context.out << "  - " << caution << "\n";
+    for (const Caution& caution : cautions) context.out << "  - " << caution.message << "\n";
   }
   return 0;
 }

@@ -8,6 +8,7 @@
 #include "stepledger/audit/audit_compare.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
+#include "stepledger/audit/replay.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger::cli {
@@ -29,22 +30,19 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
     throw InputError(args.audit + ": the parent audit does not verify (" + integrity.problems.front() +
                      "); run 'stepledger verify' on it");
   }
-  const nlohmann::json& plan = parent.at("plan");
-  const LoadedPlan loaded =
-      ParsePlanText(plan.at("verbatim").get<std::string>(), args.audit + " plan.verbatim");
-  AuditRunOptions options = RunOptionsFromSettings(parent.value("settings", nlohmann::json::object()));
+  ReplayOverrides overrides;
   if (args.delimiter_option != nullptr && args.delimiter_option->count() > 0) {
-    options.csv.delimiter = MakeCsvOptions(context.common).delimiter;
+    overrides.delimiter = MakeCsvOptions(context.common).delimiter;
   }
   if (args.threads_option != nullptr && args.threads_option->count() > 0) {
-    options.threads = context.common.threads;
+    overrides.threads = context.common.threads;
   }
   if (context.log) context.log->info("running the plan of {} on {}", args.audit, args.data);
-  const AuditRun run = RunPlanForAudit(args.data, loaded, options);
+  const RunResult run = ReplayRecordedPlan(parent, args.data, args.audit, overrides);
 
   const nlohmann::json unsealed = BuildAuditDocument(run);
   nlohmann::json comparison = CompareAudits(parent, unsealed);
-  comparison["prediction"] = PredictionComparison(parent, unsealed, args.data, options.csv);
+  comparison["prediction"] = PredictionComparison(parent, unsealed, args.data, run.options.csv);
 
   AuditDocumentOptions document_options;
   document_options.parent = nlohmann::json{

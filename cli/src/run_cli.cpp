@@ -12,7 +12,7 @@
 #include <spdlog/spdlog.h>
 
 #include "commands.h"
-#include "stepledger/audit/atomic_file.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/engine/errors.h"
 
 #ifndef STEPLEDGER_VERSION

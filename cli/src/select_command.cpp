@@ -15,13 +15,14 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
-#include "stepledger/audit/atomic_file.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 #include "stepledger/audit/report.h"
 #include "stepledger/audit/route_json.h"
 #include "stepledger/audit/signature.h"
+#include "stepledger/run/cautions.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fit.h"
@@ -41,12 +42,6 @@ struct SelectArgs {
   int refinement_passes = 10;
 };
 
-std::string Format(double value, const char* format = "%.4g") {
-  char buffer[48];
-  std::snprintf(buffer, sizeof buffer, format, value);
-  return buffer;
-}
-
 /// One line on stderr per step, only when stderr is a terminal.
 class ProgressLine : public SearchObserver {
  public:
@@ -61,71 +56,20 @@ class ProgressLine : public SearchObserver {
   std::ostream& err_;
 };
 
-std::vector<std::string> SelectionCautions(const FitResult& fit) {
-  std::vector<std::string> cautions;
-  cautions.push_back(
-      "The p-values, standard errors and intervals of a selected model ignore the selection and "
-      "are optimistic; judge the model on held-out data or by cross-validation.");
-  std::optional<double> largest_vif;
-  std::string largest_name;
-  for (const CoefficientEstimate& coefficient : fit.coefficients) {
-    if (coefficient.vif && (!largest_vif || *coefficient.vif > *largest_vif)) {
-      largest_vif = coefficient.vif;
-      largest_name = coefficient.name;
-    }
-  }
-  std::string route = "With correlated predictors the route is unstable: terms can trade places "
-                      "on slightly different data";
-  if (largest_vif) {
-    route += " (largest VIF in the final model: " + largest_name + ", " + Format(*largest_vif) + ")";
-  }
-  cautions.push_back(route + ".");
-  cautions.push_back(
-      "A selected term is an association in these data, not a cause. In pricing, protected "
-      "characteristics and their proxies must not be used; local law and professional "
-      "standards govern.");
-  return cautions;
-}
-
-// Writes DIR/audit.json and DIR/report.html. The report is rendered (with the diagnostics of
-// the final model that the run's diagnostics pass computed) before anything is written; if the report cannot
-// be written, the audit written here is removed again, so that no half-done folder is left.
-void WriteAuditAndReport(const SelectArgs& args, const AuditRun& run, CommandContext& context) {
-  const std::filesystem::path folder = args.out_dir;
-  const std::filesystem::path report_path = folder / kReportFileName;
-  std::error_code error;
-  // Refuse before any work is written; WriteFileAtomically checks again, race-free.
-  for (const std::filesystem::path& path : {folder / kAuditFileName, report_path}) {
-    if (!context.common.force && std::filesystem::exists(path, error)) {
-      throw InputError(path.string() + ": file exists; use --force to overwrite");
-    }
-  }
-  const bool folder_existed = std::filesystem::exists(folder, error);
+// Writes DIR/audit.json and DIR/report.html as one unit. The audit document is built and sealed
+// once; the report is rendered from that very document (with the diagnostics of the final model
+// that the run's diagnostics pass computed) before anything is written.
+void WriteAuditAndReport(const SelectArgs& args, const RunResult& run, CommandContext& context) {
   AuditDocumentOptions document_options;
-  document_options.created_at = UtcTimestamp();  // the same document is built twice below
-  std::optional<Ed25519Signer> signer;
-  if (!args.sign_key.empty()) signer.emplace(Ed25519Signer::FromPemFile(args.sign_key));
-  nlohmann::json document = BuildAuditDocument(run, document_options);
-  SealAuditDocument(document, signer ? &*signer : nullptr);
+  const nlohmann::json document = BuildSealedAudit(run, document_options, args.sign_key);
   std::optional<ReportDiagnostics> diagnostics;
   if (run.diagnostics) diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma};
   std::string report = RenderHtmlReport(document, diagnostics ? &*diagnostics : nullptr);
-
-  const nlohmann::json written = WriteAuditDocument(
-      run, document_options, AuditOutputOptions{args.out_dir, context.common.force, args.sign_key});
-  const std::filesystem::path audit_path = folder / kAuditFileName;
-  context.log->info("wrote {} (seal {})", audit_path.string(), written.value("seal", ""));
-  try {
-    if (written != document) {  // cannot happen with a deterministic document; render the file's
-      report = RenderHtmlReport(written, diagnostics ? &*diagnostics : nullptr);
-    }
-    WriteFileAtomically(report_path, report, AtomicWriteOptions{.overwrite = context.common.force});
-  } catch (...) {
-    std::filesystem::remove(audit_path, error);
-    if (!folder_existed) std::filesystem::remove(folder, error);
-    throw;
-  }
-  context.log->info("wrote {}", report_path.string());
+  WriteAuditFolder(args.out_dir, document, {{std::string(kReportFileName), std::move(report)}},
+                   context.common.force);
+  const std::filesystem::path folder = args.out_dir;
+  context.log->info("wrote {} (seal {}) and {}", (folder / kAuditFileName).string(),
+                    document.value("seal", ""), (folder / kReportFileName).string());
 }
 
 int RunSelect(const SelectArgs& args, CommandContext& context) {
@@ -165,7 +109,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   }
 
   // The same run as the one `verify --data` replays (audit/audit_document.h).
-  AuditRunOptions run_options;
+  RunOptions run_options;
   run_options.csv = MakeCsvOptions(context.common);
   run_options.threads = context.common.threads;
   run_options.fit.max_refinement_passes = args.refinement_passes;
@@ -173,18 +117,18 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   ProgressLine progress(context.err);
   const bool show_progress = !context.common.quiet && isatty(STDERR_FILENO) != 0;
   log.info("running the plan on {}", args.data);
-  const AuditRun run =
-      RunPlanForAudit(args.data, loaded, run_options, show_progress ? &progress : nullptr);
+  const RunResult run =
+      RunPlan(args.data, loaded, run_options, show_progress ? &progress : nullptr);
   for (const auto& [term, reason] : run.design.skipped) log.warn("term '{}' skipped: {}", term, reason);
   log.info("search: {} ({} steps)", ToString(run.search.outcome), run.search.steps.size());
   const SearchResult& result = run.search;
   const FitResult& fit = run.fit;
-  const std::vector<std::string> cautions = SelectionCautions(fit);
+  const std::vector<Caution> cautions = ComputeCautions(run);
 
   nlohmann::json document = RouteToJson(result);
   document["search"] = SearchSummaryToJson(result);
   document["model"] = ModelToJson(fit);
-  document["cautions"] = cautions;
+  document["cautions"] = CautionsToJson(cautions);
   document["data"] = {{"file", args.data},
                       {"rows_read", run.accounting.rows_read},
                       {"rows_used", run.accounting.rows_used}};
@@ -198,7 +142,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   context.out << result.FullReport() << "\nFinal model\n" << fit.FullReport();
   if (!context.common.quiet) {
     context.out << "\nCautions:\n";
-    for (const std::string& caution : cautions) context.out << "  - " << caution << "\n";
+    for (const Caution& caution : cautions) context.out << "  - " << caution.message << "\n";
   }
   return 0;
 }

@@ -36,6 +36,8 @@ std::string FormatQuantity(std::optional<double> value, int significant) {
   significant = std::clamp(significant, 1, 17);
   const double x = *value;
   if (x == 0) return "0";
+  // A whole number (a count, an age in months, a price in whole units) prints as one.
+  if (std::fabs(x) < 1e15 && x == std::nearbyint(x)) return GroupThousands(Printf("%.*f", 0, x));
   // Round to the significant digits first, so that 9.99996 at 4 digits is seen as 10.00 and
   // gets the decimals of a two-digit integer part.
   const std::string rounded = Printf("%.*e", significant - 1, x);

@@ -3,7 +3,7 @@
 //
 //   select_with_library DATA.csv PLAN.json
 //
-// RunPlanForAudit is the whole pipeline of `stepledger select` (profile the columns, build the
+// RunPlan is the whole pipeline of `stepledger select` (profile the columns, build the
 // design, one streaming pass folding the factor, the search, the refined fit of the final
 // model); the lower-level steps (ProfileCsv, BuildDesign, RunFactorPass, RunSearch, FitModel)
 // are public too, for programs that need to stop in between.
@@ -14,7 +14,7 @@
 #include <iostream>
 
 #include "stepledger/audit/audit_document.h"
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 #include "stepledger/engine/errors.h"
 
 int main(int argc, char** argv) {
@@ -25,11 +25,11 @@ int main(int argc, char** argv) {
   try {
     const stepledger::LoadedPlan plan = stepledger::LoadPlanFile(argv[2]);
 
-    stepledger::AuditRunOptions options;
+    stepledger::RunOptions options;
     options.threads = 1;
     // No diagnostics pass: this program prints the model, it does not price new rows.
     options.diagnostics = false;
-    const stepledger::AuditRun run = stepledger::RunPlanForAudit(argv[1], plan, options);
+    const stepledger::RunResult run = stepledger::RunPlan(argv[1], plan, options);
 
     std::cout << "rows read " << run.accounting.rows_read << ", used " << run.accounting.rows_used
               << "\n\n"

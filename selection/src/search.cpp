@@ -13,8 +13,7 @@ namespace stepledger {
 using selection_detail::Num;
 using selection_detail::SearchContext;
 
-void ValidateSearchOptions(const SearchOptions& options, const Design& design,
-                           bool allow_cycling_thresholds) {
+void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds) {
   if (options.criterion == Criterion::kCv) {
     throw PlanError("criterion",
                     "criterion 'cv' (cross-validated error) is not available yet; use adj-r2, "
@@ -31,7 +30,7 @@ void ValidateSearchOptions(const SearchOptions& options, const Design& design,
       options.criterion == Criterion::kPartialF && options.entry_p > options.exit_p) {
     throw PlanError("entry_p", "entry_p " + Num(options.entry_p) + " is above exit_p " +
                                    Num(options.exit_p) +
-                                   ": stepwise partial-f could add and remove the same term "
+                                   ": stepwise by partial F could add and remove the same term "
                                    "forever; make entry_p <= exit_p");
   }
   if (options.best_per_size < 1) throw PlanError("best_per_size", "best_per_size must be at least 1");
@@ -41,15 +40,14 @@ void ValidateSearchOptions(const SearchOptions& options, const Design& design,
   std::set<std::string> kept;
   for (std::size_t position = 0; position < options.keep.size(); ++position) {
     const std::string key = "keep[" + std::to_string(position) + "]";
-    const auto& name = options.keep[position];
-    if (design.FindTerm(name) == kNoTerm) throw PlanError(key, "unknown term '" + name + "'");
-    if (!kept.insert(name).second) throw PlanError(key, "term '" + name + "' is listed twice");
+    if (!kept.insert(options.keep[position]).second) {
+      throw PlanError(key, "term '" + options.keep[position] + "' is listed twice");
+    }
   }
   std::set<std::string> never;
   for (std::size_t position = 0; position < options.never.size(); ++position) {
     const std::string key = "never[" + std::to_string(position) + "]";
     const auto& name = options.never[position];
-    if (design.FindTerm(name) == kNoTerm) throw PlanError(key, "unknown term '" + name + "'");
     if (kept.count(name)) throw PlanError(key, "term '" + name + "' is also in keep");
     if (!never.insert(name).second) throw PlanError(key, "term '" + name + "' is listed twice");
   }
@@ -57,6 +55,25 @@ void ValidateSearchOptions(const SearchOptions& options, const Design& design,
     throw PlanError("max_terms", "max_terms " + std::to_string(*options.max_terms) + " is below the " +
                                      std::to_string(options.keep.size()) + " kept terms");
   }
+}
+
+void ValidateSearchOptions(const SearchOptions& options, const Design& design,
+                           bool allow_cycling_thresholds) {
+  ValidateSearchSettings(options, allow_cycling_thresholds);
+  auto check_names = [&design](const std::vector<std::string>& names, const char* list) {
+    for (std::size_t position = 0; position < names.size(); ++position) {
+      if (design.FindTerm(names[position]) != kNoTerm) continue;
+      std::string made;
+      for (std::size_t t = 0; t < design.terms.size() && t < 12; ++t) {
+        made += (t == 0 ? "'" : ", '") + design.terms[t].name + "'";
+      }
+      if (design.terms.size() > 12) made += ", ...";
+      throw PlanError(std::string(list) + "[" + std::to_string(position) + "]",
+                      "no term named '" + names[position] + "' in the design (its terms: " + made + ")");
+    }
+  };
+  check_names(options.keep, "keep");
+  check_names(options.never, "never");
 }
 
 SearchResult RunSearch(const Factor& factor, const Design& design, const SearchOptions& options,

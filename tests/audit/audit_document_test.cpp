@@ -26,9 +26,9 @@ using testing::LaptopCsv;
 using testing::LaptopPlan;
 using testing::TempDir;
 
-AuditRun RunLaptops(const TempDir& dir, const std::string& plan_text = LaptopPlan()) {
+RunResult RunLaptops(const TempDir& dir, const std::string& plan_text = LaptopPlan()) {
   const auto data = dir.Write("laptops.csv", LaptopCsv());
-  return RunPlanForAudit(data, ParsePlanText(plan_text), AuditRunOptions{});
+  return RunPlan(data, ParsePlanText(plan_text), RunOptions{});
 }
 
 AuditDocumentOptions CreatedAt(const char* timestamp) {
@@ -47,7 +47,7 @@ std::set<std::string> FolderListing(const std::filesystem::path& folder) {
 
 TEST(AuditDocument, HoldsTheContractKeysAndTheRoute) {
   TempDir dir;
-  const AuditRun run = RunLaptops(dir);
+  const RunResult run = RunLaptops(dir);
   json document = BuildAuditDocument(run);
   SealAuditDocument(document);
   for (const char* key : {"format", "format_version", "tool", "created_at", "duration_seconds", "plan",
@@ -110,8 +110,8 @@ TEST(AuditDocument, TwoRunsDifferOnlyInTheTimeFields) {
   TempDir dir;
   const auto data = dir.Write("laptops.csv", LaptopCsv());
   const LoadedPlan plan = ParsePlanText(LaptopPlan());
-  json first = BuildAuditDocument(RunPlanForAudit(data, plan, {}), CreatedAt("2026-01-01T00:00:00Z"));
-  json second = BuildAuditDocument(RunPlanForAudit(data, plan, {}), CreatedAt("2026-06-30T12:00:00Z"));
+  json first = BuildAuditDocument(RunPlan(data, plan, {}), CreatedAt("2026-01-01T00:00:00Z"));
+  json second = BuildAuditDocument(RunPlan(data, plan, {}), CreatedAt("2026-06-30T12:00:00Z"));
   SealAuditDocument(first);
   SealAuditDocument(second);
   EXPECT_NE(first["seal"], second["seal"]) << "the seal covers the time fields";
@@ -133,7 +133,7 @@ TEST(AuditDocument, EveryMethodGivesAnAuditTheSchemaAccepts) {
   const auto data = dir.Write("laptops.csv", LaptopCsv());
   for (const char* method : {"forward", "backward", "stepwise", "all-subsets", "none"}) {
     SCOPED_TRACE(method);
-    const AuditRun run = RunPlanForAudit(data, ParsePlanText(LaptopPlan(method, "aic")), {});
+    const RunResult run = RunPlan(data, ParsePlanText(LaptopPlan(method, "aic")), {});
     const auto folder = dir.path() / (std::string("out-") + method);
     AuditOutputOptions output;
     output.folder = folder;
@@ -181,7 +181,7 @@ TEST(AuditDocument, SignatureSignsTheSealAndRecordsThePublicKey) {
 
 TEST(AuditWriting, RefusesToOverwriteWithoutForce) {
   TempDir dir;
-  const AuditRun run = RunLaptops(dir);
+  const RunResult run = RunLaptops(dir);
   AuditOutputOptions output;
   output.folder = dir.path() / "out";
   WriteAuditDocument(run, CreatedAt("2026-01-01T00:00:00Z"), output);
@@ -202,7 +202,7 @@ TEST(AuditWriting, RefusesToOverwriteWithoutForce) {
 
 TEST(AuditWriting, AnOutputFolderThatCannotBeCreatedLeavesNothing) {
   TempDir dir;
-  const AuditRun run = RunLaptops(dir);
+  const RunResult run = RunLaptops(dir);
   dir.Write("not-a-folder", "plain file\n");
   const auto listing = FolderListing(dir.path());
   AuditOutputOptions output;
@@ -223,7 +223,7 @@ TEST(AuditWriting, AFullDiskLeavesNoPartialFile) {
   // A full disk simulated with a file-size limit (ulimit -f) in a child process: write(2) fails
   // with EFBIG once SIGXFSZ is ignored. Tests run as root, so permissions cannot simulate it.
   TempDir dir;
-  const AuditRun run = RunLaptops(dir);
+  const RunResult run = RunLaptops(dir);
   const auto folder = dir.path() / "out";
   std::filesystem::create_directory(folder);
   dir.Write("out/keep.txt", "already here\n");
@@ -267,7 +267,7 @@ TEST(AuditWriting, AFullDiskLeavesNoPartialFile) {
 
 TEST(AuditWriting, AMissingSigningKeyFailsBeforeAnythingIsWritten) {
   TempDir dir;
-  const AuditRun run = RunLaptops(dir);
+  const RunResult run = RunLaptops(dir);
   AuditOutputOptions output;
   output.folder = dir.path() / "out";
   output.sign_key = dir.path() / "no-such-key.pem";

@@ -25,7 +25,7 @@ class AuditVerify : public ::testing::Test {
   static void SetUpTestSuite() {
     folder_ = new testing::TempDir();
     data_ = folder_->Write("laptops.csv", testing::LaptopCsv());
-    sealed_ = new json(BuildAuditDocument(RunPlanForAudit(data_, ParsePlanText(testing::LaptopPlan()), {})));
+    sealed_ = new json(BuildAuditDocument(RunPlan(data_, ParsePlanText(testing::LaptopPlan()), {})));
     SealAuditDocument(*sealed_);
   }
   static void TearDownTestSuite() {
@@ -168,7 +168,7 @@ TEST_F(AuditVerify, ReplayNamesTheFirstStepWhereTheRouteDiverges) {
   const auto changed = folder_->Write("laptops-row.csv", csv);
 
   // The route on the changed data, run independently, says where the routes part.
-  const json other = BuildAuditDocument(RunPlanForAudit(changed, ParsePlanText(testing::LaptopPlan()), {}));
+  const json other = BuildAuditDocument(RunPlan(changed, ParsePlanText(testing::LaptopPlan()), {}));
   const json comparison = CompareAudits(*sealed_, other);
   ASSERT_FALSE(comparison["route"]["same"].get<bool>()) << "the changed row must change the route";
   const auto expected_step = comparison["route"]["first_difference_step"].get<std::size_t>();

@@ -13,7 +13,7 @@
 #include <gtest/gtest.h>
 
 #include "stepledger/audit/audit_document.h"
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 #include "stepledger/engine/errors.h"
 #include "support/test_paths.h"
 
@@ -96,7 +96,7 @@ std::string LogPricePlan(bool weighted, bool hierarchy = true) {
 }
 
 struct Recorded {
-  AuditRun run;
+  RunResult run;
   json audit;  ///< as a reader sees it: serialised and parsed again
   std::filesystem::path data;
 };
@@ -105,7 +105,7 @@ Recorded RunAndRecord(const TempDir& dir, const std::string& plan_text,
                       const std::vector<Listing>& listings) {
   Recorded recorded;
   recorded.data = dir.Write("stock.csv", ListingsCsv(listings));
-  recorded.run = RunPlanForAudit(recorded.data, ParsePlanText(plan_text), AuditRunOptions{});
+  recorded.run = RunPlan(recorded.data, ParsePlanText(plan_text), RunOptions{});
   json document = BuildAuditDocument(recorded.run);
   SealAuditDocument(document);
   recorded.audit = json::parse(SerializeAudit(document));

@@ -129,11 +129,8 @@ class NistCli : public ::testing::TestWithParam<NistCase> {};
 
 TEST_P(NistCli, FitJsonAgreesWithCertifiedValues) {
   const NistCase& nist_case = GetParam();
-  const auto folder = testing::NistDirectory();
-  if (!folder) {
-    GTEST_SKIP() << "NIST StRD folder not found under " << testing::ReferenceDirCandidate();
-  }
-  const NistDataset data = testing::ReadNistDataset(*folder / (std::string(nist_case.name) + ".dat"));
+  const NistDataset data =
+      testing::ReadNistDataset(testing::NistDirectory() / (std::string(nist_case.name) + ".dat"));
   testing::TempDir scratch;
   const auto csv = scratch.Write("data.csv", MakeCsv(data));
   const auto plan = scratch.Write("plan.json", MakePlan(data, nist_case));

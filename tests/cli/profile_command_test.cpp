@@ -10,7 +10,7 @@
 
 #include <nlohmann/json.hpp>
 
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 #include "support/cli_run.h"
 #include "support/test_paths.h"
 

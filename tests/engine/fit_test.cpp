@@ -119,11 +119,8 @@ TEST(Fit, IntegerWeightsEqualDuplicatedRows) {
 }
 
 TEST(Fit, HaldCementFullModel) {
-  const auto reference = testing::ReferenceDir();
-  if (!reference || !std::filesystem::exists(*reference / "hald-cement/hald.csv")) {
-    GTEST_SKIP() << "Hald cement data not found under " << testing::ReferenceDirCandidate();
-  }
-  std::ifstream file(*reference / "hald-cement/hald.csv");
+  std::ifstream file(testing::ReferenceDir() / "hald-cement/hald.csv");
+  ASSERT_TRUE(file) << "Hald cement data missing under " << testing::ReferenceDir();
   std::string line;
   std::getline(file, line);  // header x1,x2,x3,x4,y
   arma::mat x(13, 4);

@@ -12,13 +12,15 @@ namespace {
 
 TEST(NumberFormat, QuantitiesUseFixedPointWithSeparators) {
   EXPECT_EQ(FormatQuantity(1234567.8), "1,234,568");
-  EXPECT_EQ(FormatQuantity(12345.678), "12,345.7");
+  EXPECT_EQ(FormatQuantity(12345.678), "12,346");  // never fewer digits than the integer part
   EXPECT_EQ(FormatQuantity(-5.99123), "-5.991");
   EXPECT_EQ(FormatQuantity(0.0123456), "0.01235");
   EXPECT_EQ(FormatQuantity(9.99996), "10.00");
   EXPECT_EQ(FormatQuantity(999.96), "1,000");
   EXPECT_EQ(FormatQuantity(0), "0");
   EXPECT_EQ(FormatQuantity(-1234.5, 6), "-1,234.50");
+  EXPECT_EQ(FormatQuantity(40), "40");
+  EXPECT_EQ(FormatQuantity(1923), "1,923");
 }
 
 TEST(NumberFormat, ExtremeQuantitiesFallBackToScientific) {

@@ -35,16 +35,14 @@ std::vector<std::string> SortedTerms(std::vector<std::string> terms) {
 class HaldRoutes : public ::testing::Test {
  protected:
   void SetUp() override {
-    auto loaded = testing::LoadHald();
-    if (!loaded) GTEST_SKIP() << "Hald cement data not found at " << testing::HaldPath();
-    hald_ = std::move(*loaded);
+    hald_ = testing::LoadHald();
   }
   DenseProblem hald_;
 };
 
 // Source: Hald (1952) as reproduced in Draper and Smith, Applied Regression Analysis; the
 // routes are textbook results recalled from memory and confirmed by refitting every candidate
-// model (the refit oracle below, and /work/shared/reference/README.md's exact RSS table).
+// model (the refit oracle below, and tests/reference/NOTES.md's exact RSS table).
 TEST_F(HaldRoutes, StepwisePartialFAddsX4X1X2ThenRemovesX4) {
   SearchOptions options;
   options.method = Method::kStepwise;

@@ -135,7 +135,7 @@ inline std::filesystem::path WriteAuditWithLibrary(const std::filesystem::path& 
                                                    const std::string& plan_text,
                                                    const std::filesystem::path& folder,
                                                    const std::filesystem::path& sign_key = {}) {
-  const AuditRun run = RunPlanForAudit(data, ParsePlanText(plan_text), AuditRunOptions{});
+  const RunResult run = RunPlan(data, ParsePlanText(plan_text), RunOptions{});
   AuditOutputOptions output;
   output.folder = folder;
   output.sign_key = sign_key;

@@ -117,11 +117,11 @@ NistDataset ReadNistDataset(const std::filesystem::path& path) {
   return dataset;
 }
 
-std::optional<std::filesystem::path> NistDirectory() {
-  const std::optional<std::filesystem::path> reference = ReferenceDir();
-  if (!reference) return std::nullopt;
-  std::filesystem::path folder = *reference / "nist-strd";
-  if (!std::filesystem::is_directory(folder)) return std::nullopt;
+std::filesystem::path NistDirectory() {
+  std::filesystem::path folder = ReferenceDir() / "nist-strd";
+  if (!std::filesystem::is_directory(folder)) {
+    throw std::runtime_error("NIST StRD folder '" + folder.string() + "' is missing");
+  }
   return folder;
 }
 

@@ -34,7 +34,7 @@ struct NistDataset {
 NistDataset ReadNistDataset(const std::filesystem::path& path);
 
 /// The folder of the .dat files (reference folder/nist-strd), or nullopt when absent.
-std::optional<std::filesystem::path> NistDirectory();
+std::filesystem::path NistDirectory();
 
 /// Log relative error: digits of agreement -log10(|computed - certified| / |certified|), capped
 /// at 15; where certified is 0, the absolute error -log10|computed| (capped likewise).

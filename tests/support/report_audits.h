@@ -1,5 +1,5 @@
 #pragma once
-// Audits made by the real pipeline (RunPlanForAudit + WriteAuditDocument) on the invented
+// Audits made by the real pipeline (RunPlan + WriteAuditDocument) on the invented
 // laptop data of audit_test_data.h, for the report tests: stepwise BIC with a power and a
 // product (so hierarchy makes candidates ineligible), all-subsets BIC, and a logged response
 // with a categorical term.

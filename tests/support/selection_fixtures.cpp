@@ -60,13 +60,10 @@ DenseProblem MakeDenseProblem(const arma::mat& predictors, const arma::vec& y,
   return problem;
 }
 
-std::filesystem::path HaldPath() { return ReferenceDirCandidate() / "hald-cement" / "hald.csv"; }
-
-std::optional<DenseProblem> LoadHald() {
-  const auto folder = ReferenceDir();
-  if (!folder) return std::nullopt;
-  std::ifstream in(*folder / "hald-cement" / "hald.csv");
-  if (!in) return std::nullopt;
+DenseProblem LoadHald() {
+  const std::filesystem::path path = ReferenceDir() / "hald-cement" / "hald.csv";
+  std::ifstream in(path);
+  if (!in) throw std::runtime_error("Hald cement data '" + path.string() + "' cannot be read");
   std::string line;
   std::getline(in, line);  // header x1,x2,x3,x4,y
   std::vector<std::vector<double>> rows;

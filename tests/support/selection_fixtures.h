@@ -49,9 +49,8 @@ DenseProblem MakeDenseProblem(const arma::mat& predictors, const arma::vec& y,
 /// The Hald cement data (terms x1..x4, response y), or nullopt when the reference folder is
 /// absent. Source: Woods, Steinour and Starke (1932) as given in Hald (1952), reproduced in
 /// Draper and Smith, Applied Regression Analysis.
-std::optional<DenseProblem> LoadHald();
-/// Where LoadHald looks, for skip messages.
-std::filesystem::path HaldPath();
+/// Throws std::runtime_error naming the file when it is missing.
+DenseProblem LoadHald();
 
 struct RandomProblemOptions {
   std::uint64_t seed = 1;

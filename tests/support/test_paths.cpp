@@ -18,15 +18,15 @@ std::string FromEnvironmentOr(const char* name, const char* fallback) {
 
 }  // namespace
 
-std::filesystem::path ReferenceDirCandidate() {
-  return FromEnvironmentOr("STEPLEDGER_REFERENCE_DIR", STEPLEDGER_REFERENCE_DIR);
-}
-
-std::optional<std::filesystem::path> ReferenceDir() {
-  std::filesystem::path candidate = ReferenceDirCandidate();
+std::filesystem::path ReferenceDir() {
+  const std::filesystem::path folder = FromEnvironmentOr("STEPLEDGER_REFERENCE_DIR", STEPLEDGER_REFERENCE_DIR);
   std::error_code error;
-  if (std::filesystem::is_directory(candidate, error)) return candidate;
-  return std::nullopt;
+  if (!std::filesystem::is_directory(folder, error)) {
+    throw std::runtime_error("reference data folder '" + folder.string() +
+                             "' is missing (tests/reference is part of the repository; "
+                             "STEPLEDGER_REFERENCE_DIR overrides it)");
+  }
+  return folder;
 }
 
 std::string ReferencePython() {

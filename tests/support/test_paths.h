@@ -9,11 +9,10 @@
 
 namespace stepledger::testing {
 
-/// The shared reference folder (NIST StRD, Hald), or nullopt when it is absent:
-/// tests then GTEST_SKIP() with a message naming the folder they looked for.
-std::optional<std::filesystem::path> ReferenceDir();
-/// The path that ReferenceDir() looked at, for skip messages.
-std::filesystem::path ReferenceDirCandidate();
+/// The reference data folder (NIST StRD, Hald): the project's own copy, tests/reference, unless
+/// STEPLEDGER_REFERENCE_DIR points elsewhere. Throws std::runtime_error naming the folder when it
+/// is absent, so a reference test fails rather than skips.
+std::filesystem::path ReferenceDir();
 
 /// Debian's python3 (with python3-numpy/scipy/statsmodels), as configured.
 std::string ReferencePython();

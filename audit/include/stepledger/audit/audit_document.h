@@ -37,12 +37,14 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/audit/fitted_model.h"
-#include "stepledger/audit/plan_file.h"
 #include "stepledger/audit/signature.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/profile.h"
+#include "stepledger/run/cautions.h"
+#include "stepledger/run/run_plan.h"
 #include "stepledger/selection/search.h"
 
 namespace stepledger {
@@ -58,58 +60,6 @@ inline constexpr std::array<std::string_view, 2> kAuditTimeDerivedFields = {"sea
 /// File name of the audit inside an output folder.
 inline constexpr std::string_view kAuditFileName = "audit.json";
 
-/// How a plan is run for an audit. Every field is recorded under `settings` so that a replay
-/// runs the same way.
-struct AuditRunOptions {
-  /// Delimiter and block size of the reader; the missing tokens always come from the plan.
-  CsvOptions csv;
-  /// Threads folding the factor (>= 1). Default 1. Different counts agree to rounding only.
-  int threads = 1;
-  /// Confidence level, refinement and the kernel's alias tolerance of the final fit.
-  FitOptions fit;
-  /// VIF above which a final-model coefficient is named in the collinearity caution
-  /// (common practice: 10).
-  double vif_caution = 10;
-  /// Run the per-row diagnostics pass (largest leverage, for the extrapolation caution).
-  /// Default: yes (one more pass over the rows).
-  bool diagnostics = true;
-};
-
-/// Everything one run produced: the value the audit document renders.
-struct AuditRun {
-  LoadedPlan plan;
-  std::string data_file_name;       ///< the data file's name (no folder), for readers
-  std::string data_sha256;          ///< DataFingerprint over every byte read
-  std::uint64_t data_bytes = 0;
-  DataProfile profile;
-  Design design;
-  RowAccounting accounting;
-  SearchResult search;
-  FitResult fit;
-  std::optional<double> max_leverage;  ///< from the diagnostics pass, when run
-  std::uint64_t max_leverage_line = 0;
-  /// What pricing new rows needs (ranges, largest unit leverage, smearing factor); filled by
-  /// the diagnostics pass, empty without it.
-  PredictionSupport prediction_support;
-  /// The per-row diagnostics of the final model, when the diagnostics pass ran (the report
-  /// shows them; kept so that no second pass is needed).
-  std::optional<DiagnosticsResult> diagnostics;
-  AuditRunOptions options;
-  double duration_seconds = 0;      ///< wall time of the run
-};
-
-/// Runs a plan on a data file the way every audited command does: profile, design, one factor
-/// pass that also fingerprints the bytes, the search, the refined fit of the final model and
-/// (optionally) its diagnostics. `select` runs through here too, so a replay takes the very
-/// path the recorded run took. observer (optional) sees the search's events as they happen.
-/// Throws InputError/PlanError for bad input.
-AuditRun RunPlanForAudit(const std::filesystem::path& data, const LoadedPlan& plan,
-                         const AuditRunOptions& options, SearchObserver* observer = nullptr);
-
-/// The fingerprint of a file (engine/fingerprint.h) computed by reading it; throws InputError
-/// naming the file when it cannot be read.
-std::string FingerprintFile(const std::filesystem::path& path);
-
 /// Extra content of a document.
 struct AuditDocumentOptions {
   /// UTC ISO 8601 ("2026-12-01T09:30:00Z"); empty: now.
@@ -120,11 +70,11 @@ struct AuditDocumentOptions {
   std::optional<nlohmann::json> comparison;
 };
 
-/// The cautions of DESIGN.md that apply to this run, each {kind, message, ...details}.
-nlohmann::json AuditCautions(const AuditRun& run);
+/// The cautions as the audit's `cautions` array: {kind, message, and the figures each quotes}.
+nlohmann::json CautionsToJson(const std::vector<Caution>& cautions);
 
 /// The unsealed document (no digests, seal or signature; step digests absent).
-nlohmann::json BuildAuditDocument(const AuditRun& run, const AuditDocumentOptions& options = {});
+nlohmann::json BuildAuditDocument(const RunResult& run, const AuditDocumentOptions& options = {});
 
 /// H(Canonical({format, format_version, plan, data})) of a document.
 std::string GenesisDigest(const nlohmann::json& document);
@@ -157,14 +107,25 @@ struct AuditOutputOptions {
   std::filesystem::path sign_key;
 };
 
-/// Builds, seals (and signs) and writes DIR/audit.json atomically: on any failure nothing is
-/// left behind and InputError says why. Returns the written document.
-nlohmann::json WriteAuditDocument(const AuditRun& run, const AuditDocumentOptions& document_options,
+/// Builds the document of a run, seals it and, with a sign_key (Ed25519 private key, PEM),
+/// signs it: the one document that the audit file and the report are both made from.
+/// Throws InputError when the key cannot be used.
+nlohmann::json BuildSealedAudit(const RunResult& run, const AuditDocumentOptions& document_options,
+                                const std::filesystem::path& sign_key = {});
+
+/// Writes DIR/audit.json (SerializeAudit of the sealed document) and the extra files (such as
+/// report.html) as one unit (io/atomic_file.h WriteOutputFolder): every new file, or on any
+/// failure the previous files untouched. Without overwrite an existing file is refused.
+void WriteAuditFolder(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
+                      std::vector<OutputFile> extra_files, bool overwrite);
+
+/// BuildSealedAudit, then WriteAuditFolder with audit.json alone. Returns the written document.
+nlohmann::json WriteAuditDocument(const RunResult& run, const AuditDocumentOptions& document_options,
                                   const AuditOutputOptions& output);
 
 /// The run options recorded under a document's `settings` (defaults for missing keys), so
 /// that a replay runs the way the original did.
-AuditRunOptions RunOptionsFromSettings(const nlohmann::json& settings);
+RunOptions RunOptionsFromSettings(const nlohmann::json& settings);
 
 /// Current UTC time as ISO 8601 with seconds ("2026-12-01T09:30:00Z").
 std::string UtcTimestamp();

@@ -30,38 +30,12 @@
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/model_support.h"
 #include "stepledger/engine/prediction.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/selection/plan.h"
 
 namespace stepledger {
-
-/// Range of one term's design value over the rows a model was fitted on.
-struct TermRange {
-  std::string term;    ///< design term name
-  std::string column;  ///< its source column
-  TermKind kind = TermKind::kNumeric;  ///< kNumeric, kLog or kPower
-  double min = 0;      ///< of the design value: the value, its log, or its power
-  double max = 0;
-};
-
-/// What the diagnostics pass of a run learns for pricing new rows (see the section above).
-struct PredictionSupport {
-  std::vector<TermRange> ranges;
-  std::optional<double> max_unit_leverage;
-  std::uint64_t max_unit_leverage_line = 0;
-  std::optional<double> smearing_factor;
-};
-
-/// Terms a model needs evaluated: its terms and, recursively, the parts of its products.
-/// Sorted design term indices.
-std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResult& fit);
-
-/// The diagnostics pass of a run's final model (ComputeDiagnostics, one pass over the rows)
-/// that also learns the model's PredictionSupport: the term ranges, the largest unit leverage
-/// (h_ii / w_i) and, with a logged response, the smearing factor.
-DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
-                                          const RowReplay& replay, PredictionSupport& support);
 
 /// The `prediction` section for a run (the shape above).
 nlohmann::json PredictionSectionJson(const FitResult& fit, const Design& design,

@@ -7,10 +7,14 @@
 //   - Undefined values print as "n/a".
 //   - Quantities (money, sums of squares, criteria, estimates, ranges) print in fixed point with
 //     `significant` significant digits (default 4) and thousands separators in the integer part:
-//     1234567.8 -> "1,234,568", 12345.678 -> "12,345.7", -5.99123 -> "-5.991",
-//     0.0123456 -> "0.01235". Where fixed point would need more than 15 integer digits or more
+//     1234567.8 -> "1,234,568" (the integer part is never rounded away), 12.345678 -> "12.35",
+//     -5.99123 -> "-5.991",
+//     0.0123456 -> "0.01235"; a whole number prints without decimals (40 -> "40", not
+//     "40.00"). Where fixed point would need more than 15 integer digits or more
 //     than 4 leading zeros after the point, scientific notation is used instead ("1.23e-07"),
 //     so that a number never hides as "0.0000".
+//   - Criteria compared between models (AIC, BIC, Cp, RSS in a table of candidates) print with
+//     FormatFixed and a fixed number of decimals, so that close values stay apart.
 //   - Test statistics (F, t) print with two decimals and separators ("4,460.68"), as in APA
 //     style.
 //   - p-values print with four decimals ("0.0321") and one floor, "< 0.0001", everywhere.

@@ -74,10 +74,16 @@ struct SearchRunOptions {
   bool allow_cycling_thresholds = false;
 };
 
-/// Validates options against the design: throws PlanError naming the key ("keep[1]",
-/// "never[0]", "entry_p", "exit_p", "max_terms", "best_per_size", "folds", "criterion") for
-/// unknown terms, a term both kept and never, values out of range, stepwise partial-f with
-/// entry_p > exit_p, more keep terms than max_terms, and criterion cv (not available yet).
+/// The one validation of a plan's search settings, wherever the plan comes from (a plan file,
+/// the command line, a recorded audit). Throws PlanError naming the key ("entry_p", "exit_p",
+/// "max_terms", "best_per_size", "folds", "criterion", "keep[1]", "never[0]") for values out of
+/// range, entry_p > exit_p where the thresholds decide the route (stepwise by partial F: a term
+/// could enter and leave in turn; other criteria do not use the thresholds), more keep terms than
+/// max_terms, a term listed twice or both kept and never, and criterion cv (not available yet).
+void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds = false);
+
+/// ValidateSearchSettings, then the checks that need the design: keep and never name terms of
+/// the design (a plan with "terms": "all" can only be checked here).
 void ValidateSearchOptions(const SearchOptions& options, const Design& design,
                            bool allow_cycling_thresholds = false);
 

@@ -1,7 +1,7 @@
 // The plan file: every key, every error (key path and message), malformed JSON positions,
 // the normalised form and its round trip, and the quick plan.
 
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 
 #include <string>
 #include <vector>
@@ -10,6 +10,7 @@
 
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/profile.h"
+#include "stepledger/selection/search.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -153,8 +154,8 @@ const std::vector<ErrorCase> kErrorCases = {
     {"ExitPNotNumber", With("exit_p", R"("0.1")"), "exit_p", R"(found "0.1")"},
     {"StepwiseEntryAboveExit",
      R"({"response": "price", "terms": [{"name": "age", "column": "age"}], "method": "stepwise",
-        "entry_p": 0.2, "exit_p": 0.1})",
-     "entry_p", "can cycle"},
+        "criterion": "partial-f", "entry_p": 0.2, "exit_p": 0.1})",
+     "entry_p", "forever"},
     {"HierarchyNotBool", With("hierarchy", R"("yes")"), "hierarchy", "expected true or false"},
     {"MaxTermsZero", With("max_terms", "0"), "max_terms", "expected an integer >= 1, found 0"},
     {"MaxTermsBelowKeep",
@@ -313,14 +314,14 @@ TEST_F(PlanWithDataTest, KeepAndNeverAreCheckedAgainstTheDesign) {
   plan.search.never = {"colour", "postcode"};
   const Design design = BuildDesign(plan.design, profile_);
   try {
-    CheckPlanAgainstDesign(plan, design);
+    ValidateSearchOptions(plan.search, design);
     ADD_FAILURE() << "expected a PlanError";
   } catch (const PlanError& error) {
     EXPECT_EQ(error.key_path(), "never[1]");
     EXPECT_NE(std::string(error.what()).find("no term named 'postcode'"), std::string::npos);
   }
   plan.search.never = {"colour"};
-  EXPECT_NO_THROW(CheckPlanAgainstDesign(plan, design));
+  EXPECT_NO_THROW(ValidateSearchOptions(plan.search, design));
   // With "all", keep and never cannot be checked before the data are seen.
   EXPECT_NO_THROW(ParsePlanText(R"({"response": "price", "terms": "all", "keep": ["anything"]})"));
 }
@@ -364,6 +365,34 @@ TEST(PlanFileTest, FileErrorsNameTheFile) {
     EXPECT_NE(std::string(error.what()).find(broken.string() + ":1:14"), std::string::npos)
         << error.what();
   }
+}
+
+}  // namespace
+}  // namespace stepledger
+
+namespace stepledger {
+namespace {
+
+// One rule for the thresholds, the search's own: the plan file, the command line and a replay
+// agree. entry_p above exit_p only matters where the thresholds decide the route (stepwise by
+// partial F); with BIC they are unused and the plan is accepted everywhere.
+TEST(PlanFileThresholds, TheSearchsRuleIsTheOnlyRule) {
+  const std::string bic = R"({"response": "price", "terms": [{"name": "age", "column": "age"}],
+      "method": "stepwise", "criterion": "bic", "entry_p": 0.2, "exit_p": 0.1})";
+  const Plan accepted = ParsePlanText(bic).plan;
+  EXPECT_NO_THROW(ValidateSearchSettings(accepted.search));
+
+  std::string partial_f = bic;
+  partial_f.replace(partial_f.find("\"bic\""), 5, "\"partial-f\"");
+  try {
+    ParsePlanText(partial_f);
+    ADD_FAILURE() << "expected a PlanError";
+  } catch (const PlanError& error) {
+    EXPECT_EQ(error.key_path(), "entry_p");
+  }
+  Plan refused = accepted;
+  refused.search.criterion = Criterion::kPartialF;
+  EXPECT_THROW(ValidateSearchSettings(refused.search), PlanError);
 }
 
 }  // namespace

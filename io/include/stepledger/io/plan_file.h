@@ -15,11 +15,12 @@
 //                     not numeric)
 //   keep, never       arrays of term names (default empty); with explicit terms they must name
 //                     terms of the plan and no term may be in both; with "all" they are checked
-//                     against the design by CheckPlanAgainstDesign
+//                     against the design by ValidateSearchOptions (selection/search.h)
 //   method            "forward", "backward", "stepwise" (default), "all-subsets", "none"
 //   criterion         "adj-r2", "aic", "aicc", "bic" (default), "cp", "partial-f", "cv"
-//   entry_p, exit_p   numbers in the open interval (0, 1); defaults 0.05 and 0.10; for stepwise
-//                     entry_p must not exceed exit_p (else a term can enter and leave in turn)
+//   entry_p, exit_p   numbers in the open interval (0, 1); defaults 0.05 and 0.10; for stepwise by
+//                     partial-f entry_p must not exceed exit_p (else a term can enter and leave
+//                     in turn; selection/search.h ValidateSearchSettings holds every such rule)
 //   hierarchy         bool, default true
 //   max_terms         integer >= 1, or null for no limit (default); at least the size of keep
 //   best_per_size     integer >= 1, default 3
@@ -74,9 +75,5 @@ nlohmann::json PlanToJson(const Plan& plan, const Design* design = nullptr);
 /// term (DesignSpec::all_terms), every other setting at its default.
 Plan MakeQuickPlan(std::string response_column);
 
-/// The checks that need the design: keep and never name terms of the design (needed for
-/// "terms": "all"), and max_terms is at least the number of kept terms. Throws PlanError
-/// naming "keep[i]" or "never[i]".
-void CheckPlanAgainstDesign(const Plan& plan, const Design& design);
 
 }  // namespace stepledger

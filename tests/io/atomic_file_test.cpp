@@ -10,7 +10,7 @@
 #include <sstream>
 #include <string>
 
-#include "stepledger/audit/atomic_file.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/engine/errors.h"
 #include "support/test_paths.h"
 
@@ -107,6 +107,64 @@ TEST(AtomicFile, PermissionsFollowTheUmask) {
   struct stat status {};
   ASSERT_EQ(::stat(path.c_str(), &status), 0);
   EXPECT_EQ(status.st_mode & 0777, 0644u);  // not mkstemp's 0600
+}
+
+// --- an output folder written as one unit ------------------------------------------------
+
+TEST(OutputFolder, WritesEveryFileAndCreatesTheFolder) {
+  testing::TempDir parent;
+  const auto folder = parent.path() / "out";
+  WriteOutputFolder(folder, {{"audit.json", "{}\n"}, {"report.html", "<p>r</p>"}});
+  EXPECT_EQ(ReadText(folder / "audit.json"), "{}\n");
+  EXPECT_EQ(ReadText(folder / "report.html"), "<p>r</p>");
+  EXPECT_EQ(FileCount(folder), 2);
+}
+
+TEST(OutputFolder, AClashWithoutForceWritesNothing) {
+  testing::TempDir folder;
+  folder.Write("report.html", "old report");
+  try {
+    WriteOutputFolder(folder.path(), {{"audit.json", "new"}, {"report.html", "new"}});
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("report.html"), std::string::npos) << error.what();
+  }
+  EXPECT_FALSE(std::filesystem::exists(folder.path() / "audit.json"));
+  EXPECT_EQ(ReadText(folder.path() / "report.html"), "old report");
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+// With --force, a second file that cannot be written (a folder stands at its name) must leave
+// the previous first file in place: all new files or the old ones untouched.
+TEST(OutputFolder, AFailedSecondFileKeepsThePreviousFirstFile) {
+  testing::TempDir folder;
+  folder.Write("audit.json", "previous audit");
+  std::filesystem::create_directory(folder.path() / "report.html");
+  EXPECT_THROW(WriteOutputFolder(folder.path(), {{"audit.json", "new audit"}, {"report.html", "new"}},
+                                 AtomicWriteOptions{.overwrite = true}),
+               InputError);
+  EXPECT_EQ(ReadText(folder.path() / "audit.json"), "previous audit");
+  EXPECT_TRUE(std::filesystem::is_directory(folder.path() / "report.html"));
+  EXPECT_EQ(FileCount(folder.path()), 2);  // no temporary or backup file left
+}
+
+TEST(OutputFolder, OverwritesEveryFileWhenAllowed) {
+  testing::TempDir folder;
+  folder.Write("audit.json", "previous audit");
+  folder.Write("report.html", "previous report");
+  WriteOutputFolder(folder.path(), {{"audit.json", "new audit"}, {"report.html", "new report"}},
+                    AtomicWriteOptions{.overwrite = true});
+  EXPECT_EQ(ReadText(folder.path() / "audit.json"), "new audit");
+  EXPECT_EQ(ReadText(folder.path() / "report.html"), "new report");
+  EXPECT_EQ(FileCount(folder.path()), 2);
+}
+
+TEST(OutputFolder, AFailureRemovesAFolderItCreated) {
+  testing::TempDir parent;
+  const auto folder = parent.path() / "out";
+  // The same name twice: the second is a clash with the first's temporary placement.
+  EXPECT_THROW(WriteOutputFolder(folder, {{"a.json", "1"}, {"a.json", "2"}}), InputError);
+  EXPECT_FALSE(std::filesystem::exists(folder));
 }
 
 }  // namespace

@@ -1,4 +1,4 @@
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 
 #include <algorithm>
 #include <cerrno>
@@ -13,6 +13,8 @@
 #include <vector>
 
 #include "stepledger/engine/errors.h"
+#include "stepledger/selection/search.h"
+#include "stepledger/io/json_reader.h"
 
 namespace stepledger {
 namespace {
@@ -20,10 +22,6 @@ namespace {
 using nlohmann::json;
 
 std::string Quote(std::string_view text) { return "'" + QuoteForMessage(text) + "'"; }
-// File names are quoted whole: a shortened path does not say which file.
-std::string QuotePath(const std::filesystem::path& path) {
-  return "'" + QuoteForMessage(path.string(), 4096) + "'";
-}
 
 // What the plan holds at a key, for "expected ..., found ..." (JSON text, shortened).
 std::string Found(const json& value) { return QuoteForMessage(value.dump(), 60); }
@@ -204,59 +202,6 @@ void CheckTermNames(const std::vector<std::string>& names, const std::string& ke
   }
 }
 
-// Tracks the key path while nlohmann parses, to refuse duplicate keys (which it would
-// otherwise resolve silently by keeping the last).
-class DuplicateKeyGuard {
- public:
-  bool operator()(int /*depth*/, json::parse_event_t event, json& parsed) {
-    switch (event) {
-      case json::parse_event_t::object_start:
-        StartElement();
-        frames_.push_back({false, 0, {}, {}});
-        break;
-      case json::parse_event_t::array_start:
-        StartElement();
-        frames_.push_back({true, 0, {}, {}});
-        break;
-      case json::parse_event_t::object_end:
-      case json::parse_event_t::array_end:
-        frames_.pop_back();
-        break;
-      case json::parse_event_t::key: {
-        Frame& frame = frames_.back();
-        frame.key = parsed.get<std::string>();
-        if (!frame.keys.insert(frame.key).second) {
-          throw PlanError(Path(), "duplicate key; each key may appear once");
-        }
-        break;
-      }
-      case json::parse_event_t::value:
-        StartElement();
-        break;
-    }
-    return true;
-  }
-
- private:
-  struct Frame {
-    bool array = false;
-    std::size_t elements = 0;
-    std::set<std::string> keys;
-    std::string key;
-  };
-  void StartElement() {
-    if (!frames_.empty() && frames_.back().array) ++frames_.back().elements;
-  }
-  std::string Path() const {
-    std::string path;
-    for (const auto& frame : frames_) {
-      path = frame.array ? Index(path, frame.elements - 1) : Join(path, frame.key);
-    }
-    return path;
-  }
-  std::vector<Frame> frames_;
-};
-
 json TermSpecToJson(const TermSpec& term) {
   json object = json::object();
   object["name"] = term.name;
@@ -372,12 +317,6 @@ Plan PlanFromJson(const json& value) {
   }
   if (const json* entry = root.Get("entry_p")) search.entry_p = ReadProbability(*entry, "entry_p");
   if (const json* exit = root.Get("exit_p")) search.exit_p = ReadProbability(*exit, "exit_p");
-  if (search.method == Method::kStepwise && search.entry_p > search.exit_p) {
-    throw PlanError("entry_p", "entry_p " + json(search.entry_p).dump() + " is above exit_p " +
-                                   json(search.exit_p).dump() +
-                                   ": with stepwise a term could enter and leave in turn and the "
-                                   "search can cycle; choose entry_p <= exit_p");
-  }
   if (const json* hierarchy = root.Get("hierarchy")) search.hierarchy = ReadBool(*hierarchy, "hierarchy");
   if (const json* max_terms = root.Get("max_terms"); max_terms != nullptr && !max_terms->is_null()) {
     search.max_terms = static_cast<std::size_t>(ReadInteger(*max_terms, "max_terms", 1));
@@ -396,34 +335,20 @@ Plan PlanFromJson(const json& value) {
   if (const json* missing = root.Get("missing")) {
     plan.missing_tokens = ReadStrings(*missing, "missing", /*allow_empty=*/true);
   }
+  // The rules that do not depend on how the keys were spelled (ranges, thresholds, keep and
+  // never) are the search's own, so that a plan file, the command line and a replay agree.
+  ValidateSearchSettings(search);
   return plan;
 }
 
 LoadedPlan ParsePlanText(std::string text, std::string_view source_name) {
   LoadedPlan loaded;
   try {
-    DuplicateKeyGuard guard;
-    loaded.json = json::parse(text, std::ref(guard));
-  } catch (const json::parse_error& error) {
-    // error.byte is the 1-based position of the last byte read; line and column from it.
-    const std::size_t offset = std::min<std::size_t>(error.byte == 0 ? 0 : error.byte - 1, text.size());
-    std::uint64_t line = 1;
-    std::size_t line_start = 0;
-    for (std::size_t i = 0; i < offset; ++i) {
-      if (text[i] == '\n') {
-        ++line;
-        line_start = i + 1;
-      }
-    }
-    std::string reason = error.what();
-    // nlohmann's text starts "[json.exception.parse_error.101] parse error at line L, column C: ".
-    if (const auto column_at = reason.find(", column "); column_at != std::string::npos) {
-      if (const auto colon = reason.find(": ", column_at); colon != std::string::npos) {
-        reason = reason.substr(colon + 2);
-      }
-    }
-    throw PlanError("", FormatLocation(source_name, line, offset - line_start + 1) +
-                            ": malformed JSON: " + reason);
+    loaded.json = ParseStrictJson(text, source_name);
+  } catch (const JsonReadError& error) {
+    // A duplicate key is a plan error at its key; syntax and depth errors name the place.
+    if (!error.key_path().empty()) throw PlanError(error.key_path(), error.detail());
+    throw PlanError("", error.detail());
   }
   loaded.plan = PlanFromJson(loaded.json);
   loaded.verbatim = std::move(text);
@@ -431,17 +356,11 @@ LoadedPlan ParsePlanText(std::string text, std::string_view source_name) {
 }
 
 LoadedPlan LoadPlanFile(const std::filesystem::path& path) {
-  std::error_code error;
-  if (std::filesystem::is_directory(path, error)) {
-    throw PlanError("", "cannot open plan file " + QuotePath(path) + ": it is a folder");
-  }
-  std::ifstream stream(path, std::ios::binary);
-  if (!stream) {
-    throw PlanError("", "cannot open plan file " + QuotePath(path) + ": " + std::strerror(errno));
-  }
-  std::string text((std::istreambuf_iterator<char>(stream)), std::istreambuf_iterator<char>());
-  if (stream.bad()) {
-    throw PlanError("", "cannot read plan file " + QuotePath(path) + ": " + std::strerror(errno));
+  std::string text;
+  try {
+    text = ReadWholeFile(path, "plan file");
+  } catch (const InputError& error) {
+    throw PlanError("", error.what());
   }
   return ParsePlanText(std::move(text), path.string());
 }
@@ -487,27 +406,5 @@ Plan MakeQuickPlan(std::string response_column) {
   return plan;
 }
 
-void CheckPlanAgainstDesign(const Plan& plan, const Design& design) {
-  auto check = [&](const std::vector<std::string>& names, const std::string& key) {
-    for (std::size_t i = 0; i < names.size(); ++i) {
-      if (design.FindTerm(names[i]) == kNoTerm) {
-        std::string made;
-        for (std::size_t t = 0; t < design.terms.size() && t < 12; ++t) {
-          made += (t == 0 ? "" : ", ") + Quote(design.terms[t].name);
-        }
-        if (design.terms.size() > 12) made += ", ...";
-        throw PlanError(Index(key, i), "no term named " + Quote(names[i]) +
-                                           " in the design (its terms: " + made + ")");
-      }
-    }
-  };
-  check(plan.search.keep, "keep");
-  check(plan.search.never, "never");
-  if (plan.search.max_terms && *plan.search.max_terms < plan.search.keep.size()) {
-    throw PlanError("max_terms", "expected at least " + std::to_string(plan.search.keep.size()) +
-                                     ", the number of terms in keep, found " +
-                                     std::to_string(*plan.search.max_terms));
-  }
-}
 
 }  // namespace stepledger

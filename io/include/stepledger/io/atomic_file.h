@@ -8,7 +8,9 @@
 // name already exists, so two writers racing for the same name cannot clobber each other.
 
 #include <filesystem>
+#include <string>
 #include <string_view>
+#include <vector>
 
 namespace stepledger {
 
@@ -25,5 +27,21 @@ struct AtomicWriteOptions {
 /// temporary file is removed and path is untouched.
 void WriteFileAtomically(const std::filesystem::path& path, std::string_view content,
                          const AtomicWriteOptions& options = {});
+
+/// One file of an output folder.
+struct OutputFile {
+  std::string name;     ///< file name inside the folder (no folder part)
+  std::string content;
+};
+
+/// Writes several files into folder as one unit: afterwards the folder holds every new file, or,
+/// on any failure (a clash without overwrite, a target that is a folder, a full disk, a failed
+/// rename), the previous files untouched and no new or temporary file. The folder is created when
+/// missing (its parent must exist) and removed again if this call created it and fails. Every
+/// clash is checked before anything is written. Throws InputError naming the path.
+/// (Two renames cannot be one atomic step: a crash between them can leave a ".previous" backup
+/// beside a new file, never a lost old file.)
+void WriteOutputFolder(const std::filesystem::path& folder, const std::vector<OutputFile>& files,
+                       const AtomicWriteOptions& options = {});
 
 }  // namespace stepledger

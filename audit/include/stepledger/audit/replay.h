@@ -1,0 +1,31 @@
+#pragma once
+// The one replay of a recorded plan: `verify --data` (same data: the route must come out the
+// same) and `rerun` (new data: what changed) both run an audit's plan through here, so that
+// they cannot disagree on what "the recorded plan" is.
+
+#include <filesystem>
+#include <optional>
+#include <string_view>
+
+#include <nlohmann/json.hpp>
+
+#include "stepledger/run/run_plan.h"
+
+namespace stepledger {
+
+/// What a replay may run differently from the recording (neither changes the numbers beyond
+/// rounding: the thread count changes the order of merges, the delimiter only the reading).
+struct ReplayOverrides {
+  /// Threads of the data pass; nullopt: as recorded in `settings`.
+  std::optional<int> threads;
+  /// Field delimiter of the data; nullopt: as recorded.
+  std::optional<char> delimiter;
+};
+
+/// Runs the audit's recorded plan (plan.verbatim, read as a plan file is read) with its recorded
+/// settings on data. audit_name (the audit's file name) starts messages. Throws InputError when
+/// the recorded plan is missing or unusable (naming the key) or the data cannot be read.
+RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem::path& data,
+                             std::string_view audit_name, const ReplayOverrides& overrides = {});
+
+}  // namespace stepledger

@@ -1,0 +1,84 @@
+#include "stepledger/engine/model_support.h"
+
+#include <algorithm>
+#include <cmath>
+#include <functional>
+#include <limits>
+
+namespace stepledger {
+
+bool IsRangedKind(TermKind kind) {
+  return kind == TermKind::kNumeric || kind == TermKind::kLog || kind == TermKind::kPower;
+}
+
+std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResult& fit) {
+  std::vector<bool> needed(design.terms.size(), false);
+  std::vector<std::size_t> pending(fit.term_indices.begin(), fit.term_indices.end());
+  while (!pending.empty()) {
+    const std::size_t term = pending.back();
+    pending.pop_back();
+    if (term >= design.terms.size() || needed[term]) continue;
+    needed[term] = true;
+    // Only a product's parts are needed to evaluate it; a power's hierarchy parts are not.
+    if (design.terms[term].kind == TermKind::kProduct) {
+      pending.insert(pending.end(), design.terms[term].parts.begin(), design.terms[term].parts.end());
+    }
+  }
+  std::vector<std::size_t> terms;
+  for (std::size_t t = 0; t < needed.size(); ++t) {
+    if (needed[t]) terms.push_back(t);
+  }
+  return terms;
+}
+
+DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
+                                          const RowReplay& replay, PredictionSupport& support) {
+  support = PredictionSupport{};
+  std::vector<std::size_t> ranged_terms;
+  for (std::size_t term : TermsNeededByModel(design, fit)) {
+    if (IsRangedKind(design.terms[term].kind)) ranged_terms.push_back(term);
+  }
+  std::vector<double> low(ranged_terms.size(), std::numeric_limits<double>::infinity());
+  std::vector<double> high(ranged_terms.size(), -std::numeric_limits<double>::infinity());
+  // Weights in visit order: ComputeDiagnostics keeps its rows in that order, so h_ii / w_i and
+  // the unit-weight residuals come from its results without repeating its arithmetic.
+  std::vector<double> weights;
+  const RowReplay observing = [&](const std::function<void(const UsedRow&)>& visit) {
+    replay([&](const UsedRow& row) {
+      for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
+        const double value = row.x[design.terms[ranged_terms[i]].first_column];
+        low[i] = std::min(low[i], value);
+        high[i] = std::max(high[i], value);
+      }
+      weights.push_back(row.weight);
+      visit(row);
+    });
+  };
+  DiagnosticsResult diagnostics = ComputeDiagnostics(fit, design, observing);
+
+  if (!weights.empty()) {
+    for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
+      const DesignTerm& term = design.terms[ranged_terms[i]];
+      support.ranges.push_back({term.name, term.source_column, term.kind, low[i], high[i]});
+    }
+  }
+  double smearing_sum = 0;
+  for (std::size_t r = 0; r < diagnostics.rows.size() && r < weights.size(); ++r) {
+    const RowDiagnostic& row = diagnostics.rows[r];
+    const double weight = weights[r];
+    if (weight > 0) {
+      const double unit_leverage = row.leverage / weight;
+      if (!support.max_unit_leverage || unit_leverage > *support.max_unit_leverage) {
+        support.max_unit_leverage = unit_leverage;
+        support.max_unit_leverage_line = row.line;
+      }
+    }
+    smearing_sum += std::exp(std::sqrt(weight) * row.residual);
+  }
+  if (design.response_transform == ResponseTransform::kLog && !diagnostics.rows.empty()) {
+    support.smearing_factor = smearing_sum / static_cast<double>(diagnostics.rows.size());
+  }
+  return diagnostics;
+}
+
+}  // namespace stepledger

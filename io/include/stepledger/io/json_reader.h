@@ -1,0 +1,55 @@
+#pragma once
+// One strict JSON reader for every JSON file the tool reads: plans, audits and public models.
+//
+// Strict means:
+//   - malformed JSON is an error naming the source, line and column ("plan.json:3:14: malformed
+//     JSON: unexpected '}'");
+//   - a key repeated within one object is an error naming its key path (nlohmann would keep
+//     the last silently, so an edited file could say two things at once);
+//   - nesting deeper than JsonReadOptions::max_depth is refused while parsing, before anything
+//     deep is built, so no later recursive walk (canonical JSON, quoting a value in a message)
+//     can exhaust the stack.
+// Cost: one pass over the text; memory O(size of the document).
+
+#include <cstddef>
+#include <filesystem>
+#include <string>
+#include <string_view>
+
+#include <nlohmann/json.hpp>
+
+#include "stepledger/engine/errors.h"
+
+namespace stepledger {
+
+struct JsonReadOptions {
+  /// Deepest nesting of arrays and objects accepted (the top-level value is depth 1).
+  /// Default 64: the deepest document the tool writes (an audit) nests 7 levels.
+  std::size_t max_depth = 64;
+};
+
+/// A JSON text that cannot be read. key_path() is the path of the offending key for a duplicate
+/// key ("terms[2].name"), empty for syntax and depth errors; detail() is the message without the
+/// source name, so that callers with their own error type (PlanError) can rethrow it.
+class JsonReadError : public InputError {
+ public:
+  JsonReadError(const std::string& message, std::string key_path, std::string detail)
+      : InputError(message), key_path_(std::move(key_path)), detail_(std::move(detail)) {}
+  const std::string& key_path() const { return key_path_; }
+  const std::string& detail() const { return detail_; }
+
+ private:
+  std::string key_path_;
+  std::string detail_;
+};
+
+/// Parses text strictly; source_name (a file name) starts every message.
+/// Throws JsonReadError.
+nlohmann::json ParseStrictJson(std::string_view text, std::string_view source_name,
+                               const JsonReadOptions& options = {});
+
+/// The bytes of a file. what ("plan file", "audit file") names it in messages: "cannot open
+/// audit file 'x': No such file or directory", "... it is a folder". Throws InputError.
+std::string ReadWholeFile(const std::filesystem::path& path, std::string_view what);
+
+}  // namespace stepledger

@@ -1,0 +1,76 @@
+#pragma once
+// One run of a plan on a data file, composed once for every command (DESIGN.md §8):
+// profile -> design -> one factor pass that also fingerprints the bytes -> search -> refined fit
+// of the final model -> diagnostics pass (which also learns what pricing new rows needs).
+// `fit` (method "none", no audit), `select`, `verify --data` and `rerun` all run through RunPlan,
+// so a replay takes the very path the recorded run took. The result is one typed value that the
+// audit, the report and the terminal output render; none of them recomputes it.
+
+#include <cstdint>
+#include <filesystem>
+#include <optional>
+#include <string>
+
+#include "stepledger/engine/csv.h"
+#include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/design.h"
+#include "stepledger/engine/fit.h"
+#include "stepledger/engine/model_support.h"
+#include "stepledger/engine/profile.h"
+#include "stepledger/io/plan_file.h"
+#include "stepledger/selection/search.h"
+
+namespace stepledger {
+
+/// How a plan is run. Every field is recorded in the audit's `settings`, so that a replay runs
+/// the same way.
+struct RunOptions {
+  /// Delimiter and block size of the reader; the missing tokens always come from the plan.
+  CsvOptions csv;
+  /// Threads folding the factor (>= 1). Default 1. Different counts agree to rounding only.
+  int threads = 1;
+  /// Confidence level, refinement and the kernel's alias tolerance of the final fit.
+  FitOptions fit;
+  /// VIF above which a final-model coefficient is named in the collinearity caution
+  /// (common practice: 10).
+  double vif_caution = 10;
+  /// Run the per-row diagnostics pass of the final model (one more pass over the rows): the
+  /// leverage, Cook's distance and residual summaries, the term ranges over the rows used and the
+  /// largest leverage (for predict and the extrapolation caution). Default: yes.
+  bool diagnostics = true;
+  /// Throws InputError naming the field when a value is out of range.
+  void Validate() const;
+};
+
+/// Everything one run produced.
+struct RunResult {
+  LoadedPlan plan;
+  std::string data_file_name;       ///< the data file's name (no folder), for readers
+  std::string data_sha256;          ///< DataFingerprint over every byte read
+  std::uint64_t data_bytes = 0;
+  DataProfile profile;
+  Design design;
+  RowAccounting accounting;
+  SearchResult search;
+  FitResult fit;
+  std::optional<double> max_leverage;  ///< from the diagnostics pass, when run
+  std::uint64_t max_leverage_line = 0;
+  /// What pricing new rows needs (ranges, largest unit leverage, smearing factor); filled by
+  /// the diagnostics pass, empty without it.
+  PredictionSupport prediction_support;
+  /// The per-row diagnostics of the final model, when the diagnostics pass ran.
+  std::optional<DiagnosticsResult> diagnostics;
+  RunOptions options;
+  double duration_seconds = 0;      ///< wall time of the run
+};
+
+/// Runs a plan on a data file (the pipeline above). observer (optional) sees the search's
+/// events as they happen. Throws InputError/PlanError for bad input.
+RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
+                  const RunOptions& options, SearchObserver* observer = nullptr);
+
+/// The fingerprint of a file (engine/fingerprint.h) computed by reading it; throws InputError
+/// naming the file when it cannot be read.
+std::string FingerprintFile(const std::filesystem::path& path);
+
+}  // namespace stepledger

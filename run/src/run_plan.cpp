@@ -1,0 +1,84 @@
+#include "stepledger/run/run_plan.h"
+
+#include <chrono>
+#include <fstream>
+#include <string_view>
+#include <vector>
+
+#include "stepledger/engine/errors.h"
+#include "stepledger/engine/fingerprint.h"
+
+namespace stepledger {
+
+void RunOptions::Validate() const {
+  if (threads < 1) {
+    throw InputError("threads: expected at least 1, got " + std::to_string(threads));
+  }
+  if (!(vif_caution > 0)) {
+    throw InputError("vif_caution: expected a number above 0, got " + std::to_string(vif_caution));
+  }
+  fit.Validate();
+}
+
+std::string FingerprintFile(const std::filesystem::path& path) {
+  std::ifstream in(path, std::ios::binary);
+  if (!in) throw InputError(path.string() + ": cannot open the data file");
+  DataFingerprint fingerprint;
+  std::vector<char> buffer(1 << 16);
+  while (in) {
+    in.read(buffer.data(), static_cast<std::streamsize>(buffer.size()));
+    const std::streamsize got = in.gcount();
+    if (got > 0) fingerprint.Update(std::string_view(buffer.data(), static_cast<std::size_t>(got)));
+  }
+  if (in.bad()) throw InputError(path.string() + ": read error");
+  return fingerprint.Finish();
+}
+
+RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
+                  const RunOptions& options, SearchObserver* observer) {
+  const auto started = std::chrono::steady_clock::now();
+  options.Validate();
+  RunResult run;
+  run.plan = plan;
+  run.options = options;
+  run.options.csv.missing_tokens = plan.plan.missing_tokens;
+  run.data_file_name = data.filename().string();
+
+  run.profile = ProfileCsv(data, run.options.csv);
+  run.design = BuildDesign(plan.plan.design, run.profile);
+  // Before the factor pass, so that a plan error costs no pass over the rows.
+  ValidateSearchOptions(plan.plan.search, run.design);
+
+  PassOptions pass_options;
+  pass_options.csv = run.options.csv;
+  pass_options.threads = options.threads;
+  DataFingerprint fingerprint;
+  PassResult pass = RunFactorPass(data, run.design, pass_options,
+                                  [&fingerprint](std::string_view bytes) { fingerprint.Update(bytes); });
+  run.data_bytes = fingerprint.total_bytes();
+  run.data_sha256 = fingerprint.Finish();
+  run.accounting = pass.accounting;
+
+  SearchRunOptions search_run;
+  search_run.kernel = options.fit.kernel;
+  run.search = RunSearch(pass.factor, run.design, plan.plan.search, observer, search_run);
+
+  FitOptions fit_options = options.fit;
+  fit_options.cp_sigma2 = run.search.cp_sigma2;
+  const RowReplay replay = FileRowReplay(data, run.design, run.options.csv);
+  run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
+  if (options.diagnostics && run.fit.n > 0) {
+    run.diagnostics = DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
+    for (const RowDiagnostic& row : run.diagnostics->rows) {
+      if (!run.max_leverage || row.leverage > *run.max_leverage) {
+        run.max_leverage = row.leverage;
+        run.max_leverage_line = row.line;
+      }
+    }
+  }
+  run.duration_seconds =
+      std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
+  return run;
+}
+
+}  // namespace stepledger
