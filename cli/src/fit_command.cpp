@@ -141,16 +141,14 @@ std::vector<std::string> Cautions(const FitResult& fit, const DiagnosticsSummary
 }
 
 std::string RowsText(const RowAccounting& accounting) {
-  std::uint64_t dropped = 0;
-  for (const auto& [reason, count] : accounting.rows_dropped) dropped += count;
   std::ostringstream text;
   text << "Rows: " << accounting.rows_read << " read, " << accounting.rows_used << " used, "
-       << dropped << " dropped";
+       << accounting.RowsDroppedTotal() << " dropped";
   if (!accounting.rows_dropped.empty()) {
     text << " (";
     bool first = true;
-    for (const auto& [reason, count] : accounting.rows_dropped) {
-      text << (first ? "" : ", ") << reason << ": " << count;
+    for (const RowDrop& entry : accounting.rows_dropped) {
+      text << (first ? "" : ", ") << ToString(entry.reason) << " in " << entry.column << ": " << entry.rows;
       first = false;
     }
     text << ")";
@@ -231,8 +229,6 @@ int RunFit(const FitArgs& args, CommandContext& context) {
 
   if (context.common.json) {
     nlohmann::json result = ModelToJson(fit);
-    nlohmann::json dropped = nlohmann::json::object();
-    for (const auto& [reason, count] : pass.accounting.rows_dropped) dropped[reason] = count;
     nlohmann::json column_ranges = nlohmann::json::array();
     for (const ColumnRange& range : ranges) {
       column_ranges.push_back({{"column", range.column}, {"min", range.min}, {"max", range.max}});
@@ -240,7 +236,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
     result["data"] = {{"file", args.data},
                       {"rows_read", pass.accounting.rows_read},
                       {"rows_used", pass.accounting.rows_used},
-                      {"rows_dropped", std::move(dropped)},
+                      {"rows_dropped", RowsDroppedJson(pass.accounting)},
                       {"ranges", std::move(column_ranges)}};
     result["diagnostics"] = {
         {"max_leverage", NullableLine(summary.max_leverage, summary.max_leverage_line)},

@@ -21,6 +21,10 @@
 
 namespace stepledger {
 
+/// How to check what verify without data leaves unchecked (printed by FullReport and noted).
+inline constexpr const char* kHowToCheckData =
+    "give --data FILE, the data the audit was made from, to check its fingerprint and replay the plan";
+
 struct VerifyOptions {
   /// Ed25519 public key (PEM) the signature must verify against; empty: the signature, when
   /// present, is checked against the key recorded in the audit (integrity only, not identity).
@@ -49,6 +53,10 @@ struct VerifyReport {
   std::vector<std::string> notes;
   /// True when every check that ran holds.
   bool Holds() const { return problems.empty(); }
+  /// True when the data were checked (fingerprint and replay ran, --data). Without them the
+  /// checks show only that the record is intact, not that it comes from a given data file;
+  /// FullReport and ToJson ("data_checked", "not_checked") say so.
+  bool DataChecked() const { return fingerprint != Check::kNotRun || replay != Check::kNotRun; }
   /// One line per check and per problem, for the terminal.
   std::string FullReport() const;
   nlohmann::json ToJson() const;
