@@ -10,6 +10,7 @@
 
 #include <gtest/gtest.h>
 
+#include "stepledger/audit/audit_compare.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/fitted_model.h"
@@ -206,6 +207,21 @@ TEST(AuditFormatV1, AReportRendersFromIt) {
   EXPECT_NE(text.find("age:grade"), std::string::npos);
   const std::string html = RenderHtmlReport(document, nullptr, {});
   EXPECT_NE(html.find("age:grade"), std::string::npos);
+}
+
+TEST(AuditFormatV1, ComparedWithARerunOfTheSamePlanTheModelsAreTheSame) {
+  // compare and rerun read both audits in today's names: grade[A] and grade=A are one column.
+  const json old_audit = ReadAuditFile(FixtureAudit());
+  const json new_audit = FreshAuditOfTheFixturePlan();
+  const json comparison = CompareAudits(old_audit, new_audit);
+  EXPECT_FALSE(FinalModelsDiffer(comparison)) << comparison.dump(2);
+  EXPECT_EQ(comparison["coefficients"].size(), 6u) << comparison["coefficients"].dump(2);
+  CsvOptions csv;
+  csv.missing_tokens = {"", "NA"};
+  const json prediction = PredictionComparison(old_audit, new_audit, FixtureData(), csv);
+  EXPECT_EQ(prediction["unseen_level_rows"], 0) << prediction.dump(2);
+  EXPECT_NEAR(prediction["old_model_rmse"].get<double>(), prediction["new_model_rmse"].get<double>(),
+              1e-9 * prediction["new_model_rmse"].get<double>());
 }
 
 TEST(AuditSchema, VersionOneFollowsTheVersionOneSchemaBesideTheCurrentOne) {
