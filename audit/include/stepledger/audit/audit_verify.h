@@ -9,6 +9,10 @@
 // What the checks prove: digests and seal are unkeyed, so they catch accidental and casual
 // edits; anyone can recompute them. A signature checked against a public key obtained
 // elsewhere (--public-key) shows who produced the file and that nobody recomputed the chain.
+// Without data, the report says that the fingerprint and the replay were not checked.
+// Audits of an older format_version verify too: the integrity checks run on the document as
+// recorded, and the replay compares the recorded content read in today's names
+// (AuditInCurrentShape, audit_format_versions.h).
 
 #include <filesystem>
 #include <optional>
