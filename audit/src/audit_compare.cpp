@@ -6,6 +6,7 @@
 #include <map>
 #include <sstream>
 
+#include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/io/plan_file.h"
@@ -131,7 +132,10 @@ json RouteComparison(const json& old_steps, const json& new_steps) {
 
 }  // namespace
 
-json CompareAudits(const json& old_audit, const json& new_audit, const CompareOptions& options) {
+json CompareAudits(const json& old_as_read, const json& new_as_read, const CompareOptions& options) {
+  // Both in today's names, so that an audit of an older format_version compares like with like.
+  const json old_audit = AuditInCurrentShape(old_as_read);
+  const json new_audit = AuditInCurrentShape(new_as_read);
   const double tolerance = options.relative_tolerance;
   const json& old_data = Section(old_audit, "data", "old");
   const json& new_data = Section(new_audit, "data", "new");
@@ -220,8 +224,10 @@ json CompareAudits(const json& old_audit, const json& new_audit, const CompareOp
   return comparison;
 }
 
-json PredictionComparison(const json& old_audit, const json& new_audit,
+json PredictionComparison(const json& old_as_read, const json& new_as_read,
                           const std::filesystem::path& new_data, const CsvOptions& csv_in) {
+  const json old_audit = AuditInCurrentShape(old_as_read);
+  const json new_audit = AuditInCurrentShape(new_as_read);
   try {
     const json& normalised = Section(Section(old_audit, "plan", "old"), "normalised", "old plan");
     const Plan plan = PlanFromJson(normalised);

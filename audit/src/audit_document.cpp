@@ -85,8 +85,6 @@ json ColumnJson(const ColumnProfile& column) {
 }
 
 json DataJson(const RunResult& run) {
-  json dropped = json::object();
-  for (const auto& [reason, count] : run.accounting.rows_dropped) dropped[reason] = count;
   json columns = json::array();
   for (const ColumnProfile& column : run.profile.columns) columns.push_back(ColumnJson(column));
   return {{"file", run.data_file_name},
@@ -95,7 +93,7 @@ json DataJson(const RunResult& run) {
           {"fingerprint_block_bytes", DataFingerprint::kBlockBytes},
           {"rows_read", run.accounting.rows_read},
           {"rows_used", run.accounting.rows_used},
-          {"rows_dropped", std::move(dropped)},
+          {"rows_dropped", RowsDroppedJson(run.accounting)},
           {"missing", run.plan.plan.missing_tokens},
           {"columns", std::move(columns)}};
 }
@@ -150,7 +148,7 @@ json SearchJson(const SearchResult& search) {
           {"final_terms", search.final_terms},
           {"final_criterion_value", NumberOrNull(search.final_criterion_value)},
           {"final_rss", NumberOrNull(search.final_rss)},
-          {"n", search.n},
+          {"n", CountJson(search.n)},
           {"tss", NumberOrNull(search.tss)},
           {"cp_sigma2", NumberOrNull(search.cp_sigma2)},
           {"subsets_evaluated", search.subsets_evaluated}};
@@ -329,6 +327,11 @@ json ReadAuditFile(const std::filesystem::path& path) {
     throw InputError(path.string() + ": key 'format_version': " +
                      document["format_version"].dump() + " is newer than this tool reads (" +
                      std::to_string(kAuditFormatVersion) + ")");
+  }
+  if (document["format_version"].get<std::int64_t>() < kOldestAuditFormatVersion) {
+    throw InputError(path.string() + ": key 'format_version': " + document["format_version"].dump() +
+                     " is not a version this tool reads (" + std::to_string(kOldestAuditFormatVersion) +
+                     " to " + std::to_string(kAuditFormatVersion) + ")");
   }
   return document;
 }

@@ -5,6 +5,7 @@
 #include <set>
 #include <sstream>
 
+#include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/audit/canonical_json.h"
 #include "stepledger/audit/replay.h"
 #include "stepledger/audit/signature.h"
@@ -255,9 +256,11 @@ std::string VerifyReport::FullReport() const {
   line("signature", signature);
   line("fingerprint", fingerprint);
   line("replay", replay);
+  if (!DataChecked()) text << "  data fingerprint and replay: NOT CHECKED (" << kHowToCheckData << ")\n";
   for (const std::string& note : notes) text << "Note: " << note << "\n";
   if (problems.empty()) {
-    text << "The audit holds.\n";
+    text << (DataChecked() ? "The audit holds.\n"
+                           : "The audit holds as a record; the data it was made from were not checked.\n");
   } else {
     text << "The audit does NOT hold. First difference: " << problems.front() << "\n";
     for (std::size_t i = 1; i < problems.size(); ++i) text << "  also: " << problems[i] << "\n";
@@ -275,7 +278,10 @@ nlohmann::json VerifyReport::ToJson() const {
             {"fingerprint", ToString(fingerprint)},
             {"replay", ToString(replay)}}},
           {"problems", problems},
-          {"notes", notes}};
+          {"notes", notes},
+          {"data_checked", DataChecked()},
+          {"not_checked", DataChecked() ? json::array() : json::array({"fingerprint", "replay"})},
+          {"how_to_check", DataChecked() ? json(nullptr) : json(kHowToCheckData)}};
 }
 
 bool NumbersAgree(double a, double b, double relative_tolerance) {
@@ -350,7 +356,7 @@ VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::pa
 
 VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   VerifyReport report = CheckAuditIntegrity(document, options.public_key);
-  if (options.data.empty()) return report;
+  if (options.data.empty()) return report;  // the report says what was not checked
 
   // Fingerprint: unreadable data is bad input (exit 2), a different file a difference.
   const std::string actual = FingerprintFile(options.data);
@@ -389,11 +395,15 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
     return report;
   }
 
+  // The recorded content in today's names (an older format_version is translated), so that
+  // a replay by this version compares like with like; the integrity checks above ran on the
+  // document as recorded.
+  const json recorded_document = AuditInCurrentShape(document);
   const double tolerance = options.relative_tolerance;
   // The route: the first step whose action or term differs, then the first step whose numbers
   // (or any other content) differ; a changed row moves numbers from step 0 on, so the route
   // divergence is named first.
-  const json recorded_steps = document.value("steps", json::array());
+  const json recorded_steps = recorded_document.value("steps", json::array());
   const json& replayed_steps = replayed["steps"];
   const std::size_t common = std::min(recorded_steps.size(), replayed_steps.size());
   auto move_text = [](const json& step) {
@@ -439,7 +449,8 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   }
 
   for (const char* section : kReplayedSections) {
-    json recorded_section = document.contains(section) ? document[section] : json(nullptr);
+    json recorded_section =
+        recorded_document.contains(section) ? recorded_document[section] : json(nullptr);
     json replayed_section = replayed.contains(section) ? replayed[section] : json(nullptr);
     if (std::string(section) == "data") {
       // The file's name and bytes are checked by the fingerprint; a renamed copy replays alike.

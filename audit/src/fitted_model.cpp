@@ -6,6 +6,7 @@
 #include <map>
 #include <set>
 
+#include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/io/plan_file.h"
 #include "stepledger/engine/errors.h"
@@ -207,8 +208,10 @@ json PredictionSectionJson(const FitResult& fit, const Design& design, const Pre
           {"smearing_factor", NumberOrNull(support.smearing_factor)}};
 }
 
-FittedModel FittedModelFromAudit(const json& audit, std::string_view source_name) {
+FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name) {
   const AuditReader reader(source_name);
+  // Older audits (TERM[LEVEL] columns, model.ssr) are read with today's names.
+  const json audit = AuditInCurrentShape(audit_as_read);
   FittedModel model;
   if (!audit.is_object() || !audit.contains("prediction")) {
     reader.Fail("prediction",
@@ -261,7 +264,7 @@ FittedModel FittedModelFromAudit(const json& audit, std::string_view source_name
   fit.df_residual = reader.Number(model_json, "model", "df_residual");
   fit.rss = reader.OptionalNumber(model_json, "model", "rss").value_or(kUndefined);
   fit.tss = reader.OptionalNumber(model_json, "model", "tss").value_or(kUndefined);
-  fit.ssr = reader.OptionalNumber(model_json, "model", "ssr").value_or(kUndefined);
+  fit.ssr = reader.OptionalNumber(model_json, "model", "ss_regression").value_or(kUndefined);
   fit.weight_sum = reader.OptionalNumber(model_json, "model", "weight_sum").value_or(kUndefined);
   fit.log_weight_sum = reader.OptionalNumber(model_json, "model", "log_weight_sum").value_or(kUndefined);
   fit.criteria.r2 = reader.OptionalNumber(model_json, "model", "r2");

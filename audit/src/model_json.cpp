@@ -1,6 +1,8 @@
 #include "stepledger/audit/model_json.h"
 
+#include <cassert>
 #include <cmath>
+#include <cstdint>
 
 namespace stepledger {
 
@@ -10,10 +12,25 @@ nlohmann::json NumberOrNull(const std::optional<double>& value) {
   return *value;
 }
 
+nlohmann::json CountJson(double count) {
+  // Degrees of freedom are held as doubles for the arithmetic; they are whole numbers (the
+  // residual df n - k is negative when n < k).
+  assert(count == std::floor(count) && std::fabs(count) < 0x1p63);
+  return static_cast<std::int64_t>(count);
+}
+
+nlohmann::json RowsDroppedJson(const RowAccounting& accounting) {
+  nlohmann::json dropped = nlohmann::json::array();
+  for (const RowDrop& entry : accounting.rows_dropped) {
+    dropped.push_back({{"reason", ToString(entry.reason)}, {"column", entry.column}, {"rows", entry.rows}});
+  }
+  return dropped;
+}
+
 namespace {
 
 nlohmann::json AnovaRowToJson(const AnovaRow& row) {
-  return {{"source", row.source}, {"df", row.df}, {"ss", NumberOrNull(row.ss)},
+  return {{"source", row.source}, {"df", CountJson(row.df)}, {"ss", NumberOrNull(row.ss)},
           {"ms", NumberOrNull(row.ms)}, {"f", NumberOrNull(row.f)}, {"p", NumberOrNull(row.p)}};
 }
 
@@ -24,10 +41,10 @@ nlohmann::json ModelToJson(const FitResult& fit) {
   model["terms"] = fit.terms;
   model["n"] = fit.n;
   model["k"] = fit.k;
-  model["df_residual"] = fit.df_residual;
+  model["df_residual"] = CountJson(fit.df_residual);
   model["rss"] = NumberOrNull(fit.rss);
   model["tss"] = NumberOrNull(fit.tss);
-  model["ssr"] = NumberOrNull(fit.ssr);
+  model["ss_regression"] = NumberOrNull(fit.ssr);
   model["r2"] = NumberOrNull(fit.criteria.r2);
   model["adj_r2"] = NumberOrNull(fit.criteria.adj_r2);
   model["sigma"] = NumberOrNull(fit.criteria.sigma);

@@ -65,7 +65,7 @@ nlohmann::json SearchSummaryToJson(const SearchResult& result) {
                         {"final_terms", result.final_terms},
                         {"criterion_value", NumberOrNull(result.final_criterion_value)},
                         {"rss", NumberOrNull(result.final_rss)},
-                        {"n", result.n},
+                        {"n", CountJson(result.n)},
                         {"tss", NumberOrNull(result.tss)},
                         {"cp_sigma2", NumberOrNull(result.cp_sigma2)},
                         {"excluded", std::move(excluded)},

@@ -65,16 +65,14 @@ DiagnosticsSummary Summarize(const DiagnosticsResult& diagnostics) {
 }
 
 std::string RowsText(const RowAccounting& accounting) {
-  std::uint64_t dropped = 0;
-  for (const auto& [reason, count] : accounting.rows_dropped) dropped += count;
   std::ostringstream text;
   text << "Rows: " << accounting.rows_read << " read, " << accounting.rows_used << " used, "
-       << dropped << " dropped";
+       << accounting.RowsDroppedTotal() << " dropped";
   if (!accounting.rows_dropped.empty()) {
     text << " (";
     bool first = true;
-    for (const auto& [reason, count] : accounting.rows_dropped) {
-      text << (first ? "" : ", ") << reason << ": " << count;
+    for (const RowDrop& entry : accounting.rows_dropped) {
+      text << (first ? "" : ", ") << ToString(entry.reason) << " in " << entry.column << ": " << entry.rows;
       first = false;
     }
     text << ")";
@@ -142,12 +140,19 @@ int RunFit(const FitArgs& args, CommandContext& context) {
 
   if (context.common.json) {
     nlohmann::json result = ModelToJson(fit);
-    nlohmann::json dropped = nlohmann::json::object();
-    for (const auto& [reason, count] : run.accounting.rows_dropped) dropped[reason] = count;
+    // The ranges a prediction must stay within: the extrapolation caution's, over the rows used.
+    nlohmann::json column_ranges = nlohmann::json::array();
+    for (const Caution& caution : cautions) {
+      if (caution.kind != CautionKind::kExtrapolation) continue;
+      for (const QuotedRange& range : caution.ranges) {
+        column_ranges.push_back({{"column", range.column}, {"min", range.min}, {"max", range.max}});
+      }
+    }
     result["data"] = {{"file", args.data},
                       {"rows_read", run.accounting.rows_read},
                       {"rows_used", run.accounting.rows_used},
-                      {"rows_dropped", std::move(dropped)}};
+                      {"rows_dropped", RowsDroppedJson(run.accounting)},
+                      {"ranges", std::move(column_ranges)}};
     result["diagnostics"] = {
         {"max_leverage", NullableLine(summary.max_leverage, summary.max_leverage_line)},
         {"max_cooks_distance", NullableLine(summary.max_cooks_distance, summary.max_cooks_line)},

@@ -1,5 +1,6 @@
 #include "stepledger/engine/data_pass.h"
 
+#include <algorithm>
 #include <condition_variable>
 #include <deque>
 #include <exception>
@@ -26,7 +27,7 @@ void Count(RowAccounting& accounting, const RowOutcome& outcome) {
   if (outcome.used) {
     ++accounting.rows_used;
   } else {
-    ++accounting.rows_dropped[outcome.reason];
+    accounting.CountDropped(outcome.reason, outcome.column);
   }
 }
 
@@ -169,6 +170,23 @@ PassResult RunThreaded(CsvReader& reader, const Design& design, const PassOption
 }
 
 }  // namespace
+
+void RowAccounting::CountDropped(DropReason reason, std::string_view column) {
+  auto before = [&](const RowDrop& entry) {
+    return entry.reason != reason ? entry.reason < reason : std::string_view(entry.column) < column;
+  };
+  auto place = std::find_if_not(rows_dropped.begin(), rows_dropped.end(), before);
+  if (place == rows_dropped.end() || place->reason != reason || place->column != column) {
+    place = rows_dropped.insert(place, RowDrop{reason, std::string(column), 0});
+  }
+  ++place->rows;
+}
+
+std::uint64_t RowAccounting::RowsDroppedTotal() const {
+  std::uint64_t total = 0;
+  for (const RowDrop& entry : rows_dropped) total += entry.rows;
+  return total;
+}
 
 PassResult RunFactorPass(const std::filesystem::path& path, const Design& design,
                          const PassOptions& options,

@@ -24,6 +24,14 @@ const char* ToString(TermKind kind) {
   return "?";
 }
 
+const char* ToString(DropReason reason) {
+  switch (reason) {
+    case DropReason::kMissing: return "missing";
+    case DropReason::kZeroWeight: return "zero weight";
+  }
+  return "?";
+}
+
 const char* ToString(ResponseTransform transform) {
   switch (transform) {
     case ResponseTransform::kNone: return "none";
@@ -218,7 +226,7 @@ void BuildCategorical(const TermSpec& spec, const std::string& key, const Column
     }
     pending.level_index.emplace(level.level, offset++);
     pending.term.levels.push_back(level.level);
-    pending.column_names.push_back(spec.name + "[" + level.level + "]");
+    pending.column_names.push_back(spec.name + "=" + level.level);
     pending.bounds.push_back(1.0);
   }
 }
@@ -498,7 +506,7 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
         return static_cast<std::ptrdiff_t>(c);
       }
     }
-    source.cells.push_back({header_index, name, categorical, term, "missing " + name});
+    source.cells.push_back({header_index, name, categorical, term});
     return static_cast<std::ptrdiff_t>(source.cells.size() - 1);
   };
   source.response = static_cast<std::ptrdiff_t>(response.index);
@@ -568,7 +576,6 @@ bool Design::HasLowOrderParts() const {
 
 RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std::span<double> x,
                           double& y, double& w, std::span<double> x_low) const {
-  static const std::string kZeroWeight = "zero weight";
   // Per-thread scratch: grows once, so a row costs no heap allocation.
   thread_local std::vector<double> cell_values;
   thread_local std::vector<std::size_t> cell_levels;
@@ -578,7 +585,9 @@ RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std:
     cell_levels.resize(cell_count);
   }
   const std::vector<std::string>& missing_tokens = reader.options().missing_tokens;
-  const std::string* reason = nullptr;
+  // The first cell that drops the row, and why.
+  const Source::Cell* dropping_cell = nullptr;
+  DropReason reason = DropReason::kMissing;
 
   for (std::size_t c = 0; c < cell_count; ++c) {
     const Source::Cell& cell = source.cells[c];
@@ -586,7 +595,7 @@ RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std:
     double value = 0;
     const CellKind kind = ClassifyCell(field.text, missing_tokens, value);
     if (kind == CellKind::kMissing) {
-      if (reason == nullptr) reason = &cell.missing_reason;
+      if (dropping_cell == nullptr) dropping_cell = &cell;
       continue;
     }
     if (cell.categorical) {
@@ -614,11 +623,14 @@ RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std:
         throw InputError(reader.Where(field) + ": weight " + Quote(field.text) + " in column " +
                          Quote(cell.column_name) + " is negative; precision weights must be >= 0");
       }
-      if (value == 0 && reason == nullptr) reason = &kZeroWeight;
+      if (value == 0 && dropping_cell == nullptr) {
+        dropping_cell = &cell;
+        reason = DropReason::kZeroWeight;
+      }
     }
     cell_values[c] = value;
   }
-  if (reason != nullptr) return RowOutcome{false, *reason};
+  if (dropping_cell != nullptr) return RowOutcome{false, reason, dropping_cell->column_name};
 
   double response_value = cell_values[static_cast<std::size_t>(source.response_cell)];
   if (response_transform == ResponseTransform::kLog) {
@@ -644,7 +656,9 @@ RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std:
                      Quote(term.source_column) + " needs a positive value, found " +
                      Quote(field.text));
   }
-  return RowOutcome{true, {}};
+  RowOutcome outcome;
+  outcome.used = true;
+  return outcome;
 }
 
 std::size_t Design::EvaluateTerms(std::span<const double> cell_values,

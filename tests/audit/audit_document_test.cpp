@@ -56,7 +56,7 @@ TEST(AuditDocument, HoldsTheContractKeysAndTheRoute) {
     EXPECT_TRUE(document.contains(key)) << key;
   }
   EXPECT_EQ(document["format"], "stepledger-audit");
-  EXPECT_EQ(document["format_version"], 1);
+  EXPECT_EQ(document["format_version"], 2);
   EXPECT_FALSE(document.contains("validation")) << "no validation was run: the key is omitted";
   EXPECT_FALSE(document.contains("subsets")) << "stepwise has no subsets table";
   EXPECT_FALSE(document.contains("signature"));
@@ -151,7 +151,7 @@ TEST(AuditDocument, TheSchemaRejectsAnAuditMissingItsSeal) {
   json document = BuildAuditDocument(RunLaptops(dir));
   SealAuditDocument(document);
   document.erase("seal");
-  document["format_version"] = 2;
+  document["format_version"] = kAuditFormatVersion + 1;
   const auto path = dir.path() / "broken.json";
   testing::WriteJsonFile(path, document);
   const std::string problems = testing::ValidateAuditAgainstSchema(path);
@@ -293,7 +293,60 @@ TEST(AuditReading, NamesTheProblemOfAnUnreadableAudit) {
   } catch (const InputError& error) {
     EXPECT_NE(std::string(error.what()).find("format_version"), std::string::npos) << error.what();
   }
+  const auto older = dir.Write("older.json", "{\"format\": \"stepledger-audit\", \"format_version\": 0}");
+  try {
+    ReadAuditFile(older);
+    FAIL();
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("'format_version': 0 is not a version this tool reads (1 to 2)"),
+              std::string::npos) << error.what();
+  }
   EXPECT_THROW(ReadAuditFile(dir.path() / "absent.json"), InputError);
+}
+
+// Keys whose numbers count things (rows, columns, degrees of freedom, levels, steps). JSON
+// readers in other languages tell 229 from 229.0; a count is never written as a float.
+bool IsCountKey(const std::string& key) {
+  static const std::set<std::string> kCountKeys = {
+      "bytes", "count", "design_columns", "df", "df_residual", "fingerprint_block_bytes", "index",
+      "k", "max_leverage_line", "max_unit_leverage_line", "missing", "n", "present", "rank",
+      "refinement_passes", "rows", "rows_read", "rows_used", "size", "step_count",
+      "subsets_evaluated", "threads", "candidate_terms", "max_refinement_passes"};
+  return kCountKeys.count(key) > 0;
+}
+
+void ExpectCountsAreIntegers(const json& value, const std::string& path) {
+  if (value.is_object()) {
+    for (const auto& [key, child] : value.items()) {
+      const std::string child_path = path + "." + key;
+      if (IsCountKey(key) && child.is_number()) {
+        EXPECT_TRUE(child.is_number_integer()) << child_path << " = " << child.dump();
+      }
+      ExpectCountsAreIntegers(child, child_path);
+    }
+  } else if (value.is_array()) {
+    for (std::size_t i = 0; i < value.size(); ++i) ExpectCountsAreIntegers(value[i], path + "[" + std::to_string(i) + "]");
+  }
+}
+
+TEST(AuditDocument, EveryCountIsAJsonInteger) {
+  // The format_version 1 fixture's data and plan: weighted, with rows dropped for two reasons,
+  // categorical terms and a product, so that every kind of count is written.
+  const auto fixture = testing::SourceDir() / "tests" / "audit" / "format_v1";
+  const std::string plan = testing::ReadText(fixture / "plan.json");
+  for (const char* method : {"stepwise", "all-subsets", "none"}) {
+    SCOPED_TRACE(method);
+    std::string plan_text = plan;
+    plan_text.replace(plan_text.find("\"stepwise\""), 10, "\"" + std::string(method) + "\"");
+    json document =
+        BuildAuditDocument(RunPlanForAudit(fixture / "laptops_small.csv", ParsePlanText(plan_text), {}));
+    SealAuditDocument(document);
+    ExpectCountsAreIntegers(document, "");
+    // Spot checks of the ones format_version 1 wrote as floats.
+    EXPECT_TRUE(document["model"]["df_residual"].is_number_integer());
+    EXPECT_TRUE(document["model"]["anova"]["residual"]["df"].is_number_integer());
+    EXPECT_TRUE(document["search"]["n"].is_number_integer());
+  }
 }
 
 }  // namespace

@@ -135,6 +135,33 @@ TEST_F(AuditVerify, ReplayOnTheOriginalDataHolds) {
   EXPECT_EQ(report.replay, Check::kHolds);
 }
 
+TEST_F(AuditVerify, WithoutDataItSaysTheFingerprintAndReplayWereNotChecked) {
+  const VerifyReport report = VerifyAudit(*sealed_, VerifyOptions{});
+  ASSERT_TRUE(report.Holds()) << report.FullReport();
+  EXPECT_FALSE(report.DataChecked());
+  const std::string text = report.FullReport();
+  EXPECT_NE(text.find("data fingerprint and replay: NOT CHECKED"), std::string::npos) << text;
+  EXPECT_NE(text.find("--data FILE"), std::string::npos) << "says how to check them: " << text;
+  EXPECT_EQ(text.find("The audit holds.\n"), std::string::npos) << "no unqualified verdict: " << text;
+  EXPECT_NE(text.find("the data it was made from were not checked"), std::string::npos) << text;
+  const json result = report.ToJson();
+  EXPECT_EQ(result["data_checked"], false);
+  EXPECT_EQ(result["not_checked"], json({"fingerprint", "replay"}));
+  EXPECT_NE(result["how_to_check"].get<std::string>().find("--data FILE"), std::string::npos);
+}
+
+TEST_F(AuditVerify, ControlWithDataNothingIsLeftUnchecked) {
+  VerifyOptions options;
+  options.data = data_;
+  const VerifyReport report = VerifyAudit(*sealed_, options);
+  ASSERT_TRUE(report.Holds()) << report.FullReport();
+  EXPECT_TRUE(report.DataChecked());
+  EXPECT_EQ(report.FullReport().find("NOT CHECKED"), std::string::npos) << report.FullReport();
+  EXPECT_NE(report.FullReport().find("The audit holds.\n"), std::string::npos);
+  EXPECT_EQ(report.ToJson()["not_checked"], json::array());
+  EXPECT_TRUE(report.ToJson()["how_to_check"].is_null());
+}
+
 TEST_F(AuditVerify, ReplayReportsAFingerprintMismatchOnAnyByteChange) {
   // The same values with other bytes (a trailing blank line is not a record): only the
   // fingerprint can tell.

@@ -86,12 +86,47 @@ TEST(ModelJson, AnovaSplitsTermRowsFromSummaryRows) {
   const nlohmann::json anova = ModelToJson(SmallFit())["anova"];
   ASSERT_EQ(anova["terms"].size(), 2u);
   EXPECT_EQ(anova["terms"][0]["source"], "total");  // the term, by position
-  EXPECT_EQ(anova["terms"][0]["df"], 1.0);
+  EXPECT_EQ(anova["terms"][0]["df"], 1);
   EXPECT_EQ(anova["terms"][1]["source"], "x");
-  EXPECT_EQ(anova["regression"]["df"], 2.0);
-  EXPECT_EQ(anova["residual"]["df"], 7.0);
+  EXPECT_EQ(anova["regression"]["df"], 2);
+  EXPECT_EQ(anova["residual"]["df"], 7);
   EXPECT_TRUE(anova["residual"]["f"].is_null());
-  EXPECT_EQ(anova["total"]["df"], 9.0);  // the summary row, not the term
+  EXPECT_EQ(anova["total"]["df"], 9);  // the summary row, not the term
+}
+
+TEST(ModelJson, CountsAreJsonIntegers) {
+  // Degrees of freedom are doubles in FitResult; the JSON says 7, not 7.0.
+  const nlohmann::json model = ModelToJson(SmallFit());
+  EXPECT_EQ(model["df_residual"].dump(), "7");
+  EXPECT_EQ(model["n"].dump(), "10");
+  EXPECT_EQ(model["k"].dump(), "3");
+  for (const auto& [source, row] : model["anova"].items()) {
+    if (source == "terms") {
+      for (const auto& term_row : row) EXPECT_TRUE(term_row["df"].is_number_integer()) << term_row.dump();
+    } else {
+      EXPECT_TRUE(row["df"].is_number_integer()) << source << ": " << row.dump();
+    }
+  }
+  EXPECT_EQ(CountJson(-2.0).dump(), "-2") << "n < k: the residual df is negative";
+}
+
+TEST(ModelJson, TheRegressionSumOfSquaresSaysWhatItHolds) {
+  const nlohmann::json model = ModelToJson(SmallFit());
+  EXPECT_FALSE(model.contains("ssr")) << "format_version 1's name, read by AuditInCurrentShape only";
+  EXPECT_EQ(model["ss_regression"], 7.5);
+  EXPECT_EQ(model["rss"], 2.5);
+}
+
+TEST(ModelJson, RowsDroppedAreAListOfReasonColumnRows) {
+  RowAccounting accounting;
+  EXPECT_EQ(RowsDroppedJson(accounting), nlohmann::json::array());
+  accounting.CountDropped(DropReason::kZeroWeight, "units");
+  accounting.CountDropped(DropReason::kMissing, "age_months");
+  accounting.CountDropped(DropReason::kMissing, "age_months");
+  EXPECT_EQ(RowsDroppedJson(accounting), nlohmann::json::parse(R"([
+      {"reason": "missing", "column": "age_months", "rows": 2},
+      {"reason": "zero weight", "column": "units", "rows": 1}])"));
+  EXPECT_TRUE(RowsDroppedJson(accounting)[0]["rows"].is_number_integer());
 }
 
 }  // namespace

@@ -163,7 +163,7 @@ TEST_F(HtmlReport, LoggedResponseIsNamedOnTheAxesAndCategoricalColumnsInTheTable
   EXPECT_NE(html.find("fitted log(price)"), std::string::npos);
   EXPECT_NE(html.find("residual (log(price) units)"), std::string::npos);
   EXPECT_NE(html.find("modelled on the log scale"), std::string::npos);
-  EXPECT_NE(html.find("<td>grade[A]</td>"), std::string::npos);
+  EXPECT_NE(html.find("<td>grade=A</td>"), std::string::npos);
   EXPECT_EQ(check.Count("resid"), testing::RowsWithStandardizedResidual(logged_->diagnostics));
   EXPECT_EQ(check.Count("coef"), CoefficientsWithAnInterval(audit));
 }

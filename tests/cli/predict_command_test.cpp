@@ -40,7 +40,7 @@ std::string Number(double value) {
   return buffer;
 }
 
-// Invented true model: y = 20 + 0.8 a - 0.3 b + 1.5 ln d + 0.05 a^2 + [q] (1 + 0.2 a) - [r] 0.5
+// Invented true model: y = 20 + 0.8 a - 0.3 b + 1.5 ln d + 0.05 a^2 + (g=q) (1 + 0.2 a) - (g=r) 0.5
 // + e / sqrt(w), with b = a + noise (strongly correlated with a) and a `noise` column of no
 // signal that the plans keep out ("never").
 std::string MakeData(std::uint64_t seed, int rows, bool log_response = false) {

@@ -4,7 +4,7 @@ Usage: statsmodels_predict.py DATA.csv ROWS.csv WEIGHTED(0|1) ALPHA
 DATA.csv has columns id, a, b, d, g (levels p, q, r), noise, w and y; ROWS.csv has id, a, b, d,
 g and w (any order, no y). The design is built by hand in numpy, in stepledger's column order and
 names, with baseline level p:
-    intercept, a, b, ld = ln(d), a2 = a^2, g[q], g[r], a:g[q], a:g[r]
+    intercept, a, b, ld = ln(d), a2 = a^2, g=q, g=r, a:g=q, a:g=r
 and fitted with statsmodels OLS, or WLS with precision weights w when WEIGHTED is 1. The new
 rows are priced with get_prediction(X0, weights=w0).summary_frame(alpha) (w0 = 1 for OLS).
 Prints JSON: names, params, and per new row mean, mean_se, mean_ci_lower, mean_ci_upper,
@@ -50,7 +50,7 @@ def main(data_path, rows_path, weighted, alpha):
     result = {
         "source": "Debian python3-statsmodels %s %s get_prediction"
         % (sm.__version__, "WLS" if weighted else "OLS"),
-        "names": ["intercept", "a", "b", "ld", "a2", "g[q]", "g[r]", "a:g[q]", "a:g[r]"],
+        "names": ["intercept", "a", "b", "ld", "a2", "g=q", "g=r", "a:g=q", "a:g=r"],
         "params": [float(v) for v in fit.params],
     }
     for key in ["mean", "mean_se", "mean_ci_lower", "mean_ci_upper", "obs_ci_lower", "obs_ci_upper"]:

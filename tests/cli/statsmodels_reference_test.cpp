@@ -47,8 +47,8 @@ std::string Number(double value) {
   return buffer;
 }
 
-// True model (invented for the simulation): y = 1.5 + 2 x1 - 0.7 x2 + 3 ln x3 + 1 [b] - 2 [c]
-// + 0.5 x1[b] - 1 x1[c] + e / sqrt(w).
+// True model (invented for the simulation): y = 1.5 + 2 x1 - 0.7 x2 + 3 ln x3 + 1 (g=b) - 2 (g=c)
+// + 0.5 x1 (g=b) - 1 x1 (g=c) + e / sqrt(w), where (g=b) is 1 on level b of g and 0 elsewhere.
 std::string MakeCsv(const DesignCase& design) {
   testing::TestRandom random(design.seed);
   std::ostringstream csv;

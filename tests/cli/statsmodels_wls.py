@@ -3,7 +3,7 @@
 Usage: statsmodels_wls.py DATA.csv
 The CSV has columns x1, x2, x3, g (levels a, b, c), w and y. The design is built by hand in
 numpy, in stepledger's column order and names, with baseline level a:
-    intercept, x1, x2, lx3 = ln(x3), g[b], g[c], x1:g[b], x1:g[c]
+    intercept, x1, x2, lx3 = ln(x3), g=b, g=c, x1:g=b, x1:g=c
 and fitted with statsmodels WLS (weights w as precision weights). Prints JSON with the names,
 params, bse, llf (which includes the 1/2 sum ln w term), rsquared, ssr and df_resid.
 """
@@ -26,7 +26,7 @@ def main(path):
     y = np.array([float(r["y"]) for r in rows])
     gb = np.array([1.0 if level == "b" else 0.0 for level in g])
     gc = np.array([1.0 if level == "c" else 0.0 for level in g])
-    names = ["intercept", "x1", "x2", "lx3", "g[b]", "g[c]", "x1:g[b]", "x1:g[c]"]
+    names = ["intercept", "x1", "x2", "lx3", "g=b", "g=c", "x1:g=b", "x1:g=c"]
     design = np.column_stack([np.ones_like(x1), x1, x2, np.log(x3), gb, gc, x1 * gb, x1 * gc])
     fit = sm.WLS(y, design, weights=w).fit()
     print(json.dumps({

@@ -127,9 +127,12 @@ TEST(DataPassTest, AccountingAndFactorOfTheSmallFile) {
   // Counted by hand from kLaptops.
   EXPECT_EQ(result.accounting.rows_read, 6u);
   EXPECT_EQ(result.accounting.rows_used, 3u);
-  const std::map<std::string, std::uint64_t> dropped = {
-      {"missing age", 1}, {"missing price", 1}, {"zero weight", 1}};
+  // By reason (missing before zero weight), then column.
+  const std::vector<RowDrop> dropped = {{DropReason::kMissing, "age", 1},
+                                        {DropReason::kMissing, "price", 1},
+                                        {DropReason::kZeroWeight, "units", 1}};
   EXPECT_EQ(result.accounting.rows_dropped, dropped);
+  EXPECT_EQ(result.accounting.RowsDroppedTotal(), 3u);
   EXPECT_EQ(result.factor.rows, 3u);
   EXPECT_DOUBLE_EQ(result.factor.weight_sum, 6.0);
   EXPECT_DOUBLE_EQ(result.factor.log_weight_sum, std::log(2.0) + std::log(3.0));
@@ -141,6 +144,22 @@ TEST(DataPassTest, AccountingAndFactorOfTheSmallFile) {
   EXPECT_NEAR(gram(0, 0), 6.0, 6.0 * 1e-14);
   // (age, age): sum w age^2 = 1*100 + 2*400 + 3*1600 = 5700, age scale 2^-5 (bound 40).
   EXPECT_NEAR(gram(1, 1), 5700.0 * std::ldexp(1.0, -10), 1e-12);
+}
+
+TEST(RowAccountingTest, DropsAreKeptByReasonThenColumnWhateverTheOrderSeen) {
+  RowAccounting accounting;
+  accounting.CountDropped(DropReason::kZeroWeight, "units");
+  accounting.CountDropped(DropReason::kMissing, "price");
+  accounting.CountDropped(DropReason::kMissing, "age");
+  accounting.CountDropped(DropReason::kMissing, "price");
+  accounting.CountDropped(DropReason::kZeroWeight, "units");
+  const std::vector<RowDrop> expected = {{DropReason::kMissing, "age", 1},
+                                         {DropReason::kMissing, "price", 2},
+                                         {DropReason::kZeroWeight, "units", 2}};
+  EXPECT_EQ(accounting.rows_dropped, expected);
+  EXPECT_EQ(accounting.RowsDroppedTotal(), 5u);
+  EXPECT_STREQ(ToString(DropReason::kMissing), "missing");
+  EXPECT_STREQ(ToString(DropReason::kZeroWeight), "zero weight");
 }
 
 TEST(DataPassTest, ByteObserverSeesTheWholeFile) {
@@ -173,9 +192,10 @@ TEST(DataPassTest, ThreadCountsGiveTheSameFactorAndAccounting) {
   const RowAccounting& single = results[0].accounting;
   EXPECT_EQ(single.rows_read, data.rows);
   EXPECT_EQ(single.rows_used, data.used);
-  EXPECT_EQ(single.rows_dropped.at("missing y"), data.missing_y);
-  EXPECT_EQ(single.rows_dropped.at("zero weight"), data.zero_weight);
-  EXPECT_EQ(single.rows_dropped.at("missing a"), data.missing_a);
+  const std::vector<RowDrop> dropped = {{DropReason::kMissing, "a", data.missing_a},
+                                        {DropReason::kMissing, "y", data.missing_y},
+                                        {DropReason::kZeroWeight, "w", data.zero_weight}};
+  EXPECT_EQ(single.rows_dropped, dropped);
   for (std::size_t r = 1; r < results.size(); ++r) {
     const PassResult& other = results[r];
     EXPECT_EQ(other.accounting.rows_read, single.rows_read);
@@ -212,7 +232,7 @@ TEST(DataPassTest, ForEachUsedRowSeesUsedRowsInOrder) {
   EXPECT_EQ(lines, (std::vector<std::uint64_t>{2, 3, 7}));
   EXPECT_EQ(ys, (std::vector<double>{100, 200, 250}));
   EXPECT_EQ(weights, (std::vector<double>{1, 2, 3}));
-  // intercept, age, grade[B], grade[C] (baseline A, the most frequent).
+  // intercept, age, grade=B, grade=C (baseline A, the most frequent).
   EXPECT_EQ(xs[1], (std::vector<double>{1, 20, 1, 0}));
   EXPECT_EQ(xs[2], (std::vector<double>{1, 40, 0, 0}));
 

@@ -74,6 +74,12 @@ struct ExpandedRow {
   double y = 0, w = 0;
 };
 
+// "reason:column" of a dropped row ("missing:age", "zero weight:units"); "" for a used row.
+std::string DropText(const RowOutcome& outcome) {
+  if (outcome.used) return "";
+  return std::string(ToString(outcome.reason)) + ":" + std::string(outcome.column);
+}
+
 std::vector<ExpandedRow> ExpandAll(const std::filesystem::path& path, const Design& design,
                                    const CsvOptions& csv = {}) {
   CsvReader reader(path, csv);
@@ -135,10 +141,10 @@ TEST_F(DesignTest, ColumnNamesAndOrder) {
   const Design design = Build(FullSpec());
   const std::vector<std::string> expected = {
       "intercept",          "age",                "age^2",
-      "log_disk",           "disk",               "grade[B]",
-      "grade[C]",           "colour[green]",      "colour[red]",
-      "age:grade[B]",       "age:grade[C]",       "grade[B]:colour[green]",
-      "grade[B]:colour[red]", "grade[C]:colour[green]", "grade[C]:colour[red]",
+      "log_disk",           "disk",               "grade=B",
+      "grade=C",           "colour=green",      "colour=red",
+      "age:grade=B",       "age:grade=C",       "grade=B:colour=green",
+      "grade=B:colour=red", "grade=C:colour=green", "grade=C:colour=red",
       "age:disk"};
   ASSERT_EQ(design.column_count(), expected.size());
   for (std::size_t c = 0; c < expected.size(); ++c) EXPECT_EQ(design.columns[c].name, expected[c]);
@@ -167,8 +173,8 @@ TEST_F(DesignTest, GivenBaselineIsUsed) {
   spec.terms = {Categorical("grade", "grade", "C")};
   const Design design = Build(WithKeyPaths(spec));
   EXPECT_EQ(design.terms[0].baseline, "C");
-  EXPECT_EQ(design.columns[1].name, "grade[A]");
-  EXPECT_EQ(design.columns[2].name, "grade[B]");
+  EXPECT_EQ(design.columns[1].name, "grade=A");
+  EXPECT_EQ(design.columns[2].name, "grade=B");
 }
 
 TEST_F(DesignTest, CategoricalOnNumericCodesUsesBytewiseLevelOrder) {
@@ -206,11 +212,11 @@ TEST_F(DesignTest, ValuesOfEveryTermKind) {
   ASSERT_TRUE(rows[5].outcome.used);
   EXPECT_EQ(rows[5].x, row6);
   EXPECT_EQ(rows[5].w, 3);
-  EXPECT_TRUE(rows[0].outcome.reason.empty());
+  EXPECT_TRUE(rows[0].outcome.column.empty());
 }
 
 TEST_F(DesignTest, CategoricalTimesCategoricalVariesFirstPartSlowest) {
-  // C x red (row 4) would be column grade[C]:colour[red]; with weights it is dropped, so
+  // C x red (row 4) would be column grade=C:colour=red; with weights it is dropped, so
   // expand without weights to see it.
   DesignSpec spec = FullSpec();
   spec.weights.reset();
@@ -218,7 +224,7 @@ TEST_F(DesignTest, CategoricalTimesCategoricalVariesFirstPartSlowest) {
   const auto rows = ExpandAll(path_, design);
   ASSERT_TRUE(rows[3].outcome.used);
   const std::size_t first = design.terms[design.FindTerm("grade:colour")].first_column;
-  EXPECT_EQ(design.columns[first + 3].name, "grade[C]:colour[red]");
+  EXPECT_EQ(design.columns[first + 3].name, "grade=C:colour=red");
   EXPECT_EQ(rows[3].x[first + 0], 0);
   EXPECT_EQ(rows[3].x[first + 1], 0);
   EXPECT_EQ(rows[3].x[first + 2], 0);
@@ -230,11 +236,11 @@ TEST_F(DesignTest, RowsDroppedByFirstReason) {
   const Design design = Build(FullSpec());
   const auto rows = ExpandAll(path_, design);
   EXPECT_FALSE(rows[2].outcome.used);
-  EXPECT_EQ(rows[2].outcome.reason, "missing age");
+  EXPECT_EQ(DropText(rows[2].outcome), "missing:age");
   EXPECT_FALSE(rows[3].outcome.used);
-  EXPECT_EQ(rows[3].outcome.reason, "zero weight");
+  EXPECT_EQ(DropText(rows[3].outcome), "zero weight:units");
   EXPECT_FALSE(rows[4].outcome.used);
-  EXPECT_EQ(rows[4].outcome.reason, "missing price");
+  EXPECT_EQ(DropText(rows[4].outcome), "missing:price");
 }
 
 TEST_F(DesignTest, ResponseReasonComesBeforeWeightsAndTerms) {
@@ -254,10 +260,10 @@ TEST_F(DesignTest, ResponseReasonComesBeforeWeightsAndTerms) {
   spec.terms = Keyed({Numeric("a", "a"), Numeric("b", "b")});
   const Design design = BuildDesign(spec, profile);
   const auto rows = ExpandAll(path, design);
-  EXPECT_EQ(rows[0].outcome.reason, "missing y");
-  EXPECT_EQ(rows[1].outcome.reason, "zero weight");
-  EXPECT_EQ(rows[2].outcome.reason, "missing a");
-  EXPECT_EQ(rows[3].outcome.reason, "missing b");
+  EXPECT_EQ(DropText(rows[0].outcome), "missing:y");
+  EXPECT_EQ(DropText(rows[1].outcome), "zero weight:w");
+  EXPECT_EQ(DropText(rows[2].outcome), "missing:a");
+  EXPECT_EQ(DropText(rows[3].outcome), "missing:b");
   EXPECT_TRUE(rows[4].outcome.used);
 }
 
@@ -293,7 +299,7 @@ TEST_F(DesignTest, ProductMayComeBeforeItsParts) {
   spec.terms = {Product("age:grade", "age", "grade"), Numeric("age", "age"),
                 Categorical("grade", "grade")};
   const Design design = Build(WithKeyPaths(spec));
-  EXPECT_EQ(design.columns[1].name, "age:grade[B]");
+  EXPECT_EQ(design.columns[1].name, "age:grade=B");
   EXPECT_EQ(design.columns[3].name, "age");
   const auto rows = ExpandAll(path_, design);
   EXPECT_EQ(rows[1].x[1], 20);  // age 20, grade B
@@ -498,7 +504,7 @@ TEST_F(DesignTest, PowerDegreeBelowTwoIsRefused) {
 TEST_F(DesignTest, ClashingColumnNamesAreRefused) {
   DesignSpec spec;
   spec.response = "price";
-  spec.terms = Keyed({Categorical("grade", "grade"), Numeric("grade[B]", "age")});
+  spec.terms = Keyed({Categorical("grade", "grade"), Numeric("grade=B", "age")});
   const PlanError error = BuildError(spec);
   EXPECT_EQ(error.key_path(), "terms[1].name");
   EXPECT_NE(std::string(error.what()).find("same name"), std::string::npos);
@@ -605,7 +611,7 @@ TEST(DesignExpandTest, MissingTokensComeFromTheReader) {
   // With "-" as the only missing token, "NA" is a level of the categorical term.
   const Design design = BuildDesign(spec, ProfileCsv(path, csv));
   const auto rows = ExpandAll(path, design, csv);
-  EXPECT_EQ(rows[0].outcome.reason, "missing age");
+  EXPECT_EQ(DropText(rows[0].outcome), "missing:age");
   EXPECT_TRUE(rows[1].outcome.used);
   EXPECT_EQ(design.terms[0].levels.size(), 2u);  // 3 levels "4", "5", "NA"
 }

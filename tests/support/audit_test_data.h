@@ -110,7 +110,8 @@ inline std::filesystem::path AuditSchemaPath() {
 /// Validates a file against the audit schema with Debian's python3-jsonschema
 /// (Draft202012Validator). Returns "" when valid, else the validator's messages.
 /// Returns "skip" when python3-jsonschema is missing.
-inline std::string ValidateAuditAgainstSchema(const std::filesystem::path& audit) {
+inline std::string ValidateAuditAgainstSchema(const std::filesystem::path& audit,
+                                              const std::filesystem::path& schema = AuditSchemaPath()) {
   if (!PythonHasModules("jsonschema")) return "skip";
   const std::string script =
       "import json,sys,jsonschema\n"
@@ -123,7 +124,7 @@ inline std::string ValidateAuditAgainstSchema(const std::filesystem::path& audit
   const auto script_path = scratch.Write("validate.py", script);
   std::string output;
   const int status = RunCommand(ReferencePython() + " '" + script_path.string() + "' '" +
-                                    AuditSchemaPath().string() + "' '" + audit.string() + "' 2>&1",
+                                    schema.string() + "' '" + audit.string() + "' 2>&1",
                                 &output);
   if (status == 0) return "";
   return output.empty() ? "validator failed with status " + std::to_string(status) : output;

@@ -2,7 +2,9 @@
 // The audit file (CONTRACT.md `audit.json`, DESIGN.md §6): one run of a plan on a data file,
 // recorded so that a reviewer can see every step, prove that nothing was edited, and replay it.
 //
-// Shape (format "stepledger-audit", format_version 1; audit/schema/audit.schema.json):
+// Shape (format "stepledger-audit", format_version 2; audit/schema/audit.schema.json; audits of
+// format_version 1 still verify and are read through AuditInCurrentShape,
+// audit/audit_format_versions.h):
 //   format, format_version, tool {name, version, commit, build {compiler, blas, build_type}},
 //   created_at, duration_seconds,                         <- the only fields that record time
 //   plan {verbatim, normalised}, settings, data, design, search, steps, subsets?, model,
@@ -36,6 +38,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/audit/fitted_model.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/io/atomic_file.h"
@@ -50,7 +53,10 @@
 namespace stepledger {
 
 inline constexpr std::string_view kAuditFormat = "stepledger-audit";
-inline constexpr int kAuditFormatVersion = 1;
+/// 2: design columns TERM=LEVEL, model.ss_regression, data.rows_dropped as a list of
+/// {reason, column, rows}, counts as JSON integers (1 wrote TERM[LEVEL], model.ssr and an
+/// object keyed by reason).
+inline constexpr int kAuditFormatVersion = 2;
 /// Top-level fields that record time: they (and the seal and signature over them) are the only
 /// fields in which two runs of the same plan on the same data with the same build differ.
 inline constexpr std::array<std::string_view, 2> kAuditTimeFields = {"created_at",
@@ -93,8 +99,11 @@ void SealAuditDocument(nlohmann::json& document, const Ed25519Signer* signer = n
 /// The file text: two-space indentation, keys sorted, a final newline.
 std::string SerializeAudit(const nlohmann::json& document);
 
-/// Reads and parses an audit file. Throws InputError naming the file (and line and column for
-/// malformed JSON) when it cannot be read, is not JSON, or is not a stepledger audit.
+/// Reads and parses an audit file, as recorded (the integrity checks need it so). Throws
+/// InputError naming the file (and line and column for malformed JSON) when it cannot be read,
+/// is not JSON, is not a stepledger audit, or has a format_version this tool does not read
+/// (kOldestAuditFormatVersion to kAuditFormatVersion). Interpret it through
+/// AuditInCurrentShape (audit_format_versions.h), which reads every older version.
 nlohmann::json ReadAuditFile(const std::filesystem::path& path);
 
 /// Where and how an audit is written.

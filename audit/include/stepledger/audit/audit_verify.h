@@ -9,6 +9,10 @@
 // What the checks prove: digests and seal are unkeyed, so they catch accidental and casual
 // edits; anyone can recompute them. A signature checked against a public key obtained
 // elsewhere (--public-key) shows who produced the file and that nobody recomputed the chain.
+// Without data, the report says that the fingerprint and the replay were not checked.
+// Audits of an older format_version verify too: the integrity checks run on the document as
+// recorded, and the replay compares the recorded content read in today's names
+// (AuditInCurrentShape, audit_format_versions.h).
 
 #include <filesystem>
 #include <optional>
@@ -20,6 +24,10 @@
 #include "stepledger/audit/audit_document.h"
 
 namespace stepledger {
+
+/// How to check what verify without data leaves unchecked (printed by FullReport and noted).
+inline constexpr const char* kHowToCheckData =
+    "give --data FILE, the data the audit was made from, to check its fingerprint and replay the plan";
 
 struct VerifyOptions {
   /// Ed25519 public key (PEM) the signature must verify against; empty: the signature, when
@@ -49,6 +57,10 @@ struct VerifyReport {
   std::vector<std::string> notes;
   /// True when every check that ran holds.
   bool Holds() const { return problems.empty(); }
+  /// True when the data were checked (fingerprint and replay ran, --data). Without them the
+  /// checks show only that the record is intact, not that it comes from a given data file;
+  /// FullReport and ToJson ("data_checked", "not_checked") say so.
+  bool DataChecked() const { return fingerprint != Check::kNotRun || replay != Check::kNotRun; }
   /// One line per check and per problem, for the terminal.
   std::string FullReport() const;
   nlohmann::json ToJson() const;

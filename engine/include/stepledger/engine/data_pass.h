@@ -5,9 +5,10 @@
 #include <cstdint>
 #include <filesystem>
 #include <functional>
-#include <map>
 #include <span>
 #include <string>
+#include <string_view>
+#include <vector>
 
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/design.h"
@@ -25,11 +26,26 @@ struct PassOptions {
   std::size_t block_rows = 256;
 };
 
-/// Which rows were read, used and dropped (by reason).
+/// Rows dropped for one reason in one column (the audit's `data.rows_dropped` entries).
+struct RowDrop {
+  DropReason reason = DropReason::kMissing;
+  std::string column;      ///< the column whose cell dropped the rows (the weights for kZeroWeight)
+  std::uint64_t rows = 0;  ///< >= 1
+  bool operator==(const RowDrop&) const = default;
+};
+
+/// Which rows were read, used and dropped (by reason and column).
 struct RowAccounting {
   std::uint64_t rows_read = 0;
   std::uint64_t rows_used = 0;
-  std::map<std::string, std::uint64_t> rows_dropped;
+  /// One entry per (reason, column) that dropped a row, ordered by reason (DropReason order),
+  /// then column (byte-wise), so that any pass over the same rows gives the same list.
+  std::vector<RowDrop> rows_dropped;
+
+  /// Counts one dropped row (O(entries); there are few: one per reason and column).
+  void CountDropped(DropReason reason, std::string_view column);
+  /// The sum of rows_dropped[i].rows.
+  std::uint64_t RowsDroppedTotal() const;
 };
 
 struct PassResult {

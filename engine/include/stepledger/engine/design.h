@@ -10,6 +10,7 @@
 #include <optional>
 #include <span>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "stepledger/engine/csv.h"
@@ -67,7 +68,7 @@ void ValidateDesignSpec(const DesignSpec& spec);
 inline constexpr std::size_t kNoTerm = std::numeric_limits<std::size_t>::max();
 
 struct DesignColumn {
-  std::string name;            ///< "intercept", "age", "grade[A]", "age:grade[A]"
+  std::string name;            ///< "intercept", "age", "grade=A", "age:grade=A"
   std::size_t term = kNoTerm;  ///< owning term index; kNoTerm for the intercept
   /// Exact power of two by which the factor scales this column (see Design::scales).
   double scale = 1.0;
@@ -88,11 +89,24 @@ struct DesignTerm {
   std::string key_path;                    ///< from the TermSpec
 };
 
-/// Why a row was not used. Rows are counted once, under the first reason found
+/// Why a row was not used. Every other problem with a cell (text in a numeric column, a
+/// non-finite number, a negative weight, a response <= 0 under "log", a log term's column
+/// <= 0, an unseen level) is an InputError naming the cell, not a dropped row.
+enum class DropReason {
+  kMissing,     ///< a cell the design reads is empty or a missing token ("missing")
+  kZeroWeight,  ///< the row's precision weight is 0 ("zero weight")
+};
+/// The plain words the audit and the reports record: "missing", "zero weight".
+const char* ToString(DropReason reason);
+
+/// What Expand made of a row. A row is counted once, under the first reason found
 /// (response, weights, then the terms' columns in plan order).
 struct RowOutcome {
   bool used = false;
-  std::string reason;  ///< e.g. "missing age_months", "zero weight"; empty when used
+  DropReason reason = DropReason::kMissing;  ///< meaningful only when !used
+  /// When !used, the column whose cell dropped the row (the weights column for kZeroWeight);
+  /// a view of a name the Design owns. Empty when used.
+  std::string_view column;
 };
 
 /// The expanded design. Column 0 is the intercept when there is one.
@@ -162,7 +176,6 @@ class Design {
       std::string column_name;
       bool categorical = false;
       std::size_t term = kNoTerm;  ///< categorical: the term whose levels apply
-      std::string missing_reason;  ///< "missing <column>"
     };
     std::vector<Cell> cells;
     std::ptrdiff_t response_cell = -1;   ///< index into cells

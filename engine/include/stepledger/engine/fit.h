@@ -44,7 +44,7 @@ struct FitOptions {
 };
 
 struct CoefficientEstimate {
-  std::string name;   ///< design column name ("intercept", "age", "grade[A]", ...)
+  std::string name;   ///< design column name ("intercept", "age", "grade=A", "age:grade=A", ...)
   std::string term;   ///< owning term ("intercept" for the intercept)
   double estimate = 0;
   /// Undefined when n <= k. With an exact fit (se = 0), t is +-inf and p = 0 for a non-zero

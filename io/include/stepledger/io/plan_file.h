@@ -31,8 +31,12 @@
 //   "column": C                                a numeric column as it is
 //   "power": {"column": C, "degree": D}        C^D, D an integer >= 2
 //   "log": C                                   natural log of C (values must be > 0)
-//   "categorical": C, optional "baseline": L   k levels -> k-1 indicator columns
+//   "categorical": C, optional "baseline": L   k levels -> k-1 indicator columns, named
+//                                              TERM=LEVEL ("grade=A"; format_version 1
+//                                              audits wrote "grade[A]")
 //   "product": [A, B]                          product of the terms named A and B (A != B)
+//                                              columns A:B, with levels where a part is
+//                                              categorical ("age:grade=A")
 // Integers must be JSON integers (2, not 2.0).
 
 #include <filesystem>

@@ -1,0 +1,38 @@
+#pragma once
+// Reading audits of every format_version this tool knows, in one place.
+//
+// The integrity checks (chain, section digests, seal, signature) run on the document exactly as
+// it was recorded: they cover the recorded content, whatever its version. Everything that
+// interprets an audit — the replay comparison of `verify --data`, the model rebuilt for
+// `predict` and `report --data` — reads it through AuditInCurrentShape, so that an older
+// audit is understood with today's names.
+//
+// What changed between versions (README "Audit file"):
+//   format_version 1 -> 2
+//     design columns   `TERM[LEVEL]` and `A:TERM[LEVEL]`  ->  `TERM=LEVEL` and `A:TERM=LEVEL`
+//                      (every string of the document outside plan, tool and the integrity
+//                      fields: design, model, prediction, numerics, steps, cautions, ...)
+//     model.ssr        ->  model.ss_regression
+//     data.rows_dropped {"missing COLUMN": rows, "zero weight": rows}
+//                      ->  [{reason: "missing", column, rows}, {reason: "zero weight",
+//                           column: the weights column, rows}] (RowAccounting's order)
+//     counts           anova df, model.df_residual and search.n as JSON integers (3, not 3.0)
+// A change to the format adds its step here and raises kAuditFormatVersion.
+
+#include <nlohmann/json.hpp>
+
+namespace stepledger {
+
+/// The oldest format_version AuditInCurrentShape reads.
+inline constexpr int kOldestAuditFormatVersion = 1;
+
+/// A parsed audit (ReadAuditFile) in the shape of the current format_version: an audit of
+/// the current version unchanged, an older one translated step by step (the list above), with
+/// format_version set to the current one and `read_from_format_version` recording where it
+/// came from. The translation breaks the digests and the seal: check integrity on the
+/// document as read (CheckAuditIntegrity), never on this. A document without a
+/// format_version, or one this tool does not know, is returned unchanged (ReadAuditFile
+/// refuses those).
+nlohmann::json AuditInCurrentShape(const nlohmann::json& document);
+
+}  // namespace stepledger
