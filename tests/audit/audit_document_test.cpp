@@ -339,7 +339,7 @@ TEST(AuditDocument, EveryCountIsAJsonInteger) {
     std::string plan_text = plan;
     plan_text.replace(plan_text.find("\"stepwise\""), 10, "\"" + std::string(method) + "\"");
     json document =
-        BuildAuditDocument(RunPlanForAudit(fixture / "laptops_small.csv", ParsePlanText(plan_text), {}));
+        BuildAuditDocument(RunPlan(fixture / "laptops_small.csv", ParsePlanText(plan_text), {}));
     SealAuditDocument(document);
     ExpectCountsAreIntegers(document, "");
     // Spot checks of the ones format_version 1 wrote as floats.

@@ -14,7 +14,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/fitted_model.h"
-#include "stepledger/audit/plan_file.h"
+#include "stepledger/io/plan_file.h"
 #include "stepledger/audit/report.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/prediction.h"
@@ -34,7 +34,7 @@ std::filesystem::path FixtureData() { return FixtureDir() / "laptops_small.csv";
 // The fixture's plan run by this build (what `select --out` records today).
 json FreshAuditOfTheFixturePlan() {
   const LoadedPlan plan = ParsePlanText(testing::ReadText(FixtureDir() / "plan.json"));
-  json document = BuildAuditDocument(RunPlanForAudit(FixtureData(), plan, {}));
+  json document = BuildAuditDocument(RunPlan(FixtureData(), plan, {}));
   SealAuditDocument(document);
   return document;
 }
