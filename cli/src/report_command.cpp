@@ -10,7 +10,7 @@
 
 #include "commands.h"
 #include "stepledger/audit/audit_document.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "stepledger/cli/run_cli.h"
 #include "stepledger/engine/errors.h"
 

@@ -11,7 +11,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/audit/audit_document.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
 #include "support/test_paths.h"
 

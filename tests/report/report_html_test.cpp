@@ -9,7 +9,7 @@
 #include <set>
 #include <string>
 
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "stepledger/engine/errors.h"
 #include "support/audit_test_data.h"
 #include "support/report_audits.h"

@@ -4,7 +4,7 @@
 #include <sstream>
 
 #include "report_internal.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 
 namespace stepledger {
 namespace {

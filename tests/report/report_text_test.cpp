@@ -6,7 +6,7 @@
 #include <sstream>
 #include <string>
 
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
 #include "support/report_audits.h"
 #include "support/test_paths.h"

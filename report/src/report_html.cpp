@@ -7,7 +7,7 @@
 #include <sstream>
 
 #include "report_internal.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "svg_chart.h"
 
 namespace stepledger {

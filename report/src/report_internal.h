@@ -11,7 +11,7 @@
 
 #include <nlohmann/json.hpp>
 
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 
 namespace stepledger::report_detail {
 
