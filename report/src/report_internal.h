@@ -1,6 +1,6 @@
 #pragma once
-// Internal to the report: what the text and HTML renderings share, so that both say the same
-// things from the same reading of the audit (report_common.cpp).
+// Internal to the report: reading the audit for BuildReportModel (report_common.cpp), and the
+// pieces the model builders share. The back ends never read the audit: they see the model.
 
 #include <cstdint>
 #include <optional>
@@ -25,35 +25,39 @@ void CheckAuditShape(const json& audit);
 const json& Get(const json& object, std::string_view key);
 /// A number, or nullopt for null, missing or non-numbers.
 std::optional<double> Number(const json& value);
+/// An integer count (a JSON integer or an integral double such as 16.0), or nullopt.
+std::optional<std::int64_t> Count(const json& value);
 /// A string as it is, a number or bool as JSON text, null as "".
 std::string Text(const json& value);
+/// "a, b, c"; "(intercept only)" for no terms.
+std::string JoinTerms(const json& terms);
 
-/// A number with `significant` significant digits ("n/a" when undefined).
-std::string Format(std::optional<double> value, int significant = 4);
-/// A p-value: "< 1e-16" below that (common practice: beyond double's resolution of 1 - p).
-std::string FormatP(std::optional<double> value);
-/// An integer count with thousands separators.
-std::string FormatCount(const json& value);
 /// A data column's levels: "3 levels", and when there are at most max_listed, ": A B C"
 /// (with counts: ": A (12) B (40) C (9)"). Empty for a column without levels.
 std::string LevelsSummary(const json& column, std::size_t max_listed, bool with_counts);
 
 /// "BIC", "AIC", "AICc", "adjusted R²", "Mallows' Cp", "partial F", "CV error".
 std::string CriterionName(std::string_view code);
-/// The name of what a route's criterion_value holds ("BIC", or "residual mean square" for
-/// partial F), for axis labels.
-std::string CriterionValueName(std::string_view code);
 /// True for adjusted R² (the only criterion where a higher value is better).
 bool HigherIsBetter(std::string_view code);
+/// True for partial F, whose decisions are p-values against entry_p/exit_p.
+bool IsPValueRule(std::string_view code);
 /// The response as modelled: "resale_price" or "log(resale_price)".
 std::string ResponseLabel(const json& audit);
+/// The model in words: "log(resale_price) explained by age, memory, weighted by units"
+/// ("explained by the intercept alone" for no terms).
+std::string ModelStatement(const json& audit);
+/// The outcome in words that match the rule that stopped the search (for partial F: which
+/// threshold, entry_p or exit_p; otherwise the criterion).
+std::string OutcomeInWords(const json& audit);
 
 /// The plan in words: one sentence per line.
 std::vector<std::string> PlanSentences(const json& audit);
 /// (name, definition in words) for each candidate term of the normalised plan.
 std::vector<std::pair<std::string, std::string>> TermDefinitions(const json& audit);
 
-/// "+ cpu", "- age", "start", "stop" for a step.
+/// "add cpu", "remove age", "start", "stop" for a step or a candidate.
+std::string MoveLabel(std::string_view action, std::string_view term);
 std::string StepLabel(const json& step);
 
 /// The best criterion value at each model size of an all-subsets audit, by size.
@@ -63,28 +67,6 @@ struct SubsetBest {
   std::vector<std::string> terms;
 };
 std::vector<SubsetBest> BestSubsetBySize(const json& audit);
-
-/// Thresholds for rows that stand out (common practice: Cook's distance above 4/n,
-/// |standardised residual| above 3, leverage above 2k/n).
-struct StandOutRules {
-  double cooks = 0;
-  double standardized_residual = 3;
-  double leverage = 0;
-  std::size_t n = 0;
-};
-StandOutRules MakeStandOutRules(const ReportDiagnostics& diagnostics);
-struct StandOutRow {
-  const RowDiagnostic* row = nullptr;
-  std::vector<std::string> reasons;
-};
-/// Every row that crosses a threshold, in file order.
-std::vector<StandOutRow> RowsThatStandOut(const ReportDiagnostics& diagnostics,
-                                          const StandOutRules& rules);
-
-/// (theoretical normal quantile, standardised residual) for every row with a defined
-/// standardised residual, sorted; plotting positions (i - 3/8) / (n + 1/4) (Blom, common
-/// practice), quantiles from Boost.Math's standard normal.
-std::vector<std::pair<double, double>> NormalQuantilePairs(const ReportDiagnostics& diagnostics);
 
 /// What the integrity block shows.
 struct IntegrityFacts {
@@ -103,12 +85,40 @@ struct IntegrityFacts {
 };
 IntegrityFacts ReadIntegrity(const json& audit);
 
+/// How to get the diagnostics section, for a report rendered without them.
+std::string DiagnosticsHowTo(const json& audit);
+
+// ---- rows that stand out -----------------------------------------------------------------
+
+/// Thresholds for rows that stand out (common practice: Cook's distance above 4/n,
+/// |standardised residual| above 3, leverage above 2k/n).
+struct StandOutRules {
+  double cooks = 0;
+  double standardized_residual = 3;
+  double leverage = 0;
+  std::size_t n = 0;
+};
+StandOutRules MakeStandOutRules(const ReportDiagnostics& diagnostics);
+/// True when the row crosses a threshold (or has leverage 1).
+bool StandsOut(const RowDiagnostic& row, const StandOutRules& rules);
+/// Why, in words: "Cook's D > 0.02; leverage > 0.1".
+std::string StandOutReasons(const RowDiagnostic& row, const StandOutRules& rules);
+/// Orders rows by Cook's distance, largest first; undefined distances (leverage 1) first of
+/// all; ties by line number.
+bool LargerCooksFirst(const RowDiagnostic* a, const RowDiagnostic* b);
+/// The `limit` rows that stand out with the largest Cook's distance, sorted (a bounded heap:
+/// O(n log limit) time, O(limit) memory); *total receives how many rows stand out.
+std::vector<const RowDiagnostic*> TopRowsThatStandOut(const ReportDiagnostics& diagnostics,
+                                                      const StandOutRules& rules, std::size_t limit,
+                                                      std::size_t* total);
+
+/// The diagnostics section (report_diagnostics_model.cpp).
+ReportSection DiagnosticsSection(const json& audit, const ReportDiagnostics* diagnostics,
+                                 const ReportOptions& options);
+
 /// A plain-text table: headers, rows, and which columns are right-aligned (numbers).
 std::string TextTable(const std::vector<std::string>& headers,
                       const std::vector<std::vector<std::string>>& rows,
                       const std::vector<bool>& right_aligned, std::string_view indent = "  ");
-
-/// How to get the diagnostics section, for a report rendered without them.
-std::string DiagnosticsHowTo(const json& audit);
 
 }  // namespace stepledger::report_detail
