@@ -239,9 +239,9 @@ std::vector<std::string> PlanSentences(const json& audit) {
 
   if (criterion == "partial-f") {
     sentences.push_back("Decisions by partial F tests: a term may enter while its p-value is below "
-                        "entry_p = " + FormatQuantity(Number(Get(plan, "entry_p"))) +
+                        "entry_p = " + FormatPValue(Number(Get(plan, "entry_p"))) +
                         " and must leave while its p-value is above exit_p = " +
-                        FormatQuantity(Number(Get(plan, "exit_p"))) + ".");
+                        FormatPValue(Number(Get(plan, "exit_p"))) + ".");
   } else if (method != "none") {
     sentences.push_back("Criterion: " + CriterionName(criterion) + " (" +
                         (HigherIsBetter(criterion) ? "higher" : "lower") + " is better).");

@@ -310,7 +310,7 @@ void DensityChart(std::ostringstream& out, const ReportChart& chart, double char
       const double shade = 0.12 + 0.88 * std::sqrt(static_cast<double>(count) / static_cast<double>(most));
       out << "<rect class=\"pt density-cell\" x=\"" << C(left) << "\" y=\"" << C(top) << "\" width=\""
           << C(right - left) << "\" height=\"" << C(bottom - top) << "\" fill-opacity=\"" << SvgNumber(shade)
-          << "\"><title>" << E(FormatCount(static_cast<std::int64_t>(count)) + " rows") << "</title></rect>";
+          << "\"><title>" << E(FormatCount(static_cast<std::int64_t>(count)) + (count == 1 ? " row" : " rows")) << "</title></rect>";
     }
     out << "\n";
   }
@@ -338,7 +338,7 @@ void HistogramChart(std::ostringstream& out, const ReportChart& chart, double ch
     out << "<rect class=\"pt hist-bar\" x=\"" << C(left) << "\" y=\"" << C(top) << "\" width=\"" << C(right - left)
         << "\" height=\"" << C(bottom - top) << "\"><title>"
         << E(FormatQuantity(lo) + " to " + FormatQuantity(lo + bin_width) + ": " +
-             FormatCount(static_cast<std::int64_t>(count)) + " rows")
+             FormatCount(static_cast<std::int64_t>(count)) + (count == 1 ? " row" : " rows"))
         << "</title></rect>\n";
   }
   for (const ChartSeries& series : chart.series) {

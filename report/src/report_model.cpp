@@ -176,7 +176,7 @@ ReportSection Data(const json& audit, const ReportOptions& options) {
 }
 
 std::string PThresholdLabel(const char* name, std::optional<double> value) {
-  return std::string(name) + " " + FormatQuantity(value);
+  return std::string(name) + " = " + FormatPValue(value);
 }
 
 ReportSection Route(const json& audit) {
