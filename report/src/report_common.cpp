@@ -141,12 +141,15 @@ std::string JoinTerms(const json& terms) {
 std::string LevelsSummary(const json& column, std::size_t max_listed, bool with_counts) {
   const json& level_list = Get(column, "levels");
   if (!level_list.is_array() || level_list.empty()) return "";
-  std::string levels = std::to_string(level_list.size()) + " levels";
+  std::string levels = FormatCount(static_cast<std::int64_t>(level_list.size())) + " levels";
   if (level_list.size() > max_listed) return levels;
   levels += ":";
   for (const json& level : level_list) {
     levels += " " + Text(Get(level, "level"));
-    if (with_counts) levels += " (" + Text(Get(level, "count")) + ")";
+    if (with_counts) {
+      const std::optional<std::int64_t> count = Count(Get(level, "count"));
+      levels += " (" + (count ? FormatCount(*count) : Text(Get(level, "count"))) + ")";
+    }
   }
   return levels;
 }

@@ -300,9 +300,11 @@ void DensityChart(std::ostringstream& out, const ReportChart& chart, double char
   const double cell_width = (grid.x_hi - grid.x_lo) / static_cast<double>(grid.columns);
   const double cell_height = (grid.y_hi - grid.y_lo) / static_cast<double>(grid.rows);
   for (std::size_t row = 0; row < grid.rows; ++row) {
+    bool any = false;
     for (std::size_t column = 0; column < grid.columns; ++column) {
       const std::uint64_t count = grid.CountAt(column, row);
       if (count == 0) continue;
+      any = true;
       const double x = grid.x_lo + cell_width * static_cast<double>(column);
       const double y = grid.y_lo + cell_height * static_cast<double>(row);
       const double left = plot.X(x), right = plot.X(x + cell_width);
@@ -312,7 +314,7 @@ void DensityChart(std::ostringstream& out, const ReportChart& chart, double char
           << C(right - left) << "\" height=\"" << C(bottom - top) << "\" fill-opacity=\"" << SvgNumber(shade)
           << "\"><title>" << E(FormatCount(static_cast<std::int64_t>(count)) + (count == 1 ? " row" : " rows")) << "</title></rect>";
     }
-    out << "\n";
+    if (any) out << "\n";
   }
   References(out, plot, chart);
   for (const ChartPoint& point : chart.series.front().points) {
