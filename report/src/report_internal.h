@@ -2,6 +2,7 @@
 // Internal to the report: reading the audit for BuildReportModel (report_common.cpp), and the
 // pieces the model builders share. The back ends never read the audit: they see the model.
 
+#include <cmath>
 #include <cstdint>
 #include <optional>
 #include <string>
@@ -111,6 +112,21 @@ bool LargerCooksFirst(const RowDiagnostic* a, const RowDiagnostic* b);
 std::vector<const RowDiagnostic*> TopRowsThatStandOut(const ReportDiagnostics& diagnostics,
                                                       const StandOutRules& rules, std::size_t limit,
                                                       std::size_t* total);
+
+/// Criteria and estimates keep six significant digits: successive steps of a route often differ
+/// in the fifth.
+inline constexpr int kCriterionDigits = 6;
+
+/// −log10(p), the height of a p-value on the report's charts; nullopt for undefined or p <= 0.
+inline std::optional<double> MinusLog10(std::optional<double> p) {
+  if (!p || !(*p > 0)) return std::nullopt;
+  return -std::log10(*p);
+}
+
+/// The route, the candidates at each step, all subsets (report_route_model.cpp).
+ReportSection RouteSection(const json& audit);
+ReportSection CandidatesSection(const json& audit);
+std::optional<ReportSection> SubsetsSection(const json& audit);
 
 /// The diagnostics section (report_diagnostics_model.cpp).
 ReportSection DiagnosticsSection(const json& audit, const ReportDiagnostics* diagnostics,

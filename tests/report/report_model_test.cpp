@@ -367,6 +367,8 @@ TEST_F(ReportModelTest, HtmlSizeDoesNotGrowWithTheRowsDiagnosed) {
   const std::string large_html = RenderHtmlReport(stepwise_->audit, &large);
   const std::string small_text = RenderTextReport(stepwise_->audit, &small);
   const std::string large_text = RenderTextReport(stepwise_->audit, &large);
+  RecordProperty("html_bytes_2000_rows", static_cast<int>(small_html.size()));
+  RecordProperty("html_bytes_200000_rows", static_cast<int>(large_html.size()));
   const double html_difference = std::abs(static_cast<double>(large_html.size()) - static_cast<double>(small_html.size()));
   // The bound: what fills in with more rows is at most the density grid's 48 x 28 cells (about
   // 140 bytes each with its hover text) and the capped points, never a row per row. The
