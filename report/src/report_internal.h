@@ -2,6 +2,7 @@
 // Internal to the report: reading the audit for BuildReportModel (report_common.cpp), and the
 // pieces the model builders share. The back ends never read the audit: they see the model.
 
+#include <algorithm>
 #include <cmath>
 #include <cstdint>
 #include <optional>
@@ -117,10 +118,17 @@ std::vector<const RowDiagnostic*> TopRowsThatStandOut(const ReportDiagnostics& d
 /// in the fifth.
 inline constexpr int kCriterionDigits = 6;
 
-/// −log10(p), the height of a p-value on the report's charts; nullopt for undefined or p <= 0.
+/// The top of a −log10(p) axis: p-values below 1e-16 (beyond double's resolution of 1 − p,
+/// common practice; underflow to 0 included) are drawn at 16 and say so in their title, so
+/// that one overwhelming term cannot squash the entry_p and exit_p lines into the axis.
+inline constexpr double kMinusLog10Cap = 16;
+
+/// −log10(p) capped at kMinusLog10Cap, the height of a p-value on the report's charts; nullopt
+/// for an undefined or negative p.
 inline std::optional<double> MinusLog10(std::optional<double> p) {
-  if (!p || !(*p > 0)) return std::nullopt;
-  return -std::log10(*p);
+  if (!p || !(*p >= 0)) return std::nullopt;
+  if (*p <= 0) return kMinusLog10Cap;
+  return std::min(kMinusLog10Cap, -std::log10(*p));
 }
 
 /// The route, the candidates at each step, all subsets (report_route_model.cpp).

@@ -92,7 +92,7 @@ void CandidateStep(const json& audit, const json& step, ReportSection& section) 
     chart.x_include.push_back(0);
     chart.caption = "◆ the move taken, ● other eligible moves, ○ dashed: not eligible (hover for the "
                     "reason), × no test. Right of the dashed line means p below the plan's " +
-                    std::string(key) + ".";
+                    std::string(key) + "; p-values below 1e-16 are drawn at 16.";
   } else {
     std::optional<double> reference = Number(Get(step, "criterion_before"));
     if (!reference) reference = Number(Get(step, "criterion_value"));
@@ -181,9 +181,10 @@ ReportSection RouteSection(const json& audit) {
         chart.y_include.push_back(*height);
       }
     }
-    chart.caption = "Higher means stronger evidence: 1 is p = 0.1, 2 is p = 0.01, 4 is p = 0.0001. An "
-                    "addition needs a point above the entry_p line; a term leaves while its point is "
-                    "below the exit_p line. Markers: ▲ added, ▼ removed; × no test (start, stop).";
+    chart.caption = "Higher means stronger evidence: 1 is p = 0.1, 2 is p = 0.01, 4 is p = 0.0001; p-values "
+                    "below 1e-16 are drawn at 16. An addition needs a point above the entry_p line; a term "
+                    "leaves while its point is below the exit_p line. Markers: ▲ added, ▼ removed; × no "
+                    "test (start, stop).";
   } else {
     chart.title = value_name + " by step";
     chart.y_label = value_name;

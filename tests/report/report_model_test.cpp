@@ -250,9 +250,24 @@ TEST_F(ReportModelTest, PartialFRouteShowsEachStepsFAndPOnAMinusLog10Axis) {
     const json& step = audit["steps"][index];
     const ChartPoint& point = charts[0]->series.front().points[index];
     if (step["p"].is_number()) {
-      EXPECT_NEAR(point.y, -std::log10(step["p"].get<double>()), 1e-12);
+      // Capped at 16 (p below 1e-16, an underflow to 0 included).
+      const double p = step["p"].get<double>();
+      EXPECT_TRUE(point.defined) << index;
+      EXPECT_NEAR(point.y, p > 0 ? std::min(16.0, -std::log10(p)) : 16.0, 1e-12) << index;
     } else {
       EXPECT_FALSE(point.defined);
+    }
+  }
+  // A p-value that underflowed to 0 is the strongest evidence, not a missing test.
+  json underflow = audit;
+  for (json& step : underflow["steps"]) {
+    if (step["p"].is_number()) step["p"] = 0.0;
+  }
+  const ReportModel underflow_model = BuildReportModel(underflow, nullptr);
+  for (const ChartPoint& point : Blocks<ReportChart>(underflow_model, "route")[0]->series.front().points) {
+    if (point.css_class.find("add") != std::string::npos) {
+      EXPECT_TRUE(point.defined);
+      EXPECT_EQ(point.y, 16.0);
     }
   }
   // The entry_p line at -log10(0.05).
