@@ -107,7 +107,7 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--html", args->html,
                       "Write the self-contained HTML report to FILE ('-': stdout)")
       ->type_name("FILE");
-  command->add_flag("--text", args->text, "Print the text report on stdout (the default without --html)");
+  command->add_flag("--text", args->text, "Print the text report on stdout (the default without --html or --json)");
   command->add_option("--data", args->data,
                       "The audited data file: checks its SHA-256 against the audit, then adds the "
                       "diagnostics of the final model (one pass over the rows)")

@@ -122,8 +122,7 @@ ReportChart CooksChart(const ReportDiagnostics& diagnostics, const StandOutRules
   return chart;
 }
 
-ReportChart DensityChart(const json& audit, const ReportDiagnostics& diagnostics, const StandOutRules& rules,
-                         const ReportOptions& options,
+ReportChart DensityChart(const json& audit, const ReportDiagnostics& diagnostics, const ReportOptions& options,
                          const std::vector<const RowDiagnostic*>& stand_out_top, std::size_t stand_out_total) {
   const std::string response = ResponseLabel(audit);
   Range fitted, residual;
@@ -172,7 +171,6 @@ ReportChart DensityChart(const json& audit, const ReportDiagnostics& diagnostics
                   "that changes with the level." +
                   NotDrawn(stand_out_total, flagged.points.size(), "rows that stand out");
   chart.series.push_back(std::move(flagged));
-  (void)rules;
   return chart;
 }
 
@@ -254,7 +252,7 @@ ReportSection DiagnosticsSection(const json& audit, const ReportDiagnostics* dia
       {"Rows that stand out", V::Count(static_cast<std::int64_t>(stand_out_total))},
   }});
   section.blocks.push_back(CooksChart(*diagnostics, rules, options));
-  section.blocks.push_back(DensityChart(audit, *diagnostics, rules, options, top, stand_out_total));
+  section.blocks.push_back(DensityChart(audit, *diagnostics, options, top, stand_out_total));
   section.blocks.push_back(HistogramChart(*diagnostics, options));
 
   section.blocks.push_back(ReportParagraph{
