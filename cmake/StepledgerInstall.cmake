@@ -2,12 +2,12 @@
 include(GNUInstallDirs)
 include(CMakePackageConfigHelpers)
 
-install(TARGETS stepledger_engine stepledger_selection stepledger_io stepledger_run stepledger_audit stepledger_armadillo
+install(TARGETS stepledger_engine stepledger_selection stepledger_io stepledger_run stepledger_audit stepledger_report stepledger_armadillo
         EXPORT stepledgerTargets
         ARCHIVE DESTINATION ${CMAKE_INSTALL_LIBDIR}
         LIBRARY DESTINATION ${CMAKE_INSTALL_LIBDIR})
 install(TARGETS stepledger RUNTIME DESTINATION ${CMAKE_INSTALL_BINDIR})
-foreach(folder engine selection io run audit)
+foreach(folder engine selection io run audit report)
   install(DIRECTORY ${PROJECT_SOURCE_DIR}/${folder}/include/ DESTINATION ${CMAKE_INSTALL_INCLUDEDIR})
 endforeach()
 

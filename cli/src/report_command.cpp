@@ -1,6 +1,8 @@
-// `stepledger report AUDIT [--html FILE] [--text] [--data DATA]`: renders an audit for a
-// reviewer: plain text on stdout (default), one self-contained HTML file, or both; with the
-// audited data, the diagnostics of the final model too.
+// `stepledger report AUDIT [--html FILE] [--text] [--json] [--data DATA [--rows-out FILE]]
+// [--allow-unverified]`: renders an audit for a reviewer from one report model — plain text on
+// stdout (default), one self-contained HTML file, the model as JSON, or several; with the
+// audited data, the diagnostics of the final model too. An audit whose digests do not hold is
+// refused (exit 1) unless --allow-unverified, which puts a warning first in every output.
 
 #include <memory>
 #include <optional>
@@ -9,8 +11,10 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
+#include "stepledger/audit/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/audit/audit_verify.h"
+#include "stepledger/report/report.h"
 #include "stepledger/cli/run_cli.h"
 #include "stepledger/engine/errors.h"
 
@@ -22,35 +26,56 @@ struct ReportArgs {
   std::string html;   ///< --html FILE ("-": stdout)
   bool text = false;  ///< --text: also (or only) the text report on stdout
   std::string data;   ///< --data DATA: adds the diagnostics
+  std::string rows_out;  ///< --rows-out FILE: every row that stands out, as CSV (needs --data)
+  bool allow_unverified = false;  ///< render an audit whose digests do not hold, with a warning
   std::string title;
 };
 
 int RunReport(const ReportArgs& args, CommandContext& context) {
   const nlohmann::json audit = ReadAuditFile(args.audit);
   const std::string audit_name = std::filesystem::path(args.audit).filename().string();
+  if (!args.rows_out.empty() && args.data.empty()) {
+    throw InputError("--rows-out " + args.rows_out + ": needs --data DATA (the rows come from one pass over the data)");
+  }
+  ReportOptions options;
+  options.title = args.title;
+  // A report of an edited audit would present the edited numbers as the run's: refuse it
+  // unless the reader asked for it, and then say so before anything else.
+  const VerifyReport integrity = CheckAuditIntegrity(audit);
+  if (!integrity.Holds()) {
+    if (!args.allow_unverified) {
+      context.err << "stepledger: " << args.audit << ": the audit does not verify (" << integrity.problems.front()
+                  << "); refusing to render it. `stepledger verify " << args.audit
+                  << "` lists every problem; --allow-unverified renders it anyway, with a warning at the top\n";
+      return static_cast<int>(ExitStatus::kDifferenceFound);
+    }
+    options.integrity_problems = integrity.problems;
+    if (context.log) context.log->warn("{}: the audit does not verify; rendering it with a warning", args.audit);
+  }
   std::optional<ReportDiagnostics> diagnostics;
   if (!args.data.empty()) {
     if (context.log) context.log->info("diagnosing the final model on {}", args.data);
     diagnostics = DiagnoseAuditRows(audit, args.data, audit_name);
   }
-  ReportOptions options;
-  options.title = args.title;
   const ReportDiagnostics* diagnostics_pointer = diagnostics ? &*diagnostics : nullptr;
-  const bool write_text = args.text || args.html.empty();
-  if (args.html == "-" && write_text && !context.common.json) {
-    throw InputError("--html -: stdout already carries the text report; give --html a file name or drop --text");
+  const bool write_text = args.text || (args.html.empty() && !context.common.json);
+  const int stdout_users = (write_text ? 1 : 0) + (context.common.json ? 1 : 0) + (args.html == "-" ? 1 : 0);
+  if (stdout_users > 1) {
+    throw InputError("only one of --text, --json and --html - can use stdout; give --html a file name or drop "
+                     "--text/--json");
   }
-  // Render everything before writing anything: a failure leaves no file behind.
-  const std::string html = args.html.empty() ? "" : RenderHtmlReport(audit, diagnostics_pointer, options);
-  const std::string text = write_text ? RenderTextReport(audit, diagnostics_pointer, options) : "";
+  // Build once, render everything before writing anything: a failure leaves no file behind.
+  const ReportModel model = BuildReportModel(audit, diagnostics_pointer, options);
+  const std::string html = args.html.empty() ? "" : RenderHtmlReport(model, options.chart_width);
+  const std::string text = write_text ? RenderTextReport(model) : "";
+  const std::string rows_csv = args.rows_out.empty() ? "" : RenderRowsThatStandOutCsv(*diagnostics);
   if (!args.html.empty()) WriteOutput(context, args.html, html);
+  if (!args.rows_out.empty()) {
+    WriteFileAtomically(args.rows_out, rows_csv, AtomicWriteOptions{.overwrite = context.common.force});
+    if (context.log) context.log->info("wrote {}", args.rows_out);
+  }
   if (context.common.json) {
-    nlohmann::json result{{"audit", args.audit},
-                          {"seal", audit.value("seal", "")},
-                          {"html", args.html.empty() ? nlohmann::json(nullptr) : nlohmann::json(args.html)},
-                          {"diagnostics", diagnostics.has_value()}};
-    if (diagnostics) result["rows_diagnosed"] = diagnostics->result.rows.size();
-    context.out << result.dump(2) << "\n";
+    context.out << RenderJsonReport(model).dump(2) << "\n";
   } else if (write_text) {
     context.out << text;
   }
@@ -69,23 +94,33 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
       "dropped by reason, columns); the route (every step with the rule that decided it, and a "
       "chart of the criterion by step); the candidates scored at each step (a dot chart per step, "
       "ineligible ones greyed with their reason); for all-subsets, the best criterion by model "
-      "size; the final model (coefficients, confidence intervals, ANOVA); diagnostics (residuals "
-      "against fitted values, a normal quantile plot, leverage against standardised residual "
-      "with Cook's distance contours, and the rows that stand out; needs --data); validation and "
-      "stability when the audit has them; integrity (seal, signature, parent, tool). Without "
-      "--html the text report goes to stdout; with --html FILE the HTML report is written "
-      "atomically (refusing to overwrite without --force) and nothing is printed unless --text "
-      "is given too.");
+      "size; the final model (coefficients, confidence intervals, the F test, ANOVA); diagnostics "
+      "(Cook's distance by line number with the 4/n line, residuals against fitted values as a "
+      "density, a histogram of standardised residuals with the normal curve, and the rows that "
+      "stand out, largest Cook's distance first; needs --data); validation and stability when "
+      "the audit has them; integrity (seal, signature, parent, tool). The text, HTML and JSON "
+      "outputs render one report model, so they show the same text for the same number. "
+      "Without --html or --json the text report goes to stdout; with --html FILE the HTML "
+      "report is written atomically (refusing to overwrite without --force). An audit whose "
+      "digests do not hold is refused with exit 1 unless --allow-unverified.");
   command->add_option("AUDIT", args->audit, "Audit file (audit.json)")->required()->check(CLI::ExistingFile);
   command->add_option("--html", args->html,
                       "Write the self-contained HTML report to FILE ('-': stdout)")
       ->type_name("FILE");
-  command->add_flag("--text", args->text, "Print the text report on stdout (the default without --html)");
+  command->add_flag("--text", args->text, "Print the text report on stdout (the default without --html or --json)");
   command->add_option("--data", args->data,
                       "The audited data file: checks its SHA-256 against the audit, then adds the "
                       "diagnostics of the final model (one pass over the rows)")
       ->check(CLI::ExistingFile)
       ->type_name("DATA");
+  command->add_option("--rows-out", args->rows_out,
+                      "With --data: write every row that stands out, largest Cook's distance first, "
+                      "as CSV (line, fitted, residual, standardized_residual, leverage, "
+                      "cooks_distance, reasons; full precision) to FILE, atomically")
+      ->type_name("FILE");
+  command->add_flag("--allow-unverified", args->allow_unverified,
+                    "Render an audit whose digests do not hold (refused otherwise, exit 1); every "
+                    "output then opens with a warning naming the problems");
   command->add_option("--title", args->title, "Heading of the report (default: 'Selection report: DATA')")
       ->type_name("TEXT");
   AddCommonOptions(*command, context.common);
@@ -94,11 +129,15 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
       "the audit's fingerprint identifies; a different file is refused with exit 2). The HTML "
       "file has no scripts and fetches nothing: it reads the same offline, printed, or on a "
       "phone. `select --out DIR` writes DIR/report.html with the diagnostics already in it. "
-      "With --json: {audit, seal, html, diagnostics, rows_diagnosed} instead of the text.\n\n"
+      "With --json: the report model itself (sections, facts, tables whose cells carry "
+      "{text, number, kind} with the number at full precision, chart series) instead of the "
+      "text; \"verified\": false and \"warning\" when rendered with --allow-unverified.\n\n"
       "Examples:\n"
       "  stepledger report out/audit.json\n"
       "  stepledger report out/audit.json --data examples/data/laptops.csv --html review.html\n"
-      "  stepledger report out/audit.json --html review.html --text --force > review.txt");
+      "  stepledger report out/audit.json --html review.html --text --force > review.txt\n"
+      "  stepledger report out/audit.json --data examples/data/laptops.csv --rows-out rows.csv\n"
+      "  stepledger report out/audit.json --json > report.json");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunReport(*args, context); };
   });

@@ -19,7 +19,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/io/plan_file.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "stepledger/audit/route_json.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/run/cautions.h"

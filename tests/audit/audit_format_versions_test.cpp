@@ -15,7 +15,6 @@
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/fitted_model.h"
 #include "stepledger/io/plan_file.h"
-#include "stepledger/audit/report.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/prediction.h"
 #include "support/audit_test_data.h"
@@ -199,14 +198,6 @@ TEST(AuditFormatV1, ItsModelPricesRowsAsAFreshRunDoes) {
     EXPECT_NEAR(*a.leverage, *b.leverage, 1e-9 * *b.leverage) << "line " << a.line;
   }
   EXPECT_GT(priced, 200u) << "of 240 rows";
-}
-
-TEST(AuditFormatV1, AReportRendersFromIt) {
-  const json document = ReadAuditFile(FixtureAudit());
-  const std::string text = RenderTextReport(document, nullptr, {});
-  EXPECT_NE(text.find("age:grade"), std::string::npos);
-  const std::string html = RenderHtmlReport(document, nullptr, {});
-  EXPECT_NE(html.find("age:grade"), std::string::npos);
 }
 
 TEST(AuditFormatV1, ComparedWithARerunOfTheSamePlanTheModelsAreTheSame) {

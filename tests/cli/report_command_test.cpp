@@ -11,6 +11,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "support/audit_test_data.h"
 #include "support/cli_run.h"
+#include "support/csv_text.h"
 #include "support/report_audits.h"
 #include "support/report_check.h"
 #include "support/test_paths.h"
@@ -51,7 +52,10 @@ TEST_F(ReportCommand, SelectOutWritesTheReportWithDiagnosticsBesideTheAudit) {
   ASSERT_TRUE(check.ran) << check.error;
   EXPECT_TRUE(check.problems.empty()) << check.problems.front();
   EXPECT_EQ(check.Count("route-point"), static_cast<int>(audit["steps"].size()));
-  EXPECT_EQ(check.Count("resid"), audit["data"]["rows_used"].get<int>());
+  // The diagnostics are in: one Cook's distance bin per line range (120 by default; 200 rows
+  // fill them all), and a histogram.
+  EXPECT_EQ(check.Count("cooks-bin"), 120);
+  EXPECT_GT(check.Count("hist-bar"), 0);
   // verify still holds for the audit written beside the report.
   EXPECT_EQ(RunStepledger({"verify", (std::filesystem::path(out_) / "audit.json").string()}).status, 0);
 }
@@ -83,8 +87,8 @@ TEST_F(ReportCommand, TextByDefaultHtmlToAFileAndBothTogether) {
   const std::string audit = (std::filesystem::path(out_) / "audit.json").string();
   const CliRun text = RunStepledger({"report", audit});
   ASSERT_EQ(text.status, 0) << text.err;
-  EXPECT_NE(text.out.find("Route (BIC by step)"), std::string::npos);
-  EXPECT_NE(text.out.find("CAUTIONS"), std::string::npos);
+  EXPECT_NE(text.out.find("\nThe route\n"), std::string::npos);
+  EXPECT_NE(text.out.find("\nCautions for this run\n"), std::string::npos);
   EXPECT_NE(text.out.find("stepledger report AUDIT.json --data laptops.csv"), std::string::npos);
 
   const std::string html = (folder_.path() / "review.html").string();
@@ -103,9 +107,18 @@ TEST_F(ReportCommand, TextByDefaultHtmlToAFileAndBothTogether) {
   ASSERT_EQ(both.status, 0) << both.err;
   EXPECT_EQ(both.out, text.out);
 
+  // --json prints the report model itself (not a status object).
   const CliRun json = RunStepledger({"report", audit, "--json"});
   ASSERT_EQ(json.status, 0) << json.err;
-  EXPECT_EQ(nlohmann::json::parse(json.out)["diagnostics"], false);
+  const nlohmann::json model = nlohmann::json::parse(json.out);
+  EXPECT_EQ(model["format"], "stepledger-report");
+  EXPECT_EQ(model["diagnostics"], false);
+  EXPECT_EQ(model["verified"], true);
+  ASSERT_TRUE(model["sections"].is_array());
+  EXPECT_EQ(model["sections"][0]["id"], "summary");
+  const CliRun clash = RunStepledger({"report", audit, "--json", "--text"});
+  EXPECT_EQ(clash.status, 2);
+  ASSERT_EQ(clash.ErrLines().size(), 1u) << clash.err;
 }
 
 TEST_F(ReportCommand, DataAddsDiagnosticsAndTheWrongFileIsRefusedNamingBothDigests) {
@@ -113,7 +126,7 @@ TEST_F(ReportCommand, DataAddsDiagnosticsAndTheWrongFileIsRefusedNamingBothDiges
   const std::string audit = (std::filesystem::path(out_) / "audit.json").string();
   const CliRun with_data = RunStepledger({"report", audit, "--data", data_});
   ASSERT_EQ(with_data.status, 0) << with_data.err;
-  EXPECT_NE(with_data.out.find("200 rows diagnosed"), std::string::npos);
+  EXPECT_NE(with_data.out.find("Rows diagnosed:      200\n"), std::string::npos) << with_data.out;
 
   testing::LaptopDataOptions other_options;
   other_options.rows = 150;
@@ -136,10 +149,76 @@ TEST_F(ReportCommand, BadInputIsOneLineWithExitTwo) {
   EXPECT_EQ(RunStepledger({"report", (folder_.path() / "missing.json").string()}).status, 2);
 }
 
+TEST_F(ReportCommand, AnAuditThatDoesNotVerifyIsRefusedUnlessAllowedAndThenWarned) {
+  ASSERT_EQ(Select().status, 0);
+  const auto audit_path = std::filesystem::path(out_) / "audit.json";
+  nlohmann::json edited = ReadAuditFile(audit_path);
+  edited["model"]["coefficients"][1]["estimate"] = 1234.5;  // priced with an edited coefficient
+  const std::string edited_path = folder_.Write("edited.json", edited.dump(2)).string();
+  const std::string html = (folder_.path() / "edited.html").string();
+
+  const CliRun refused = RunStepledger({"report", edited_path, "--html", html});
+  EXPECT_EQ(refused.status, 1);
+  ASSERT_EQ(refused.ErrLines().size(), 1u) << refused.err;
+  EXPECT_NE(refused.err.find("edited.json: the audit does not verify (key 'model'"), std::string::npos) << refused.err;
+  EXPECT_NE(refused.err.find("--allow-unverified"), std::string::npos) << refused.err;
+  EXPECT_EQ(refused.out, "");
+  EXPECT_FALSE(std::filesystem::exists(html));
+
+  const CliRun text = RunStepledger({"report", edited_path, "--allow-unverified"});
+  ASSERT_EQ(text.status, 0) << text.err;
+  EXPECT_EQ(text.out.rfind("!! WARNING: this audit does not verify", 0), 0u) << text.out.substr(0, 200);
+  EXPECT_NE(text.out.find("!! key 'model' does not match its digest"), std::string::npos);
+
+  ASSERT_EQ(RunStepledger({"report", edited_path, "--allow-unverified", "--html", html}).status, 0);
+  const std::string page = testing::ReadText(html);
+  EXPECT_LT(page.find("<section id=\"unverified\""), page.find("<header>"));
+
+  const CliRun json = RunStepledger({"report", edited_path, "--allow-unverified", "--json"});
+  ASSERT_EQ(json.status, 0) << json.err;
+  const nlohmann::json model = nlohmann::json::parse(json.out);
+  EXPECT_EQ(model["verified"], false);
+  EXPECT_NE(model["warning"][1].get<std::string>().find("key 'model'"), std::string::npos);
+
+  // The untouched audit renders without a warning.
+  const CliRun clean = RunStepledger({"report", audit_path.string()});
+  ASSERT_EQ(clean.status, 0);
+  EXPECT_EQ(clean.out.find("WARNING"), std::string::npos);
+}
+
+TEST_F(ReportCommand, RowsOutWritesEveryRowThatStandsOutLargestCooksDistanceFirst) {
+  ASSERT_EQ(Select().status, 0);
+  const std::string audit = (std::filesystem::path(out_) / "audit.json").string();
+  const std::string rows = (folder_.path() / "rows.csv").string();
+  const CliRun run = RunStepledger({"report", audit, "--data", data_, "--rows-out", rows});
+  ASSERT_EQ(run.status, 0) << run.err;
+  const std::vector<std::vector<std::string>> csv = testing::ParseCsvRecords(testing::ReadText(rows));
+  ASSERT_GE(csv.size(), 2u);
+  EXPECT_EQ(csv[0], (std::vector<std::string>{"line", "fitted", "residual", "standardized_residual", "leverage",
+                                              "cooks_distance", "reasons"}));
+  // As many rows as the text says stand out, sorted by Cook's distance, largest first.
+  const std::string count_line = "Rows that stand out: " + std::to_string(csv.size() - 1) + "\n";
+  EXPECT_NE(run.out.find(count_line), std::string::npos) << run.out;
+  for (std::size_t index = 2; index < csv.size(); ++index) {
+    EXPECT_GE(std::stod(csv[index - 1][5]), std::stod(csv[index][5])) << index;
+  }
+  // Written atomically: refused without --force, replaced with it.
+  const CliRun again = RunStepledger({"report", audit, "--data", data_, "--rows-out", rows});
+  EXPECT_EQ(again.status, 2);
+  EXPECT_NE(again.err.find("rows.csv"), std::string::npos) << again.err;
+  EXPECT_EQ(RunStepledger({"report", audit, "--data", data_, "--rows-out", rows, "--force"}).status, 0);
+  // Without --data there are no rows to list.
+  const CliRun no_data = RunStepledger({"report", audit, "--rows-out", (folder_.path() / "x.csv").string()});
+  EXPECT_EQ(no_data.status, 2);
+  EXPECT_NE(no_data.err.find("--rows-out"), std::string::npos) << no_data.err;
+  EXPECT_FALSE(std::filesystem::exists(folder_.path() / "x.csv"));
+}
+
 TEST(ReportCommandHelp, TeachesTheSectionsAndGivesExamples) {
   const CliRun help = RunStepledger({"report", "--help"});
   ASSERT_EQ(help.status, 0);
-  for (const char* text : {"--html", "--text", "--data", "--force", "Cook's distance", "cautions",
+  for (const char* text : {"--html", "--text", "--data", "--force", "--rows-out", "--allow-unverified", "--json",
+                           "Cook's distance", "cautions",
                            "integrity", "Examples:", "stepledger report out/audit.json"}) {
     EXPECT_NE(help.out.find(text), std::string::npos) << text;
   }

@@ -4,6 +4,8 @@
 // product (so hierarchy makes candidates ineligible), all-subsets BIC, and a logged response
 // with a categorical term.
 
+#include <algorithm>
+#include <cmath>
 #include <filesystem>
 #include <memory>
 #include <string>
@@ -11,7 +13,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/audit/audit_document.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
 #include "support/test_paths.h"
 
@@ -61,6 +63,30 @@ inline int RowsWithStandardizedResidual(const ReportDiagnostics& diagnostics) {
   int count = 0;
   for (const RowDiagnostic& row : diagnostics.result.rows) count += row.standardized_residual ? 1 : 0;
   return count;
+}
+
+/// What the diagnostics charts should draw, counted from the rows by the rules (common
+/// practice): rows above Cook's 4/n, and rows that stand out (4/n, |standardised residual| > 3,
+/// leverage > 2k/n, or leverage 1), each capped at the default 200 points.
+struct DiagnosticsCounts {
+  int cooks_above = 0;
+  int stand_out = 0;
+};
+inline DiagnosticsCounts CountDiagnostics(const ReportDiagnostics& diagnostics, int cap = 200) {
+  const double n = static_cast<double>(diagnostics.result.rows.size());
+  const double cooks = 4 / n, leverage = 2 * static_cast<double>(diagnostics.k) / n;
+  DiagnosticsCounts counts;
+  for (const RowDiagnostic& row : diagnostics.result.rows) {
+    const bool above = row.cooks_distance && *row.cooks_distance > cooks;
+    counts.cooks_above += above ? 1 : 0;
+    counts.stand_out += (above || !row.standardized_residual || std::abs(*row.standardized_residual) > 3 ||
+                         row.leverage > leverage)
+                            ? 1
+                            : 0;
+  }
+  counts.cooks_above = std::min(counts.cooks_above, cap);
+  counts.stand_out = std::min(counts.stand_out, cap);
+  return counts;
 }
 
 }  // namespace stepledger::testing

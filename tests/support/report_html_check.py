@@ -4,6 +4,9 @@ Usage: report_html_check.py REPORT.html
 Prints {"problems": [...], "charts": [{"class": ..., "points": {kind: count}}],
         "counts": {kind: count}, "ineligible_titles": [...], "doctype": bool}.
 Balanced tags: every non-void element closed in order (HTML5 void elements excepted).
+Every data point ("pt" element) must carry a known kind (POINT_KINDS, the classes the report
+draws; DEVELOPERS.md lists them): an unknown one is a problem, so that a renamed class cannot
+make a count silently zero.
 """
 import json
 import sys
@@ -11,6 +14,11 @@ from html.parser import HTMLParser
 
 VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source",
         "track", "wbr"}
+
+
+POINT_KINDS = {"route-point", "candidate", "subset-best", "coef", "cooks-bin", "cooks-flagged",
+               "density-cell", "resid-flagged", "hist-bar"}
+POINT_STATES = {"start", "add", "remove", "stop", "eligible", "chosen", "ineligible", "no-score"}
 
 
 class Checker(HTMLParser):
@@ -34,6 +42,9 @@ class Checker(HTMLParser):
             self.charts.append({"class": dict(attrs).get("class", ""), "points": {}})
         if "pt" in classes:
             kinds = [c for c in classes if c != "pt"]
+            if not any(kind in POINT_KINDS for kind in kinds) or any(
+                    kind not in POINT_KINDS | POINT_STATES for kind in kinds):
+                self.problems.append("line %d: point with unknown classes %s" % (self.getpos()[0], classes))
             for kind in kinds:
                 self.counts[kind] = self.counts.get(kind, 0) + 1
                 if self.charts:

@@ -3,24 +3,35 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
+#include <limits>
 #include <map>
 #include <sstream>
-
-#include <boost/math/distributions/normal.hpp>
 
 #include "report_internal.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 
 namespace stepledger {
 
-void ReportOptions::Validate() const {
-  if (!(chart_width >= 320 && chart_width <= 2000)) {
-    throw InputError("ReportOptions.chart_width: expected a number in [320, 2000], got " +
-                     std::to_string(chart_width));
+namespace {
+
+void RequireRange(const char* field, double value, double lo, double hi) {
+  if (!(value >= lo && value <= hi)) {
+    throw InputError(std::string("ReportOptions.") + field + ": expected a number in [" +
+                     FormatQuantity(lo) + ", " + FormatQuantity(hi) + "], got " + FormatQuantity(value, 6));
   }
+}
+
+}  // namespace
+
+void ReportOptions::Validate() const {
+  RequireRange("chart_width", chart_width, 320, 2000);
+  RequireRange("cooks_bins", static_cast<double>(cooks_bins), 10, 1000);
+  RequireRange("density_columns", static_cast<double>(density_columns), 4, 200);
+  RequireRange("density_rows", static_cast<double>(density_rows), 4, 200);
+  RequireRange("histogram_bins", static_cast<double>(histogram_bins), 5, 200);
 }
 
 namespace report_detail {
@@ -114,38 +125,31 @@ std::string Text(const json& value) {
   return value.dump();
 }
 
-std::string Format(std::optional<double> value, int significant) {
-  if (!value) return "n/a";
-  char buffer[48];
-  std::snprintf(buffer, sizeof buffer, "%.*g", significant, *value);
-  return buffer;
+std::optional<std::int64_t> Count(const json& value) {
+  if (value.is_number_integer()) return value.get<std::int64_t>();
+  const std::optional<double> number = Number(value);
+  if (!number || std::floor(*number) != *number || std::abs(*number) > 9e15) return std::nullopt;
+  return static_cast<std::int64_t>(*number);
 }
 
-std::string FormatP(std::optional<double> value) {
-  if (!value) return "n/a";
-  if (*value < 1e-16) return "< 1e-16";
-  return Format(value, 3);
-}
-
-std::string FormatCount(const json& value) {
-  if (!value.is_number()) return value.is_null() ? "n/a" : Text(value);
-  const long long count = value.get<long long>();
-  std::string digits = std::to_string(count < 0 ? -count : count);
-  for (int position = static_cast<int>(digits.size()) - 3; position > 0; position -= 3) {
-    digits.insert(static_cast<std::size_t>(position), ",");
-  }
-  return (count < 0 ? "-" : "") + digits;
+std::string JoinTerms(const json& terms) {
+  std::string text;
+  for (const json& term : terms) text += (text.empty() ? "" : ", ") + Text(term);
+  return text.empty() ? "(intercept only)" : text;
 }
 
 std::string LevelsSummary(const json& column, std::size_t max_listed, bool with_counts) {
   const json& level_list = Get(column, "levels");
   if (!level_list.is_array() || level_list.empty()) return "";
-  std::string levels = std::to_string(level_list.size()) + " levels";
+  std::string levels = FormatCount(static_cast<std::int64_t>(level_list.size())) + " levels";
   if (level_list.size() > max_listed) return levels;
   levels += ":";
   for (const json& level : level_list) {
     levels += " " + Text(Get(level, "level"));
-    if (with_counts) levels += " (" + Text(Get(level, "count")) + ")";
+    if (with_counts) {
+      const std::optional<std::int64_t> count = Count(Get(level, "count"));
+      levels += " (" + (count ? FormatCount(*count) : Text(Get(level, "count"))) + ")";
+    }
   }
   return levels;
 }
@@ -161,12 +165,9 @@ std::string CriterionName(std::string_view code) {
   return std::string(code);
 }
 
-std::string CriterionValueName(std::string_view code) {
-  if (code == "partial-f") return "residual mean square";
-  return CriterionName(code);
-}
-
 bool HigherIsBetter(std::string_view code) { return code == "adj-r2"; }
+
+bool IsPValueRule(std::string_view code) { return code == "partial-f"; }
 
 std::string ResponseLabel(const json& audit) {
   const json& design = Get(audit, "design");
@@ -174,6 +175,38 @@ std::string ResponseLabel(const json& audit) {
   if (response.empty()) response = Text(Get(Get(Get(audit, "plan"), "normalised"), "response"));
   if (Text(Get(design, "response_transform")) == "log") return "log(" + response + ")";
   return response;
+}
+
+std::string ModelStatement(const json& audit) {
+  const json& terms = Get(Get(audit, "model"), "terms");
+  std::string statement = ResponseLabel(audit) + " explained by ";
+  statement += terms.empty() ? std::string("the intercept alone") : JoinTerms(terms);
+  if (Get(Get(Get(audit, "plan"), "normalised"), "intercept") == false) statement += " (no intercept)";
+  const json& weights = Get(Get(audit, "design"), "weights").is_string()
+                            ? Get(Get(audit, "design"), "weights")
+                            : Get(Get(Get(audit, "plan"), "normalised"), "weights");
+  if (weights.is_string()) statement += ", weighted by " + weights.get<std::string>();
+  return statement;
+}
+
+std::string OutcomeInWords(const json& audit) {
+  const json& search = Get(audit, "search");
+  const std::string outcome = Text(Get(search, "outcome"));
+  const std::string criterion = Text(Get(search, "criterion"));
+  const std::string rule = Text(Get(search, "stop_rule"));
+  if (outcome == "stopped-no-improvement") {
+    if (IsPValueRule(criterion)) {
+      // The rule names the threshold that stopped the search (search_context.cpp words it).
+      if (rule.rfind("exit p-value", 0) == 0) return "stopped at exit_p: no term's p-value is above exit_p";
+      return "stopped at entry_p: no candidate's p-value is below entry_p";
+    }
+    return "stopped: no move improves " + CriterionName(criterion);
+  }
+  if (outcome == "stopped-max-terms") return "stopped at max_terms";
+  if (outcome == "cycle-detected") return "stopped: the next move would repeat a model";
+  if (outcome == "no-eligible-terms") return "stopped: no term may move";
+  if (outcome == "completed") return "completed";
+  return outcome;
 }
 
 std::vector<std::string> PlanSentences(const json& audit) {
@@ -209,9 +242,9 @@ std::vector<std::string> PlanSentences(const json& audit) {
 
   if (criterion == "partial-f") {
     sentences.push_back("Decisions by partial F tests: a term may enter while its p-value is below "
-                        "entry_p = " + Format(Number(Get(plan, "entry_p"))) +
+                        "entry_p = " + FormatPValue(Number(Get(plan, "entry_p"))) +
                         " and must leave while its p-value is above exit_p = " +
-                        Format(Number(Get(plan, "exit_p"))) + ".");
+                        FormatPValue(Number(Get(plan, "exit_p"))) + ".");
   } else if (method != "none") {
     sentences.push_back("Criterion: " + CriterionName(criterion) + " (" +
                         (HigherIsBetter(criterion) ? "higher" : "lower") + " is better).");
@@ -289,13 +322,12 @@ std::vector<std::pair<std::string, std::string>> TermDefinitions(const json& aud
   return definitions;
 }
 
-std::string StepLabel(const json& step) {
-  const std::string action = Text(Get(step, "action"));
-  const std::string term = Text(Get(step, "term"));
-  if (action == "add") return "+ " + term;
-  if (action == "remove") return "- " + term;
-  return term.empty() ? action : action + " " + term;
+std::string MoveLabel(std::string_view action, std::string_view term) {
+  if (term.empty()) return std::string(action);
+  return std::string(action) + " " + std::string(term);
 }
+
+std::string StepLabel(const json& step) { return MoveLabel(Text(Get(step, "action")), Text(Get(step, "term"))); }
 
 std::vector<SubsetBest> BestSubsetBySize(const json& audit) {
   const bool higher = HigherIsBetter(Text(Get(Get(audit, "search"), "criterion")));
@@ -326,41 +358,54 @@ StandOutRules MakeStandOutRules(const ReportDiagnostics& diagnostics) {
   return rules;
 }
 
-std::vector<StandOutRow> RowsThatStandOut(const ReportDiagnostics& diagnostics,
-                                          const StandOutRules& rules) {
-  std::vector<StandOutRow> rows;
-  for (const RowDiagnostic& row : diagnostics.result.rows) {
-    StandOutRow entry{&row, {}};
-    if (row.cooks_distance && *row.cooks_distance > rules.cooks) {
-      entry.reasons.push_back("Cook's D > " + Format(rules.cooks, 3));
-    }
-    if (row.standardized_residual && std::abs(*row.standardized_residual) > rules.standardized_residual) {
-      entry.reasons.push_back("|std. residual| > " + Format(rules.standardized_residual, 3));
-    }
-    if (row.leverage > rules.leverage) entry.reasons.push_back("leverage > " + Format(rules.leverage, 3));
-    if (!row.standardized_residual) entry.reasons.push_back("leverage 1: fits itself exactly");
-    if (!entry.reasons.empty()) rows.push_back(std::move(entry));
-  }
-  return rows;
+bool StandsOut(const RowDiagnostic& row, const StandOutRules& rules) {
+  return !row.standardized_residual || (row.cooks_distance && *row.cooks_distance > rules.cooks) ||
+         std::abs(*row.standardized_residual) > rules.standardized_residual || row.leverage > rules.leverage;
 }
 
-std::vector<std::pair<double, double>> NormalQuantilePairs(const ReportDiagnostics& diagnostics) {
-  std::vector<double> residuals;
+std::string StandOutReasons(const RowDiagnostic& row, const StandOutRules& rules) {
+  std::vector<std::string> reasons;
+  if (row.cooks_distance && *row.cooks_distance > rules.cooks) {
+    reasons.push_back("Cook's D > " + FormatQuantity(rules.cooks, 3));
+  }
+  if (row.standardized_residual && std::abs(*row.standardized_residual) > rules.standardized_residual) {
+    reasons.push_back("|std. residual| > " + FormatQuantity(rules.standardized_residual, 3));
+  }
+  if (row.leverage > rules.leverage) reasons.push_back("leverage > " + FormatQuantity(rules.leverage, 3));
+  if (!row.standardized_residual) reasons.push_back("leverage 1: fits itself exactly");
+  return Join(reasons, "; ");
+}
+
+bool LargerCooksFirst(const RowDiagnostic* a, const RowDiagnostic* b) {
+  // An undefined distance (leverage 1: the row fits itself) ranks above every defined one.
+  const double da = a->cooks_distance.value_or(std::numeric_limits<double>::infinity());
+  const double db = b->cooks_distance.value_or(std::numeric_limits<double>::infinity());
+  if (da != db) return da > db;
+  return a->line < b->line;
+}
+
+std::vector<const RowDiagnostic*> TopRowsThatStandOut(const ReportDiagnostics& diagnostics,
+                                                      const StandOutRules& rules, std::size_t limit,
+                                                      std::size_t* total) {
+  // A heap whose top is the smallest kept row, so each new row costs O(log limit).
+  std::vector<const RowDiagnostic*> heap;
+  std::size_t count = 0;
   for (const RowDiagnostic& row : diagnostics.result.rows) {
-    if (row.standardized_residual && std::isfinite(*row.standardized_residual)) {
-      residuals.push_back(*row.standardized_residual);
+    if (!StandsOut(row, rules)) continue;
+    ++count;
+    if (limit == 0) continue;
+    if (heap.size() < limit) {
+      heap.push_back(&row);
+      std::push_heap(heap.begin(), heap.end(), LargerCooksFirst);
+    } else if (LargerCooksFirst(&row, heap.front())) {
+      std::pop_heap(heap.begin(), heap.end(), LargerCooksFirst);
+      heap.back() = &row;
+      std::push_heap(heap.begin(), heap.end(), LargerCooksFirst);
     }
   }
-  std::sort(residuals.begin(), residuals.end());
-  const boost::math::normal_distribution<double> standard_normal(0.0, 1.0);
-  const double n = static_cast<double>(residuals.size());
-  std::vector<std::pair<double, double>> pairs;
-  pairs.reserve(residuals.size());
-  for (std::size_t index = 0; index < residuals.size(); ++index) {
-    const double position = (static_cast<double>(index + 1) - 0.375) / (n + 0.25);
-    pairs.emplace_back(boost::math::quantile(standard_normal, position), residuals[index]);
-  }
-  return pairs;
+  std::sort_heap(heap.begin(), heap.end(), LargerCooksFirst);
+  if (total != nullptr) *total = count;
+  return heap;
 }
 
 IntegrityFacts ReadIntegrity(const json& audit) {

@@ -6,7 +6,8 @@
 #include <sstream>
 #include <string>
 
-#include "stepledger/audit/report.h"
+#include "stepledger/engine/number_format.h"
+#include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
 #include "support/report_audits.h"
 #include "support/test_paths.h"
@@ -15,6 +16,15 @@ namespace stepledger {
 namespace {
 
 using nlohmann::json;
+
+// The value of a fact line "  label:   value".
+std::string Fact(const std::string& text, const std::string& label) {
+  const std::size_t at = text.find("\n  " + label + ":");
+  if (at == std::string::npos) return "(no fact " + label + ")";
+  std::size_t start = at + 4 + label.size();
+  while (start < text.size() && text[start] == ' ') ++start;
+  return text.substr(start, text.find('\n', start) - start);
+}
 
 // The rule of a step: the route table pads its columns, so a step is found by its rule text.
 std::string Row(const json& step) { return step["rule"].get<std::string>(); }
@@ -34,22 +44,23 @@ TEST(TextReport, ListsEveryStepWithItsRuleAndEveryCaution) {
         << caution.dump();
   }
   // Cautions come before the plan.
-  EXPECT_LT(text.find("CAUTIONS"), text.find("\nPlan\n"));
-  // One CHOSEN per move, and the ineligible reasons.
+  EXPECT_LT(text.find("\nCautions for this run\n"), text.find("\nThe plan\n"));
+  // One chosen candidate per move, and the ineligible reasons.
   int moves = 0, chosen = 0;
   for (const json& step : made.audit["steps"]) moves += step["action"] == "add" || step["action"] == "remove";
-  for (std::size_t at = text.find("CHOSEN"); at != std::string::npos; at = text.find("CHOSEN", at + 1)) ++chosen;
+  for (std::size_t at = text.find("  chosen\n"); at != std::string::npos; at = text.find("  chosen\n", at + 1)) ++chosen;
   EXPECT_EQ(chosen, moves);
   EXPECT_NE(text.find("ineligible: hierarchy"), std::string::npos);
   // Every coefficient row.
   for (const json& coefficient : made.audit["model"]["coefficients"]) {
-    EXPECT_NE(text.find("\n  " + coefficient["name"].get<std::string>() + " "), std::string::npos)
+    EXPECT_NE(text.find("\n    " + coefficient["name"].get<std::string>() + " "), std::string::npos)
         << coefficient["name"];
   }
-  EXPECT_NE(text.find(made.audit["seal"].get<std::string>() + " (matches the content)"), std::string::npos);
-  EXPECT_NE(text.find("Signature: absent"), std::string::npos);
-  EXPECT_NE(text.find("200 rows diagnosed"), std::string::npos);
-  EXPECT_NE(text.find("common practice thresholds: Cook's D > 4/n = 0.02,"), std::string::npos) << text;
+  EXPECT_EQ(Fact(text, "Seal"), made.audit["seal"].get<std::string>() + " (recomputed: matches the content)");
+  EXPECT_EQ(Fact(text, "Signature"), "absent");
+  EXPECT_EQ(Fact(text, "Rows diagnosed"), "200");
+  // 4/n with n = 200 (the rule, common practice), printed as every quantity is.
+  EXPECT_NE(text.find("Cook's distance above 4/n = " + FormatQuantity(0.02, 3) + ","), std::string::npos) << text;
 }
 
 TEST(TextReport, WithoutDiagnosticsSaysHowAndIsDeterministic) {
@@ -83,17 +94,17 @@ TEST(TextReport, PlanInWordsNamesThresholdsKeepNeverAndWeights) {
   plan["exit_p"] = 0.08;
   const auto made = testing::MakeReportAudit(folder, "partial", csv, plan.dump());
   const std::string text = RenderTextReport(made.audit, nullptr);
-  EXPECT_NE(text.find("entry_p = 0.04"), std::string::npos);
-  EXPECT_NE(text.find("exit_p = 0.08"), std::string::npos);
+  EXPECT_NE(text.find("entry_p = 0.0400"), std::string::npos) << text;
+  EXPECT_NE(text.find("exit_p = 0.0800"), std::string::npos);
   EXPECT_NE(text.find("Always in the model: age."), std::string::npos);
   EXPECT_NE(text.find("Never allowed: screen."), std::string::npos);
   EXPECT_NE(text.find("At most 4 terms"), std::string::npos);
   EXPECT_NE(text.find("Rows are not weighted."), std::string::npos);
   EXPECT_NE(text.find("categorical grade, one indicator per level against the baseline B"), std::string::npos);
-  // The HTML of a p-value rule plots p-values against the plan's threshold.
+  // The HTML of a p-value rule plots -log10(p) against the plan's threshold.
   const std::string html = RenderHtmlReport(made.audit, nullptr);
-  EXPECT_NE(html.find("p-value of the partial F test"), std::string::npos);
-  EXPECT_NE(html.find(">entry_p<"), std::string::npos);
+  EXPECT_NE(html.find("−log10(p) of the partial F test"), std::string::npos);
+  EXPECT_NE(html.find(">entry_p = 0.0400<"), std::string::npos);
 }
 
 }  // namespace

@@ -9,8 +9,9 @@
 #include <set>
 #include <string>
 
-#include "stepledger/audit/report.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
+#include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
 #include "support/report_audits.h"
 #include "support/report_check.h"
@@ -92,7 +93,8 @@ std::unique_ptr<ReportAudit> HtmlReport::stepwise_, HtmlReport::subsets_, HtmlRe
 
 TEST_F(HtmlReport, StepwiseChartsHaveOnePointPerStepCandidateCoefficientAndRow) {
   const json& audit = stepwise_->audit;
-  const auto check = RenderAndCheck(audit, &stepwise_->diagnostics, "stepwise");
+  std::string html;
+  const auto check = RenderAndCheck(audit, &stepwise_->diagnostics, "stepwise", &html);
   ASSERT_TRUE(check.ran);
   EXPECT_EQ(check.Count("route-point"), static_cast<int>(audit["steps"].size()));
   std::vector<int> per_step;
@@ -108,9 +110,21 @@ TEST_F(HtmlReport, StepwiseChartsHaveOnePointPerStepCandidateCoefficientAndRow) 
   EXPECT_EQ(check.Count("coef"), CoefficientsWithAnInterval(audit));
   const int rows = testing::RowsWithStandardizedResidual(stepwise_->diagnostics);
   EXPECT_EQ(rows, 200);  // every invented row is used and none has leverage 1
-  EXPECT_EQ(check.Count("resid"), rows);
-  EXPECT_EQ(check.Count("qq"), rows);
-  EXPECT_EQ(check.Count("lev"), rows);
+  // The diagnostics views, counted from the diagnostics themselves: 120 line-range bins (the
+  // default; 200 rows fill each), one ▲ per row above 4/n, one per row that stands out.
+  const testing::DiagnosticsCounts expected = testing::CountDiagnostics(stepwise_->diagnostics);
+  EXPECT_EQ(check.Count("cooks-bin"), 120);
+  EXPECT_EQ(check.Count("cooks-flagged"), expected.cooks_above);
+  EXPECT_EQ(check.Count("resid-flagged"), expected.stand_out);
+  EXPECT_GT(check.Count("density-cell"), 0);
+  EXPECT_LE(check.Count("density-cell"), 48 * 28);
+  EXPECT_GT(check.Count("hist-bar"), 0);
+  EXPECT_LE(check.Count("hist-bar"), 30);
+  // The views this report does not draw.
+  for (const char* gone : {"resid", "qq", "lev", "contour"}) EXPECT_EQ(check.Count(gone), 0) << gone;
+  EXPECT_EQ(html.find("class=\"contour"), std::string::npos);
+  EXPECT_EQ(html.find("qq-chart"), std::string::npos);
+  EXPECT_EQ(html.find("lev-chart"), std::string::npos);
   EXPECT_EQ(check.Count("subset-best"), 0);
   // Exactly one chosen candidate per step that made a move.
   int moves = 0;
@@ -164,14 +178,14 @@ TEST_F(HtmlReport, LoggedResponseIsNamedOnTheAxesAndCategoricalColumnsInTheTable
   EXPECT_NE(html.find("residual (log(price) units)"), std::string::npos);
   EXPECT_NE(html.find("modelled on the log scale"), std::string::npos);
   EXPECT_NE(html.find("<td>grade=A</td>"), std::string::npos);
-  EXPECT_EQ(check.Count("resid"), testing::RowsWithStandardizedResidual(logged_->diagnostics));
+  EXPECT_EQ(check.Count("resid-flagged"), testing::CountDiagnostics(logged_->diagnostics).stand_out);
   EXPECT_EQ(check.Count("coef"), CoefficientsWithAnInterval(audit));
 }
 
 TEST_F(HtmlReport, WithoutDiagnosticsSaysHowToGetThem) {
   std::string html;
   const auto check = RenderAndCheck(stepwise_->audit, nullptr, "no-diagnostics", &html);
-  EXPECT_EQ(check.Count("resid") + check.Count("qq") + check.Count("lev"), 0);
+  EXPECT_EQ(check.Count("cooks-bin") + check.Count("density-cell") + check.Count("hist-bar"), 0);
   EXPECT_NE(html.find("stepledger report AUDIT.json --data stepwise.csv"), std::string::npos);
 }
 
@@ -189,7 +203,7 @@ TEST_F(HtmlReport, CautionsAndIntegrityAreShown) {
   }
   // Cautions come before the plan: prominent, not an appendix.
   EXPECT_LT(html.find("id=\"cautions\""), html.find("id=\"plan\""));
-  EXPECT_NE(html.find(audit["seal"].get<std::string>() + "</span> (recomputed: matches the content)"),
+  EXPECT_NE(html.find("<dd>" + audit["seal"].get<std::string>() + " (recomputed: matches the content)</dd>"),
             std::string::npos);
   EXPECT_NE(html.find("<dt>Signature</dt><dd>absent"), std::string::npos);
   EXPECT_NE(html.find(audit["tool"]["commit"].get<std::string>()), std::string::npos);
@@ -200,7 +214,7 @@ TEST_F(HtmlReport, CautionsAndIntegrityAreShown) {
   child["parent"] = {{"seal", std::string(64, 'a')}, {"created_at", "2026-11-01T00:00:00Z"},
                      {"data_sha256", std::string(64, 'b')}};
   const std::string child_html = RenderHtmlReport(child, nullptr);
-  EXPECT_NE(child_html.find("<dt>Parent seal</dt><dd><span class=\"digest\">" + std::string(64, 'a')),
+  EXPECT_NE(child_html.find("<dt>Parent seal</dt><dd>" + std::string(64, 'a')),
             std::string::npos);
   EXPECT_NE(child_html.find("DOES NOT MATCH"), std::string::npos);
   EXPECT_EQ(html.find("<dt>Parent seal</dt>"), std::string::npos);
@@ -217,8 +231,8 @@ TEST_F(HtmlReport, ValidationAndStabilityOnlyWhenPresentAndRenderedGenerically) 
   EXPECT_NE(html.find("id=\"validation\""), std::string::npos);
   EXPECT_NE(html.find("id=\"stability\""), std::string::npos);
   EXPECT_NE(html.find("10-fold cross-validation"), std::string::npos);
-  EXPECT_NE(html.find("<th>rmse</th>"), std::string::npos);
-  EXPECT_NE(html.find(">24.25<"), std::string::npos);
+  EXPECT_NE(html.find("<td>folds[1].rmse</td>"), std::string::npos);
+  EXPECT_NE(html.find(">" + FormatQuantity(24.25, 6) + "<"), std::string::npos);
   EXPECT_NE(html.find("age&lt;6&gt;"), std::string::npos);
   EXPECT_EQ(html.find("age<6>"), std::string::npos);
 }
@@ -274,6 +288,14 @@ TEST(HtmlReportInput, NotAnAuditIsRefusedNamingTheKey) {
   ReportOptions options;
   options.chart_width = 10;
   EXPECT_THROW(RenderHtmlReport(audit, nullptr, options), InputError);
+  options = {};
+  options.cooks_bins = 5;
+  try {
+    BuildReportModel(audit, nullptr, options);
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("ReportOptions.cooks_bins"), std::string::npos) << error.what();
+  }
 }
 
 TEST(HtmlReportInput, DiagnosticsRefuseDataWithAnotherFingerprint) {

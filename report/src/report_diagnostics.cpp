@@ -2,7 +2,7 @@
 
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/fitted_model.h"
-#include "stepledger/audit/report.h"
+#include "stepledger/report/report.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/errors.h"
 

@@ -5,6 +5,8 @@
 #include <cstdio>
 #include <sstream>
 
+#include "stepledger/engine/number_format.h"
+
 namespace stepledger::report_detail {
 namespace {
 
@@ -19,18 +21,9 @@ std::string Num(double value) {
   return text;
 }
 
-std::string WithThousands(std::string digits) {
-  // digits: an optional '-' then an integer part, maybe a fraction.
-  const std::size_t start = (!digits.empty() && digits[0] == '-') ? 1 : 0;
-  std::size_t end = digits.find('.');
-  if (end == std::string::npos) end = digits.size();
-  for (std::size_t position = end; position > start + 3; position -= 3) {
-    digits.insert(position - 3, ",");
-  }
-  return digits;
-}
-
 }  // namespace
+
+std::string SvgNumber(double value) { return Num(value); }
 
 std::string HtmlEscape(std::string_view text) {
   std::string out;
@@ -78,20 +71,15 @@ AxisScale NiceScale(double data_lo, double data_hi, int target_ticks) {
 
 std::string FormatTick(double value, double step) {
   if (std::abs(value) < step * 1e-9) value = 0;
-  char buffer[48];
   const double largest = std::max(std::abs(value), step);
-  if (largest >= 1e7 || step < 1e-5) {
-    std::snprintf(buffer, sizeof buffer, "%.3g", value);
-    return buffer;
-  }
+  if (largest >= 1e7 || step < 1e-5) return FormatQuantity(value, 3);
   int decimals = 0;
   while (decimals < 6) {
     const double scaled = step * std::pow(10.0, decimals);
     if (std::abs(scaled - std::round(scaled)) < 1e-6 * std::max(1.0, scaled)) break;
     ++decimals;
   }
-  std::snprintf(buffer, sizeof buffer, "%.*f", decimals, value);
-  return WithThousands(buffer);
+  return FormatFixed(value, decimals);
 }
 
 std::string Marker(MarkerShape shape, double x, double y, double r, std::string_view css_class,

@@ -9,6 +9,10 @@
 
 namespace stepledger::report_detail {
 
+/// An SVG coordinate or attribute number: at most two decimals, no separators, no "-0" (two
+/// decimals of a user unit are far below what a screen or printer resolves).
+std::string SvgNumber(double value);
+
 /// HTML-escapes & < > " ' (text content and attribute values alike).
 std::string HtmlEscape(std::string_view text);
 
@@ -24,8 +28,8 @@ struct AxisScale {
 /// Degenerate data (lo == hi, or non-finite) gets a unit-wide range around the value.
 AxisScale NiceScale(double data_lo, double data_hi, int target_ticks = 5);
 
-/// A tick label: as few decimals as the step needs; thousands as 12,500; very large or very
-/// small values in exponent form.
+/// A tick label through engine/number_format.h: FormatFixed with as few decimals as the step
+/// needs (thousands as 12,500); FormatQuantity for very large or very small values.
 std::string FormatTick(double value, double step);
 
 enum class MarkerShape { kCircle, kSquare, kDiamond, kTriangleUp, kTriangleDown, kCross };
