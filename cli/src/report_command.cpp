@@ -11,7 +11,7 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
-#include "stepledger/audit/atomic_file.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/report/report.h"
