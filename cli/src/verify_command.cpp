@@ -61,11 +61,13 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
                       "Ed25519 public key (PEM) the signature must verify against")
       ->check(CLI::ExistingFile)
       ->type_name("FILE");
-  AddCommonOptions(*command, context.common);
+  // Writes no file; the replay reads the data with the audit's recorded delimiter.
+  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kForceOption & ~kDelimiterOption);
   command->footer(
       "Unkeyed digests and the seal catch accidental and casual edits; only a signature checked "
-      "against a public key you obtained yourself shows who produced the file.\nExample:\n"
-      "  stepledger verify out/audit.json --data laptops.csv --public-key reviewer.pub");
+      "against a public key you obtained yourself shows who produced the file.\n\n"
+      "Example (from the repository root, after `bash scripts/demo.sh` made build/demo):\n  " +
+      ProgramWord() + " verify build/demo/audit.json --data build/demo/laptops.csv");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunVerify(*args, context); };
   });
