@@ -32,6 +32,12 @@ std::string FormatJsonNumber(const json& value) {
   return FormatQuantity(value.is_number() ? std::optional<double>(value.get<double>()) : std::nullopt);
 }
 
+// A threshold as people write it: "0.1", "2".
+std::string ThresholdText(double value) {
+  // The shortest text that reads back as the value (a threshold is typed, not computed).
+  return value == std::round(value) ? FormatCount(static_cast<std::int64_t>(value)) : json(value).dump();
+}
+
 std::optional<double> Number(const json& object, const char* key) {
   if (!object.is_object() || !object.contains(key) || !object[key].is_number()) return std::nullopt;
   return object[key].get<double>();
@@ -50,21 +56,28 @@ bool Contains(const std::vector<std::string>& names, const std::string& name) {
   return std::find(names.begin(), names.end(), name) != names.end();
 }
 
-// The largest shift of the mean, the minimum or the maximum in old SD units; nullopt when a
-// value is missing on one side. Infinity when the old SD is 0 or undefined and a value moved.
-std::optional<double> LargestShiftInOldSd(const json& before, const json& after, double tolerance) {
+// How far a numeric column moved, in old SD units: the larger of the mean's shift and the
+// amount by which the new range reaches beyond the old one at either end (a range that
+// narrows, or ends that move inside the old range, are sampling noise of the extremes and do
+// not count: the model's ranges only matter where new rows lie outside them). Infinity when
+// the old SD is 0 or undefined and something moved, or when a value is recorded on one side
+// only.
+double ShiftInOldSd(const json& before, const json& after, double tolerance) {
   const auto old_sd = Number(before, "sd");
-  double largest = 0;
-  for (const char* key : {"min", "max", "mean"}) {
-    const auto a = Number(before, key);
-    const auto b = Number(after, key);
-    if (a.has_value() != b.has_value()) return std::numeric_limits<double>::infinity();
-    if (!a || NumbersAgree(*a, *b, tolerance)) continue;
-    const double shift = (old_sd && *old_sd > 0) ? std::fabs(*b - *a) / *old_sd
-                                                  : std::numeric_limits<double>::infinity();
-    largest = std::max(largest, shift);
+  const auto old_mean = Number(before, "mean"), new_mean = Number(after, "mean");
+  const auto old_min = Number(before, "min"), new_min = Number(after, "min");
+  const auto old_max = Number(before, "max"), new_max = Number(after, "max");
+  if (old_mean.has_value() != new_mean.has_value() || old_min.has_value() != new_min.has_value() ||
+      old_max.has_value() != new_max.has_value()) {
+    return std::numeric_limits<double>::infinity();
   }
-  return largest;
+  std::vector<double> moves;  // in the column's units
+  if (old_mean && !NumbersAgree(*old_mean, *new_mean, tolerance)) moves.push_back(std::fabs(*new_mean - *old_mean));
+  if (old_min && *new_min < *old_min && !NumbersAgree(*old_min, *new_min, tolerance)) moves.push_back(*old_min - *new_min);
+  if (old_max && *new_max > *old_max && !NumbersAgree(*old_max, *new_max, tolerance)) moves.push_back(*new_max - *old_max);
+  if (moves.empty()) return 0;
+  const double largest = *std::max_element(moves.begin(), moves.end());
+  return (old_sd && *old_sd > 0) ? largest / *old_sd : std::numeric_limits<double>::infinity();
 }
 
 json ColumnsComparison(const json& old_data, const json& new_data, const CompareOptions& options) {
@@ -96,8 +109,8 @@ json ColumnsComparison(const json& old_data, const json& new_data, const Compare
     }
     if (before.value("type", "") != "numeric") continue;
     ++numeric_compared;
-    const std::optional<double> shift = LargestShiftInOldSd(before, after, options.relative_tolerance);
-    if (!shift || *shift <= options.column_shift_in_old_sd) continue;
+    const double shift = ShiftInOldSd(before, after, options.relative_tolerance);
+    if (shift <= options.column_shift_in_old_sd) continue;
     json entry{{"column", name}};
     for (const char* side : {"old", "new"}) {
       const json& source = std::string(side) == "old" ? before : after;
@@ -112,7 +125,7 @@ json ColumnsComparison(const json& old_data, const json& new_data, const Compare
     entry["mean_shift_in_old_sd"] = (old_mean && new_mean && old_sd && *old_sd > 0)
                                         ? json((*new_mean - *old_mean) / *old_sd)
                                         : json(nullptr);
-    entry["largest_shift_in_old_sd"] = std::isfinite(*shift) ? json(*shift) : json(nullptr);
+    entry["shift_in_old_sd"] = std::isfinite(shift) ? json(shift) : json(nullptr);
     moved.push_back(std::move(entry));
   }
   return {{"added", added},
@@ -120,8 +133,9 @@ json ColumnsComparison(const json& old_data, const json& new_data, const Compare
           {"type_changed", type_changed},
           {"moved", moved},
           {"numeric_compared", numeric_compared},
-          {"moved_rule", "a numeric column is listed when its mean, minimum or maximum moved by more than " +
-                             FormatQuantity(options.column_shift_in_old_sd) + " old standard deviations"},
+          {"moved_rule", "a numeric column is listed when its mean moved, or its range reaches beyond the old "
+                         "range, by more than " + ThresholdText(options.column_shift_in_old_sd) +
+                             " old standard deviations"},
           {"moved_threshold_in_old_sd", options.column_shift_in_old_sd}};
 }
 
@@ -447,11 +461,11 @@ std::string ComparisonReport(const json& comparison) {
   }
   const double column_threshold = columns.value("moved_threshold_in_old_sd", 0.1);
   if (columns["moved"].empty()) {
-    text << "  columns that moved (mean, minimum or maximum by more than " << FormatQuantity(column_threshold)
-         << " old SD): none\n";
+    text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
+         << ThresholdText(column_threshold) << " old SD): none\n";
   } else {
-    text << "  columns that moved (mean, minimum or maximum by more than " << FormatQuantity(column_threshold)
-         << " old SD):\n";
+    text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
+         << ThresholdText(column_threshold) << " old SD):\n";
     for (const json& entry : columns["moved"]) {
       text << "    " << entry.value("column", "") << ": mean " << FormatJsonNumber(entry["old"]["mean"]) << " -> "
            << FormatJsonNumber(entry["new"]["mean"]);
@@ -485,7 +499,7 @@ std::string ComparisonReport(const json& comparison) {
   text << "  terms left the final model: " << names(comparison["final_terms"]["left"]) << "\n";
   if (!comparison["coefficients"].empty()) {
     const double mark = comparison.value("coefficient_mark_in_se", 2.0);
-    text << "  coefficient changes (new - old, in units of the old SE; * beyond " << FormatQuantity(mark)
+    text << "  coefficient changes (new - old, in units of the old SE; * beyond " << ThresholdText(mark)
          << " SE):\n";
     std::size_t width = 8;
     for (const json& entry : comparison["coefficients"]) width = std::max(width, entry.value("name", "").size());

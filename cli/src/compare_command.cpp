@@ -79,12 +79,12 @@ void AddCompareCommand(CLI::App& app, CommandContext& context) {
       "  same terms, refitted coefficients  1  the same terms, some estimate moved\n"
       "  different terms                    1  a term entered or left the final model\n"
       "  (2: an input cannot be read; the JSON field `verdict` holds the verdict's text)\n"
-      "A numeric column is listed as moved when its mean, minimum or maximum moved by more than "
-      "0.1 old standard deviations; a coefficient change beyond 2 old standard errors is marked "
+      "A numeric column is listed as moved when its mean moved, or its range reaches beyond the old "
+      "one, by more than 0.1 old standard deviations; a coefficient change beyond 2 old standard errors is marked "
       "'*' (beyond_mark in JSON). With --data, A's model prices B's rows through the same path "
       "as predict (a row with a level A never saw is not priced, and counted) and its error on "
       "them is shown beside B's own. An audit that does not verify is named in a warning first.\n\n"
-      "Example (from the repository root, after `bash scripts/demo.sh` made build/demo):\n  " +
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExamples:\n  " +
       ProgramWord() +
       " rerun build/demo/audit.json build/demo/laptops_month2.csv --out build/demo/month2 --force\n  " +
       ProgramWord() + " compare build/demo/audit.json build/demo/month2/audit.json --data build/demo/laptops_month2.csv");

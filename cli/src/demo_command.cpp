@@ -170,7 +170,7 @@ void AddDemoCommand(CLI::App& app, CommandContext& context) {
       "and ends with the next commands to try. Refuses to overwrite existing files without "
       "--force. `bash scripts/demo.sh` builds the program and runs the demo into build/demo, the "
       "folder every other command's --help examples use.\n\n"
-      "Example (from the repository root):\n  " + ProgramWord() + " demo --out build/demo --force\n  " +
+      "Examples run as printed from the repository root.\nExamples:\n  " + ProgramWord() + " demo --out build/demo --force\n  " +
       ProgramWord() + " report build/demo/audit.json --text");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunDemo(*args, context); };

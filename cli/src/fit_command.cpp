@@ -290,7 +290,7 @@ void AddFitCommand(CLI::App& app, CommandContext& context) {
       "the rows read, used and dropped by reason, the largest leverage and Cook's distance "
       "with their line numbers, PRESS, and the cautions that apply. With --json: the model "
       "object of the contract, plus model_statement, data, diagnostics and cautions.\n\n"
-      "Example (from the repository root, after `bash scripts/demo.sh` made build/demo):\n  " +
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
       ProgramWord() + " fit build/demo/laptops.csv --plan build/demo/plan.json");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunFit(*args, context); };

@@ -328,7 +328,7 @@ void AddPredictCommand(CLI::App& app, CommandContext& context) {
       "A row with a problem is still written (without numbers); a summary line on stderr counts "
       "the rows, the priced ones and each flag. Predictions outside the data are extrapolations; "
       "intervals of a selected model ignore the selection and are optimistic.\n\n"
-      "Example (from the repository root, after `bash scripts/demo.sh` made build/demo):\n"
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n"
       "  " + ProgramWord() + " predict build/demo/audit.json build/demo/laptops_to_price.csv --id listing_id "
       "--out build/demo/priced.csv --force");
   command->callback([args, &context] {

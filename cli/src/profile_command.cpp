@@ -288,7 +288,7 @@ void AddProfileCommand(CLI::App& app, CommandContext& context) {
       "also point at a text cell such as 'n/a' in a column of numbers (add it to the plan's "
       "\"missing\" list) and at a header read as one column that holds ';' or a tab (use "
       "--delimiter).\n\n"
-      "Example (from the repository root, after `bash scripts/demo.sh` made build/demo):\n  " +
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
       ProgramWord() + " profile build/demo/laptops.csv --response resale_price "
       "--plan-out build/demo/my_plan.json --force");
   command->callback([args, &context] {

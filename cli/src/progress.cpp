@@ -1,4 +1,4 @@
-#include "progress.h"
+#include "stepledger/cli/progress.h"
 
 #include <unistd.h>
 

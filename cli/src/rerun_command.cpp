@@ -8,7 +8,7 @@
 #include <string>
 
 #include "commands.h"
-#include "progress.h"
+#include "stepledger/cli/progress.h"
 #include "stepledger/audit/atomic_file.h"
 #include "stepledger/audit/audit_compare.h"
 #include "stepledger/audit/audit_document.h"
@@ -143,7 +143,7 @@ void AddRerunCommand(CLI::App& app, CommandContext& context) {
       "is expected to refit); use `stepledger compare` for an exit status that tells a "
       "difference. The data are read with the parent's recorded delimiter unless --delimiter is "
       "given.\n\n"
-      "Example (from the repository root, after `bash scripts/demo.sh` made build/demo):\n  " +
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
       ProgramWord() + " rerun build/demo/audit.json build/demo/laptops_month2.csv --out build/demo/month2 --force");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunRerun(*args, context); };

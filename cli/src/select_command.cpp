@@ -13,7 +13,7 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
-#include "progress.h"
+#include "stepledger/cli/progress.h"
 #include "stepledger/audit/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
@@ -242,8 +242,8 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
       "named in a note with the reason: empty columns, a single level, identifiers (every value "
       "distinct) and categorical columns with more than 100 levels (a plan's \"max_levels\" "
       "raises the limit).\n\n"
-      "Examples (from the repository root, after `bash scripts/demo.sh` made build/demo):\n"
-      "  " + program + " select build/demo/laptops.csv --plan build/demo/plan.json --out build/demo/review\n"
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExamples:\n"
+      "  " + program + " select build/demo/laptops.csv --plan build/demo/plan.json --out build/demo/review --force\n"
       "  " + program + " select build/demo/laptops.csv --response resale_price --method forward "
       "--criterion AIC");
   command->callback([args, &context] {

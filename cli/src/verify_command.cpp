@@ -66,7 +66,7 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
   command->footer(
       "Unkeyed digests and the seal catch accidental and casual edits; only a signature checked "
       "against a public key you obtained yourself shows who produced the file.\n\n"
-      "Example (from the repository root, after `bash scripts/demo.sh` made build/demo):\n  " +
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
       ProgramWord() + " verify build/demo/audit.json --data build/demo/laptops.csv");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunVerify(*args, context); };

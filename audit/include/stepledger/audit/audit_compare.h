@@ -10,8 +10,9 @@
 //                entry_p, exit_p, max_terms, terms, ... ({key, old, new}); a key that one
 //                audit does not record (an older format) is not compared
 //   columns      added, lost, type changed; numeric columns that really moved: the mean
-//                shifted by more than column_shift_in_old_sd old standard deviations, or an
-//                end of the range moved by more than that (with the shift in old SD units)
+//                shifted by more than column_shift_in_old_sd old standard deviations, or the
+//                new range reaches beyond the old one by more than that at either end (a
+//                narrower range is sampling noise of the extremes and is not listed)
 //   rows         rows used, old and new
 //   route        the first step where the routes part (action or term), or that they agree
 //   final_terms  terms that entered or left the final model, terms kept
@@ -47,9 +48,9 @@ std::optional<ComparisonVerdict> ComparisonVerdictFromString(std::string_view te
 struct CompareOptions {
   /// Estimates agree when within this relative tolerance (as verify's replay). Default 1e-9.
   double relative_tolerance = 1e-9;
-  /// A numeric column is listed as moved when its mean, its minimum or its maximum moved by
-  /// more than this many old standard deviations (any change when the old SD is 0 or
-  /// undefined). Default 0.1 (common practice: a tenth of an SD is below what a price model
+  /// A numeric column is listed as moved when its mean moved, or its range reaches beyond the
+  /// old range, by more than this many old standard deviations (any such change when the old
+  /// SD is 0 or undefined). Default 0.1 (common practice: a tenth of an SD is below what a price model
   /// notices).
   double column_shift_in_old_sd = 0.1;
   /// A coefficient change larger than this many old standard errors is marked. Default 2
