@@ -171,7 +171,7 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
     const std::string problem = integrity.problems.empty() ? "digests do not hold" : integrity.problems.front();
     if (!args.allow_unverified) {
       context.err << "stepledger: " << args.audit << " does not verify (" << OneLineText(problem)
-                  << "): its coefficients may have been edited; run 'stepledger verify " << args.audit
+                  << "): its coefficients may have been edited; run '" << ProgramWord() << " verify " << args.audit
                   << "' for the details, or add --allow-unverified to price with it anyway\n";
       return static_cast<int>(ExitStatus::kDifferenceFound);
     }

@@ -34,7 +34,7 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   const VerifyReport integrity = CheckAuditIntegrity(parent);
   if (!integrity.Holds()) {
     throw InputError(args.audit + ": the parent audit does not verify (" + integrity.problems.front() +
-                     "); run 'stepledger verify' on it");
+                     "); run '" + ProgramWord() + " verify " + args.audit + "' for the details");
   }
   const std::filesystem::path folder = args.out;
   const std::filesystem::path audit_path = folder / kAuditFileName;
