@@ -169,7 +169,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
     context.out << document.dump(2) << "\n";
     return 0;
   }
-  if (!run.design.skipped.empty()) {
+  if (!run.design.skipped.empty() && !context.common.quiet) {
     // "terms": "all" left these columns out (ReasonNotACandidateTerm); say so before the route.
     const std::size_t count = run.design.skipped.size();
     context.out << "Note: " << (count == 1 ? "one column" : FormatCount(static_cast<std::int64_t>(count)) + " columns")

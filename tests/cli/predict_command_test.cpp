@@ -264,6 +264,7 @@ TEST_F(PredictCommand, EachFlagOnTheRowBuiltForItInInputOrderWithIds) {
   EXPECT_NE(table.At(5, "detail").find("b is missing (term 'b')"), std::string::npos);
   EXPECT_NE(table.At(6, "detail").find("d: 'ten' is not a number (term 'ld')"), std::string::npos);
   EXPECT_EQ(run.err,
+            "predict: model y explained by a, b, ld, a2, g, a:g, weighted by w\n"
             "predict: 8 rows, 5 priced; outside-range 2, hidden-extrapolation 1, unknown-level 1, missing 1, "
             "invalid-value 1\n");
 }
@@ -301,7 +302,8 @@ TEST_F(PredictCommand, FittedRowsPricedAgainCarryNoFlag) {
   const nlohmann::json result = nlohmann::json::parse(run.out);
   ASSERT_EQ(result["rows"].size(), 200u);
   for (const auto& row : result["rows"]) EXPECT_EQ(row["flags"], nlohmann::json::array()) << row["detail"];
-  EXPECT_EQ(run.err, "predict: 200 rows, 200 priced; outside-range 0, hidden-extrapolation 0, unknown-level 0, "
+  EXPECT_EQ(run.err, "predict: model y explained by a, b, ld, a2, g, a:g, weighted by w\n"
+            "predict: 200 rows, 200 priced; outside-range 0, hidden-extrapolation 0, unknown-level 0, "
                      "missing 0, invalid-value 0\n");
 }
 
