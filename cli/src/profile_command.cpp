@@ -272,7 +272,7 @@ void AddProfileCommand(CLI::App& app, CommandContext& context) {
                               ->type_name("COL");
   CLI::Option* plan_out = command->add_option("--plan-out", args->plan_out,
                                                "Write the starter plan to FILE (never overwrites without "
-                                               "--force; needs --response)")
+                                               "--force)")
                               ->type_name("FILE")
                               ->needs(response);
   AddCommonOptions(*command, context.common, kAllCommonOptions & ~kThreadsOption);

@@ -208,16 +208,16 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
                       "Quick form: the response column; every other column is a candidate term")
       ->type_name("COL");
   command->add_option("--method", args->method,
-                      "forward, backward, stepwise, all-subsets or none (overrides the plan)")
+                      "forward, backward, stepwise, all-subsets or none, any case (overrides the plan)")
       ->type_name("M");
   command->add_option("--criterion", args->criterion,
-                      "adj-r2, aic, aicc, bic, cp, partial-f or cv (overrides the plan)")
+                      "adj-r2, aic, aicc, bic, cp, partial-f or cv, any case (overrides the plan)")
       ->type_name("C");
   CLI::Option* out = command->add_option("--out", args->out_dir,
                                          "Folder for audit.json and the reviewer's report report.html "
                                          "(written atomically)")
                          ->type_name("DIR");
-  command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the audit with (needs --out)")
+  command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the audit with")
       ->check(CLI::ExistingFile)
       ->type_name("FILE")
       ->needs(out);

@@ -64,7 +64,7 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
       ->type_name("FILE");
   // Writes no file; the replay reads the data with the audit's recorded delimiter.
   AddCommonOptions(*command, context.common, kAllCommonOptions & ~kForceOption & ~kDelimiterOption);
-  command->get_option("--threads")->needs(data)->description("Threads folding the factor of the replay (needs --data)");
+  command->get_option("--threads")->needs(data)->description("Threads folding the factor of the replay");
   command->footer(
       "Unkeyed digests and the seal catch accidental and casual edits; only a signature checked "
       "against a public key you obtained yourself shows who produced the file.\n\n"
