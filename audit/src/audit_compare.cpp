@@ -2,18 +2,20 @@
 
 #include <algorithm>
 #include <cmath>
+#include <limits>
 #include <cstdio>
+#include <array>
 #include <map>
 #include <sstream>
 
 #include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/audit/audit_verify.h"
+#include "stepledger/audit/fitted_model.h"
 #include "stepledger/audit/model_json.h"
-#include "stepledger/io/plan_file.h"
-#include "stepledger/engine/data_pass.h"
-#include "stepledger/engine/design.h"
+#include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
-#include "stepledger/engine/profile.h"
+#include "stepledger/engine/number_format.h"
+#include "stepledger/engine/prediction.h"
 
 namespace stepledger {
 namespace {
@@ -27,14 +29,14 @@ const json& Section(const json& audit, const char* key, const char* which) {
   return audit[key];
 }
 
-std::string Format(double value) {
-  char buffer[32];
-  std::snprintf(buffer, sizeof buffer, "%.6g", value);
-  return buffer;
+std::string FormatJsonNumber(const json& value) {
+  return FormatQuantity(value.is_number() ? std::optional<double>(value.get<double>()) : std::nullopt);
 }
 
-std::string FormatJsonNumber(const json& value) {
-  return value.is_number() ? Format(value.get<double>()) : std::string("n/a");
+// A threshold as people write it: "0.1", "2".
+std::string ThresholdText(double value) {
+  // The shortest text that reads back as the value (a threshold is typed, not computed).
+  return value == std::round(value) ? FormatCount(static_cast<std::int64_t>(value)) : json(value).dump();
 }
 
 std::optional<double> Number(const json& object, const char* key) {
@@ -55,7 +57,31 @@ bool Contains(const std::vector<std::string>& names, const std::string& name) {
   return std::find(names.begin(), names.end(), name) != names.end();
 }
 
-json ColumnsComparison(const json& old_data, const json& new_data, double tolerance) {
+// How far a numeric column moved, in old SD units: the larger of the mean's shift and the
+// amount by which the new range reaches beyond the old one at either end (a range that
+// narrows, or ends that move inside the old range, are sampling noise of the extremes and do
+// not count: the model's ranges only matter where new rows lie outside them). Infinity when
+// the old SD is 0 or undefined and something moved, or when a value is recorded on one side
+// only.
+double ShiftInOldSd(const json& before, const json& after, double tolerance) {
+  const auto old_sd = Number(before, "sd");
+  const auto old_mean = Number(before, "mean"), new_mean = Number(after, "mean");
+  const auto old_min = Number(before, "min"), new_min = Number(after, "min");
+  const auto old_max = Number(before, "max"), new_max = Number(after, "max");
+  if (old_mean.has_value() != new_mean.has_value() || old_min.has_value() != new_min.has_value() ||
+      old_max.has_value() != new_max.has_value()) {
+    return std::numeric_limits<double>::infinity();
+  }
+  std::vector<double> moves;  // in the column's units
+  if (old_mean && !NumbersAgree(*old_mean, *new_mean, tolerance)) moves.push_back(std::fabs(*new_mean - *old_mean));
+  if (old_min && *new_min < *old_min && !NumbersAgree(*old_min, *new_min, tolerance)) moves.push_back(*old_min - *new_min);
+  if (old_max && *new_max > *old_max && !NumbersAgree(*old_max, *new_max, tolerance)) moves.push_back(*new_max - *old_max);
+  if (moves.empty()) return 0;
+  const double largest = *std::max_element(moves.begin(), moves.end());
+  return (old_sd && *old_sd > 0) ? largest / *old_sd : std::numeric_limits<double>::infinity();
+}
+
+json ColumnsComparison(const json& old_data, const json& new_data, const CompareOptions& options) {
   std::map<std::string, json> old_columns, new_columns;
   std::vector<std::string> old_order, new_order;
   for (const json& column : old_data.value("columns", json::array())) {
@@ -67,6 +93,7 @@ json ColumnsComparison(const json& old_data, const json& new_data, double tolera
     new_order.push_back(column.value("name", ""));
   }
   json added = json::array(), lost = json::array(), type_changed = json::array(), moved = json::array();
+  std::uint64_t numeric_compared = 0;
   for (const std::string& name : new_order) {
     if (!old_columns.count(name)) added.push_back(name);
   }
@@ -82,13 +109,9 @@ json ColumnsComparison(const json& old_data, const json& new_data, double tolera
       continue;
     }
     if (before.value("type", "") != "numeric") continue;
-    bool changed = false;
-    for (const char* key : {"min", "max", "mean"}) {
-      const auto a = Number(before, key);
-      const auto b = Number(after, key);
-      if (a.has_value() != b.has_value() || (a && !NumbersAgree(*a, *b, tolerance))) changed = true;
-    }
-    if (!changed) continue;
+    ++numeric_compared;
+    const double shift = ShiftInOldSd(before, after, options.relative_tolerance);
+    if (shift <= options.column_shift_in_old_sd) continue;
     json entry{{"column", name}};
     for (const char* side : {"old", "new"}) {
       const json& source = std::string(side) == "old" ? before : after;
@@ -103,9 +126,43 @@ json ColumnsComparison(const json& old_data, const json& new_data, double tolera
     entry["mean_shift_in_old_sd"] = (old_mean && new_mean && old_sd && *old_sd > 0)
                                         ? json((*new_mean - *old_mean) / *old_sd)
                                         : json(nullptr);
+    entry["shift_in_old_sd"] = std::isfinite(shift) ? json(shift) : json(nullptr);
     moved.push_back(std::move(entry));
   }
-  return {{"added", added}, {"lost", lost}, {"type_changed", type_changed}, {"moved", moved}};
+  return {{"added", added},
+          {"lost", lost},
+          {"type_changed", type_changed},
+          {"moved", moved},
+          {"numeric_compared", numeric_compared},
+          {"moved_rule", "a numeric column is listed when its mean moved, or its range reaches beyond the old "
+                         "range, by more than " + ThresholdText(options.column_shift_in_old_sd) +
+                             " old standard deviations"},
+          {"moved_threshold_in_old_sd", options.column_shift_in_old_sd}};
+}
+
+// Keys of the two normalised plans whose values differ, in the new plan's key order. A key
+// only one side records (an audit of an older format) is not compared.
+json PlanComparison(const json& old_audit, const json& new_audit) {
+  json differences = json::array();
+  const json* old_plan = nullptr;
+  const json* new_plan = nullptr;
+  if (old_audit.contains("plan") && old_audit["plan"].is_object()) {
+    const json& plan = old_audit["plan"];
+    if (plan.contains("normalised") && plan["normalised"].is_object()) old_plan = &plan["normalised"];
+  }
+  if (new_audit.contains("plan") && new_audit["plan"].is_object()) {
+    const json& plan = new_audit["plan"];
+    if (plan.contains("normalised") && plan["normalised"].is_object()) new_plan = &plan["normalised"];
+  }
+  if (old_plan == nullptr || new_plan == nullptr) {
+    return {{"compared", false}, {"same", nullptr}, {"differences", differences}};
+  }
+  for (const auto& [key, new_value] : new_plan->items()) {
+    if (!old_plan->contains(key)) continue;
+    const json& old_value = (*old_plan)[key];
+    if (old_value != new_value) differences.push_back({{"key", key}, {"old", old_value}, {"new", new_value}});
+  }
+  return {{"compared", true}, {"same", differences.empty()}, {"differences", differences}};
 }
 
 json StepMove(const json& step) {
@@ -147,7 +204,8 @@ json CompareAudits(const json& old_as_read, const json& new_as_read, const Compa
   comparison["old_data_sha256"] = old_data.value("sha256", json(nullptr));
   comparison["new_data_sha256"] = new_data.value("sha256", json(nullptr));
   comparison["same_data"] = old_data.value("sha256", json(nullptr)) == new_data.value("sha256", json(nullptr));
-  comparison["columns"] = ColumnsComparison(old_data, new_data, tolerance);
+  comparison["plan"] = PlanComparison(old_audit, new_audit);
+  comparison["columns"] = ColumnsComparison(old_data, new_data, options);
   comparison["rows"] = {{"old_rows_used", old_data.value("rows_used", json(nullptr))},
                         {"new_rows_used", new_data.value("rows_used", json(nullptr))}};
   comparison["route"] = RouteComparison(old_audit.value("steps", json::array()),
@@ -201,12 +259,14 @@ json CompareAudits(const json& old_as_read, const json& new_as_read, const Compa
     }
     entry["change_in_old_se"] = NumberOrNull(in_old_se);
     entry["change_in_joint_se"] = NumberOrNull(in_joint_se);
+    entry["beyond_mark"] = in_old_se.has_value() && std::fabs(*in_old_se) > options.coefficient_mark_in_se;
     coefficients.push_back(std::move(entry));
   }
   for (const std::string& name : new_names) {
     if (!Contains(old_names, name)) only_new.push_back(name);
   }
   comparison["coefficients"] = coefficients;
+  comparison["coefficient_mark_in_se"] = options.coefficient_mark_in_se;
   comparison["coefficients_only_old"] = only_old;
   comparison["coefficients_only_new"] = only_new;
 
@@ -219,8 +279,18 @@ json CompareAudits(const json& old_as_read, const json& new_as_read, const Compa
     prediction = new_audit["comparison"]["prediction"];
   }
   comparison["prediction"] = prediction;
-  comparison["models_differ"] = old_terms != new_terms || !only_old.empty() || !only_new.empty() ||
-                                estimates_differ;
+  // Term order does not make a different model; the set of terms does.
+  std::vector<std::string> old_sorted = old_terms, new_sorted = new_terms;
+  std::sort(old_sorted.begin(), old_sorted.end());
+  std::sort(new_sorted.begin(), new_sorted.end());
+  ComparisonVerdict verdict = ComparisonVerdict::kSameModel;
+  if (old_sorted != new_sorted || !only_old.empty() || !only_new.empty()) {
+    verdict = ComparisonVerdict::kDifferentTerms;
+  } else if (estimates_differ) {
+    verdict = ComparisonVerdict::kSameTermsRefitted;
+  }
+  comparison["verdict"] = ToString(verdict);
+  comparison["models_differ"] = verdict != ComparisonVerdict::kSameModel;
   return comparison;
 }
 
@@ -229,54 +299,58 @@ json PredictionComparison(const json& old_as_read, const json& new_as_read,
   const json old_audit = AuditInCurrentShape(old_as_read);
   const json new_audit = AuditInCurrentShape(new_as_read);
   try {
-    const json& normalised = Section(Section(old_audit, "plan", "old"), "normalised", "old plan");
-    const Plan plan = PlanFromJson(normalised);
+    // The same model and the same pricing path as `predict`.
+    const FittedModel fitted = FittedModelFromAudit(old_audit, "old audit");
+    const Predictor predictor(MakePricingModel(fitted));
+    const Design& design = predictor.design();
     CsvOptions csv = csv_in;
-    csv.missing_tokens = plan.missing_tokens;
-    const DataProfile profile = ProfileCsv(new_data, csv);
-    const Design design = BuildDesign(plan.design, profile);
-
-    const json& old_model = Section(old_audit, "model", "old");
-    std::vector<std::pair<std::size_t, double>> beta;  // design column, estimate
-    std::vector<bool> has_coefficient(design.column_count(), false);
-    for (const json& coefficient : old_model.value("coefficients", json::array())) {
-      const std::string name = coefficient.value("name", "");
-      for (std::size_t column = 0; column < design.column_count(); ++column) {
-        if (design.columns[column].name == name && coefficient["estimate"].is_number()) {
-          beta.emplace_back(column, coefficient["estimate"].get<double>());
-          has_coefficient[column] = true;
-        }
-      }
+    csv.missing_tokens = fitted.missing_tokens;
+    CsvReader reader(new_data, csv);
+    const PredictionRowEvaluator evaluator(design, reader);
+    const std::ptrdiff_t response_index = reader.ColumnIndex(design.response);
+    if (response_index < 0) {
+      return {{"available", false},
+              {"reason", new_data.string() + ": no column '" + design.response + "' (the response) in the header"}};
     }
-    // Columns of the old model's categorical terms that the old model never saw (new levels):
-    // such rows are predicted at the baseline, and counted.
-    std::vector<std::size_t> unseen_columns;
-    const std::vector<std::string> old_terms = Strings(old_model.value("terms", json::array()));
-    for (std::size_t column = 0; column < design.column_count(); ++column) {
-      const std::size_t term = design.columns[column].term;
-      if (term == kNoTerm || has_coefficient[column]) continue;
-      if (Contains(old_terms, design.terms[term].name)) unseen_columns.push_back(column);
-    }
+    const bool logged = design.response_transform == ResponseTransform::kLog;
 
     double weighted_squares = 0, weighted_errors = 0, weight_sum = 0;
-    std::uint64_t rows = 0, unseen_rows = 0;
-    ForEachUsedRow(new_data, design, csv, [&](const UsedRow& row) {
-      double fitted = 0;
-      for (const auto& [column, estimate] : beta) fitted += estimate * row.x[column];
-      const double error = row.y - fitted;
+    std::uint64_t rows_read = 0, rows = 0, response_unusable = 0;
+    std::map<PredictionFlag, std::uint64_t> not_priced;
+    CsvRecord record;
+    while (reader.Next(record)) {
+      ++rows_read;
+      const PredictedRow row = predictor.Predict(evaluator.Evaluate(record));
+      if (!row.priced()) {
+        // Counted under the first problem, as predict lists them.
+        ++not_priced[row.problems.empty() ? PredictionFlag::kInvalidValue : row.problems.front().flag];
+        continue;
+      }
+      double observed = 0;
+      const CellKind kind = ClassifyCell(record.fields[static_cast<std::size_t>(response_index)].text,
+                                         csv.missing_tokens, observed);
+      if (kind != CellKind::kNumber || (logged && !(observed > 0))) {
+        ++response_unusable;
+        continue;
+      }
+      if (logged) observed = std::log(observed);
+      const double error = observed - *row.prediction;
       weighted_squares += row.weight * error * error;
       weighted_errors += row.weight * error;
       weight_sum += row.weight;
       ++rows;
-      for (std::size_t column : unseen_columns) {
-        if (row.x[column] != 0) {
-          ++unseen_rows;
-          break;
-        }
-      }
-    });
+    }
+    json not_priced_counts = json::object();
+    for (const PredictionFlag flag : {PredictionFlag::kUnknownLevel, PredictionFlag::kMissing,
+                                      PredictionFlag::kInvalidValue}) {
+      not_priced_counts[ToString(flag)] = not_priced[flag];
+    }
     if (rows == 0 || weight_sum <= 0) {
-      return {{"available", false}, {"reason", "no usable rows for the old model in the new data"}};
+      return {{"available", false},
+              {"rows_read", rows_read},
+              {"not_priced", not_priced_counts},
+              {"response_unusable", response_unusable},
+              {"reason", "no row of the new data could be priced by the old model with a usable response"}};
     }
     const json& new_model = Section(new_audit, "model", "new");
     const auto new_rss = Number(new_model, "rss");
@@ -284,21 +358,75 @@ json PredictionComparison(const json& old_as_read, const json& new_as_read,
     std::optional<double> new_rmse;
     if (new_rss && new_weight_sum && *new_weight_sum > 0) new_rmse = std::sqrt(*new_rss / *new_weight_sum);
     return {{"available", true},
+            {"rows_read", rows_read},
             {"rows", rows},
+            {"not_priced", not_priced_counts},
+            {"unseen_level_rows", not_priced[PredictionFlag::kUnknownLevel]},
+            {"response_unusable", response_unusable},
             {"old_model_rmse", std::sqrt(weighted_squares / weight_sum)},
             {"old_model_mean_error", weighted_errors / weight_sum},
             {"new_model_rmse", NumberOrNull(new_rmse)},
-            {"unseen_level_rows", unseen_rows},
             {"response_transform", ToString(design.response_transform)},
-            {"note", "root mean squared error of the (transformed) response over the new rows; the "
-                     "old model predicts out of sample, the new model's figure is in-sample"}};
+            {"note", "root mean squared error of the (transformed) response over the new rows the old "
+                     "model could price (as predict prices them: a row with a level the old model never "
+                     "saw is not priced); the old model predicts out of sample, the new model's figure "
+                     "is in-sample"}};
   } catch (const InputError& error) {
     return {{"available", false},
-            {"reason", std::string("the old plan cannot be applied to the new data: ") + error.what()}};
+            {"reason", std::string("the old model cannot price the new data: ") + error.what()}};
   }
 }
 
-bool FinalModelsDiffer(const json& comparison) { return comparison.value("models_differ", true); }
+const char* ToString(ComparisonVerdict verdict) {
+  switch (verdict) {
+    case ComparisonVerdict::kSameModel: return "same model";
+    case ComparisonVerdict::kSameTermsRefitted: return "same terms, refitted coefficients";
+    case ComparisonVerdict::kDifferentTerms: return "different terms";
+  }
+  return "different terms";
+}
+
+std::optional<ComparisonVerdict> ComparisonVerdictFromString(std::string_view text) {
+  for (const ComparisonVerdict verdict : {ComparisonVerdict::kSameModel, ComparisonVerdict::kSameTermsRefitted,
+                                          ComparisonVerdict::kDifferentTerms}) {
+    if (text == ToString(verdict)) return verdict;
+  }
+  return std::nullopt;
+}
+
+ComparisonVerdict VerdictOf(const json& comparison) {
+  if (comparison.is_object() && comparison.contains("verdict") && comparison["verdict"].is_string()) {
+    if (auto verdict = ComparisonVerdictFromString(comparison["verdict"].get<std::string>())) return *verdict;
+  }
+  // A comparison recorded before verdicts existed: only models_differ.
+  return comparison.value("models_differ", true) ? ComparisonVerdict::kDifferentTerms : ComparisonVerdict::kSameModel;
+}
+
+bool FinalModelsDiffer(const json& comparison) { return VerdictOf(comparison) != ComparisonVerdict::kSameModel; }
+
+namespace {
+
+std::string PlanValueText(const json& value) {
+  if (value.is_string()) return value.get<std::string>();
+  if (value.is_null()) return "none";
+  if (value.is_number()) return FormatJsonNumber(value);
+  if (value.is_array() && value.size() > 4) return std::to_string(value.size()) + " entries";
+  return value.dump();
+}
+
+std::string VerdictSentence(ComparisonVerdict verdict) {
+  switch (verdict) {
+    case ComparisonVerdict::kSameModel:
+      return "Verdict: same model (the same terms, every estimate unchanged).";
+    case ComparisonVerdict::kSameTermsRefitted:
+      return "Verdict: same terms, refitted coefficients (the same terms; estimates moved, see below).";
+    case ComparisonVerdict::kDifferentTerms:
+      return "Verdict: different terms (a term entered or left the final model).";
+  }
+  return {};
+}
+
+}  // namespace
 
 std::string ComparisonReport(const json& comparison) {
   std::ostringstream text;
@@ -307,12 +435,25 @@ std::string ComparisonReport(const json& comparison) {
     for (const json& item : array) joined += (joined.empty() ? "" : ", ") + (item.is_string() ? item.get<std::string>() : item.dump());
     return joined.empty() ? std::string("none") : joined;
   };
+  text << VerdictSentence(VerdictOf(comparison)) << "\n";
   text << "Comparison with the old run";
   if (comparison.value("old_seal", json(nullptr)).is_string()) {
     text << " (seal " << comparison["old_seal"].get<std::string>().substr(0, 16) << "...)";
   }
   text << "\n";
   text << "  data: " << (comparison.value("same_data", false) ? "the same bytes" : "different bytes") << "\n";
+  if (comparison.contains("plan") && comparison["plan"].value("compared", false)) {
+    const json& differences = comparison["plan"]["differences"];
+    if (differences.empty()) {
+      text << "  plan: the same\n";
+    } else {
+      text << "  plan differences:\n";
+      for (const json& entry : differences) {
+        text << "    " << entry.value("key", "") << ": " << PlanValueText(entry["old"]) << " -> "
+             << PlanValueText(entry["new"]) << "\n";
+      }
+    }
+  }
   const json& columns = comparison["columns"];
   text << "  columns added: " << names(columns["added"]) << "\n";
   text << "  columns lost: " << names(columns["lost"]) << "\n";
@@ -324,18 +465,29 @@ std::string ComparisonReport(const json& comparison) {
     }
     text << "\n";
   }
-  for (const json& entry : columns["moved"]) {
-    text << "  moved: " << entry.value("column", "") << ": mean " << FormatJsonNumber(entry["old"]["mean"])
-         << " -> " << FormatJsonNumber(entry["new"]["mean"]);
-    if (entry["mean_shift_in_old_sd"].is_number()) {
-      text << " (" << Format(entry["mean_shift_in_old_sd"].get<double>()) << " old SD)";
+  const double column_threshold = columns.value("moved_threshold_in_old_sd", 0.1);
+  if (columns["moved"].empty()) {
+    text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
+         << ThresholdText(column_threshold) << " old SD): none\n";
+  } else {
+    text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
+         << ThresholdText(column_threshold) << " old SD):\n";
+    for (const json& entry : columns["moved"]) {
+      text << "    " << entry.value("column", "") << ": mean " << FormatJsonNumber(entry["old"]["mean"]) << " -> "
+           << FormatJsonNumber(entry["new"]["mean"]);
+      if (entry["mean_shift_in_old_sd"].is_number()) {
+        text << " (" << FormatFixed(entry["mean_shift_in_old_sd"].get<double>(), 2) << " old SD)";
+      }
+      text << ", range " << FormatJsonNumber(entry["old"]["min"]) << " to " << FormatJsonNumber(entry["old"]["max"])
+           << " -> " << FormatJsonNumber(entry["new"]["min"]) << " to " << FormatJsonNumber(entry["new"]["max"])
+           << "\n";
     }
-    text << ", range " << FormatJsonNumber(entry["old"]["min"]) << " to " << FormatJsonNumber(entry["old"]["max"])
-         << " -> " << FormatJsonNumber(entry["new"]["min"]) << " to " << FormatJsonNumber(entry["new"]["max"])
-         << "\n";
   }
-  text << "  rows used: " << comparison["rows"]["old_rows_used"].dump() << " -> "
-       << comparison["rows"]["new_rows_used"].dump() << "\n";
+  auto count = [](const json& value) {
+    return value.is_number() ? FormatCount(value.get<std::int64_t>()) : std::string("n/a");
+  };
+  text << "  rows used: " << count(comparison["rows"]["old_rows_used"]) << " -> "
+       << count(comparison["rows"]["new_rows_used"]) << "\n";
   const json& route = comparison["route"];
   if (route.value("same", false)) {
     text << "  route: the same actions and terms at every step\n";
@@ -352,16 +504,19 @@ std::string ComparisonReport(const json& comparison) {
   text << "  terms entered the final model: " << names(comparison["final_terms"]["entered"]) << "\n";
   text << "  terms left the final model: " << names(comparison["final_terms"]["left"]) << "\n";
   if (!comparison["coefficients"].empty()) {
-    text << "  coefficient changes (new - old, in units of the old SE):\n";
+    const double mark = comparison.value("coefficient_mark_in_se", 2.0);
+    text << "  coefficient changes (new - old, in units of the old SE; * beyond " << ThresholdText(mark)
+         << " SE):\n";
+    std::size_t width = 8;
+    for (const json& entry : comparison["coefficients"]) width = std::max(width, entry.value("name", "").size());
     for (const json& entry : comparison["coefficients"]) {
-      char line[256];
-      std::snprintf(line, sizeof line, "    %-24s %12s -> %-12s %s\n", entry.value("name", "").c_str(),
-                    FormatJsonNumber(entry["old_estimate"]).c_str(),
-                    FormatJsonNumber(entry["new_estimate"]).c_str(),
-                    entry["change_in_old_se"].is_number()
-                        ? (Format(entry["change_in_old_se"].get<double>()) + " SE").c_str()
-                        : "n/a");
-      text << line;
+      const std::string name = entry.value("name", "");
+      const std::string change = entry["change_in_old_se"].is_number()
+                                     ? FormatFixed(entry["change_in_old_se"].get<double>(), 2) + " SE"
+                                     : std::string("n/a");
+      text << "    " << name << std::string(width - name.size(), ' ') << "  "
+           << FormatJsonNumber(entry["old_estimate"]) << " -> " << FormatJsonNumber(entry["new_estimate"]) << "  "
+           << change << (entry.value("beyond_mark", false) ? " *" : "") << "\n";
     }
   }
   const json& prediction = comparison["prediction"];
@@ -369,15 +524,22 @@ std::string ComparisonReport(const json& comparison) {
     text << "  old model on the new rows: RMSE " << FormatJsonNumber(prediction["old_model_rmse"])
          << " (mean error " << FormatJsonNumber(prediction["old_model_mean_error"])
          << "), beside the new model's RMSE " << FormatJsonNumber(prediction["new_model_rmse"]) << " over "
-         << prediction["rows"].dump() << " rows";
-    if (prediction.value("unseen_level_rows", 0) > 0) {
-      text << "; " << prediction["unseen_level_rows"].dump() << " rows have levels the old model never saw";
+         << count(prediction["rows"]) << " rows";
+    if (prediction.contains("not_priced") && prediction["not_priced"].is_object()) {
+      std::string skipped;
+      for (const auto& [flag, rows] : prediction["not_priced"].items()) {
+        if (rows.is_number() && rows.get<std::int64_t>() > 0) {
+          skipped += (skipped.empty() ? "" : ", ") + count(rows) + " " + flag;
+        }
+      }
+      if (!skipped.empty()) text << "; not priced: " << skipped;
+    } else if (prediction.value("unseen_level_rows", 0) > 0) {
+      text << "; " << count(prediction["unseen_level_rows"]) << " rows have levels the old model never saw";
     }
     text << "\n";
   } else {
     text << "  old model on the new rows: not available (" << prediction.value("reason", "") << ")\n";
   }
-  text << (FinalModelsDiffer(comparison) ? "The final models differ.\n" : "The final models are the same.\n");
   return text.str();
 }
 

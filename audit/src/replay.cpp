@@ -9,7 +9,8 @@
 namespace stepledger {
 
 RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem::path& data,
-                             std::string_view audit_name, const ReplayOverrides& overrides) {
+                             std::string_view audit_name, const ReplayOverrides& overrides,
+                             SearchObserver* observer) {
   const std::string name(audit_name);
   if (!audit.is_object() || !audit.contains("plan") || !audit["plan"].is_object() ||
       !audit["plan"].contains("verbatim") || !audit["plan"]["verbatim"].is_string()) {
@@ -20,7 +21,7 @@ RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem:
   RunOptions options = RunOptionsFromSettings(audit.value("settings", nlohmann::json::object()));
   if (overrides.threads) options.threads = *overrides.threads;
   if (overrides.delimiter) options.csv.delimiter = *overrides.delimiter;
-  return RunPlan(data, loaded, options);
+  return RunPlan(data, loaded, options, observer);
 }
 
 }  // namespace stepledger

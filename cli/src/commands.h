@@ -12,6 +12,9 @@
 #include <spdlog/logger.h>
 
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/design.h"
+#include "stepledger/engine/fit.h"
+#include "stepledger/selection/plan.h"
 
 namespace stepledger::cli {
 
@@ -42,11 +45,42 @@ struct CommandContext {
   std::function<int()> action;
 };
 
-/// Adds --json, --force, --threads, --quiet, --log-level and --delimiter to a subcommand.
-void AddCommonOptions(CLI::App& command, CommonOptions& common);
+/// The common options a command can take; a command offers only those it uses.
+enum CommonOption : unsigned {
+  kJsonOption = 1u << 0,
+  kForceOption = 1u << 1,       ///< only commands that write a file
+  kThreadsOption = 1u << 2,     ///< only commands that make a factor pass over data
+  kQuietOption = 1u << 3,
+  kLogLevelOption = 1u << 4,
+  kDelimiterOption = 1u << 5,   ///< only commands that read a data file
+  kAllCommonOptions = (1u << 6) - 1,
+};
+
+/// Adds the chosen options among --json, --force, --threads, --quiet, --log-level and
+/// --delimiter to a subcommand (all of them by default).
+void AddCommonOptions(CLI::App& command, CommonOptions& common, unsigned options = kAllCommonOptions);
+
+/// --method's value in any case ("Forward"), or InputError naming --method and the choices.
+Method ParseMethodOption(const std::string& text);
+/// --criterion's value in any case ("AIC"), or InputError naming --criterion and the choices.
+Criterion ParseCriterionOption(const std::string& text);
+
+/// The model in words, the way every command states it: "log(resale_price) explained by age,
+/// memory, grade, weighted by units"; "y explained by the intercept alone"; "(no intercept)"
+/// when the model has none. Never a tilde formula.
+std::string ModelStatement(const Design& design, const FitResult& fit);
 
 /// CSV options from the common options (throws InputError naming --delimiter).
 CsvOptions MakeCsvOptions(const CommonOptions& common);
+
+/// How the examples in --help and the demo's "Next, try" lines call the program, so that they
+/// run as printed: "stepledger" when that name on PATH is this executable (or when this is not a
+/// `stepledger` executable, as in tests), else the path this executable was built at, relative
+/// to the current folder when it lies inside it ("build/cli/stepledger").
+std::string ProgramWord();
+
+/// text on one line (line breaks become spaces): what stderr messages must be.
+std::string OneLineText(std::string text);
 
 /// Writes text to a file atomically (refusing to overwrite without --force), or to out when
 /// path is "-".

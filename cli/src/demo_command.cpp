@@ -59,17 +59,16 @@ std::string ShellWord(const std::string& text) {
   return quoted + "'";
 }
 
+// A command line that runs as printed: the program as ProgramWord() names it (the path it was
+// built at unless `stepledger` on PATH is this very program).
 std::string Joined(const std::vector<std::string>& words) {
-  std::string line = "stepledger";
+  std::string line = ShellWord(ProgramWord());
   for (const std::string& word : words) line += " " + ShellWord(word);
   return line;
 }
 
 int RunDemo(const DemoArgs& args, CommandContext& context) {
   const CommonOptions& common = context.common;
-  if (common.delimiter != ",") {
-    throw InputError("--delimiter: the demo writes comma-separated files; leave --delimiter out");
-  }
   if (args.out_dir.empty()) throw InputError("--out: the folder name is empty");
   const fs::path folder = args.out_dir;
   if (fs::exists(folder) && !fs::is_directory(folder)) {
@@ -160,7 +159,8 @@ void AddDemoCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--out", args->out_dir,
                       "Folder for the data, the plan, the audit and the report (created when missing)")
       ->type_name("DIR");
-  AddCommonOptions(*command, context.common);
+  // The demo writes comma-separated files: no --delimiter.
+  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kDelimiterOption);
   command->footer(
       "Writes DIR/laptops.csv (listings of an invented reseller of refurbished laptops, drawn "
       "from a documented true model with a fixed seed), DIR/plan.json (the true model's terms "
@@ -168,8 +168,10 @@ void AddDemoCommand(CLI::App& app, CommandContext& context) {
       "DIR/laptops_to_price.csv, then runs exactly\n"
       "  stepledger select DIR/laptops.csv --plan DIR/plan.json --out DIR\n"
       "and ends with the next commands to try. Refuses to overwrite existing files without "
-      "--force.\nExample:\n  stepledger demo --out laptop-demo\n  stepledger report "
-      "laptop-demo/audit.json --text");
+      "--force. `bash scripts/demo.sh` builds the program and runs the demo into build/demo, the "
+      "folder every other command's --help examples use.\n\n"
+      "Examples run as printed from the repository root.\nExamples:\n  " + ProgramWord() + " demo --out build/demo --force\n  " +
+      ProgramWord() + " report build/demo/audit.json --text");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunDemo(*args, context); };
   });

@@ -159,11 +159,13 @@ int RunFit(const FitArgs& args, CommandContext& context) {
         {"press", NumberOrNull(summary.press)},
         {"large_standardized_residuals", summary.large_residuals}};
     result["cautions"] = CautionsToJson(cautions);
+    result["model_statement"] = ModelStatement(run.design, fit);
     context.out << result.dump(2) << "\n";
     return 0;
   }
 
-  context.out << fit.FullReport() << "\n" << RowsText(run.accounting);
+  context.out << "Model: " << ModelStatement(run.design, fit) << "\n" << fit.FullReport() << "\n"
+              << RowsText(run.accounting);
   if (!context.common.quiet) {
     context.out << "\n" << DiagnosticsText(summary, fit) << "\nCautions:\n";
     for (const Caution& caution : cautions) context.out << "  - " << caution.message << "\n";
@@ -191,7 +193,7 @@ void AddFitCommand(CLI::App& app, CommandContext& context) {
                       "Largest number of refinement passes over the rows (0: factor only)")
       ->check(CLI::Range(0, 100))
       ->type_name("N");
-  AddCommonOptions(*command, context.common);
+  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kForceOption);
   command->footer(
       "One streaming pass builds the triangular factor of the plan's design, the fit is refined "
       "against the rows, and one more pass gives the per-row diagnostics. Prints the "
@@ -199,8 +201,9 @@ void AddFitCommand(CLI::App& app, CommandContext& context) {
       "variance, the criteria (R-squared, adjusted R-squared, log-likelihood, AIC, AICc, BIC), "
       "the rows read, used and dropped by reason, the largest leverage and Cook's distance "
       "with their line numbers, PRESS, and the cautions that apply. With --json: the model "
-      "object of the contract, plus data, diagnostics and cautions.\n\n"
-      "Example:\n  stepledger fit examples/data/laptops.csv --plan examples/plans/laptops_fit.json");
+      "object of the contract, plus model_statement, data, diagnostics and cautions.\n\n"
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
+      ProgramWord() + " fit build/demo/laptops.csv --plan build/demo/plan.json");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunFit(*args, context); };
   });

@@ -16,10 +16,12 @@
 
 #include "commands.h"
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/fitted_model.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/prediction.h"
+#include "stepledger/cli/run_cli.h"
 
 namespace stepledger::cli {
 namespace {
@@ -30,6 +32,7 @@ struct PredictArgs {
   std::string out = "-";
   double level = 0.95;
   std::string id_column;
+  bool allow_unverified = false;  ///< price with an audit whose digests do not hold (warned)
 };
 
 constexpr const char* kBackTransformMethod =
@@ -73,20 +76,19 @@ std::string FlagsText(const PredictedRow& row) {
   return text;
 }
 
+// With a logged response the price on the response's own scale comes first (what a reader
+// wants), then the numbers on the log scale the model was fitted on.
 std::string RenderCsv(const std::vector<Priced>& rows, bool with_id, bool logged) {
   std::ostringstream out;
   out << "row,line";
   if (with_id) out << ",id";
-  out << ",prediction,se_mean,ci_low,ci_high,pi_low,pi_high";
   if (logged) out << ",exp_prediction,exp_ci_low,exp_ci_high,exp_pi_low,exp_pi_high,mean_smearing";
+  out << ",prediction,se_mean,ci_low,ci_high,pi_low,pi_high";
   out << ",leverage,flags,detail\n";
   for (const Priced& priced : rows) {
     const PredictedRow& row = priced.row;
     out << row.row_index + 1 << "," << row.line;
     if (with_id) out << "," << CsvText(priced.id);
-    out << "," << Number(row.prediction) << "," << Number(row.se_mean) << ","
-        << (row.ci ? Number(row.ci->low) : "") << "," << (row.ci ? Number(row.ci->high) : "") << ","
-        << (row.pi ? Number(row.pi->low) : "") << "," << (row.pi ? Number(row.pi->high) : "");
     if (logged) {
       const auto& back = row.back;
       out << "," << (back ? Number(back->median) : "") << ","
@@ -96,6 +98,9 @@ std::string RenderCsv(const std::vector<Priced>& rows, bool with_id, bool logged
           << (back && back->pi ? Number(back->pi->high) : "") << ","
           << (back ? Number(back->mean) : "");
     }
+    out << "," << Number(row.prediction) << "," << Number(row.se_mean) << ","
+        << (row.ci ? Number(row.ci->low) : "") << "," << (row.ci ? Number(row.ci->high) : "") << ","
+        << (row.pi ? Number(row.pi->low) : "") << "," << (row.pi ? Number(row.pi->high) : "");
     out << "," << Number(row.leverage) << "," << FlagsText(row) << "," << CsvText(row.Detail()) << "\n";
   }
   return out.str();
@@ -160,6 +165,19 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
     throw InputError("--level: expected a number strictly between 0 and 1, found " + Number(args.level));
   }
   const nlohmann::json document = ReadAuditFile(args.audit);
+  // Prices from an edited audit would look as trustworthy as any: refuse unless asked.
+  std::string unverified_warning;
+  if (const VerifyReport integrity = CheckAuditIntegrity(document); !integrity.Holds()) {
+    const std::string problem = integrity.problems.empty() ? "digests do not hold" : integrity.problems.front();
+    if (!args.allow_unverified) {
+      context.err << "stepledger: " << args.audit << " does not verify (" << OneLineText(problem)
+                  << "): its coefficients may have been edited; run '" << ProgramWord() << " verify " << args.audit
+                  << "' for the details, or add --allow-unverified to price with it anyway\n";
+      return static_cast<int>(ExitStatus::kDifferenceFound);
+    }
+    unverified_warning = "warning: " + args.audit + " does not verify (" + OneLineText(problem) +
+                         "); these prices come from an audit whose digests do not hold (--allow-unverified)";
+  }
   const FittedModel fitted = FittedModelFromAudit(document, args.audit);
   PredictionOptions options;
   options.level = args.level;
@@ -198,7 +216,9 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
   std::string text;
   if (context.common.json) {
     nlohmann::json result;
+    result["warning"] = unverified_warning.empty() ? nlohmann::json(nullptr) : nlohmann::json(unverified_warning);
     result["audit"] = args.audit;
+    result["model_statement"] = ModelStatement(fitted.design, fitted.fit);
     result["rows_file"] = args.rows;
     result["level"] = args.level;
     result["response"] = predictor.design().response;
@@ -220,10 +240,13 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
     text = result.dump(2) + "\n";
   } else {
     text = RenderCsv(rows, with_id, logged);
+    if (!unverified_warning.empty()) text = "# " + unverified_warning + "\n" + text;
   }
+  if (!unverified_warning.empty()) context.err << "stepledger: " << unverified_warning << "\n";
   WriteOutput(context, args.out, text);
 
   if (!context.common.quiet) {
+    context.err << "predict: model " << ModelStatement(fitted.design, fitted.fit) << "\n";
     std::string summary = "predict: " + std::to_string(rows.size()) + " rows, " +
                           std::to_string(priced_count) + " priced";
     bool first = true;
@@ -236,8 +259,10 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
     context.err << summary << "\n";
     if (logged && !context.common.json) {
       context.err << "predict: response '" << predictor.design().response
-                  << "' was logged: prediction, se_mean and the intervals are on the log scale; the "
-                     "exp_ columns are exp of them (median), mean_smearing = exp_prediction x "
+                  << "' was logged: the exp_ columns (first) are the price on its own scale (exp "
+                     "of the log-scale prediction: the median, and its intervals); prediction, "
+                     "se_mean and the intervals after them are on the log scale; mean_smearing = "
+                     "exp_prediction x "
                   << Number(fitted.support.smearing_factor) << " (smearing factor)\n";
     }
   }
@@ -266,22 +291,28 @@ void AddPredictCommand(CLI::App& app, CommandContext& context) {
       ->type_name("P");
   command->add_option("--id", args->id_column, "Column of ROWS whose text is copied to each output row as its id")
       ->type_name("COL");
-  AddCommonOptions(*command, context.common);
+  command->add_flag("--allow-unverified", args->allow_unverified,
+                    "Price even when the audit's digests do not hold (else exit 1); the warning "
+                    "is then the first line of the output");
+  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kThreadsOption);
   command->footer(
-      "Output (CSV; --json gives the same as {level, response, response_transform, "
-      "back_transform_method, rows: [...], summary}):\n"
+      "The audit must verify (its digests and seal hold, as `stepledger verify` checks): an "
+      "edited audit is refused with exit 1 unless --allow-unverified, and then the output's first "
+      "line (a '# warning: ...' line in CSV, the key warning in JSON) and stderr say so.\n"
+      "Output (CSV; --json gives the same as {warning, model_statement, level, response, "
+      "response_transform, back_transform_method, rows: [...], summary}):\n"
       "  row, line        data row (1-based) and line of the input row\n"
       "  id               the --id column's text (only with --id)\n"
+      "  exp_*            with a logged response only, first: exp of prediction and bounds (the\n"
+      "                   price on the response's own scale: the median, and its intervals)\n"
+      "  mean_smearing    with a logged response only: exp(prediction) x the smearing factor\n"
+      "                   (mean over the fitted rows of exp(sqrt(w) e)), an estimate of the mean\n"
       "  prediction       x0'b on the scale the model was fitted on\n"
       "  se_mean          standard error of the mean at x0: sigma sqrt(h0)\n"
       "  ci_low, ci_high  confidence interval for the mean (Student t on the residual df)\n"
       "  pi_low, pi_high  prediction interval for one new observation: sigma sqrt(1/w0 + h0),\n"
       "                   w0 the row's value of the plan's weights column when ROWS has it\n"
       "                   (empty or NA: 1), else 1\n"
-      "  exp_*            with a logged response only: exp of prediction and bounds (the median\n"
-      "                   and its intervals on the response's own scale)\n"
-      "  mean_smearing    with a logged response only: exp(prediction) x the smearing factor\n"
-      "                   (mean over the fitted rows of exp(sqrt(w) e)), an estimate of the mean\n"
       "  leverage         h0 = x0'(X'WX)^-1 x0, the leverage at unit weight\n"
       "  flags, detail    ';'-separated flags, and what they mean for this row\n"
       "Flags:\n"
@@ -297,9 +328,9 @@ void AddPredictCommand(CLI::App& app, CommandContext& context) {
       "A row with a problem is still written (without numbers); a summary line on stderr counts "
       "the rows, the priced ones and each flag. Predictions outside the data are extrapolations; "
       "intervals of a selected model ignore the selection and are optimistic.\n\n"
-      "Example:\n"
-      "  stepledger predict out/audit.json examples/data/laptops_to_price.csv --id listing_id "
-      "--out priced.csv");
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n"
+      "  " + ProgramWord() + " predict build/demo/audit.json build/demo/laptops_to_price.csv --id listing_id "
+      "--out build/demo/priced.csv --force");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunPredict(*args, context); };
   });

@@ -4,6 +4,7 @@
 #include <cmath>
 #include <cstdio>
 #include <memory>
+#include <optional>
 #include <sstream>
 #include <string>
 #include <vector>
@@ -12,6 +13,7 @@
 
 #include "commands.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 #include "stepledger/engine/profile.h"
 
 namespace stepledger::cli {
@@ -23,8 +25,6 @@ struct ProfileArgs {
   std::string plan_out;
   /// Levels shown per categorical column.
   std::size_t shown_levels = 5;
-  /// A categorical column with more levels than this is left out of the starter plan.
-  std::size_t max_plan_levels = 50;
 };
 
 std::string FormatNumber(double value) {
@@ -44,75 +44,88 @@ const LevelCount* MostFrequentLevel(const ColumnProfile& column) {
 }
 
 struct StarterPlan {
-  nlohmann::ordered_json plan;
+  nlohmann::ordered_json plan;  ///< null without --response
   std::vector<std::string> notes;
 };
 
-// Why a column cannot be a term of a starter plan, or empty when it can.
-std::string ReasonToLeaveOut(const ColumnProfile& column, const ProfileArgs& args) {
-  if (column.kind == ColumnKind::kEmpty) return "every cell is missing";
-  if (column.kind != ColumnKind::kCategorical) return {};
-  if (column.too_many_levels) return "too many distinct levels to be a categorical term";
-  if (column.levels.size() < 2) return "a single level carries no information";
-  if (column.levels.size() == column.present) {
-    return "looks like an identifier (every value distinct)";
+// A column of numbers spoilt by a few text cells ("n/a", "unknown"): the text most likely
+// means missing. The hint names the first such cell and the plan key that fixes it.
+std::optional<std::string> MissingTokenHint(const DataProfile& profile, const ColumnProfile& column) {
+  if (column.kind != ColumnKind::kCategorical || !column.first_text || column.numeric_cells == 0) {
+    return std::nullopt;
   }
-  if (column.levels.size() > args.max_plan_levels) {
-    return std::to_string(column.levels.size()) + " levels (more than " +
-           std::to_string(args.max_plan_levels) + ") would make too many columns";
-  }
-  return {};
+  const std::uint64_t text_cells = column.present - column.numeric_cells;
+  // Mostly numbers: at most one cell in ten is text.
+  if (text_cells == 0 || text_cells * 10 > column.present) return std::nullopt;
+  const CellLocation& cell = *column.first_text;
+  return "column '" + column.name + "' holds numbers but for " +
+         FormatCount(static_cast<std::int64_t>(text_cells)) + (text_cells == 1 ? " text cell" : " text cells") +
+         ", the first '" + QuoteForMessage(cell.text) + "' at " +
+         FormatLocation(profile.path.string(), cell.line, cell.column) +
+         "; if that text means a missing value, add it to the plan's \"missing\" list (\"missing\": [\"\", "
+         "\"NA\", " + nlohmann::json(cell.text).dump() + "]) so that the column is read as numeric";
 }
 
-StarterPlan MakeStarterPlan(const DataProfile& profile, const ProfileArgs& args) {
+// A header read as one column whose name holds another likely separator: the file is most
+// likely not separated by the delimiter in use.
+std::optional<std::string> DelimiterHint(const DataProfile& profile, const CommonOptions& common) {
+  if (profile.columns.size() != 1) return std::nullopt;
+  const std::string& name = profile.columns.front().name;
+  const char in_use = MakeCsvOptions(common).delimiter;
+  for (const char separator : {';', '\t', '|'}) {
+    if (separator == in_use || name.find(separator) == std::string::npos) continue;
+    const std::string option =
+        separator == '\t' ? std::string("--delimiter tab") : std::string("--delimiter '") + separator + "'";
+    return "the header was read as a single column '" + QuoteForMessage(name) +
+           "'; if the fields are separated by " +
+           (separator == '\t' ? std::string("tabs") : "'" + std::string(1, separator) + "'") + ", add " + option;
+  }
+  return std::nullopt;
+}
+
+StarterPlan MakeStarterPlan(const DataProfile& profile, const ProfileArgs& args, const CommonOptions& common) {
   StarterPlan starter;
-  std::string response = args.response;
+  const std::optional<std::string> delimiter_hint = DelimiterHint(profile, common);
+  for (const ColumnProfile& column : profile.columns) {
+    if (auto hint = MissingTokenHint(profile, column)) starter.notes.push_back(*hint);
+  }
+  const std::string& response = args.response;
   if (response.empty()) {
-    for (const ColumnProfile& column : profile.columns) {
-      if (column.kind == ColumnKind::kNumeric) {
-        response = column.name;
-        break;
-      }
+    // No guessing: the first numeric column is as often an identifier or a count as the price.
+    if (delimiter_hint) starter.notes.push_back(*delimiter_hint);
+    starter.notes.push_back("no starter plan: name the response (the column to explain) with --response COL");
+    return starter;
+  }
+  const ColumnProfile* column = profile.Find(response);
+  if (column == nullptr) {
+    throw InputError("--response: no column '" + QuoteForMessage(response) + "' in " + profile.path.string() +
+                     (delimiter_hint ? "; " + *delimiter_hint : std::string()));
+  }
+  if (column->kind != ColumnKind::kNumeric) {
+    std::string message = "--response: column '" + response + "' is " + ToString(column->kind) + ", not numeric";
+    if (auto hint = MissingTokenHint(profile, *column)) {
+      message += "; " + *hint;
+    } else if (column->first_text) {
+      message += " (text '" + QuoteForMessage(column->first_text->text) + "' at " +
+                 FormatLocation(profile.path.string(), column->first_text->line, column->first_text->column) + ")";
     }
-    if (response.empty()) {
-      throw InputError(profile.path.string() +
-                       ": no numeric column to serve as the response; name one with --response");
-    }
-    starter.notes.push_back("response '" + response +
-                            "' is the first numeric column; choose another with --response");
-  } else {
-    const ColumnProfile* column = profile.Find(response);
-    if (column == nullptr) {
-      throw InputError("--response: no column '" + QuoteForMessage(response) + "' in " +
-                       profile.path.string());
-    }
-    if (column->kind != ColumnKind::kNumeric) {
-      std::string message = "--response: column '" + response + "' is " + ToString(column->kind) +
-                            ", not numeric";
-      if (column->first_text) {
-        message += " (text '" + QuoteForMessage(column->first_text->text) + "' at " +
-                   FormatLocation(profile.path.string(), column->first_text->line,
-                                  column->first_text->column) +
-                   ")";
-      }
-      throw InputError(message);
-    }
+    throw InputError(message);
   }
 
   nlohmann::ordered_json terms = nlohmann::ordered_json::array();
-  for (const ColumnProfile& column : profile.columns) {
-    if (column.name == response) continue;
-    const std::string reason = ReasonToLeaveOut(column, args);
-    if (!reason.empty()) {
-      starter.notes.push_back("column '" + column.name + "' left out: " + reason);
+  for (const ColumnProfile& candidate : profile.columns) {
+    if (candidate.name == response) continue;
+    // The rule of "terms": "all" (engine/profile.h), at the plan's default level limit.
+    if (const auto reason = ReasonNotACandidateTerm(candidate, kDefaultMaxLevels)) {
+      starter.notes.push_back("column '" + candidate.name + "' left out: " + *reason);
       continue;
     }
-    if (column.kind == ColumnKind::kNumeric) {
-      terms.push_back({{"name", column.name}, {"column", column.name}});
+    if (candidate.kind == ColumnKind::kNumeric) {
+      terms.push_back({{"name", candidate.name}, {"column", candidate.name}});
     } else {
-      const LevelCount* baseline = MostFrequentLevel(column);
-      terms.push_back({{"name", column.name},
-                       {"categorical", column.name},
+      const LevelCount* baseline = MostFrequentLevel(candidate);
+      terms.push_back({{"name", candidate.name},
+                       {"categorical", candidate.name},
                        {"baseline", baseline != nullptr ? baseline->level : std::string()}});
     }
   }
@@ -210,8 +223,9 @@ int RunProfile(const ProfileArgs& args, CommandContext& context) {
   const CsvOptions csv = MakeCsvOptions(context.common);
   context.log->info("profiling {}", args.data);
   const DataProfile profile = ProfileCsv(args.data, csv);
-  const StarterPlan starter = MakeStarterPlan(profile, args);
-  const std::string plan_text = PlanText(starter.plan);
+  const StarterPlan starter = MakeStarterPlan(profile, args, context.common);
+  const bool has_plan = !starter.plan.is_null();
+  const std::string plan_text = has_plan ? PlanText(starter.plan) : std::string();
 
   if (!args.plan_out.empty()) WriteOutput(context, args.plan_out, plan_text);
 
@@ -233,7 +247,9 @@ int RunProfile(const ProfileArgs& args, CommandContext& context) {
     context.out << "\nNotes:\n";
     for (const std::string& note : starter.notes) context.out << "  - " << note << "\n";
   }
-  if (args.plan_out.empty()) {
+  if (!has_plan) {
+    // The note above says why; nothing more to show.
+  } else if (args.plan_out.empty()) {
     context.out << "\nStarter plan (save it with --plan-out FILE, then edit):\n" << plan_text;
   } else if (!context.common.quiet) {
     context.out << "\nStarter plan written to " << args.plan_out << "\n";
@@ -250,22 +266,31 @@ void AddProfileCommand(CLI::App& app, CommandContext& context) {
   command->add_option("DATA", args->data, "CSV data file (header row first)")
       ->required()
       ->check(CLI::ExistingFile);
-  command->add_option("--response", args->response,
-                      "Response column of the starter plan (default: the first numeric column)")
-      ->type_name("COL");
-  command->add_option("--plan-out", args->plan_out,
-                      "Write the starter plan to FILE (never overwrites without --force)")
-      ->type_name("FILE");
-  AddCommonOptions(*command, context.common);
+  CLI::Option* response = command->add_option("--response", args->response,
+                                               "Response column of the starter plan (without it: no plan, "
+                                               "only the column summary)")
+                              ->type_name("COL");
+  CLI::Option* plan_out = command->add_option("--plan-out", args->plan_out,
+                                               "Write the starter plan to FILE (never overwrites without "
+                                               "--force)")
+                              ->type_name("FILE")
+                              ->needs(response);
+  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kThreadsOption);
+  command->get_option("--force")->needs(plan_out);
   command->footer(
       "Reads the data file once and shows each column's kind, present and missing cells, "
       "range, mean and standard deviation (numeric columns) or most frequent levels "
-      "(categorical columns). Then proposes a starter plan: numeric columns as terms, "
-      "categorical columns as categorical terms against their most frequent level (ties: the "
-      "byte-wise first), identifier-like columns (every value distinct, or too many levels) "
-      "left out with a note. The response is --response, else the first numeric column.\n\n"
-      "Example:\n  stepledger profile examples/data/laptops.csv --response resale_price "
-      "--plan-out my_plan.json");
+      "(categorical columns). With --response COL it then proposes a starter plan: numeric "
+      "columns as terms, categorical columns as categorical terms against their most frequent "
+      "level (ties: the byte-wise first); columns that cannot be terms are left out with a note "
+      "(the rule of \"terms\": \"all\": empty, a single level, every value distinct, more than "
+      "100 levels). The response is never guessed: without --response there is no plan. Notes "
+      "also point at a text cell such as 'n/a' in a column of numbers (add it to the plan's "
+      "\"missing\" list) and at a header read as one column that holds ';' or a tab (use "
+      "--delimiter).\n\n"
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
+      ProgramWord() + " profile build/demo/laptops.csv --response resale_price "
+      "--plan-out build/demo/my_plan.json --force");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunProfile(*args, context); };
   });

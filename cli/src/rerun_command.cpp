@@ -1,14 +1,21 @@
-// `stepledger rerun AUDIT DATA --out DIR`: the recorded plan on new data. The new audit records
-// its parent's seal and a `comparison` section; the terminal shows what changed.
+// `stepledger rerun AUDIT DATA --out DIR`: the recorded plan on new data. Writes DIR/audit.json
+// (linked to its parent's seal, with a `comparison` section) and DIR/report.html; the terminal
+// shows the verdict and what changed.
 
+#include <filesystem>
 #include <memory>
+#include <optional>
 #include <string>
 
 #include "commands.h"
+#include "stepledger/cli/progress.h"
+#include "stepledger/io/atomic_file.h"
 #include "stepledger/audit/audit_compare.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/replay.h"
+#include "stepledger/report/report.h"
+#include "stepledger/cli/run_cli.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger::cli {
@@ -28,7 +35,17 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   const VerifyReport integrity = CheckAuditIntegrity(parent);
   if (!integrity.Holds()) {
     throw InputError(args.audit + ": the parent audit does not verify (" + integrity.problems.front() +
-                     "); run 'stepledger verify' on it");
+                     "); run '" + ProgramWord() + " verify " + args.audit + "' for the details");
+  }
+  const std::filesystem::path folder = args.out;
+  const std::filesystem::path audit_path = folder / kAuditFileName;
+  const std::filesystem::path report_path = folder / kReportFileName;
+  // Refuse before the run; WriteAuditFolder checks again before anything is written.
+  for (const std::filesystem::path& path : {audit_path, report_path}) {
+    std::error_code error;
+    if (!context.common.force && std::filesystem::exists(path, error)) {
+      throw InputError(path.string() + ": file exists; use --force to overwrite");
+    }
   }
   ReplayOverrides overrides;
   if (args.delimiter_option != nullptr && args.delimiter_option->count() > 0) {
@@ -38,7 +55,9 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
     overrides.threads = context.common.threads;
   }
   if (context.log) context.log->info("running the plan of {} on {}", args.audit, args.data);
-  const RunResult run = ReplayRecordedPlan(parent, args.data, args.audit, overrides);
+  const std::unique_ptr<ProgressPrinter> progress =
+      MakeProgressPrinter(context.err, context.common.quiet, "rerun");
+  const RunResult run = ReplayRecordedPlan(parent, args.data, args.audit, overrides, progress.get());
 
   const nlohmann::json unsealed = BuildAuditDocument(run);
   nlohmann::json comparison = CompareAudits(parent, unsealed);
@@ -51,20 +70,33 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
       {"data_sha256", parent.at("data").value("sha256", nlohmann::json(nullptr))},
       {"data_file", parent.at("data").value("file", nlohmann::json(nullptr))}};
   document_options.comparison = comparison;
-  AuditOutputOptions output;
-  output.folder = args.out;
-  output.overwrite = context.common.force;
-  output.sign_key = args.sign_key;
-  WriteAuditDocument(run, document_options, output);
-  const std::string written = (std::filesystem::path(args.out) / kAuditFileName).string();
+  // The new audit and its reviewer's report, written as one unit (as select writes them).
+  const nlohmann::json written = BuildSealedAudit(run, document_options, args.sign_key);
+  std::optional<ReportDiagnostics> diagnostics;
+  if (run.diagnostics) diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma};
+  std::string report = RenderHtmlReport(written, diagnostics ? &*diagnostics : nullptr);
+  WriteAuditFolder(folder, written, {{std::string(kReportFileName), std::move(report)}},
+                   context.common.force);
 
+  const ComparisonVerdict verdict = VerdictOf(comparison);
   if (context.common.json) {
-    context.out << nlohmann::json{{"audit", written}, {"comparison", comparison}}.dump(2) << "\n";
+    context.out << nlohmann::json{{"audit", audit_path.string()},
+                                  {"report", report_path.string()},
+                                  {"verdict", ToString(verdict)},
+                                  {"model_statement", ModelStatement(run.design, run.fit)},
+                                  {"comparison", comparison}}
+                       .dump(2)
+                << "\n";
   } else {
-    context.out << run.search.BriefReport() << "\n" << ComparisonReport(comparison);
-    if (!context.common.quiet) context.out << "Wrote " << written << "\n";
+    context.out << ComparisonReport(comparison) << "\n"
+                << "New model: " << ModelStatement(run.design, run.fit) << "\n"
+                << run.search.BriefReport();
+    if (!context.common.quiet) {
+      context.out << "\nWrote " << audit_path.string() << " (the new audit, linked to its parent) and "
+                  << report_path.string() << " (the reviewer's report)\n";
+    }
   }
-  return 0;
+  return static_cast<int>(ExitStatus::kDone);
 }
 
 }  // namespace
@@ -74,20 +106,32 @@ void AddRerunCommand(CLI::App& app, CommandContext& context) {
   CLI::App* command = app.add_subcommand(
       "rerun",
       "Runs the plan recorded in an audit on new data and writes a new audit linked to its "
-      "parent's seal. Shows what changed: columns added or lost, ranges and means that moved, "
-      "the first step where the routes part, terms that entered or left the final model, "
-      "coefficient changes in units of their standard errors, and the old model's error on the "
-      "new rows beside the new model's.");
+      "parent's seal, and its report. Gives the verdict on the final models (same model, same "
+      "terms with refitted coefficients, or different terms) and shows what changed: plan keys, "
+      "columns added or lost, numeric columns that really moved, the first step where the "
+      "routes part, terms that entered or left, coefficient changes in units of their old "
+      "standard errors, and the old model's error on the new rows (priced as predict prices "
+      "them) beside the new model's.");
   command->add_option("AUDIT", args->audit, "The parent audit file")->required()->check(CLI::ExistingFile);
   command->add_option("DATA", args->data, "New data file (CSV)")->required()->check(CLI::ExistingFile);
-  command->add_option("--out", args->out, "Output folder for the new audit.json")->required()->type_name("DIR");
+  command->add_option("--out", args->out, "Output folder for the new audit.json and report.html")
+      ->required()
+      ->type_name("DIR");
   command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the new audit")
       ->check(CLI::ExistingFile)
       ->type_name("FILE");
   AddCommonOptions(*command, context.common);
   args->delimiter_option = command->get_option("--delimiter");
   args->threads_option = command->get_option("--threads");
-  command->footer("Example:\n  stepledger rerun q3/audit.json laptops_q4.csv --out q4");
+  command->footer(
+      "Verdicts (text, and the JSON field `verdict`): same model; same terms, refitted "
+      "coefficients; different terms (see `stepledger compare --help` for the rules). Exit 0 "
+      "whenever the new audit and report were written, whatever the verdict (a rerun on new data "
+      "is expected to refit); use `stepledger compare` for an exit status that tells a "
+      "difference. The data are read with the parent's recorded delimiter unless --delimiter is "
+      "given.\n\n"
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
+      ProgramWord() + " rerun build/demo/audit.json build/demo/laptops_month2.csv --out build/demo/month2 --force");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunRerun(*args, context); };
   });

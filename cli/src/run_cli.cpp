@@ -4,6 +4,10 @@
 #include "stepledger/cli/run_cli.h"
 
 #include <algorithm>
+#include <cctype>
+#include <cstdlib>
+#include <filesystem>
+#include <string_view>
 #include <exception>
 #include <sstream>
 
@@ -22,19 +26,100 @@
 namespace stepledger {
 namespace cli {
 
-void AddCommonOptions(CLI::App& command, CommonOptions& common) {
-  command.add_flag("--json", common.json, "Machine-readable JSON on stdout instead of tables");
-  command.add_flag("--force", common.force, "Allow overwriting an existing output file");
-  command.add_option("--threads", common.threads, "Threads folding the factor during a data pass")
-      ->check(CLI::Range(1, 256))
-      ->type_name("N");
-  command.add_flag("--quiet", common.quiet, "Print only results and errors");
-  command.add_option("--log-level", common.log_level, "Log detail on stderr")
-      ->check(CLI::IsMember({"trace", "debug", "info", "warn", "error", "off"}))
-      ->type_name("LEVEL");
-  command.add_option("--delimiter", common.delimiter,
-                     "Field separator of the data file: one character, or 'tab'")
-      ->type_name("CHAR");
+void AddCommonOptions(CLI::App& command, CommonOptions& common, unsigned options) {
+  if (options & kJsonOption) {
+    command.add_flag("--json", common.json, "Machine-readable JSON on stdout instead of tables");
+  }
+  if (options & kForceOption) {
+    command.add_flag("--force", common.force, "Allow overwriting an existing output file");
+  }
+  if (options & kThreadsOption) {
+    command.add_option("--threads", common.threads, "Threads folding the factor during a data pass")
+        ->check(CLI::Range(1, 256))
+        ->type_name("N");
+  }
+  if (options & kQuietOption) command.add_flag("--quiet", common.quiet, "Print only results and errors");
+  if (options & kLogLevelOption) {
+    command.add_option("--log-level", common.log_level, "Log detail on stderr")
+        ->check(CLI::IsMember({"trace", "debug", "info", "warn", "error", "off"}))
+        ->type_name("LEVEL");
+  }
+  if (options & kDelimiterOption) {
+    command.add_option("--delimiter", common.delimiter,
+                       "Field separator of the data file: one character, or 'tab'")
+        ->type_name("CHAR");
+  }
+}
+
+std::string OneLineText(std::string text) {
+  std::replace(text.begin(), text.end(), '\n', ' ');
+  std::replace(text.begin(), text.end(), '\r', ' ');
+  while (!text.empty() && text.back() == ' ') text.pop_back();
+  return text;
+}
+
+std::string ProgramWord() {
+  namespace fs = std::filesystem;
+  std::error_code error;
+  const fs::path self = fs::read_symlink("/proc/self/exe", error);
+  if (error || self.filename() != "stepledger") return "stepledger";
+  if (const char* path = std::getenv("PATH")) {
+    std::string_view folders = path;
+    while (!folders.empty()) {
+      const std::size_t colon = folders.find(':');
+      const fs::path folder(std::string(folders.substr(0, colon)));
+      folders = colon == std::string_view::npos ? std::string_view() : folders.substr(colon + 1);
+      if (folder.empty()) continue;
+      const fs::path candidate = folder / "stepledger";
+      if (fs::exists(candidate, error) && fs::equivalent(candidate, self, error)) return "stepledger";
+    }
+  }
+  const fs::path here = fs::current_path(error);
+  if (!error) {
+    const fs::path relative = self.lexically_relative(here);
+    if (!relative.empty() && *relative.begin() != "..") return relative.string();
+  }
+  return self.string();
+}
+
+namespace {
+std::string Lowercase(std::string text) {
+  for (char& c : text) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  return text;
+}
+}  // namespace
+
+Method ParseMethodOption(const std::string& text) {
+  const auto method = MethodFromString(Lowercase(text));
+  if (!method) {
+    throw InputError("--method: unknown method '" + QuoteForMessage(text) +
+                     "'; use forward, backward, stepwise, all-subsets or none (any case)");
+  }
+  return *method;
+}
+
+Criterion ParseCriterionOption(const std::string& text) {
+  const auto criterion = CriterionFromString(Lowercase(text));
+  if (!criterion) {
+    throw InputError("--criterion: unknown criterion '" + QuoteForMessage(text) +
+                     "'; use adj-r2, aic, aicc, bic, cp, partial-f or cv (any case)");
+  }
+  return *criterion;
+}
+
+std::string ModelStatement(const Design& design, const FitResult& fit) {
+  std::string text = design.response_transform == ResponseTransform::kLog
+                         ? "log(" + design.response + ")"
+                         : design.response;
+  text += " explained by ";
+  if (fit.terms.empty()) {
+    text += fit.intercept ? "the intercept alone" : "nothing (no intercept, no terms)";
+  } else {
+    for (std::size_t i = 0; i < fit.terms.size(); ++i) text += (i > 0 ? ", " : "") + fit.terms[i];
+    if (!fit.intercept) text += " (no intercept)";
+  }
+  if (design.weights) text += ", weighted by " + *design.weights;
+  return text;
 }
 
 CsvOptions MakeCsvOptions(const CommonOptions& common) {
@@ -72,13 +157,6 @@ std::shared_ptr<spdlog::logger> MakeLogger(std::ostream& err, const CommonOption
   return logger;
 }
 
-// One line for stderr: messages never spread over several lines (CONTRACT.md).
-std::string OneLine(std::string text) {
-  std::replace(text.begin(), text.end(), '\n', ' ');
-  std::replace(text.begin(), text.end(), '\r', ' ');
-  while (!text.empty() && text.back() == ' ') text.pop_back();
-  return text;
-}
 
 }  // namespace
 }  // namespace cli
@@ -130,7 +208,7 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
       out << help.str();
       return static_cast<int>(ExitStatus::kDone);
     }
-    err << "stepledger: " << cli::OneLine(error.what()) << " (see 'stepledger --help')\n";
+    err << "stepledger: " << cli::OneLineText(error.what()) << " (see 'stepledger --help')\n";
     return static_cast<int>(ExitStatus::kBadInput);
   }
 
@@ -142,13 +220,13 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
     }
     return context.action();
   } catch (const InputError& error) {  // PlanError is an InputError
-    err << "stepledger: " << cli::OneLine(error.what()) << "\n";
+    err << "stepledger: " << cli::OneLineText(error.what()) << "\n";
     return static_cast<int>(ExitStatus::kBadInput);
   } catch (const NumericalError& error) {
-    err << "stepledger: numerical failure: " << cli::OneLine(error.what()) << "\n";
+    err << "stepledger: numerical failure: " << cli::OneLineText(error.what()) << "\n";
     return static_cast<int>(ExitStatus::kFailure);
   } catch (const std::exception& error) {
-    err << "stepledger: internal error: " << cli::OneLine(error.what()) << "\n";
+    err << "stepledger: internal error: " << cli::OneLineText(error.what()) << "\n";
     return static_cast<int>(ExitStatus::kFailure);
   }
 }

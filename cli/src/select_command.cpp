@@ -2,8 +2,6 @@
 // `stepledger select DATA --response COL [--method M] [--criterion C]`: runs the selection,
 // prints the route, the final model as `fit` prints it, and the cautions.
 
-#include <unistd.h>
-
 #include <algorithm>
 #include <cstdio>
 #include <filesystem>
@@ -15,6 +13,7 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
+#include "stepledger/cli/progress.h"
 #include "stepledger/io/atomic_file.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
@@ -26,6 +25,7 @@
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/number_format.h"
 #include "stepledger/selection/search.h"
 
 namespace stepledger::cli {
@@ -42,24 +42,11 @@ struct SelectArgs {
   int refinement_passes = 10;
 };
 
-/// One line on stderr per step, only when stderr is a terminal.
-class ProgressLine : public SearchObserver {
- public:
-  explicit ProgressLine(std::ostream& err) : err_(err) {}
-  void OnDecision(const DecisionEvent& event) override {
-    err_ << "\rselect: step " << event.step_index << ", " << ToString(event.action) << " "
-         << event.term << "          " << std::flush;
-  }
-  void OnStop(const StopEvent& /*event*/) override { err_ << "\r" << std::string(60, ' ') << "\r" << std::flush; }
-
- private:
-  std::ostream& err_;
-};
-
 // Writes DIR/audit.json and DIR/report.html as one unit. The audit document is built and sealed
 // once; the report is rendered from that very document (with the diagnostics of the final model
-// that the run's diagnostics pass computed) before anything is written.
-void WriteAuditAndReport(const SelectArgs& args, const RunResult& run, CommandContext& context) {
+// that the run's diagnostics pass computed) before anything is written. Returns the paths written.
+std::vector<std::string> WriteAuditAndReport(const SelectArgs& args, const RunResult& run,
+                                             CommandContext& context) {
   AuditDocumentOptions document_options;
   const nlohmann::json document = BuildSealedAudit(run, document_options, args.sign_key);
   std::optional<ReportDiagnostics> diagnostics;
@@ -68,8 +55,10 @@ void WriteAuditAndReport(const SelectArgs& args, const RunResult& run, CommandCo
   WriteAuditFolder(args.out_dir, document, {{std::string(kReportFileName), std::move(report)}},
                    context.common.force);
   const std::filesystem::path folder = args.out_dir;
-  context.log->info("wrote {} (seal {}) and {}", (folder / kAuditFileName).string(),
-                    document.value("seal", ""), (folder / kReportFileName).string());
+  const std::string audit_path = (folder / kAuditFileName).string();
+  const std::string report_path = (folder / kReportFileName).string();
+  context.log->info("wrote {} (seal {}) and {}", audit_path, document.value("seal", ""), report_path);
+  return {audit_path, report_path};
 }
 
 int RunSelect(const SelectArgs& args, CommandContext& context) {
@@ -87,22 +76,8 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   // normalised plan, so that a replay runs what was run.
   const bool shaped_by_command_line =
       args.plan.empty() || !args.method.empty() || !args.criterion.empty();
-  if (!args.method.empty()) {
-    const auto method = MethodFromString(args.method);
-    if (!method) {
-      throw InputError("--method: unknown method '" + QuoteForMessage(args.method) +
-                       "'; use forward, backward, stepwise, all-subsets or none");
-    }
-    loaded.plan.search.method = *method;
-  }
-  if (!args.criterion.empty()) {
-    const auto criterion = CriterionFromString(args.criterion);
-    if (!criterion) {
-      throw InputError("--criterion: unknown criterion '" + QuoteForMessage(args.criterion) +
-                       "'; use adj-r2, aic, aicc, bic, cp, partial-f or cv");
-    }
-    loaded.plan.search.criterion = *criterion;
-  }
+  if (!args.method.empty()) loaded.plan.search.method = ParseMethodOption(args.method);
+  if (!args.criterion.empty()) loaded.plan.search.criterion = ParseCriterionOption(args.criterion);
   if (shaped_by_command_line) {
     loaded.json = PlanToJson(loaded.plan);
     loaded.verbatim = loaded.json.dump(2) + "\n";
@@ -114,12 +89,10 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   run_options.threads = context.common.threads;
   run_options.fit.max_refinement_passes = args.refinement_passes;
   run_options.diagnostics = !args.out_dir.empty();  // the audit's extrapolation caution needs it
-  ProgressLine progress(context.err);
-  const bool show_progress = !context.common.quiet && isatty(STDERR_FILENO) != 0;
+  const std::unique_ptr<ProgressPrinter> progress =
+      MakeProgressPrinter(context.err, context.common.quiet, "select");
   log.info("running the plan on {}", args.data);
-  const RunResult run =
-      RunPlan(args.data, loaded, run_options, show_progress ? &progress : nullptr);
-  for (const auto& [term, reason] : run.design.skipped) log.warn("term '{}' skipped: {}", term, reason);
+  const RunResult run = RunPlan(args.data, loaded, run_options, progress.get());
   log.info("search: {} ({} steps)", ToString(run.search.outcome), run.search.steps.size());
   const SearchResult& result = run.search;
   const FitResult& fit = run.fit;
@@ -132,17 +105,40 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   document["data"] = {{"file", args.data},
                       {"rows_read", run.accounting.rows_read},
                       {"rows_used", run.accounting.rows_used}};
+  document["model_statement"] = ModelStatement(run.design, fit);
+  nlohmann::json left_out = nlohmann::json::array();
+  for (const auto& [column, reason] : run.design.skipped) {
+    left_out.push_back({{"column", column}, {"reason", reason}});
+  }
+  document["columns_left_out"] = left_out;
 
-  if (!args.out_dir.empty()) WriteAuditAndReport(args, run, context);
+  std::vector<std::string> written;
+  if (!args.out_dir.empty()) written = WriteAuditAndReport(args, run, context);
+  if (!written.empty()) document["written"] = written;
 
   if (context.common.json) {
     context.out << document.dump(2) << "\n";
     return 0;
   }
-  context.out << result.FullReport() << "\nFinal model\n" << fit.FullReport();
+  if (!run.design.skipped.empty() && !context.common.quiet) {
+    // "terms": "all" left these columns out (ReasonNotACandidateTerm); say so before the route.
+    const std::size_t count = run.design.skipped.size();
+    context.out << "Note: " << (count == 1 ? "one column" : FormatCount(static_cast<std::int64_t>(count)) + " columns")
+                << " left out of the candidate terms (\"terms\": \"all\"):\n";
+    for (const auto& [column, reason] : run.design.skipped) {
+      context.out << "  - " << column << ": " << reason << "\n";
+    }
+    context.out << "\n";
+  }
+  context.out << result.FullReport() << "\nFinal model: " << ModelStatement(run.design, fit) << "\n"
+              << fit.FullReport();
   if (!context.common.quiet) {
     context.out << "\nCautions:\n";
     for (const Caution& caution : cautions) context.out << "  - " << caution.message << "\n";
+  }
+  if (!written.empty()) {
+    context.out << "\nWrote " << written[0] << " (the audit) and " << written[1]
+                << " (the reviewer's report)\n";
   }
   return 0;
 }
@@ -163,31 +159,44 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
                       "Quick form: the response column; every other column is a candidate term")
       ->type_name("COL");
   command->add_option("--method", args->method,
-                      "forward, backward, stepwise, all-subsets or none (overrides the plan)")
+                      "forward, backward, stepwise, all-subsets or none, any case (overrides the plan)")
       ->type_name("M");
   command->add_option("--criterion", args->criterion,
-                      "adj-r2, aic, aicc, bic, cp, partial-f or cv (overrides the plan)")
+                      "adj-r2, aic, aicc, bic, cp, partial-f or cv, any case (overrides the plan)")
       ->type_name("C");
-  command->add_option("--out", args->out_dir, "Folder for audit.json and the reviewer report report.html (written atomically)")
-      ->type_name("DIR");
+  CLI::Option* out = command->add_option("--out", args->out_dir,
+                                         "Folder for audit.json and the reviewer's report report.html "
+                                         "(written atomically)")
+                         ->type_name("DIR");
   command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the audit with")
       ->check(CLI::ExistingFile)
-      ->type_name("FILE");
+      ->type_name("FILE")
+      ->needs(out);
   command->add_option("--refine", args->refinement_passes,
                       "Largest number of refinement passes of the final fit (0: factor only)")
       ->check(CLI::Range(0, 100))
       ->type_name("N");
   AddCommonOptions(*command, context.common);
+  command->get_option("--force")->needs(out)->description("Allow overwriting audit.json and report.html in --out");
+  const std::string program = ProgramWord();
   command->footer(
       "One streaming pass builds the factor of every candidate column; the search then works on "
       "the factor alone. Prints the route (step, action, term, criterion before -> after, the "
-      "rule that decided), the final model as `fit` prints it, and the cautions. With --json: "
-      "{steps, subsets (all-subsets), search, model, cautions, data}. With --out DIR: DIR/audit.json "
-      "and DIR/report.html (the report with the diagnostics of the final model; see `stepledger "
-      "report --help`); an existing file is refused without --force.\n\n"
-      "Examples:\n  stepledger select examples/data/laptops.csv --plan examples/plans/stepwise_bic.json --out laptops-review\n"
-      "  stepledger select examples/data/laptops.csv --response resale_price --method forward "
-      "--criterion bic");
+      "rule that decided), the final model in words and as `fit` prints it, and the cautions. "
+      "With --json: {steps, subsets (all-subsets), search, model, model_statement, "
+      "columns_left_out, cautions, data, written}. With --out DIR: DIR/audit.json and "
+      "DIR/report.html (the report with the diagnostics of the final model; see `stepledger "
+      "report --help`), both paths printed at the end; an existing file is refused without "
+      "--force. --method and --criterion take any case (AIC, Forward).\n\n"
+      "Quick form (--response COL): every other column is a candidate term (\"terms\": \"all\"), "
+      "numeric as it is, categorical where not numeric, except columns that cannot be terms, "
+      "named in a note with the reason: empty columns, a single level, identifiers (every value "
+      "distinct) and categorical columns with more than 100 levels (a plan's \"max_levels\" "
+      "raises the limit).\n\n"
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExamples:\n"
+      "  " + program + " select build/demo/laptops.csv --plan build/demo/plan.json --out build/demo/review --force\n"
+      "  " + program + " select build/demo/laptops.csv --response resale_price --method forward "
+      "--criterion AIC");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunSelect(*args, context); };
   });

@@ -54,18 +54,22 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
       "step (actions and terms exactly, numbers to 1e-9 relative). Exit 0 when everything holds, "
       "1 when anything differs, 2 when an input cannot be read.");
   command->add_option("AUDIT", args->audit, "Audit file (audit.json)")->required();
-  command->add_option("--data", args->data, "The data file the audit was made from: fingerprint and replay")
-      ->check(CLI::ExistingFile)
-      ->type_name("DATA");
+  CLI::Option* data = command->add_option("--data", args->data,
+                                          "The data file the audit was made from: fingerprint and replay")
+                          ->check(CLI::ExistingFile)
+                          ->type_name("DATA");
   command->add_option("--public-key", args->public_key,
                       "Ed25519 public key (PEM) the signature must verify against")
       ->check(CLI::ExistingFile)
       ->type_name("FILE");
-  AddCommonOptions(*command, context.common);
+  // Writes no file; the replay reads the data with the audit's recorded delimiter.
+  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kForceOption & ~kDelimiterOption);
+  command->get_option("--threads")->needs(data)->description("Threads folding the factor of the replay");
   command->footer(
       "Unkeyed digests and the seal catch accidental and casual edits; only a signature checked "
-      "against a public key you obtained yourself shows who produced the file.\nExample:\n"
-      "  stepledger verify out/audit.json --data laptops.csv --public-key reviewer.pub");
+      "against a public key you obtained yourself shows who produced the file.\n\n"
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
+      ProgramWord() + " verify build/demo/audit.json --data build/demo/laptops.csv");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunVerify(*args, context); };
   });

@@ -172,7 +172,7 @@ std::string JoinLevels(const std::vector<LevelCount>& levels) {
 }
 
 void BuildCategorical(const TermSpec& spec, const std::string& key, const ColumnProfile& column,
-                      PendingTerm& pending) {
+                      std::size_t max_levels, PendingTerm& pending) {
   const std::string source_key = key + ".categorical";
   if (column.kind == ColumnKind::kEmpty) {
     throw PlanError(source_key, "column " + Quote(column.name) +
@@ -188,6 +188,13 @@ void BuildCategorical(const TermSpec& spec, const std::string& key, const Column
     throw PlanError(source_key, "column " + Quote(column.name) +
                                     " has too many distinct values for a categorical term "
                                     "(use \"column\" for a numeric term)");
+  }
+  if (column.levels.size() > max_levels) {
+    throw PlanError(source_key, "column " + Quote(column.name) + " has " +
+                                    std::to_string(column.levels.size()) +
+                                    " levels, more than max_levels (" + std::to_string(max_levels) +
+                                    "); if it really is a categorical term, raise \"max_levels\" in "
+                                    "the plan, else leave it out of the terms");
   }
   std::vector<LevelCount> levels = column.levels;
   std::sort(levels.begin(), levels.end(),
@@ -239,12 +246,8 @@ std::vector<TermSpec> AllTermsFromProfile(const DesignSpec& spec, const DataProf
     std::string why;
     if (column.name == kInterceptName) {
       why = "the name 'intercept' is reserved for the intercept column";
-    } else if (column.kind == ColumnKind::kEmpty) {
-      why = "every cell is missing";
-    } else if (column.kind == ColumnKind::kCategorical && column.too_many_levels) {
-      why = "more than " + std::to_string(column.levels.size()) + " distinct levels";
-    } else if (column.kind == ColumnKind::kCategorical && column.levels.size() < 2) {
-      why = "only one level";
+    } else if (auto reason = ReasonNotACandidateTerm(column, spec.max_levels)) {
+      why = std::move(*reason);
     }
     if (!why.empty()) {
       skipped.emplace_back(column.name, why);
@@ -291,6 +294,9 @@ void ValidateDesignSpec(const DesignSpec& spec) {
   }
   if (spec.weights && spec.weights->empty()) {
     throw PlanError("weights", "expected a column name, found an empty string");
+  }
+  if (spec.max_levels < 2) {
+    throw PlanError("max_levels", "expected an integer >= 2, found " + std::to_string(spec.max_levels));
   }
   if (spec.all_terms) return;
   if (spec.terms.empty()) throw PlanError("terms", "expected at least one term, found none");
@@ -454,7 +460,7 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
         built.bounds.push_back(LogBound(column));
         break;
       case TermKind::kCategorical:
-        BuildCategorical(term_spec, key, column, built);
+        BuildCategorical(term_spec, key, column, spec.max_levels, built);
         break;
       case TermKind::kProduct:
         break;

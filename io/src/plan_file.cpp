@@ -240,7 +240,7 @@ Plan PlanFromJson(const json& value) {
   ObjectReader root(value, "",
                     {"response", "response_transform", "intercept", "weights", "terms", "keep",
                      "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
-                     "max_terms", "best_per_size", "folds", "seed", "missing"});
+                     "max_terms", "best_per_size", "folds", "seed", "missing", "max_levels"});
   Plan plan;
   DesignSpec& design = plan.design;
   SearchOptions& search = plan.search;
@@ -280,6 +280,9 @@ Plan PlanFromJson(const json& value) {
     }
   } else {
     throw PlanError("terms", "expected an array of term objects or \"all\", found " + Found(*terms));
+  }
+  if (const json* max_levels = root.Get("max_levels")) {
+    design.max_levels = static_cast<std::size_t>(ReadInteger(*max_levels, "max_levels", 2));
   }
   // Empty names, duplicates, product parts and cycles, with the same key paths as here.
   ValidateDesignSpec(design);
@@ -396,6 +399,7 @@ json PlanToJson(const Plan& plan, const Design* design) {
   out["folds"] = search.folds;
   out["seed"] = search.seed;
   out["missing"] = plan.missing_tokens;
+  out["max_levels"] = spec.max_levels;
   return out;
 }
 

@@ -202,5 +202,33 @@ TEST_F(DemoCommand, BadOptionsAreRefusedWithOneLine) {
   EXPECT_EQ(unknown.status, 2) << unknown.err;
 }
 
+// Run as the built program from a folder that does not have it on PATH, the "Next, try" lines
+// name the program by the path it was built at (relative to the working folder when it lies
+// inside it), so that they run as printed, here through the shell.
+TEST(DemoProgramPath, NextTryLinesRunAsPrintedFromTheShell) {
+  const fs::path binary = testing::StepledgerBinary();
+  const fs::path working = binary.parent_path().parent_path();  // build/, holding cli/stepledger
+  testing::TempDir scratch;
+  const std::string demo_folder = (scratch.path() / "demo").string();
+  std::string out;
+  const std::string env = "cd '" + working.string() + "' && PATH=/usr/bin:/bin ";
+  ASSERT_EQ(testing::RunCommand(env + "'" + binary.string() + "' demo --out '" + demo_folder + "' 2>&1",
+                                &out),
+            0)
+      << out;
+  const std::string program = binary.lexically_relative(working).string();
+  std::istringstream lines(out.substr(out.find("Next, try:")));
+  std::string line;
+  std::getline(lines, line);
+  int lines_run = 0;
+  while (std::getline(lines, line) && line.rfind("  ", 0) == 0) {
+    EXPECT_EQ(line.rfind("  " + program + " ", 0), 0u) << line;
+    std::string ignored;
+    EXPECT_EQ(testing::RunCommand(env + line.substr(2) + " >/dev/null 2>&1", &ignored), 0) << line;
+    ++lines_run;
+  }
+  EXPECT_EQ(lines_run, 4) << out;
+}
+
 }  // namespace
 }  // namespace stepledger

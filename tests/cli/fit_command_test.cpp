@@ -50,6 +50,27 @@ TEST(FitCommand, PrintsTheCoefficientTableAndRowAccounting) {
   EXPECT_NE(run.out.find("1.977142"), std::string::npos) << run.out;
 }
 
+// The model in words, with the response's transform and the weights (never a tilde formula).
+TEST(FitCommand, StatesTheModelWithItsTransformAndWeights) {
+  Files files("x,z,w,y\n1,0.5,1,3.1\n2,0.1,2,4.9\n3,0.7,1,7.2\n4,0.2,3,8.8\n5,0.9,1,11.1\n6,0.4,2,12.9\n",
+              R"({"response": "y", "response_transform": "log", "weights": "w",
+                  "terms": [{"name": "x", "column": "x"}, {"name": "z", "column": "z"}]})");
+  const CliRun run = RunStepledger({"fit", files.data, "--plan", files.plan});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_EQ(run.out.rfind("Model: log(y) explained by x, z, weighted by w\n", 0), 0u) << run.out;
+  EXPECT_EQ(run.out.find(" ~ "), std::string::npos) << run.out;
+  const CliRun json = RunStepledger({"fit", files.data, "--plan", files.plan, "--json"});
+  EXPECT_EQ(nlohmann::json::parse(json.out)["model_statement"], "log(y) explained by x, z, weighted by w");
+}
+
+// fit writes no file: --force is not offered.
+TEST(FitCommand, OffersNoForceOption) {
+  Files files(kLineCsv, kLinePlan);
+  const CliRun run = RunStepledger({"fit", files.data, "--plan", files.plan, "--force"});
+  EXPECT_EQ(run.status, 2);
+  EXPECT_NE(run.err.find("--force"), std::string::npos) << run.err;
+}
+
 TEST(FitCommand, QuietLeavesOutDiagnosticsAndCautions) {
   Files files(kLineCsv, kLinePlan);
   const CliRun run = RunStepledger({"fit", files.data, "--plan", files.plan, "--quiet"});

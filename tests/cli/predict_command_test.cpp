@@ -24,6 +24,7 @@
 
 #include <nlohmann/json.hpp>
 
+#include "support/audit_test_data.h"
 #include "support/cli_run.h"
 #include "support/csv_text.h"
 #include "support/test_paths.h"
@@ -263,6 +264,7 @@ TEST_F(PredictCommand, EachFlagOnTheRowBuiltForItInInputOrderWithIds) {
   EXPECT_NE(table.At(5, "detail").find("b is missing (term 'b')"), std::string::npos);
   EXPECT_NE(table.At(6, "detail").find("d: 'ten' is not a number (term 'ld')"), std::string::npos);
   EXPECT_EQ(run.err,
+            "predict: model y explained by a, b, ld, a2, g, a:g, weighted by w\n"
             "predict: 8 rows, 5 priced; outside-range 2, hidden-extrapolation 1, unknown-level 1, missing 1, "
             "invalid-value 1\n");
 }
@@ -300,7 +302,8 @@ TEST_F(PredictCommand, FittedRowsPricedAgainCarryNoFlag) {
   const nlohmann::json result = nlohmann::json::parse(run.out);
   ASSERT_EQ(result["rows"].size(), 200u);
   for (const auto& row : result["rows"]) EXPECT_EQ(row["flags"], nlohmann::json::array()) << row["detail"];
-  EXPECT_EQ(run.err, "predict: 200 rows, 200 priced; outside-range 0, hidden-extrapolation 0, unknown-level 0, "
+  EXPECT_EQ(run.err, "predict: model y explained by a, b, ld, a2, g, a:g, weighted by w\n"
+            "predict: 200 rows, 200 priced; outside-range 0, hidden-extrapolation 0, unknown-level 0, "
                      "missing 0, invalid-value 0\n");
 }
 
@@ -397,6 +400,54 @@ TEST(PredictLogResponse, BackTransformAndSmearingFactor) {
     EXPECT_GT(value("mean_smearing"), value("exp_prediction"));
   }
   EXPECT_NE(run.err.find("was logged"), std::string::npos) << run.err;
+  // The price on the response's own scale comes first; the model is stated with its transform.
+  EXPECT_EQ(run.out.rfind("row,line,exp_prediction,exp_ci_low,exp_ci_high,exp_pi_low,exp_pi_high,"
+                          "mean_smearing,prediction,",
+                          0),
+            0u)
+      << run.out.substr(0, 200);
+  EXPECT_NE(run.err.find("predict: model log(y) explained by a, b, ld, a2, g, a:g\n"), std::string::npos)
+      << run.err;
+}
+
+// ---- an audit that does not verify ------------------------------------------------------------
+
+TEST_F(PredictCommand, RefusesAnAuditWhoseDigestsDoNotHoldUnlessAllowed) {
+  nlohmann::json edited = nlohmann::json::parse(testing::ReadText(audit_));
+  edited["model"]["coefficients"][1]["estimate"] = 1000.0;
+  const auto edited_path = scratch_.Write("edited.json", edited.dump(2));
+  const auto rows = scratch_.Write("rows.csv", "a,b,d,g,w\n5,5,10,q,1\n");
+
+  testing::CliRun run = testing::RunStepledger({"predict", edited_path.string(), rows.string()});
+  EXPECT_EQ(run.status, 1);
+  EXPECT_EQ(run.out, "") << "nothing priced";
+  ASSERT_EQ(run.ErrLines().size(), 1u) << run.err;
+  EXPECT_NE(run.err.find("edited.json does not verify (key 'model'"), std::string::npos) << run.err;
+  EXPECT_NE(run.err.find("--allow-unverified"), std::string::npos) << run.err;
+
+  run = testing::RunStepledger({"predict", edited_path.string(), rows.string(), "--allow-unverified"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_EQ(run.out.rfind("# warning: " + edited_path.string() + " does not verify", 0), 0u) << run.out;
+  EXPECT_NE(run.err.find("does not verify"), std::string::npos) << run.err;
+
+  run = testing::RunStepledger({"predict", edited_path.string(), rows.string(), "--allow-unverified", "--json"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  const nlohmann::json json = nlohmann::json::parse(run.out);
+  ASSERT_TRUE(json["warning"].is_string()) << json.dump().substr(0, 300);
+  EXPECT_NE(json["warning"].get<std::string>().find("does not verify"), std::string::npos);
+
+  // The audit as written verifies: no warning.
+  run = testing::RunStepledger({"predict", audit_.string(), rows.string(), "--json"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_TRUE(nlohmann::json::parse(run.out)["warning"].is_null());
+}
+
+TEST_F(PredictCommand, OffersNoThreadsOption) {
+  const auto rows = scratch_.Write("rows.csv", "a,b,d,g,w\n5,5,10,q,1\n");
+  const testing::CliRun run =
+      testing::RunStepledger({"predict", audit_.string(), rows.string(), "--threads", "2"});
+  EXPECT_EQ(run.status, 2);
+  EXPECT_NE(run.err.find("--threads"), std::string::npos) << run.err;
 }
 
 // ---- errors --------------------------------------------------------------------------------------

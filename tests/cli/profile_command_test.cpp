@@ -79,14 +79,58 @@ TEST(ProfileCommand, StarterPlanLeavesOutIdsAndEmptyColumnsAndPicksTheBaseline) 
   EXPECT_NO_THROW(ParsePlanText(plan.dump(), "starter plan"));
 }
 
-TEST(ProfileCommand, ResponseDefaultsToTheFirstNumericColumnWithANote) {
+// The response is never guessed (the first numeric column is as often an id or a count).
+TEST(ProfileCommand, WithoutResponseThereIsNoStarterPlanAndTheNoteSaysHowToGetOne) {
   TempDir folder;
   const auto data = folder.Write("shop.csv", kShopCsv);
   const CliRun run = RunStepledger({"profile", data.string()});
   ASSERT_EQ(run.status, 0) << run.err;
-  EXPECT_NE(run.out.find("\"response\": \"size\""), std::string::npos) << run.out;
-  EXPECT_NE(run.out.find("first numeric column"), std::string::npos) << run.out;
+  EXPECT_EQ(run.out.find("\"response\""), std::string::npos) << run.out;
+  EXPECT_EQ(run.out.find("Starter plan"), std::string::npos) << run.out;
+  EXPECT_NE(run.out.find("no starter plan: name the response (the column to explain) with --response COL"),
+            std::string::npos)
+      << run.out;
   EXPECT_NE(run.out.find("blue (3), red (3)"), std::string::npos) << run.out;
+  const CliRun json = RunStepledger({"profile", data.string(), "--json"});
+  ASSERT_EQ(json.status, 0) << json.err;
+  EXPECT_TRUE(nlohmann::json::parse(json.out)["starter_plan"].is_null());
+  const CliRun plan_out = RunStepledger({"profile", data.string(), "--plan-out", (folder.path() / "p.json").string()});
+  EXPECT_EQ(plan_out.status, 2);
+  EXPECT_NE(plan_out.err.find("--response"), std::string::npos) << plan_out.err;
+}
+
+TEST(ProfileCommand, ASemicolonFileWithoutTheResponseColumnHintsAtDelimiter) {
+  TempDir folder;
+  const auto data = folder.Write("shop.csv", "size;price\n1;10\n2;12\n3;15\n");
+  CliRun run = RunStepledger({"profile", data.string(), "--response", "price"});
+  EXPECT_EQ(run.status, 2);
+  ASSERT_EQ(run.ErrLines().size(), 1u) << run.err;
+  EXPECT_NE(run.err.find("no column 'price'"), std::string::npos) << run.err;
+  EXPECT_NE(run.err.find("add --delimiter ';'"), std::string::npos) << run.err;
+  run = RunStepledger({"profile", data.string()});
+  EXPECT_EQ(run.status, 0);
+  EXPECT_NE(run.out.find("add --delimiter ';'"), std::string::npos) << run.out;
+  run = RunStepledger({"profile", data.string(), "--response", "price", "--delimiter", ";"});
+  EXPECT_EQ(run.status, 0) << run.err;
+}
+
+TEST(ProfileCommand, ATextCellInANumericColumnSuggestsTheMissingList) {
+  TempDir folder;
+  std::string csv = "size,price\n";
+  for (int row = 0; row < 20; ++row) csv += std::to_string(row) + "," + (row == 2 ? "n/a" : std::to_string(10 + row)) + "\n";
+  const auto data = folder.Write("shop.csv", csv);
+  // The cell is on line 4 (header on line 1, row 2 on line 4), byte column 3 (after "2,").
+  const std::string where = data.string() + ":4:3";
+  CliRun run = RunStepledger({"profile", data.string(), "--response", "size"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_NE(run.out.find("column 'price' holds numbers but for 1 text cell, the first 'n/a' at " + where),
+            std::string::npos)
+      << run.out;
+  EXPECT_NE(run.out.find("add it to the plan's \"missing\" list"), std::string::npos) << run.out;
+  run = RunStepledger({"profile", data.string(), "--response", "price"});
+  EXPECT_EQ(run.status, 2);
+  EXPECT_NE(run.err.find("'n/a' at " + where), std::string::npos) << run.err;
+  EXPECT_NE(run.err.find("\"missing\""), std::string::npos) << run.err;
 }
 
 TEST(ProfileCommand, StarterPlanFitsEndToEnd) {

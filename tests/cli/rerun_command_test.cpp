@@ -61,6 +61,15 @@ TEST_F(RerunCommand, ALinkedAuditNamesTheDrift) {
     }
   }
   EXPECT_TRUE(age_seen);
+  // The verdict, first; the report beside the audit, and both paths said.
+  EXPECT_EQ(comparison["verdict"], "different terms");
+  EXPECT_EQ(run.out.rfind("Verdict: different terms", 0), 0u) << run.out;
+  const std::string report = testing::ReadText(out / "report.html");
+  EXPECT_NE(report.find("<svg"), std::string::npos) << "the reviewer's report with its charts";
+  EXPECT_NE(run.out.find("Wrote " + (out / "audit.json").string() + " (the new audit, linked to its parent) and " +
+                         (out / "report.html").string()),
+            std::string::npos)
+      << run.out;
   // The terminal names both changes.
   EXPECT_NE(run.out.find("columns added: warranty_months"), std::string::npos) << run.out;
   EXPECT_NE(run.out.find("terms left the final model: ram"), std::string::npos) << run.out;
@@ -92,7 +101,8 @@ TEST_F(RerunCommand, RefusesToOverwriteWithoutForceAndLeavesTheFolderAsItWas) {
   EXPECT_NE(run.err.find("audit.json: file exists; use --force to overwrite"), std::string::npos) << run.err;
   EXPECT_EQ(run.ErrLines().size(), 1u);
   EXPECT_EQ(testing::ReadText(out / "audit.json"), before);
-  EXPECT_EQ(std::distance(std::filesystem::directory_iterator(out), std::filesystem::directory_iterator()), 1);
+  EXPECT_EQ(std::distance(std::filesystem::directory_iterator(out), std::filesystem::directory_iterator()), 2)
+      << "audit.json and report.html";
   run = RunStepledger({"rerun", parent_.string(), new_data_.string(), "--out", out.string(), "--force"});
   EXPECT_EQ(run.status, 0) << run.err;
 }

@@ -107,5 +107,113 @@ TEST_F(SelectHald, BadUsageExitsTwoWithOneLineNamingTheProblem) {
   EXPECT_NE(run.err.find("not available yet"), std::string::npos) << run.err;
 }
 
+// --- The quick form's candidate terms (issue: an identifier column became a 1,999-level term).
+
+// Invented data: price depends on size; `listing` is an identifier in text form (every value
+// distinct), `model_code` a categorical column of `levels` levels, each on two rows.
+std::string ListingsCsv(int levels) {
+  std::ostringstream csv;
+  csv << "listing,model_code,size,price\n";
+  for (int row = 0; row < 2 * levels; ++row) {
+    const int size = 10 + (row * 7) % 23;
+    csv << "L" << 10000 + row << ",M" << row % levels << "," << size << ","
+        << 100 + 3 * size + (row % 5) << "\n";
+  }
+  return csv.str();
+}
+
+TEST(SelectQuickForm, OnTheDemoDataTheListingIdIsNotATermAndTheNoteSaysWhy) {
+  const std::string data = (testing::SourceDir() / "examples" / "data" / "laptops.csv").string();
+  const CliRun json_run = RunSelect({"select", data, "--response", "resale_price", "--json"});
+  ASSERT_EQ(json_run.status, 0) << json_run.err;
+  const auto json = nlohmann::json::parse(json_run.out);
+  ASSERT_EQ(json["columns_left_out"].size(), 1u) << json["columns_left_out"].dump();
+  EXPECT_EQ(json["columns_left_out"][0]["column"], "listing_id");
+  EXPECT_NE(json["columns_left_out"][0]["reason"].get<std::string>().find("identifier"), std::string::npos);
+  for (const auto& step : json["steps"]) {
+    for (const auto& candidate : step["candidates"]) EXPECT_NE(candidate["term"], "listing_id");
+  }
+  const CliRun text = RunSelect({"select", data, "--response", "resale_price"});
+  ASSERT_EQ(text.status, 0) << text.err;
+  EXPECT_NE(text.out.find("left out of the candidate terms"), std::string::npos) << text.out;
+  EXPECT_NE(text.out.find("  - listing_id: every value distinct (2,000 values): looks like an identifier"),
+            std::string::npos)
+      << text.out;
+}
+
+TEST(SelectQuickForm, LeavesACategoricalOverTheLevelLimitOutAndSaysHowToRaiseIt) {
+  testing::TempDir folder;
+  const std::string data = folder.Write("listings.csv", ListingsCsv(120)).string();
+  const CliRun run = RunSelect({"select", data, "--response", "price", "--json"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  const auto json = nlohmann::json::parse(run.out);
+  ASSERT_EQ(json["columns_left_out"].size(), 2u) << json["columns_left_out"].dump();
+  EXPECT_EQ(json["columns_left_out"][0]["column"], "listing");
+  EXPECT_EQ(json["columns_left_out"][1]["column"], "model_code");
+  EXPECT_NE(json["columns_left_out"][1]["reason"].get<std::string>().find("more than max_levels (100)"),
+            std::string::npos)
+      << json["columns_left_out"].dump();
+  EXPECT_EQ(json["model"]["terms"], nlohmann::json({"size"}));
+}
+
+TEST(SelectPlan, RefusesAnExplicitCategoricalOverMaxLevelsAndNamesTheKeyToRaise) {
+  testing::TempDir folder;
+  const std::string data = folder.Write("listings.csv", ListingsCsv(120)).string();
+  const std::string plan = folder.Write("plan.json", R"({"response": "price", "method": "none",
+      "terms": [{"name": "model", "categorical": "model_code"}, {"name": "size", "column": "size"}]})").string();
+  CliRun run = RunSelect({"select", data, "--plan", plan});
+  EXPECT_EQ(run.status, 2);
+  ASSERT_EQ(run.ErrLines().size(), 1u) << run.err;
+  EXPECT_NE(run.err.find("terms[0].categorical"), std::string::npos) << run.err;
+  EXPECT_NE(run.err.find("120 levels, more than max_levels (100)"), std::string::npos) << run.err;
+  EXPECT_NE(run.err.find("raise \"max_levels\""), std::string::npos) << run.err;
+
+  const std::string raised = folder.Write("raised.json", R"({"response": "price", "method": "none",
+      "max_levels": 150,
+      "terms": [{"name": "model", "categorical": "model_code"}, {"name": "size", "column": "size"}]})").string();
+  run = RunSelect({"select", data, "--plan", raised, "--json"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_EQ(nlohmann::json::parse(run.out)["model"]["k"], 121);  // intercept, 119 levels, size
+
+  const std::string too_small = folder.Write("small.json", R"({"response": "price", "terms": "all",
+      "max_levels": 1})").string();
+  run = RunSelect({"select", data, "--plan", too_small});
+  EXPECT_EQ(run.status, 2);
+  EXPECT_NE(run.err.find("plan key 'max_levels': expected an integer >= 2, found 1"), std::string::npos) << run.err;
+}
+
+// --- Options: any case for --method and --criterion; options select ignores are refused.
+
+TEST_F(SelectHald, MethodAndCriterionTakeAnyCase) {
+  const CliRun run = RunSelect({"select", data_, "--response", "y", "--method", "Forward", "--criterion", "AIC",
+                                "--json"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  const auto json = nlohmann::json::parse(run.out);
+  EXPECT_EQ(json["search"]["method"], "forward") << json["search"].dump();
+  EXPECT_EQ(json["search"]["criterion"], "aic") << json["search"].dump();
+}
+
+TEST_F(SelectHald, SignKeyAndForceNeedOut) {
+  const std::string key = folder_.Write("key.pem", "not a key").string();
+  CliRun run = RunSelect({"select", data_, "--response", "y", "--sign-key", key});
+  EXPECT_EQ(run.status, 2);
+  EXPECT_NE(run.err.find("--out"), std::string::npos) << run.err;
+  run = RunSelect({"select", data_, "--response", "y", "--force"});
+  EXPECT_EQ(run.status, 2);
+  EXPECT_NE(run.err.find("--out"), std::string::npos) << run.err;
+}
+
+TEST_F(SelectHald, OutSaysWhatItWroteAndStatesTheModelInWords) {
+  const auto out_dir = folder_.path() / "review";
+  const CliRun run = RunSelect({"select", data_, "--plan", plan_, "--out", out_dir.string()});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_NE(run.out.find("Wrote " + (out_dir / "audit.json").string() + " (the audit) and " +
+                         (out_dir / "report.html").string() + " (the reviewer's report)"),
+            std::string::npos)
+      << run.out;
+  EXPECT_NE(run.out.find("Final model: y explained by x1, x2\n"), std::string::npos) << run.out;
+  EXPECT_EQ(run.out.find(" ~ "), std::string::npos) << "no tilde formula";
+}
+
 }  // namespace
 }  // namespace stepledger

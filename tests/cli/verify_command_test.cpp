@@ -3,6 +3,9 @@
 
 #include <gtest/gtest.h>
 
+#include <string>
+#include <vector>
+
 #include "stepledger/audit/audit_document.h"
 #include "support/audit_test_data.h"
 #include "support/cli_run.h"
@@ -180,6 +183,21 @@ TEST_F(VerifyCommand, SelectOutWritesAnAuditThatVerifiesAndReplays) {
   EXPECT_EQ(run.status, 2);
   EXPECT_NE(run.err.find("file exists; use --force"), std::string::npos) << run.err;
   EXPECT_EQ(testing::ReadText(out / "audit.json"), before);
+}
+
+// verify writes no file and reads the data with the audit's recorded delimiter; --threads only
+// matters for the replay: options it would ignore are refused (exit 2), naming the option.
+TEST_F(VerifyCommand, RefusesTheOptionsItWouldIgnore) {
+  for (const std::vector<std::string>& extra : {std::vector<std::string>{"--force"}, {"--delimiter", ";"},
+                                                 {"--threads", "2"}}) {
+    std::vector<std::string> args = {"verify", audit_.string()};
+    args.insert(args.end(), extra.begin(), extra.end());
+    const auto run = RunStepledger(args);
+    EXPECT_EQ(run.status, 2) << extra[0];
+    EXPECT_NE(run.err.find(extra[0]), std::string::npos) << run.err;
+  }
+  const auto replay = RunStepledger({"verify", audit_.string(), "--data", data_.string(), "--threads", "2"});
+  EXPECT_EQ(replay.status, 0) << replay.out << replay.err;
 }
 
 }  // namespace

@@ -340,7 +340,9 @@ TEST_F(DesignTest, ScalesArePowersOfTwoFromTheProfileRanges) {
   EXPECT_EQ(Build(FullSpec()).scales(), scales);
 }
 
-TEST_F(DesignTest, AllTermsSkipsEmptyColumnsAndNamesTermsAfterColumns) {
+// "note" has six distinct texts in six rows: an identifier (ReasonNotACandidateTerm), left out
+// like the empty column.
+TEST_F(DesignTest, AllTermsSkipsEmptyColumnsAndIdentifiersAndNamesTermsAfterColumns) {
   DesignSpec spec;
   spec.response = "price";
   spec.weights = "units";
@@ -348,11 +350,13 @@ TEST_F(DesignTest, AllTermsSkipsEmptyColumnsAndNamesTermsAfterColumns) {
   const Design design = Build(spec);
   std::vector<std::string> names;
   for (const auto& term : design.terms) names.push_back(term.name);
-  EXPECT_EQ(names, (std::vector<std::string>{"age", "disk", "grade", "colour", "note"}));
+  EXPECT_EQ(names, (std::vector<std::string>{"age", "disk", "grade", "colour"}));
   EXPECT_EQ(design.terms[2].kind, TermKind::kCategorical);
   EXPECT_EQ(design.terms[0].kind, TermKind::kNumeric);
-  ASSERT_EQ(design.skipped.size(), 1u);
-  EXPECT_EQ(design.skipped[0].first, "blank");
+  ASSERT_EQ(design.skipped.size(), 2u);
+  EXPECT_EQ(design.skipped[0].first, "note");
+  EXPECT_EQ(design.skipped[0].second, "every value distinct (6 values): looks like an identifier");
+  EXPECT_EQ(design.skipped[1].first, "blank");
 }
 
 // ---- BuildDesign errors: key path and message ----

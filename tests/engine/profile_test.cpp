@@ -308,5 +308,27 @@ TEST_F(ProfileTest, MomentsAgreeWithNumpy) {
   EXPECT_EQ(column.max, numpy[3]);
 }
 
+// The rule of "terms": "all" (common practice: an identifier or a many-level code is no term).
+TEST(ReasonNotACandidateTerm, IdentifiersSingleLevelsAndOverLimitCategoricalsAreLeftOut) {
+  ColumnProfile column;
+  column.name = "c";
+  column.kind = ColumnKind::kCategorical;
+  column.present = 4;
+  column.levels = {{"a", 1}, {"b", 1}, {"c", 1}, {"d", 1}};
+  EXPECT_EQ(ReasonNotACandidateTerm(column, 100), "every value distinct (4 values): looks like an identifier");
+  column.present = 8;
+  column.levels = {{"a", 2}, {"b", 2}, {"c", 2}, {"d", 2}};
+  EXPECT_EQ(ReasonNotACandidateTerm(column, 100), std::nullopt);
+  EXPECT_NE(ReasonNotACandidateTerm(column, 3).value_or("").find("4 levels, more than max_levels (3)"),
+            std::string::npos);
+  column.levels = {{"a", 8}};
+  EXPECT_EQ(ReasonNotACandidateTerm(column, 100), "a single level carries no information");
+  column.kind = ColumnKind::kNumeric;
+  column.levels.clear();
+  EXPECT_EQ(ReasonNotACandidateTerm(column, 2), std::nullopt) << "a numeric column is always usable";
+  column.kind = ColumnKind::kEmpty;
+  EXPECT_EQ(ReasonNotACandidateTerm(column, 100), "every cell is missing");
+}
+
 }  // namespace
 }  // namespace stepledger

@@ -164,6 +164,8 @@ const std::vector<ErrorCase> kErrorCases = {
      "max_terms", "expected at least 2"},
     {"BestPerSizeZero", With("best_per_size", "0"), "best_per_size", "expected an integer >= 1, found 0"},
     {"FoldsOne", With("folds", "1"), "folds", "expected an integer >= 2, found 1"},
+    {"MaxLevelsOne", With("max_levels", "1"), "max_levels", "expected an integer >= 2, found 1"},
+    {"MaxLevelsFraction", With("max_levels", "2.5"), "max_levels", "found 2.5"},
     {"SeedNegative", With("seed", "-5"), "seed", "expected an integer >= 0, found -5"},
     {"SeedFraction", With("seed", "1.5"), "seed", "found 1.5"},
     {"MissingNotStrings", With("missing", R"(["", 0])"), "missing[1]", "expected a string, found 0"},
@@ -226,6 +228,9 @@ TEST(PlanFileTest, DefaultsOfAMinimalPlan) {
   EXPECT_EQ(plan.search.criterion, Criterion::kBic);
   EXPECT_FALSE(plan.search.max_terms);
   EXPECT_EQ(plan.search.seed, 20261201u);
+  EXPECT_EQ(plan.design.max_levels, 100u);  // README: default 100 (common practice)
+  EXPECT_EQ(ParsePlanText(R"({"response": "price", "terms": "all", "max_levels": 500})").plan.design.max_levels,
+            500u);
 }
 
 TEST(PlanFileTest, LargeSeedsAndNullsAreAccepted) {
@@ -247,7 +252,7 @@ TEST(PlanFileTest, NormalisedPlanRoundTrips) {
   EXPECT_EQ(ParsePlanText(normalised.dump(2)).plan, plan);
   for (const char* key : {"response", "response_transform", "intercept", "weights", "terms", "keep",
                           "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
-                          "max_terms", "best_per_size", "folds", "seed", "missing"}) {
+                          "max_terms", "best_per_size", "folds", "seed", "missing", "max_levels"}) {
     EXPECT_TRUE(normalised.contains(key)) << key;
   }
   const Plan quick = MakeQuickPlan("price");

@@ -25,7 +25,9 @@ struct ReplayOverrides {
 /// Runs the audit's recorded plan (plan.verbatim, read as a plan file is read) with its recorded
 /// settings on data. audit_name (the audit's file name) starts messages. Throws InputError when
 /// the recorded plan is missing or unusable (naming the key) or the data cannot be read.
+/// observer (optional) sees the search's events (progress).
 RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem::path& data,
-                             std::string_view audit_name, const ReplayOverrides& overrides = {});
+                             std::string_view audit_name, const ReplayOverrides& overrides = {},
+                             SearchObserver* observer = nullptr);
 
 }  // namespace stepledger

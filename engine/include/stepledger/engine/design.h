@@ -54,6 +54,10 @@ struct DesignSpec {
   /// becomes a term named after it (numeric, or categorical when not numeric; empty
   /// columns and columns with too many levels are skipped and reported).
   bool all_terms = false;
+  /// Most levels a categorical term may have (>= 2; the plan's `max_levels`). An explicit
+  /// categorical term over it is refused; with all_terms such a column, and one that looks
+  /// like an identifier, is skipped (ReasonNotACandidateTerm in profile.h). Default 100.
+  std::size_t max_levels = kDefaultMaxLevels;
   std::vector<TermSpec> terms;
   bool operator==(const DesignSpec&) const = default;
 };

@@ -71,6 +71,20 @@ struct DataProfile {
   const ColumnProfile* Find(std::string_view name) const;
 };
 
+/// Distinct levels a categorical term may have unless the plan raises its `max_levels`
+/// (common practice: beyond about a hundred levels a column is an identifier or needs
+/// grouping before it can be a term; each level costs a design column).
+inline constexpr std::size_t kDefaultMaxLevels = 100;
+
+/// The rule that keeps a column out of the candidate terms when a plan says "terms": "all"
+/// (and out of `profile`'s starter plan): why the column cannot be a term, or nullopt when it
+/// can. In order: every cell missing; a categorical column with a single level; one that looks
+/// like an identifier (three or more present cells and every one distinct, e.g. a listing
+/// number in text form); one with more than max_levels levels (or more than the profile
+/// kept, too_many_levels). Numeric columns are always usable. The reason is plain words for a
+/// note ("every value distinct (1,999 values): looks like an identifier").
+std::optional<std::string> ReasonNotACandidateTerm(const ColumnProfile& column, std::size_t max_levels);
+
 /// Reads the whole file once (one CsvReader pass; memory O(columns x max_levels)). Throws
 /// InputError naming file:line:column for any cell that parses as a non-finite number ("nan",
 /// "inf", or a number too large for a double), and for the reader's own errors.

@@ -12,7 +12,7 @@
 //   weights           string (a numeric column) or null (default: no weights)
 //   terms             required: a non-empty array of term objects, or the string "all"
 //                     (every column but the response and the weights, categorical where
-//                     not numeric)
+//                     not numeric; columns that cannot be terms are left out, see max_levels)
 //   keep, never       arrays of term names (default empty); with explicit terms they must name
 //                     terms of the plan and no term may be in both; with "all" they are checked
 //                     against the design by ValidateSearchOptions (selection/search.h)
@@ -27,6 +27,10 @@
 //   folds             integer >= 2, default 10
 //   seed              integer >= 0 (up to 2^64 - 1), default 20261201
 //   missing           array of strings: cell texts meaning missing; default ["", "NA"]
+//   max_levels        integer >= 2, default 100: most levels a categorical term may have. An
+//                     explicit categorical term over it is refused (raise it, or leave the
+//                     column out); with "all", such a column and one that looks like an
+//                     identifier (every value distinct) are left out and named in a note
 // A term object has "name" (non-empty, unique, not "intercept") and exactly one of
 //   "column": C                                a numeric column as it is
 //   "power": {"column": C, "degree": D}        C^D, D an integer >= 2

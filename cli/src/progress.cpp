@@ -1,0 +1,51 @@
+#include "stepledger/cli/progress.h"
+
+#include <unistd.h>
+
+#include <string>
+
+#include "stepledger/engine/number_format.h"
+
+namespace stepledger::cli {
+
+ProgressPrinter::ProgressPrinter(std::ostream& err, std::string label, std::chrono::milliseconds delay)
+    : err_(err), label_(std::move(label)), delay_(delay), started_(std::chrono::steady_clock::now()) {}
+
+void ProgressPrinter::OnStart(const StartEvent& /*event*/) { Show(false); }
+
+void ProgressPrinter::OnCandidate(const CandidateScore& /*candidate*/) {
+  ++candidates_;
+  Show(false);
+}
+
+void ProgressPrinter::OnDecision(const DecisionEvent& event) {
+  ++steps_;
+  last_move_ = std::string(event.action == MoveAction::kAdd ? "add " : "remove ") + event.term;
+  Show(false);
+}
+
+void ProgressPrinter::OnStop(const StopEvent& /*event*/) {
+  if (shown_) err_ << "\r\033[K" << std::flush;  // clear the line: the results follow on stdout
+  shown_ = false;
+}
+
+void ProgressPrinter::Show(bool force) {
+  const auto now = std::chrono::steady_clock::now();
+  if (!force && now - started_ < delay_) return;
+  // At most a few lines a second: a candidate event can come every microsecond.
+  if (shown_ && now - last_shown_ < std::chrono::milliseconds(200)) return;
+  last_shown_ = now;
+  shown_ = true;
+  const auto seconds = std::chrono::duration_cast<std::chrono::seconds>(now - started_).count();
+  err_ << "\r\033[K" << label_ << ": " << seconds << " s, step " << steps_ << ", "
+       << FormatCount(static_cast<std::int64_t>(candidates_)) << " candidates scored";
+  if (!last_move_.empty()) err_ << ", last: " << last_move_;
+  err_ << std::flush;
+}
+
+std::unique_ptr<ProgressPrinter> MakeProgressPrinter(std::ostream& err, bool quiet, std::string label) {
+  if (quiet || isatty(STDERR_FILENO) == 0) return nullptr;
+  return std::make_unique<ProgressPrinter>(err, std::move(label));
+}
+
+}  // namespace stepledger::cli
