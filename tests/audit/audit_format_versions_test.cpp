@@ -211,8 +211,14 @@ TEST(AuditFormatV1, ComparedWithARerunOfTheSamePlanTheModelsAreTheSame) {
   csv.missing_tokens = {"", "NA"};
   const json prediction = PredictionComparison(old_audit, new_audit, FixtureData(), csv);
   EXPECT_EQ(prediction["unseen_level_rows"], 0) << prediction.dump(2);
-  EXPECT_NEAR(prediction["old_model_rmse"].get<double>(), prediction["new_model_rmse"].get<double>(),
-              1e-9 * prediction["new_model_rmse"].get<double>());
+  // The v1 model prices the rows exactly as the same model read from a fresh audit does. (Its
+  // RMSE is over the 237 rows predict can price, 6 more than the fit used: their battery cell
+  // is missing, and battery is not in the final model.)
+  const json fresh = PredictionComparison(new_audit, new_audit, FixtureData(), csv);
+  EXPECT_EQ(prediction["rows"], 237);
+  EXPECT_EQ(prediction["rows"], fresh["rows"]);
+  EXPECT_NEAR(prediction["old_model_rmse"].get<double>(), fresh["old_model_rmse"].get<double>(),
+              1e-9 * fresh["old_model_rmse"].get<double>());
 }
 
 TEST(AuditSchema, VersionOneFollowsTheVersionOneSchemaBesideTheCurrentOne) {
