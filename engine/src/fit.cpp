@@ -1,5 +1,7 @@
 #include "stepledger/engine/fit.h"
 
+#include "stepledger/engine/number_format.h"
+
 #include <algorithm>
 #include <cassert>
 #include <cmath>
@@ -200,24 +202,11 @@ std::optional<double> Defined(double value) {
 
 // ---- text layout ---------------------------------------------------------------------------
 
-std::string Number(double value, int digits = 6) {
-  if (std::isnan(value)) return "undefined";
-  if (std::isinf(value)) return value > 0 ? "infinite" : "-infinite";
-  std::ostringstream text;
-  text << std::setprecision(digits) << value;
-  return text.str();
-}
-
+// People read these reports: every number through the one policy (engine/number_format.h).
 std::string Number(const std::optional<double>& value, int digits = 6) {
-  return value ? Number(*value, digits) : "undefined";
+  return FormatQuantity(value, digits);
 }
-
-// A p-value: one that underflowed to 0 is below the smallest double the tail function can
-// return, so "< 1e-300" says what is known instead of a misleading 0.
-std::string PValue(const std::optional<double>& p) {
-  if (p && *p == 0) return "< 1e-300";
-  return Number(p, 4);
-}
+std::string PValue(const std::optional<double>& p) { return FormatPValue(p); }
 
 // Columns of text: the first `left_columns` left-aligned (names), the rest right-aligned.
 std::string Layout(const std::vector<std::vector<std::string>>& rows, std::size_t left_columns,
@@ -463,8 +452,8 @@ FitResult FitModel(const Factor& factor, const Design& design,
 
 std::string FitResult::BriefReport() const {
   std::ostringstream text;
-  text << "model: " << (intercept ? "intercept" : "no intercept");
-  for (const std::string& term : terms) text << " + " << term;
+  text << "explained by: " << (intercept ? "intercept" : "no intercept");
+  for (const std::string& term : terms) text << ", " << term;
   text << '\n'
        << "  " << n << " rows, " << k << " coefficients, status " << ToString(status) << '\n'
        << "  R-squared " << Number(criteria.r2) << ", adjusted " << Number(criteria.adj_r2)
@@ -495,7 +484,7 @@ std::string FitResult::FullReport() const {
   std::vector<std::vector<std::string>> table = {
       {"column", "term", "estimate", "std error", "t", "p", level + " low", level + " high", "VIF"}};
   for (const CoefficientEstimate& c : coefficients) {
-    table.push_back({c.name, c.term, Number(c.estimate, 8), Number(c.se), Number(c.t, 5),
+    table.push_back({c.name, c.term, Number(c.estimate, 8), Number(c.se), FormatStatistic(c.t),
                      PValue(c.p), Number(c.ci_low), Number(c.ci_high),
                      c.vif ? Number(c.vif, 4) : (c.term == "intercept" ? "-" : "undefined")});
   }
@@ -509,7 +498,7 @@ std::string FitResult::FullReport() const {
     const bool residual_or_total = row.source == "residual" || row.source == "total";
     anova_table.push_back({row.source, Number(row.df), Number(row.ss, 10),
                            row.source == "total" ? "" : Number(row.ms, 8),
-                           residual_or_total ? "" : Number(row.f, 6),
+                           residual_or_total ? "" : FormatStatistic(row.f),
                            residual_or_total ? "" : PValue(row.p)});
   }
   text << Layout(anova_table, 1);
@@ -519,8 +508,8 @@ std::string FitResult::FullReport() const {
       {"R-squared", Number(criteria.r2, 8)},
       {"adjusted R-squared", Number(criteria.adj_r2, 8)},
       {"residual SD", Number(criteria.sigma, 8)},
-      {"F (overall)", Number(f, 6) + " on " + Number(intercept ? static_cast<double>(k) - 1 : static_cast<double>(k)) +
-                          " and " + Number(df_residual) + " df, p " + PValue(f_p)},
+      {"overall F test", FormatFTest(f, static_cast<std::int64_t>(intercept ? k - 1 : k),
+                                     static_cast<std::int64_t>(df_residual), f_p)},
       {"log-likelihood", Number(criteria.log_likelihood, 10)},
       {"AIC", Number(criteria.aic, 10)},
       {"AICc", Number(criteria.aicc, 10)},

@@ -186,7 +186,10 @@ TEST(Fit, ReportsShowTheModelAndNoNan) {
   const Dense dense = MakeDense(x, y, {}, true);
   const FitResult fit = FitModel(dense.factor, dense.design, testing::AllTerms(dense.design), options, &dense.replay);
   const std::string full = fit.FullReport(), brief = fit.BriefReport();
-  EXPECT_NE(brief.find("x1 + x2"), std::string::npos) << brief;
+  EXPECT_NE(brief.find("explained by: intercept, x1, x2"), std::string::npos) << brief;
+  EXPECT_EQ(full.find(" + "), std::string::npos) << full;
+  // The overall F test in APA style: F(df1, df2) = value, p clause.
+  EXPECT_NE(full.find("F(2, 22) = "), std::string::npos) << full;
   for (const char* word : {"Coefficients", "x1", "x2", "intercept", "regression", "residual", "total", "AIC", "BIC", "95%"}) {
     EXPECT_NE(full.find(word), std::string::npos) << word << "\n" << full;
   }
