@@ -354,6 +354,17 @@ VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::pa
   return report;
 }
 
+void WithoutWording(json& value) {
+  static const char* const kWordingKeys[] = {"rule", "stop_rule", "message", "reason",
+                                             "undefined_reason"};
+  if (value.is_object()) {
+    for (const char* key : kWordingKeys) value.erase(key);
+    for (auto& [key, child] : value.items()) WithoutWording(child);
+  } else if (value.is_array()) {
+    for (json& child : value) WithoutWording(child);
+  }
+}
+
 VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   VerifyReport report = CheckAuditIntegrity(document, options.public_key);
   if (options.data.empty()) return report;  // the report says what was not checked
@@ -398,7 +409,16 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   // The recorded content in today's names (an older format_version is translated), so that
   // a replay by this version compares like with like; the integrity checks above ran on the
   // document as recorded.
-  const json recorded_document = AuditInCurrentShape(document);
+  json recorded_document = AuditInCurrentShape(document);
+  // The wording of rules, reasons and cautions is this version's own (numbers in them follow the
+  // number policy of the build): for an audit of an older format_version it is not compared.
+  // Every number and name is, in the fields that hold them.
+  const bool older_format =
+      document.value("format_version", kAuditFormatVersion) < kAuditFormatVersion;
+  if (older_format) {
+    WithoutWording(recorded_document);
+    WithoutWording(replayed);
+  }
   const double tolerance = options.relative_tolerance;
   // The route: the first step whose action or term differs, then the first step whose numbers
   // (or any other content) differ; a changed row moves numbers from step 0 on, so the route

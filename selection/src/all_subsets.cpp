@@ -260,7 +260,7 @@ void RunAllSubsets(SearchContext& ctx) {
   ctx.Stop(SearchOutcome::kCompleted,
            "best of " + std::to_string(records.size()) + " kept subsets by " +
                ctx.criterion().ValueName() + ": " + names + " (" + ctx.criterion().ValueName() +
-               " " + Num(*records[*best].score) + ")");
+               " " + FormatCriterionValue(ctx.options().criterion, records[*best].score) + ")");
 }
 
 }  // namespace stepledger::selection_detail

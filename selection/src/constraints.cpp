@@ -16,7 +16,7 @@ std::string SearchContext::AliasReason(const Design& design, const GroupScore& s
   }
   if (columns.empty()) columns = "a column";
   return "column " + columns + " has relative norm " + Num(score.min_relative_norm) +
-         " after projection on the model, below alias_tolerance " + Num(tolerance);
+         " after projection on the model, below alias_tolerance " + Threshold(tolerance);
 }
 
 bool SearchContext::AtMaxTerms() const {

@@ -1,5 +1,7 @@
 #include "stepledger/selection/criterion.h"
 
+#include "stepledger/engine/number_format.h"
+
 #include <cmath>
 #include <sstream>
 
@@ -109,6 +111,10 @@ bool ScoresTie(double a, double b) {
   if (a == b) return true;  // also equal infinities
   if (!std::isfinite(a) || !std::isfinite(b)) return false;
   return std::fabs(a - b) <= kTieRelativeTolerance * std::max(std::fabs(a), std::fabs(b));
+}
+
+std::string FormatCriterionValue(Criterion criterion, std::optional<double> value) {
+  return FormatFixed(value, criterion == Criterion::kAdjR2 ? 4 : 2);
 }
 
 }  // namespace stepledger

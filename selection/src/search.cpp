@@ -7,10 +7,12 @@
 
 #include "search_internal.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 
 namespace stepledger {
 
 using selection_detail::Num;
+using selection_detail::Threshold;
 using selection_detail::SearchContext;
 
 void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds) {
@@ -21,15 +23,15 @@ void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thr
   }
   auto check_probability = [](const char* key, double value) {
     if (!(value > 0 && value < 1)) {
-      throw PlanError(key, std::string(key) + " must be in (0, 1); got " + Num(value));
+      throw PlanError(key, std::string(key) + " must be in (0, 1); got " + Threshold(value));
     }
   };
   check_probability("entry_p", options.entry_p);
   check_probability("exit_p", options.exit_p);
   if (!allow_cycling_thresholds && options.method == Method::kStepwise &&
       options.criterion == Criterion::kPartialF && options.entry_p > options.exit_p) {
-    throw PlanError("entry_p", "entry_p " + Num(options.entry_p) + " is above exit_p " +
-                                   Num(options.exit_p) +
+    throw PlanError("entry_p", "entry_p " + Threshold(options.entry_p) + " is above exit_p " +
+                                   Threshold(options.exit_p) +
                                    ": stepwise by partial F could add and remove the same term "
                                    "forever; make entry_p <= exit_p");
   }
@@ -131,7 +133,9 @@ SearchResult RunSearch(const Factor& factor, const Design& design, const SearchO
 
 namespace {
 
-std::string Optional(const std::optional<double>& value) { return value ? Num(*value) : "-"; }
+std::string Optional(Criterion criterion, const std::optional<double>& value) {
+  return value ? FormatCriterionValue(criterion, value) : "-";
+}
 
 std::string JoinNames(const std::vector<std::string>& names) {
   if (names.empty()) return "(none)";
@@ -151,8 +155,8 @@ std::string SearchResult::BriefReport() const {
   out << ToString(method) << " selection by " << ToString(criterion) << ": " << ToString(outcome)
       << "\n";
   out << "final terms (" << final_terms.size() << "): " << JoinNames(final_terms) << "\n";
-  out << ValueName(criterion) << " " << Optional(final_criterion_value) << ", RSS " << Num(final_rss)
-      << ", n " << Num(n) << "\n";
+  out << ValueName(criterion) << " " << Optional(criterion, final_criterion_value) << ", RSS "
+      << Num(final_rss) << ", n " << FormatCount(static_cast<std::int64_t>(n)) << "\n";
   out << "stop rule: " << stop_rule << "\n";
   return out.str();
 }
@@ -163,16 +167,21 @@ std::string SearchResult::FullReport() const {
   std::size_t term_width = 4;
   for (const auto& step : steps) term_width = std::max(term_width, step.term.size());
   const std::string value_name = ValueName(criterion);
-  out << "route (" << value_name << " before -> after)\n";
+  // Partial F decides by each move's F test: the route shows F and p, not the residual mean square.
+  const bool by_test = criterion == Criterion::kPartialF;
+  out << "route (" << (by_test ? std::string("F test of each move") : value_name + " before -> after") << ")\n";
   out << std::left << std::setw(5) << "step" << std::setw(8) << "action"
-      << std::setw(static_cast<int>(term_width + 2)) << "term" << std::setw(28) << "criterion"
+      << std::setw(static_cast<int>(term_width + 2)) << "term" << std::setw(28) << (by_test ? "F test" : "criterion")
       << "rule\n";
   for (const auto& step : steps) {
     std::string change;
-    if (step.action == StepAction::kAdd || step.action == StepAction::kRemove) {
-      change = Optional(step.criterion_before) + " -> " + Optional(step.criterion_value);
+    const bool move = step.action == StepAction::kAdd || step.action == StepAction::kRemove;
+    if (by_test) {
+      change = move ? "F = " + FormatStatistic(step.f) + ", " + PValueClause(step.p) : "";
+    } else if (move) {
+      change = Optional(criterion, step.criterion_before) + " -> " + Optional(criterion, step.criterion_value);
     } else {
-      change = Optional(step.criterion_value);
+      change = Optional(criterion, step.criterion_value);
     }
     out << std::left << std::setw(5) << step.index << std::setw(8) << ToString(step.action)
         << std::setw(static_cast<int>(term_width + 2)) << (step.term.empty() ? "." : step.term)
@@ -192,7 +201,7 @@ std::string SearchResult::FullReport() const {
         << std::setw(16) << value_name << "terms\n";
     for (const auto& subset : subsets) {
       out << std::left << std::setw(6) << subset.size << std::setw(6) << subset.rank_in_size
-          << std::setw(16) << Num(subset.rss) << std::setw(16) << Optional(subset.score)
+          << std::setw(16) << Num(subset.rss) << std::setw(16) << Optional(criterion, subset.score)
           << JoinNames(subset.terms) << "\n";
     }
   }

@@ -2,14 +2,24 @@
 #include <cmath>
 #include <sstream>
 
+#include "stepledger/engine/number_format.h"
 #include "search_internal.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger::selection_detail {
 
-std::string Num(double value) {
+std::string Num(double value) { return FormatQuantity(value, 6); }
+
+std::string Threshold(double value) {
+  // A plan setting as the plan states it (0.05, not 0.05000): the shortest text that reads back.
   std::ostringstream text;
-  text.precision(6);
+  text.precision(17);
+  for (int digits = 1; digits <= 17; ++digits) {
+    std::ostringstream candidate;
+    candidate.precision(digits);
+    candidate << value;
+    if (std::stod(candidate.str()) == value) return candidate.str();
+  }
   text << value;
   return text.str();
 }
@@ -228,7 +238,8 @@ void SearchContext::FinishCandidate(Move move, const PartialF& partial, double k
         const double n = criterion_context_.n;
         blocked = std::string(adding ? "entry" : "exit") + " p-value undefined: " +
                   (n <= k_tested ? std::string(adding ? "n <= k after adding" : "n <= k") + " (n = " +
-                                       Num(n) + ", k = " + Num(k_tested) + ")"
+                                       FormatCount(static_cast<std::int64_t>(n)) + ", k = " +
+                                       FormatCount(static_cast<std::int64_t>(k_tested)) + ")"
                                  : std::string("exact fit"));
       }
     } else if (!move.score.defined()) {
@@ -289,27 +300,30 @@ bool SearchContext::Improves(const Move& best, MoveAction action, std::string& r
     const double p = *best.view.p;
     if (action == MoveAction::kAdd) {
       const bool take = p < options_.entry_p;
-      rule = "entry p-value of " + best.view.term + " " + Num(p) + (take ? " < " : " >= ") +
-             "entry_p " + Num(options_.entry_p) + (take ? "" : ": no term enters");
+      rule = "entry p-value of " + best.view.term + " " + FormatPValue(p) +
+             (take ? ", below entry_p " : ", not below entry_p ") + Threshold(options_.entry_p) +
+             (take ? "" : ": no term enters");
       return take;
     }
     const bool take = p > options_.exit_p;
-    rule = "exit p-value of " + best.view.term + " " + Num(p) + (take ? " > " : " <= ") +
-           "exit_p " + Num(options_.exit_p) + (take ? "" : ": no term leaves");
+    rule = "exit p-value of " + best.view.term + " " + FormatPValue(p) +
+           (take ? ", above exit_p " : ", not above exit_p ") + Threshold(options_.exit_p) +
+           (take ? "" : ": no term leaves");
     return take;
   }
   const Score current = CurrentScore();
   const std::string name = criterion_->ValueName();
   const double after = criterion_->Reported(*best.score.value);
   if (!current.defined()) {
-    rule = verb + best.view.term + " gives " + name + " " + Num(after) +
+    rule = verb + best.view.term + " gives " + name + " " + FormatCriterionValue(options_.criterion, after) +
            " (the current model's is undefined: " + current.undefined_reason + ")";
     return true;
   }
   const double before = criterion_->Reported(*current.value);
   const bool take = *best.score.value < *current.value && !ScoresTie(*best.score.value, *current.value);
   rule = (take ? "" : "best move, ") + verb + best.view.term + ", takes " + name + " from " +
-         Num(before) + " to " + Num(after) + (take ? "" : ": no improvement");
+         FormatCriterionValue(options_.criterion, before) + " to " +
+         FormatCriterionValue(options_.criterion, after) + (take ? "" : ": no improvement");
   return take;
 }
 

@@ -27,7 +27,10 @@ struct Move {
 };
 
 /// Text of a number for rules and reasons (6 significant digits).
+/// A number in a message or rule, through the number policy (engine/number_format.h).
 std::string Num(double value);
+/// A plan setting (entry_p, exit_p) as the plan states it: the shortest text that reads back.
+std::string Threshold(double value);
 
 class SearchContext {
  public:

@@ -74,9 +74,12 @@ TEST(AuditFormatV1, ControlTheReplayComparesInTodaysNames) {
     SCOPED_TRACE(section);
     EXPECT_TRUE(FirstJsonDifference(recorded[section], fresh[section], section, 1e-9).has_value());
   }
-  const json current = AuditInCurrentShape(recorded);
+  json current = AuditInCurrentShape(recorded);
+  json fresh_content = fresh;
+  WithoutWording(current);  // rules and messages are each version's own wording
+  WithoutWording(fresh_content);
   for (const char* section : {"design", "model", "prediction", "cautions", "numerics", "search"}) {
-    EXPECT_EQ(FirstJsonDifference(current[section], fresh[section], section, 1e-9), std::nullopt);
+    EXPECT_EQ(FirstJsonDifference(current[section], fresh_content[section], section, 1e-9), std::nullopt);
   }
 }
 

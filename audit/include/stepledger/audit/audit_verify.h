@@ -85,6 +85,12 @@ std::optional<std::string> FirstJsonDifference(const nlohmann::json& recorded,
                                                const char* recorded_name = "in the audit",
                                                const char* replayed_name = "on replay");
 
+/// Removes the texts for people — the keys rule, stop_rule, message, reason and
+/// undefined_reason — everywhere in a document. A replay of an audit of an older format_version
+/// compares without them: their wording (and the number policy inside them) is the build's own,
+/// while every number and name they quote is compared in the fields that hold it.
+void WithoutWording(nlohmann::json& document);
+
 /// Numbers a and b agree to relative_tolerance (|a - b| <= tol * max(|a|, |b|)).
 bool NumbersAgree(double a, double b, double relative_tolerance);
 

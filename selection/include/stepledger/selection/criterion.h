@@ -76,4 +76,10 @@ inline constexpr double kTieRelativeTolerance = 1e-12;
 /// |a - b| <= kTieRelativeTolerance * max(|a|, |b|) (and both equal when both are 0).
 bool ScoresTie(double a, double b);
 
+/// A criterion value for people (route rules, route tables, reports): fixed point with a fixed
+/// number of decimals, so that the close values of two candidates stay apart — four for adjusted
+/// R² (a share), two for the others (AIC, BIC, Cp, residual mean square, CV error). "n/a" when
+/// undefined. (engine/number_format.h holds the rest of the policy.)
+std::string FormatCriterionValue(Criterion criterion, std::optional<double> value);
+
 }  // namespace stepledger
