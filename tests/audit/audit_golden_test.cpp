@@ -14,6 +14,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
 #include "support/audit_test_data.h"
+#include "support/golden_case.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -21,38 +22,8 @@ namespace {
 
 using nlohmann::json;
 
-// Sixteen invented laptops (no real brands): age in months, memory, condition grade, price.
-constexpr const char* kSmallData =
-    "age_months,ram_gb,grade,battery_cycles,price\n"
-    "6,16,A,120,1180\n"
-    "12,8,B,340,860\n"
-    "18,16,B,410,905\n"
-    "24,8,C,650,610\n"
-    "30,32,A,300,1215\n"
-    "36,8,B,720,640\n"
-    "9,4,C,150,720\n"
-    "15,16,A,260,1090\n"
-    "21,8,A,500,930\n"
-    "27,16,C,610,700\n"
-    "33,4,B,800,515\n"
-    "39,32,B,350,940\n"
-    "45,8,C,880,395\n"
-    "48,16,A,900,820\n"
-    "3,8,B,60,1010\n"
-    "54,4,C,950,300\n";
-
-constexpr const char* kSmallPlan = R"({
-  "response": "price",
-  "terms": [
-    {"name": "age", "column": "age_months"},
-    {"name": "ram", "column": "ram_gb"},
-    {"name": "grade", "categorical": "grade", "baseline": "B"},
-    {"name": "battery", "column": "battery_cycles"}
-  ],
-  "method": "forward",
-  "criterion": "aic"
-}
-)";
+using testing::kGoldenData;
+using testing::kGoldenPlan;
 
 constexpr const char* kMask = "<masked: time, build or digest>";
 
@@ -73,12 +44,11 @@ std::filesystem::path GoldenPath() {
 
 TEST(AuditGolden, SmallForwardAicMatchesTheGoldenFile) {
   testing::TempDir dir;
-  const auto data = dir.Write("golden.csv", kSmallData);
-  const auto audit = testing::WriteAuditWithLibrary(data, kSmallPlan, dir.path() / "out");
+  const auto data = dir.Write("golden.csv", kGoldenData);
+  const auto audit = testing::WriteAuditWithLibrary(data, kGoldenPlan, dir.path() / "out");
   const json actual = Masked(testing::ReadJsonFile(audit));
 
-  const char* update = std::getenv("STEPLEDGER_UPDATE_GOLDEN");
-  if (update != nullptr && std::string(update) == "1") {
+  if (testing::UpdatingGoldenFiles()) {
     std::filesystem::create_directories(GoldenPath().parent_path());
     testing::WriteJsonFile(GoldenPath(), actual);
     GTEST_SKIP() << "golden file rewritten: " << GoldenPath();

@@ -15,6 +15,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
+#include "support/golden_case.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -22,38 +23,8 @@ namespace {
 
 using nlohmann::json;
 
-// Sixteen invented laptops (no real brands): age in months, memory, condition grade, price.
-constexpr const char* kSmallData =
-    "age_months,ram_gb,grade,battery_cycles,price\n"
-    "6,16,A,120,1180\n"
-    "12,8,B,340,860\n"
-    "18,16,B,410,905\n"
-    "24,8,C,650,610\n"
-    "30,32,A,300,1215\n"
-    "36,8,B,720,640\n"
-    "9,4,C,150,720\n"
-    "15,16,A,260,1090\n"
-    "21,8,A,500,930\n"
-    "27,16,C,610,700\n"
-    "33,4,B,800,515\n"
-    "39,32,B,350,940\n"
-    "45,8,C,880,395\n"
-    "48,16,A,900,820\n"
-    "3,8,B,60,1010\n"
-    "54,4,C,950,300\n";
-
-constexpr const char* kSmallPlan = R"({
-  "response": "price",
-  "terms": [
-    {"name": "age", "column": "age_months"},
-    {"name": "ram", "column": "ram_gb"},
-    {"name": "grade", "categorical": "grade", "baseline": "B"},
-    {"name": "battery", "column": "battery_cycles"}
-  ],
-  "method": "forward",
-  "criterion": "aic"
-}
-)";
+using testing::kGoldenData;
+using testing::kGoldenPlan;
 
 constexpr const char* kMask = "MASKED";
 
@@ -89,15 +60,14 @@ class ReportGolden : public ::testing::TestWithParam<std::string> {};
 TEST_P(ReportGolden, MatchesTheGoldenFile) {
   const std::string format = GetParam();
   testing::TempDir dir;
-  const auto data = dir.Write("golden.csv", kSmallData);
-  const auto audit_path = testing::WriteAuditWithLibrary(data, kSmallPlan, dir.path() / "out");
+  const auto data = dir.Write("golden.csv", kGoldenData);
+  const auto audit_path = testing::WriteAuditWithLibrary(data, kGoldenPlan, dir.path() / "out");
   const json audit = ReadAuditFile(audit_path);
   const ReportDiagnostics diagnostics = DiagnoseAuditRows(audit, data, "audit.json");
   const ReportModel model = BuildReportModel(audit, &diagnostics);
   const std::string actual = Masked(format == "txt" ? RenderTextReport(model) : RenderHtmlReport(model), audit);
 
-  const char* update = std::getenv("STEPLEDGER_UPDATE_GOLDEN");
-  if (update != nullptr && std::string(update) == "1") {
+  if (testing::UpdatingGoldenFiles()) {
     std::filesystem::create_directories(GoldenPath(format).parent_path());
     std::ofstream(GoldenPath(format), std::ios::binary) << actual;
     GTEST_SKIP() << "golden file rewritten: " << GoldenPath(format);
