@@ -136,8 +136,10 @@ std::vector<Caution> ComputeCautions(const RunResult& run) {
 
   Caution association;
   association.kind = CautionKind::kAssociation;
+  // fit (method none) selects nothing; the caution speaks of the model's terms either way.
   association.message =
-      "A selected term is an association in these data, not a cause. In pricing, protected "
+      std::string(run.search.method == Method::kNone ? "A term of the model" : "A selected term") +
+      " is an association in these data, not a cause. In pricing, protected "
       "characteristics and their proxies must not be used; local law and professional standards "
       "govern.";
   cautions.push_back(std::move(association));
