@@ -7,6 +7,7 @@
 #include "report_internal.h"
 #include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/engine/number_format.h"
+#include "stepledger/selection/criterion.h"
 
 namespace stepledger {
 
@@ -18,6 +19,7 @@ const char* ToString(ValueKind kind) {
     case ValueKind::kStatistic: return "statistic";
     case ValueKind::kPValue: return "p-value";
     case ValueKind::kPercent: return "percent";
+    case ValueKind::kCriterion: return "criterion";
   }
   return "text";
 }
@@ -37,6 +39,11 @@ std::optional<double> Finite(std::optional<double> value) {
 
 ReportValue ReportValue::Quantity(std::optional<double> value, int significant) {
   return {ValueKind::kQuantity, Finite(value), FormatQuantity(value, significant)};
+}
+ReportValue ReportValue::CriterionValue(std::string_view criterion, std::optional<double> value) {
+  const std::optional<Criterion> kind = CriterionFromString(std::string(criterion));
+  return {ValueKind::kCriterion, Finite(value),
+          kind ? FormatCriterionValue(*kind, value) : FormatQuantity(value, report_detail::kCriterionDigits)};
 }
 ReportValue ReportValue::Statistic(std::optional<double> value) {
   return {ValueKind::kStatistic, Finite(value), FormatStatistic(value)};
@@ -82,7 +89,7 @@ ReportSection Summary(const json& audit) {
                                        Number(Get(model, "f_p")))}},
   };
   facts.push_back({IsPValueRule(criterion) ? "Residual mean square" : CriterionName(criterion),
-                   V::Quantity(Number(Get(search, "final_criterion_value")), kCriterionDigits)});
+                   V::CriterionValue(criterion, Number(Get(search, "final_criterion_value")))});
   facts.push_back({"Outcome", V::Text(OutcomeInWords(audit))});
   facts.push_back({"Stop rule", V::Text(Text(Get(search, "stop_rule")))});
   return {"summary", "Summary", {Facts(std::move(facts))}};
@@ -103,7 +110,7 @@ ReportSection Cautions(const json& audit) {
   return {"cautions", "Cautions for this run", {std::move(list)}};
 }
 
-ReportSection Plan(const json& audit) {
+ReportSection PlanSection(const json& audit) {
   ReportSection section{"plan", "The plan", {}};
   ReportList sentences;
   for (std::string& sentence : PlanSentences(audit)) sentences.items.push_back({"", std::move(sentence)});
@@ -180,8 +187,8 @@ ReportSection FinalModel(const json& audit) {
       {"Overall F test", V{ValueKind::kText, Number(Get(model, "f")),
                            FormatFTest(Number(Get(model, "f")), df_model.value_or(0), df_residual.value_or(0),
                                        Number(Get(model, "f_p")))}},
-      {"AIC", V::Quantity(Number(Get(model, "aic")), kCriterionDigits)},
-      {"BIC", V::Quantity(Number(Get(model, "bic")), kCriterionDigits)},
+      {"AIC", V::CriterionValue("aic", Number(Get(model, "aic")))},
+      {"BIC", V::CriterionValue("bic", Number(Get(model, "bic")))},
       {"Residual sum of squares", V::Quantity(Number(Get(model, "rss")), kCriterionDigits)},
       {"Regression sum of squares", V::Quantity(Number(ss_regression), kCriterionDigits)},
   }));
@@ -341,7 +348,7 @@ ReportModel BuildReportModel(const nlohmann::json& recorded, const ReportDiagnos
   model.has_diagnostics = diagnostics != nullptr;
   model.sections.push_back(Summary(audit));
   model.sections.push_back(Cautions(audit));
-  model.sections.push_back(Plan(audit));
+  model.sections.push_back(PlanSection(audit));
   model.sections.push_back(Data(audit, options));
   model.sections.push_back(RouteSection(audit));
   model.sections.push_back(CandidatesSection(audit));

@@ -29,7 +29,7 @@ void CandidateStep(const json& audit, const json& step, ReportSection& section) 
   table.caption = heading;
   table.folded = true;
   table.columns = {{"move", ValueKind::kText}, {"df", ValueKind::kCount}};
-  if (!p_rule) table.columns.push_back({CriterionName(criterion), ValueKind::kQuantity});
+  if (!p_rule) table.columns.push_back({CriterionName(criterion), ValueKind::kCriterion});
   table.columns.insert(table.columns.end(),
                        {{"F", ValueKind::kStatistic}, {"p", ValueKind::kPValue}, {"status", ValueKind::kText}});
   ReportChart chart;
@@ -51,14 +51,14 @@ void CandidateStep(const json& audit, const json& step, ReportSection& section) 
     const std::string status =
         !eligible ? "ineligible: " + Text(Get(candidate, "reason")) : (chosen ? "chosen" : "eligible");
     std::vector<ReportValue> row{V::Text(label), V::Count(Count(Get(candidate, "df")))};
-    if (!p_rule) row.push_back(V::Quantity(score, kCriterionDigits));
+    if (!p_rule) row.push_back(V::CriterionValue(criterion, score));
     row.insert(row.end(), {V::Statistic(f), V::PValue(p), V::Text(status)});
     table.rows.push_back(std::move(row));
     table.row_styles.push_back(!eligible ? "ineligible" : (chosen ? "chosen" : ""));
 
     const std::optional<double> value = p_rule ? MinusLog10(p) : score;
     std::string detail = label + ": ";
-    if (!p_rule) detail += CriterionName(criterion) + " " + FormatQuantity(score, kCriterionDigits) + ", ";
+    if (!p_rule) detail += CriterionName(criterion) + " " + V::CriterionValue(criterion, score).text + ", ";
     detail += "F " + FormatStatistic(f) + ", " + PValueClause(p);
     ChartPoint point;
     point.label = label;
@@ -127,8 +127,8 @@ ReportSection RouteSection(const json& audit) {
   } else {
     table.columns = {{"step", ValueKind::kCount},
                      {"move", ValueKind::kText},
-                     {value_name + " before", ValueKind::kQuantity},
-                     {value_name + " after", ValueKind::kQuantity},
+                     {value_name + " before", ValueKind::kCriterion},
+                     {value_name + " after", ValueKind::kCriterion},
                      {"rule", ValueKind::kText}};
   }
   ReportChart chart;
@@ -158,12 +158,12 @@ ReportSection RouteSection(const json& audit) {
     } else {
       const std::optional<double> value = Number(Get(step, "criterion_value"));
       table.rows.push_back({V::Count(index), V::Text(label),
-                            V::Quantity(Number(Get(step, "criterion_before")), kCriterionDigits),
-                            V::Quantity(value, kCriterionDigits), V::Text(Text(Get(step, "rule")))});
+                            V::CriterionValue(criterion, Number(Get(step, "criterion_before"))),
+                            V::CriterionValue(criterion, value), V::Text(Text(Get(step, "rule")))});
       point.defined = value.has_value();
       point.y = value.value_or(0);
       point.title = "step " + FormatCount(index.value_or(0)) + ": " + label + ", " + value_name + " " +
-                    FormatQuantity(value, kCriterionDigits);
+                    V::CriterionValue(criterion, value).text;
     }
     table.row_styles.push_back("");
     series.points.push_back(std::move(point));
@@ -236,7 +236,7 @@ std::optional<ReportSection> SubsetsSection(const json& audit) {
       point.y = entry.score;
       point.css_class = chosen ? "subset-best chosen" : "subset-best";
       point.title = FormatCount(entry.size) + " terms: " + (terms.empty() ? "(intercept only)" : terms) + "; " +
-                    value_name + " " + FormatQuantity(entry.score, kCriterionDigits);
+                    value_name + " " + V::CriterionValue(criterion, entry.score).text;
       series.points.push_back(std::move(point));
     }
     chart.series.push_back(std::move(series));
@@ -247,12 +247,12 @@ std::optional<ReportSection> SubsetsSection(const json& audit) {
   table.columns = {{"size", ValueKind::kCount},
                    {"rank", ValueKind::kCount},
                    {"RSS", ValueKind::kQuantity},
-                   {value_name, ValueKind::kQuantity},
+                   {value_name, ValueKind::kCriterion},
                    {"terms", ValueKind::kText}};
   for (const json& subset : audit["subsets"]) {
     table.rows.push_back({V::Count(Count(Get(subset, "size"))), V::Count(Count(Get(subset, "rank"))),
                           V::Quantity(Number(Get(subset, "rss")), kCriterionDigits),
-                          V::Quantity(Number(Get(subset, "score")), kCriterionDigits),
+                          V::CriterionValue(criterion, Number(Get(subset, "score"))),
                           V::Text(JoinTerms(Get(subset, "terms")))});
   }
   section.blocks.push_back(std::move(table));

@@ -93,6 +93,7 @@ enum class ValueKind {
   kStatistic,  ///< FormatStatistic: F, t with two decimals
   kPValue,     ///< FormatPValue: "0.0321", "< 0.0001"
   kPercent,    ///< FormatPercent: "12.5%"
+  kCriterion,  ///< FormatCriterionValue: fixed decimals, as the route's rules print it
 };
 const char* ToString(ValueKind kind);
 
@@ -109,6 +110,9 @@ struct ReportValue {
   static ReportValue Statistic(std::optional<double> value);
   static ReportValue PValue(std::optional<double> value);
   static ReportValue Percent(std::optional<double> share);
+  /// A criterion value as the route's rules print it (selection/criterion.h
+  /// FormatCriterionValue); criterion is the plan's code ("bic", "adj-r2", ...).
+  static ReportValue CriterionValue(std::string_view criterion, std::optional<double> value);
 };
 
 struct ReportFact {
