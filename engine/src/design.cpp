@@ -9,6 +9,7 @@
 #include <string_view>
 #include <utility>
 
+#include "design_quote.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger {
@@ -44,11 +45,8 @@ namespace {
 
 constexpr const char* kInterceptName = "intercept";
 
-std::string Quote(std::string_view text) { return "'" + QuoteForMessage(text) + "'"; }
-// File names are quoted whole: a shortened path does not say which file.
-std::string QuotePath(const std::filesystem::path& path) {
-  return "'" + QuoteForMessage(path.string(), 4096) + "'";
-}
+using design_detail::Quote;
+using design_detail::QuotePath;
 
 std::string TermKey(const TermSpec& term, std::size_t index) {
   return term.key_path.empty() ? "terms[" + std::to_string(index) + "]" : term.key_path;
@@ -374,15 +372,20 @@ void ValidateDesignSpec(const DesignSpec& spec) {
   }
 }
 
-Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
-  ValidateDesignSpec(spec);
-  Design design;
-  design.response = spec.response;
-  design.response_transform = spec.response_transform;
-  design.intercept = spec.intercept;
-  design.weights = spec.weights;
-  design.source.file_name = profile.path.string();
+namespace {
 
+using TermsByName = std::map<std::string, std::size_t, std::less<>>;
+
+struct ResponseColumns {
+  const ColumnProfile* response = nullptr;
+  const ColumnProfile* weights = nullptr;  // null without weights
+};
+
+// The response and the weights come first: their errors are reported before any term's, and
+// the response scale depends on the transform only.
+ResponseColumns ResolveResponseAndWeights(const DesignSpec& spec, const DataProfile& profile,
+                                          Design& design) {
+  ResponseColumns found;
   const ColumnProfile& response = RequireColumn(profile, spec.response, "response");
   RequireNumeric(profile, response, "response", "response");
   if (spec.response_transform == ResponseTransform::kLog) {
@@ -390,18 +393,80 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
   } else {
     design.response_scale = ScaleForBound(AbsoluteBound(response));
   }
-  const ColumnProfile* weights = nullptr;
+  found.response = &response;
   if (spec.weights) {
-    weights = &RequireColumn(profile, *spec.weights, "weights");
-    RequireNumeric(profile, *weights, "weights", "weights");
+    found.weights = &RequireColumn(profile, *spec.weights, "weights");
+    RequireNumeric(profile, *found.weights, "weights", "weights");
   }
+  return found;
+}
 
-  const std::vector<TermSpec> specs =
-      spec.all_terms ? AllTermsFromProfile(spec, profile, design.skipped) : spec.terms;
-  std::map<std::string, std::size_t, std::less<>> by_name;
-  for (std::size_t i = 0; i < specs.size(); ++i) by_name.emplace(specs[i].name, i);
-  const std::vector<std::size_t> order = EvaluationOrder(specs);
+// A product's columns pair every column of its first part with every column of its second;
+// its parts are already built (evaluation order). First part's columns vary slowest.
+void ExpandProduct(const TermSpec& term_spec, const TermsByName& by_name,
+                   const std::vector<PendingTerm>& pending, PendingTerm& built) {
+  const PendingTerm& first = pending[by_name.at(term_spec.parts[0])];
+  const PendingTerm& second = pending[by_name.at(term_spec.parts[1])];
+  built.term.parts = {by_name.at(term_spec.parts[0]), by_name.at(term_spec.parts[1])};
+  for (std::size_t a = 0; a < first.column_names.size(); ++a) {
+    for (std::size_t b = 0; b < second.column_names.size(); ++b) {
+      built.column_names.push_back(first.column_names[a] + ":" + second.column_names[b]);
+      built.bounds.push_back(first.bounds[a] * second.bounds[b]);
+    }
+  }
+}
 
+// A term read from one data column: the checks its kind needs of that column, then its design
+// columns with the bounds that set their scales.
+void ExpandSourceTerm(const DesignSpec& spec, const TermSpec& term_spec, const std::string& key,
+                      const DataProfile& profile, PendingTerm& built) {
+  DesignTerm& term = built.term;
+  const std::string source_key = key + SourceKeySuffix(term_spec.kind);
+  const ColumnProfile& column = RequireColumn(profile, term_spec.column, source_key);
+  if (column.name == spec.response) {
+    throw PlanError(source_key, "term " + Quote(term_spec.name) + " uses the response column " +
+                                    Quote(column.name));
+  }
+  term.source_column = column.name;
+  built.header_index = static_cast<std::ptrdiff_t>(column.index);
+  switch (term_spec.kind) {
+    case TermKind::kNumeric:
+      if (column.kind == ColumnKind::kCategorical) {
+        throw PlanError(source_key, "column " + Quote(column.name) + " is not numeric (" +
+                                        FirstText(profile, column) +
+                                        "); for a categorical term write \"categorical\": \"" +
+                                        column.name + "\" instead of \"column\"");
+      }
+      RequireNumeric(profile, column, source_key, "column");
+      built.column_names.push_back(term.name);
+      built.bounds.push_back(AbsoluteBound(column));
+      break;
+    case TermKind::kPower: {
+      RequireNumeric(profile, column, source_key, "column");
+      built.column_names.push_back(term.name);
+      built.bounds.push_back(static_cast<double>(
+          std::pow(static_cast<long double>(AbsoluteBound(column)), term_spec.degree)));
+      break;
+    }
+    case TermKind::kLog:
+      RequireNumeric(profile, column, source_key, "column");
+      built.column_names.push_back(term.name);
+      built.bounds.push_back(LogBound(column));
+      break;
+    case TermKind::kCategorical:
+      BuildCategorical(term_spec, key, column, spec.max_levels, built);
+      break;
+    case TermKind::kProduct:
+      break;
+  }
+}
+
+// Every term expanded into its design columns, in evaluation order (a product after its parts)
+// so that errors come in that order too; the result is indexed in plan order.
+std::vector<PendingTerm> ExpandTerms(const DesignSpec& spec, const std::vector<TermSpec>& specs,
+                                     const TermsByName& by_name,
+                                     const std::vector<std::size_t>& order,
+                                     const DataProfile& profile) {
   std::vector<PendingTerm> pending(specs.size());
   for (std::size_t index : order) {
     const TermSpec& term_spec = specs[index];
@@ -412,62 +477,17 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
     term.kind = term_spec.kind;
     term.key_path = key;
     term.degree = term_spec.kind == TermKind::kPower ? term_spec.degree : 1;
-
     if (term_spec.kind == TermKind::kProduct) {
-      const PendingTerm& first = pending[by_name.at(term_spec.parts[0])];
-      const PendingTerm& second = pending[by_name.at(term_spec.parts[1])];
-      term.parts = {by_name.at(term_spec.parts[0]), by_name.at(term_spec.parts[1])};
-      // First part's columns vary slowest.
-      for (std::size_t a = 0; a < first.column_names.size(); ++a) {
-        for (std::size_t b = 0; b < second.column_names.size(); ++b) {
-          built.column_names.push_back(first.column_names[a] + ":" + second.column_names[b]);
-          built.bounds.push_back(first.bounds[a] * second.bounds[b]);
-        }
-      }
-      continue;
-    }
-
-    const std::string source_key = key + SourceKeySuffix(term_spec.kind);
-    const ColumnProfile& column = RequireColumn(profile, term_spec.column, source_key);
-    if (column.name == spec.response) {
-      throw PlanError(source_key, "term " + Quote(term_spec.name) + " uses the response column " +
-                                      Quote(column.name));
-    }
-    term.source_column = column.name;
-    built.header_index = static_cast<std::ptrdiff_t>(column.index);
-    switch (term_spec.kind) {
-      case TermKind::kNumeric:
-        if (column.kind == ColumnKind::kCategorical) {
-          throw PlanError(source_key, "column " + Quote(column.name) + " is not numeric (" +
-                                          FirstText(profile, column) +
-                                          "); for a categorical term write \"categorical\": \"" +
-                                          column.name + "\" instead of \"column\"");
-        }
-        RequireNumeric(profile, column, source_key, "column");
-        built.column_names.push_back(term.name);
-        built.bounds.push_back(AbsoluteBound(column));
-        break;
-      case TermKind::kPower: {
-        RequireNumeric(profile, column, source_key, "column");
-        built.column_names.push_back(term.name);
-        built.bounds.push_back(static_cast<double>(
-            std::pow(static_cast<long double>(AbsoluteBound(column)), term_spec.degree)));
-        break;
-      }
-      case TermKind::kLog:
-        RequireNumeric(profile, column, source_key, "column");
-        built.column_names.push_back(term.name);
-        built.bounds.push_back(LogBound(column));
-        break;
-      case TermKind::kCategorical:
-        BuildCategorical(term_spec, key, column, spec.max_levels, built);
-        break;
-      case TermKind::kProduct:
-        break;
+      ExpandProduct(term_spec, by_name, pending, built);
+    } else {
+      ExpandSourceTerm(spec, term_spec, key, profile, built);
     }
   }
+  return pending;
+}
 
-  // Hierarchy parts of powers: the numeric term and the lower powers on the same column.
+// Hierarchy parts of powers: the numeric term and the lower powers on the same column.
+void LinkPowerHierarchy(const std::vector<TermSpec>& specs, std::vector<PendingTerm>& pending) {
   for (std::size_t i = 0; i < specs.size(); ++i) {
     if (specs[i].kind != TermKind::kPower) continue;
     for (std::size_t j = 0; j < specs.size(); ++j) {
@@ -478,8 +498,12 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
       }
     }
   }
+}
 
-  // Lay the columns out in plan order.
+// Lays the columns out in plan order (the intercept first) and refuses two design columns of
+// the same name: a name must say which coefficient it is in every report and audit.
+void LayOutColumns(const DesignSpec& spec, const std::vector<TermSpec>& specs,
+                   std::vector<PendingTerm>& pending, Design& design) {
   std::map<std::string, std::size_t, std::less<>> column_owner;  // column name -> term (or kNoTerm)
   if (spec.intercept) {
     design.columns.push_back({kInterceptName, kNoTerm, 1.0});
@@ -502,8 +526,13 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
       design.columns.push_back({name, i, ScaleForBound(pending[i].bounds[c])});
     }
   }
+}
 
-  // The cells Expand reads, in the order of the drop reasons.
+// The cells Expand reads, in the order of the drop reasons, and the finished terms (moved out
+// of `pending`).
+void RecordSourceCells(const std::vector<TermSpec>& specs, const std::vector<std::size_t>& order,
+                       const ResponseColumns& columns, std::vector<PendingTerm>& pending,
+                       Design& design) {
   Design::Source& source = design.source;
   auto add_cell = [&](std::ptrdiff_t header_index, const std::string& name, bool categorical,
                       std::size_t term) -> std::ptrdiff_t {
@@ -515,11 +544,11 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
     source.cells.push_back({header_index, name, categorical, term});
     return static_cast<std::ptrdiff_t>(source.cells.size() - 1);
   };
-  source.response = static_cast<std::ptrdiff_t>(response.index);
-  source.response_cell = add_cell(source.response, response.name, false, kNoTerm);
-  if (weights != nullptr) {
-    source.weights = static_cast<std::ptrdiff_t>(weights->index);
-    source.weights_cell = add_cell(source.weights, weights->name, false, kNoTerm);
+  source.response = static_cast<std::ptrdiff_t>(columns.response->index);
+  source.response_cell = add_cell(source.response, columns.response->name, false, kNoTerm);
+  if (columns.weights != nullptr) {
+    source.weights = static_cast<std::ptrdiff_t>(columns.weights->index);
+    source.weights_cell = add_cell(source.weights, columns.weights->name, false, kNoTerm);
   }
   for (std::size_t i = 0; i < specs.size(); ++i) {
     source.term_column.push_back(pending[i].header_index);
@@ -534,190 +563,31 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
     design.terms.push_back(std::move(pending[i].term));
   }
   source.evaluation_order = order;
+}
+
+}  // namespace
+
+Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
+  ValidateDesignSpec(spec);
+  Design design;
+  design.response = spec.response;
+  design.response_transform = spec.response_transform;
+  design.intercept = spec.intercept;
+  design.weights = spec.weights;
+  design.source.file_name = profile.path.string();
+
+  const ResponseColumns columns = ResolveResponseAndWeights(spec, profile, design);
+  const std::vector<TermSpec> specs =
+      spec.all_terms ? AllTermsFromProfile(spec, profile, design.skipped) : spec.terms;
+  TermsByName by_name;
+  for (std::size_t i = 0; i < specs.size(); ++i) by_name.emplace(specs[i].name, i);
+  const std::vector<std::size_t> order = EvaluationOrder(specs);
+
+  std::vector<PendingTerm> pending = ExpandTerms(spec, specs, by_name, order, profile);
+  LinkPowerHierarchy(specs, pending);
+  LayOutColumns(spec, specs, pending, design);
+  RecordSourceCells(specs, order, columns, pending, design);
   return design;
-}
-
-std::size_t Design::FindTerm(std::string_view name) const {
-  for (std::size_t i = 0; i < terms.size(); ++i) {
-    if (terms[i].name == name) return i;
-  }
-  return kNoTerm;
-}
-
-std::vector<std::size_t> Design::TermColumns(std::size_t term) const {
-  std::vector<std::size_t> indices;
-  if (term >= terms.size()) return indices;
-  for (std::size_t c = 0; c < terms[term].column_count; ++c) {
-    indices.push_back(terms[term].first_column + c);
-  }
-  return indices;
-}
-
-std::vector<double> Design::scales() const {
-  std::vector<double> result;
-  result.reserve(columns.size() + 1);
-  for (const auto& column : columns) result.push_back(column.scale);
-  result.push_back(response_scale);
-  return result;
-}
-
-void Design::CheckHeader(const CsvReader& reader) const {
-  for (const auto& cell : source.cells) {
-    const std::ptrdiff_t found = reader.ColumnIndex(cell.column_name);
-    if (found != cell.header_index) {
-      const std::string now = found < 0 ? std::string("is missing from the header")
-                                        : "is now column " + std::to_string(found + 1);
-      throw InputError(reader.path().string() + ": column " + Quote(cell.column_name) + " " + now +
-                       ", but it was column " + std::to_string(cell.header_index + 1) +
-                       " when the design was built from " + QuotePath(source.file_name) +
-                       "; the data changed since they were profiled");
-    }
-  }
-}
-
-bool Design::HasLowOrderParts() const {
-  return std::any_of(terms.begin(), terms.end(),
-                     [](const DesignTerm& term) { return term.kind == TermKind::kPower; });
-}
-
-RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std::span<double> x,
-                          double& y, double& w, std::span<double> x_low) const {
-  // Per-thread scratch: grows once, so a row costs no heap allocation.
-  thread_local std::vector<double> cell_values;
-  thread_local std::vector<std::size_t> cell_levels;
-  const std::size_t cell_count = source.cells.size();
-  if (cell_values.size() < cell_count) {
-    cell_values.resize(cell_count);
-    cell_levels.resize(cell_count);
-  }
-  const std::vector<std::string>& missing_tokens = reader.options().missing_tokens;
-  // The first cell that drops the row, and why.
-  const Source::Cell* dropping_cell = nullptr;
-  DropReason reason = DropReason::kMissing;
-
-  for (std::size_t c = 0; c < cell_count; ++c) {
-    const Source::Cell& cell = source.cells[c];
-    const CsvField& field = record.fields[static_cast<std::size_t>(cell.header_index)];
-    double value = 0;
-    const CellKind kind = ClassifyCell(field.text, missing_tokens, value);
-    if (kind == CellKind::kMissing) {
-      if (dropping_cell == nullptr) dropping_cell = &cell;
-      continue;
-    }
-    if (cell.categorical) {
-      const auto& levels = source.level_index[cell.term];
-      const auto level = levels.find(field.text);
-      if (level == levels.end()) {
-        throw InputError(reader.Where(field) + ": level " + Quote(field.text) + " of column " +
-                         Quote(cell.column_name) +
-                         " was not in the data when the design was built");
-      }
-      cell_levels[c] = level->second;
-      continue;
-    }
-    if (kind == CellKind::kNonFinite) {
-      throw InputError(reader.Where(field) + ": column " + Quote(cell.column_name) +
-                       " holds the non-finite number " + Quote(field.text) +
-                       "; values must be finite");
-    }
-    if (kind != CellKind::kNumber) {
-      throw InputError(reader.Where(field) + ": column " + Quote(cell.column_name) +
-                       " is numeric, but this cell holds " + Quote(field.text));
-    }
-    if (static_cast<std::ptrdiff_t>(c) == source.weights_cell) {
-      if (value < 0) {
-        throw InputError(reader.Where(field) + ": weight " + Quote(field.text) + " in column " +
-                         Quote(cell.column_name) + " is negative; precision weights must be >= 0");
-      }
-      if (value == 0 && dropping_cell == nullptr) {
-        dropping_cell = &cell;
-        reason = DropReason::kZeroWeight;
-      }
-    }
-    cell_values[c] = value;
-  }
-  if (dropping_cell != nullptr) return RowOutcome{false, reason, dropping_cell->column_name};
-
-  double response_value = cell_values[static_cast<std::size_t>(source.response_cell)];
-  if (response_transform == ResponseTransform::kLog) {
-    if (!(response_value > 0)) {
-      const CsvField& field = record.fields[static_cast<std::size_t>(source.response)];
-      throw InputError(reader.Where(field) + ": response " + Quote(response) + " is " +
-                       Quote(field.text) + " in data row " + std::to_string(record.row_index + 1) +
-                       ", but response_transform \"log\" needs positive values");
-    }
-    response_value = std::log(response_value);
-  }
-  y = response_value;
-  w = source.weights_cell >= 0 ? cell_values[static_cast<std::size_t>(source.weights_cell)] : 1.0;
-
-  const std::size_t bad_log_term = EvaluateTerms(std::span<const double>(cell_values.data(), cell_count),
-                                                 std::span<const std::size_t>(cell_levels.data(), cell_count),
-                                                 x, x_low);
-  if (bad_log_term != kNoTerm) {
-    const DesignTerm& term = terms[bad_log_term];
-    const auto cell = static_cast<std::size_t>(source.term_cell[bad_log_term]);
-    const CsvField& field = record.fields[static_cast<std::size_t>(source.cells[cell].header_index)];
-    throw InputError(reader.Where(field) + ": log term " + Quote(term.name) + " of column " +
-                     Quote(term.source_column) + " needs a positive value, found " +
-                     Quote(field.text));
-  }
-  RowOutcome outcome;
-  outcome.used = true;
-  return outcome;
-}
-
-std::size_t Design::EvaluateTerms(std::span<const double> cell_values,
-                                  std::span<const std::size_t> cell_levels, std::span<double> x,
-                                  std::span<double> x_low) const {
-  if (!x_low.empty()) std::fill(x_low.begin(), x_low.end(), 0.0);
-  if (intercept) x[0] = 1.0;
-  for (const std::size_t t : source.evaluation_order) {
-    const DesignTerm& term = terms[t];
-    double* out = x.data() + term.first_column;
-    const std::ptrdiff_t cell = source.term_cell[t];
-    switch (term.kind) {
-      case TermKind::kNumeric:
-        out[0] = cell_values[static_cast<std::size_t>(cell)];
-        break;
-      case TermKind::kPower: {
-        // Repeated products in long double, rounded once to double.
-        const long double base = cell_values[static_cast<std::size_t>(cell)];
-        long double power = base;
-        for (int d = 1; d < term.degree; ++d) power *= base;
-        out[0] = static_cast<double>(power);
-        if (!x_low.empty()) {
-          x_low[term.first_column] = static_cast<double>(power - static_cast<long double>(out[0]));
-        }
-        break;
-      }
-      case TermKind::kLog: {
-        const double value = cell_values[static_cast<std::size_t>(cell)];
-        if (!(value > 0)) return t;
-        out[0] = std::log(value);
-        break;
-      }
-      case TermKind::kCategorical: {
-        std::fill(out, out + term.column_count, 0.0);
-        const std::size_t offset = cell_levels[static_cast<std::size_t>(cell)];
-        if (offset != kNoTerm) out[offset] = 1.0;
-        break;
-      }
-      case TermKind::kProduct: {
-        const DesignTerm& first = terms[term.parts[0]];
-        const DesignTerm& second = terms[term.parts[1]];
-        const double* a = x.data() + first.first_column;
-        const double* b = x.data() + second.first_column;
-        for (std::size_t i = 0; i < first.column_count; ++i) {
-          for (std::size_t j = 0; j < second.column_count; ++j) {
-            out[i * second.column_count + j] = a[i] * b[j];
-          }
-        }
-        break;
-      }
-    }
-  }
-  return kNoTerm;
 }
 
 }  // namespace stepledger

@@ -1,11 +1,8 @@
 #include "stepledger/engine/fit.h"
 
-#include "stepledger/engine/number_format.h"
-
 #include <algorithm>
 #include <cassert>
 #include <cmath>
-#include <iomanip>
 #include <limits>
 #include <sstream>
 #include <stdexcept>
@@ -90,15 +87,16 @@ struct Refinement {
 
 // The corrected semi-normal equations (Bjorck): each pass over the rows accumulates
 // r = y - X b and g = X'W r in double-double, then b += (R'R)^-1 g. The first pass also
-// accumulates A = X'WX in double-double, with which (X'WX)^-1 is refined in memory by
-// C += (R'R)^-1 (I - A C). Everything is in the factor's scaled units (exact powers of two).
-Refinement Refine(const arma::mat& triangle, const std::vector<std::size_t>& columns,
-                  const std::vector<double>& column_scales, double y_scale, bool intercept,
-                  double y_shift, arma::vec beta, arma::mat inverse, std::uint64_t factor_rows,
-                  const FitOptions& options, const RowReplay& replay) {
+// accumulates A = X'WX in double-double (upper triangle into `gram`, for RefineInverse) and the
+// total sum of squares. Kept apart from the inverse's refinement because only this phase reads
+// the rows: it is the one whose cost grows with the data.
+void RefineEstimates(const arma::mat& triangle, const std::vector<std::size_t>& columns,
+                     const std::vector<double>& column_scales, double y_scale, bool intercept,
+                     double y_shift, arma::vec beta, std::uint64_t factor_rows,
+                     const FitOptions& options, const RowReplay& replay,
+                     std::vector<DoubleDouble>& gram, Refinement& out) {
   const std::size_t k = columns.size();
-  Refinement out;
-  std::vector<DoubleDouble> gram(k * k);
+  gram.assign(k * k, DoubleDouble{});
   DoubleDouble weight_sum, shifted_sum, shifted_squares;
   std::vector<DoubleDouble> x(k);
   double previous_correction = std::numeric_limits<double>::infinity();
@@ -167,8 +165,14 @@ Refinement Refine(const arma::mat& triangle, const std::vector<std::size_t>& col
     if (correction < options.refinement_tolerance) break;
   }
   out.beta = beta;
+}
 
-  // Iterative refinement of the inverse against the double-double Gram matrix.
+// (X'WX)^-1 refined in memory against the double-double Gram matrix by C += (R'R)^-1 (I - A C):
+// no pass over the rows, so it is separate from RefineEstimates. `gram` holds the upper
+// triangle on entry; it is mirrored here.
+arma::mat RefineInverse(const arma::mat& triangle, std::vector<DoubleDouble>& gram, arma::mat inverse,
+                        const FitOptions& options) {
+  const std::size_t k = inverse.n_rows;
   for (std::size_t i = 0; i < k; ++i)
     for (std::size_t j = 0; j < i; ++j) gram[i * k + j] = gram[j * k + i];
   for (int iteration = 0; iteration < options.max_refinement_passes; ++iteration) {
@@ -191,7 +195,19 @@ Refinement Refine(const arma::mat& triangle, const std::vector<std::size_t>& col
     inverse += residual;
     if (correction < options.refinement_tolerance) break;
   }
-  out.inverse = 0.5 * (inverse + inverse.t());
+  return 0.5 * (inverse + inverse.t());
+}
+
+// Both refinements, in the factor's scaled units (exact powers of two).
+Refinement Refine(const arma::mat& triangle, const std::vector<std::size_t>& columns,
+                  const std::vector<double>& column_scales, double y_scale, bool intercept,
+                  double y_shift, arma::vec beta, arma::mat inverse, std::uint64_t factor_rows,
+                  const FitOptions& options, const RowReplay& replay) {
+  Refinement out;
+  std::vector<DoubleDouble> gram;
+  RefineEstimates(triangle, columns, column_scales, y_scale, intercept, y_shift, std::move(beta),
+                  factor_rows, options, replay, gram, out);
+  out.inverse = RefineInverse(triangle, gram, std::move(inverse), options);
   return out;
 }
 
@@ -200,35 +216,6 @@ std::optional<double> Defined(double value) {
   return value;
 }
 
-// ---- text layout ---------------------------------------------------------------------------
-
-// People read these reports: every number through the one policy (engine/number_format.h).
-std::string Number(const std::optional<double>& value, int digits = 6) {
-  return FormatQuantity(value, digits);
-}
-std::string PValue(const std::optional<double>& p) { return FormatPValue(p); }
-
-// Columns of text: the first `left_columns` left-aligned (names), the rest right-aligned.
-std::string Layout(const std::vector<std::vector<std::string>>& rows, std::size_t left_columns,
-                   const std::string& indent = "  ") {
-  std::vector<std::size_t> widths;
-  for (const auto& row : rows) {
-    widths.resize(std::max(widths.size(), row.size()));
-    for (std::size_t c = 0; c < row.size(); ++c) widths[c] = std::max(widths[c], row[c].size());
-  }
-  std::ostringstream text;
-  for (const auto& row : rows) {
-    std::string line = indent;
-    for (std::size_t c = 0; c < row.size(); ++c) {
-      if (c > 0) line += "  ";
-      const std::string padding(widths[c] - row[c].size(), ' ');
-      line += c < left_columns ? row[c] + padding : padding + row[c];
-    }
-    while (!line.empty() && line.back() == ' ') line.pop_back();
-    text << line << '\n';
-  }
-  return text.str();
-}
 
 }  // namespace
 
@@ -254,24 +241,22 @@ void FitOptions::Validate() const {
   kernel.Validate();
 }
 
-FitResult FitModel(const Factor& factor, const Design& design,
-                   std::span<const std::size_t> term_indices, const FitOptions& options,
-                   const RowReplay* replay) {
-  options.Validate();
-  if (factor.column_count() != design.column_count()) {
-    throw std::invalid_argument("FitModel: the factor has " + std::to_string(factor.column_count()) +
-                                " design columns, the design " + std::to_string(design.column_count()));
-  }
-  FitResult fit;
-  fit.intercept = design.intercept;
-  fit.n = factor.rows;
-  fit.weight_sum = factor.weight_sum;
-  fit.log_weight_sum = factor.log_weight_sum;
-  fit.confidence_level = options.confidence_level;
-  fit.alias_tolerance = options.kernel.alias_tolerance;
+namespace {
 
-  ModelState state(factor, options.kernel);
+// What the factor solve leaves for the later phases besides the FitResult fields it sets.
+struct SequentialSolve {
   std::vector<std::string> column_terms;  // owning term's name per estimated column
+  std::vector<AnovaRow> term_rows;        // sequential sums of squares, no F test yet
+};
+
+// The intercept then each term's columns go into the model in order, aliased columns left out;
+// the drop in RSS as each term enters is its sequential sum of squares. Then the model is
+// solved from the factor alone: columns, R11, beta, (X'WX)^-1, RSS and TSS of `fit`.
+SequentialSolve SolveFromFactor(const Factor& factor, const Design& design,
+                                std::span<const std::size_t> term_indices,
+                                const FitOptions& options, FitResult& fit) {
+  SequentialSolve solve;
+  ModelState state(factor, options.kernel);
   auto try_add = [&](std::size_t column, const std::string& term) {
     if (state.IsAliased(column)) {
       fit.aliased_columns.push_back(design.columns[column].name);
@@ -280,7 +265,7 @@ FitResult FitModel(const Factor& factor, const Design& design,
     const std::size_t single[] = {column};
     state.Add(single);
     fit.columns.push_back(column);
-    column_terms.push_back(term);
+    solve.column_terms.push_back(term);
     return true;
   };
   if (design.intercept) {
@@ -291,7 +276,6 @@ FitResult FitModel(const Factor& factor, const Design& design,
   }
   const double tss_from_factor = state.Rss();  // about the mean with an intercept, else about zero
   double rss_before = tss_from_factor;
-  std::vector<AnovaRow> term_rows;
   for (std::size_t term_index : term_indices) {
     if (term_index >= design.terms.size()) {
       throw std::invalid_argument("FitModel: term index " + std::to_string(term_index) +
@@ -312,13 +296,12 @@ FitResult FitModel(const Factor& factor, const Design& design,
     row.source = term.name;
     row.df = df;
     row.ss = std::max(0.0, rss_before - rss_after);
-    term_rows.push_back(row);
+    solve.term_rows.push_back(row);
     rss_before = rss_after;
   }
 
   const ModelSolution solution = state.Solve();
-  const std::size_t k = fit.columns.size();
-  fit.k = k;
+  fit.k = fit.columns.size();
   fit.rcond = solution.rcond;
   fit.model_triangle = state.ModelTriangle();
   for (std::size_t column : fit.columns) fit.model_scales.push_back(factor.scales[column]);
@@ -327,41 +310,52 @@ FitResult FitModel(const Factor& factor, const Design& design,
   fit.xtwx_inverse = solution.xtwx_inverse;
   fit.rss = solution.rss;
   fit.tss = tss_from_factor;
+  return solve;
+}
 
-  if (replay != nullptr && *replay && options.max_refinement_passes > 0 && k > 0) {
-    const double y_scale = factor.scales.back();
-    arma::vec beta_scaled(k);
-    arma::mat inverse_scaled(k, k);
-    for (std::size_t i = 0; i < k; ++i) {
-      beta_scaled(i) = fit.beta(i) * y_scale / fit.model_scales[i];
-      for (std::size_t j = 0; j < k; ++j) {
-        inverse_scaled(i, j) = fit.xtwx_inverse(i, j) / (fit.model_scales[i] * fit.model_scales[j]);
-      }
+// Replaces beta, (X'WX)^-1, RSS and TSS from the factor by their refined values (see Refine):
+// the factor alone leaves digits to cancellation when the design is ill-conditioned. Converts
+// to the factor's scaled units and back.
+void RefineAgainstRows(const Factor& factor, const Design& design, const FitOptions& options,
+                       const RowReplay& replay, FitResult& fit) {
+  const std::size_t k = fit.k;
+  const double y_scale = factor.scales.back();
+  arma::vec beta_scaled(k);
+  arma::mat inverse_scaled(k, k);
+  for (std::size_t i = 0; i < k; ++i) {
+    beta_scaled(i) = fit.beta(i) * y_scale / fit.model_scales[i];
+    for (std::size_t j = 0; j < k; ++j) {
+      inverse_scaled(i, j) = fit.xtwx_inverse(i, j) / (fit.model_scales[i] * fit.model_scales[j]);
     }
-    const double y_shift = design.intercept && !factor.column_stats.empty()
-                               ? factor.column_stats.back().mean * y_scale
-                               : 0.0;
-    const std::vector<double> column_scales(fit.model_scales.begin(), fit.model_scales.end() - 1);
-    const Refinement refined =
-        Refine(fit.model_triangle, fit.columns, column_scales, y_scale, design.intercept, y_shift,
-               beta_scaled, inverse_scaled, factor.rows, options, *replay);
-    for (std::size_t i = 0; i < k; ++i) {
-      fit.beta(i) = refined.beta(i) * fit.model_scales[i] / y_scale;
-      for (std::size_t j = 0; j < k; ++j) {
-        fit.xtwx_inverse(i, j) = refined.inverse(i, j) * fit.model_scales[i] * fit.model_scales[j];
-      }
-    }
-    fit.rss = refined.rss / (y_scale * y_scale);
-    fit.tss = refined.tss / (y_scale * y_scale);
-    fit.refinement_passes = refined.passes;
-    fit.refinement_correction = refined.correction;
   }
+  const double y_shift = design.intercept && !factor.column_stats.empty()
+                             ? factor.column_stats.back().mean * y_scale
+                             : 0.0;
+  const std::vector<double> column_scales(fit.model_scales.begin(), fit.model_scales.end() - 1);
+  const Refinement refined =
+      Refine(fit.model_triangle, fit.columns, column_scales, y_scale, design.intercept, y_shift,
+             beta_scaled, inverse_scaled, factor.rows, options, replay);
+  for (std::size_t i = 0; i < k; ++i) {
+    fit.beta(i) = refined.beta(i) * fit.model_scales[i] / y_scale;
+    for (std::size_t j = 0; j < k; ++j) {
+      fit.xtwx_inverse(i, j) = refined.inverse(i, j) * fit.model_scales[i] * fit.model_scales[j];
+    }
+  }
+  fit.rss = refined.rss / (y_scale * y_scale);
+  fit.tss = refined.tss / (y_scale * y_scale);
+  fit.refinement_passes = refined.passes;
+  fit.refinement_correction = refined.correction;
+}
 
+// Status, residual df, SSR and the selection criteria: they need the final RSS and TSS only,
+// so they follow refinement and come before the tables that use them.
+void SetStatusAndCriteria(const Factor& factor, const Design& design, const FitOptions& options,
+                          FitResult& fit) {
   const double n = static_cast<double>(fit.n);
-  const double k_value = static_cast<double>(k);
+  const double k_value = static_cast<double>(fit.k);
   fit.df_residual = n - k_value;
   fit.ssr = fit.tss - fit.rss;  // SSE + SSR = SST by construction
-  if (fit.n <= k) {
+  if (fit.n <= fit.k) {
     fit.status = FitStatus::kNoResidualDf;
   } else if (!fit.aliased_columns.empty()) {
     fit.status = FitStatus::kAliased;
@@ -376,7 +370,13 @@ FitResult FitModel(const Factor& factor, const Design& design,
   inputs.log_weight_sum = factor.log_weight_sum;
   inputs.full_sigma2 = options.cp_sigma2;
   fit.criteria = ComputeCriteria(inputs);
+}
 
+// The covariance and one row per estimated column: estimate, SE, t, p, confidence interval
+// and VIF. Undefined (not zero) where n <= k leaves no residual df.
+void FillCoefficientTable(const Design& design, const std::vector<std::string>& column_terms,
+                          const FitOptions& options, FitResult& fit) {
+  const std::size_t k = fit.k;
   const bool has_residual_df = fit.n > k;
   const double sigma2 = has_residual_df ? fit.rss / fit.df_residual : 0.0;
   if (has_residual_df) fit.covariance = sigma2 * fit.xtwx_inverse;
@@ -418,8 +418,15 @@ FitResult FitModel(const Factor& factor, const Design& design,
     }
     fit.coefficients.push_back(std::move(coefficient));
   }
+}
 
-  // Overall F against the intercept-only model (or the empty model without an intercept).
+// The overall F test against the intercept-only model (or the empty model without an
+// intercept) and the ANOVA table: the sequential term rows with their F tests, then
+// regression, residual and total.
+void FillAnova(const Design& design, std::vector<AnovaRow> term_rows, FitResult& fit) {
+  const double n = static_cast<double>(fit.n);
+  const double k_value = static_cast<double>(fit.k);
+  const bool has_residual_df = fit.n > fit.k;
   const double regression_df = design.intercept ? k_value - 1 : k_value;
   const double mse = has_residual_df ? fit.rss / fit.df_residual : 0.0;
   auto f_test = [&](double ss, double df, std::optional<double>& f, std::optional<double>& p) {
@@ -447,79 +454,34 @@ FitResult FitModel(const Factor& factor, const Design& design,
   fit.anova.push_back(regression);
   fit.anova.push_back(residual);
   fit.anova.push_back(total);
+}
+
+}  // namespace
+
+FitResult FitModel(const Factor& factor, const Design& design,
+                   std::span<const std::size_t> term_indices, const FitOptions& options,
+                   const RowReplay* replay) {
+  options.Validate();
+  if (factor.column_count() != design.column_count()) {
+    throw std::invalid_argument("FitModel: the factor has " + std::to_string(factor.column_count()) +
+                                " design columns, the design " + std::to_string(design.column_count()));
+  }
+  FitResult fit;
+  fit.intercept = design.intercept;
+  fit.n = factor.rows;
+  fit.weight_sum = factor.weight_sum;
+  fit.log_weight_sum = factor.log_weight_sum;
+  fit.confidence_level = options.confidence_level;
+  fit.alias_tolerance = options.kernel.alias_tolerance;
+
+  SequentialSolve solve = SolveFromFactor(factor, design, term_indices, options, fit);
+  if (replay != nullptr && *replay && options.max_refinement_passes > 0 && fit.k > 0) {
+    RefineAgainstRows(factor, design, options, *replay, fit);
+  }
+  SetStatusAndCriteria(factor, design, options, fit);
+  FillCoefficientTable(design, solve.column_terms, options, fit);
+  FillAnova(design, std::move(solve.term_rows), fit);
   return fit;
-}
-
-std::string FitResult::BriefReport() const {
-  std::ostringstream text;
-  text << "explained by: " << (intercept ? "intercept" : "no intercept");
-  for (const std::string& term : terms) text << ", " << term;
-  text << '\n'
-       << "  " << n << " rows, " << k << " coefficients, status " << ToString(status) << '\n'
-       << "  R-squared " << Number(criteria.r2) << ", adjusted " << Number(criteria.adj_r2)
-       << ", residual SD " << Number(criteria.sigma) << '\n'
-       << "  AIC " << Number(criteria.aic, 8) << ", BIC " << Number(criteria.bic, 8) << '\n';
-  return text.str();
-}
-
-std::string FitResult::FullReport() const {
-  std::ostringstream text;
-  text << "Fitted model (" << ToString(status) << ")\n";
-  text << "  response explained by: " << (intercept ? "intercept" : "no intercept");
-  for (const std::string& term : terms) text << ", " << term;
-  text << "\n  rows used " << n << ", coefficients " << k << ", residual df " << Number(df_residual)
-       << '\n';
-  if (!aliased_columns.empty()) {
-    text << "  left out as aliased (relative residual norm below " << Number(alias_tolerance, 3)
-         << "):";
-    for (const std::string& name : aliased_columns) text << ' ' << name;
-    text << '\n';
-  }
-  if (status == FitStatus::kNoResidualDf) {
-    text << "  no residual degrees of freedom: standard errors, t and p are undefined\n";
-  }
-
-  const std::string level = Number(100 * confidence_level, 4) + "%";
-  text << "\nCoefficients\n";
-  std::vector<std::vector<std::string>> table = {
-      {"column", "term", "estimate", "std error", "t", "p", level + " low", level + " high", "VIF"}};
-  for (const CoefficientEstimate& c : coefficients) {
-    table.push_back({c.name, c.term, Number(c.estimate, 8), Number(c.se), FormatStatistic(c.t),
-                     PValue(c.p), Number(c.ci_low), Number(c.ci_high),
-                     c.vif ? Number(c.vif, 4) : (c.term == "intercept" ? "-" : "undefined")});
-  }
-  text << Layout(table, 2);
-
-  text << "\nAnalysis of variance (term rows: sequential sums of squares in model order)\n";
-  std::vector<std::vector<std::string>> anova_table = {{"source", "df", "sum of squares", "mean square", "F", "p"}};
-  for (const AnovaRow& row : anova) {
-    // The residual and total rows have no F test (and the total no mean square): left blank,
-    // which is not the same as "undefined" (a test that exists but has no value).
-    const bool residual_or_total = row.source == "residual" || row.source == "total";
-    anova_table.push_back({row.source, Number(row.df), Number(row.ss, 10),
-                           row.source == "total" ? "" : Number(row.ms, 8),
-                           residual_or_total ? "" : FormatStatistic(row.f),
-                           residual_or_total ? "" : PValue(row.p)});
-  }
-  text << Layout(anova_table, 1);
-
-  text << "\nFit statistics\n";
-  std::vector<std::vector<std::string>> statistics = {
-      {"R-squared", Number(criteria.r2, 8)},
-      {"adjusted R-squared", Number(criteria.adj_r2, 8)},
-      {"residual SD", Number(criteria.sigma, 8)},
-      {"overall F test", FormatFTest(f, static_cast<std::int64_t>(intercept ? k - 1 : k),
-                                     static_cast<std::int64_t>(df_residual), f_p)},
-      {"log-likelihood", Number(criteria.log_likelihood, 10)},
-      {"AIC", Number(criteria.aic, 10)},
-      {"AICc", Number(criteria.aicc, 10)},
-      {"BIC", Number(criteria.bic, 10)},
-      {"Mallows' Cp", Number(criteria.cp, 8)},
-      {"reciprocal condition of R11", Number(rcond, 3)},
-      {"refinement", std::to_string(refinement_passes) + " passes, last relative correction " +
-                         Number(refinement_correction, 3)}};
-  text << Layout(statistics, 2);
-  return text.str();
 }
 
 namespace {
