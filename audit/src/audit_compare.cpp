@@ -187,13 +187,106 @@ json RouteComparison(const json& old_steps, const json& new_steps) {
   return {{"same", true}, {"first_difference_step", nullptr}, {"old", nullptr}, {"new", nullptr}};
 }
 
+// Which terms of the final models entered, left or stayed, in each model's own term order.
+json FinalTermsComparison(const std::vector<std::string>& old_terms, const std::vector<std::string>& new_terms) {
+  json entered = json::array(), left = json::array(), kept = json::array();
+  for (const std::string& term : new_terms) {
+    if (!Contains(old_terms, term)) entered.push_back(term);
+  }
+  for (const std::string& term : old_terms) {
+    (Contains(new_terms, term) ? kept : left).push_back(term);
+  }
+  return {{"entered", entered}, {"left", left}, {"kept", kept}};
+}
+
+// The coefficients both models share, compared in the old model's order, and the names only one
+// of them has.
+struct CoefficientChanges {
+  json shared = json::array();
+  json only_old = json::array();
+  json only_new = json::array();
+  // True when some shared estimate moved beyond the relative tolerance.
+  bool estimates_differ = false;
+};
+
+CoefficientChanges CompareCoefficients(const json& old_model, const json& new_model, const CompareOptions& options) {
+  const double tolerance = options.relative_tolerance;
+  CoefficientChanges changes;
+  std::map<std::string, json> new_coefficients;
+  std::vector<std::string> new_names;
+  for (const json& coefficient : new_model.value("coefficients", json::array())) {
+    new_coefficients[coefficient.value("name", "")] = coefficient;
+    new_names.push_back(coefficient.value("name", ""));
+  }
+  std::vector<std::string> old_names;
+  for (const json& before : old_model.value("coefficients", json::array())) {
+    const std::string name = before.value("name", "");
+    old_names.push_back(name);
+    if (!new_coefficients.count(name)) {
+      changes.only_old.push_back(name);
+      continue;
+    }
+    const json& after = new_coefficients[name];
+    const auto old_estimate = Number(before, "estimate");
+    const auto new_estimate = Number(after, "estimate");
+    const auto old_se = Number(before, "se");
+    const auto new_se = Number(after, "se");
+    json entry{{"name", name},
+               {"old_estimate", NumberOrNull(old_estimate)},
+               {"new_estimate", NumberOrNull(new_estimate)},
+               {"old_se", NumberOrNull(old_se)},
+               {"new_se", NumberOrNull(new_se)}};
+    std::optional<double> in_old_se, in_joint_se;
+    if (old_estimate && new_estimate) {
+      const double change = *new_estimate - *old_estimate;
+      if (!NumbersAgree(*old_estimate, *new_estimate, tolerance)) changes.estimates_differ = true;
+      if (old_se && *old_se > 0) in_old_se = change / *old_se;
+      if (old_se && new_se && (*old_se > 0 || *new_se > 0)) {
+        in_joint_se = change / std::sqrt(*old_se * *old_se + *new_se * *new_se);
+      }
+    }
+    entry["change_in_old_se"] = NumberOrNull(in_old_se);
+    entry["change_in_joint_se"] = NumberOrNull(in_joint_se);
+    entry["beyond_mark"] = in_old_se.has_value() && std::fabs(*in_old_se) > options.coefficient_mark_in_se;
+    changes.shared.push_back(std::move(entry));
+  }
+  for (const std::string& name : new_names) {
+    if (!Contains(old_names, name)) changes.only_new.push_back(name);
+  }
+  return changes;
+}
+
+// The prediction error needs the new rows; a rerun records it in the new audit.
+json RecordedPrediction(const json& old_audit, const json& new_audit) {
+  json prediction = {{"available", false},
+                     {"reason", "needs the new rows: run 'stepledger rerun' or give compare --data"}};
+  if (new_audit.contains("comparison") && new_audit["comparison"].is_object() &&
+      new_audit["comparison"].value("old_seal", json(nullptr)) == old_audit.value("seal", json(nullptr)) &&
+      new_audit["comparison"].contains("prediction")) {
+    prediction = new_audit["comparison"]["prediction"];
+  }
+  return prediction;
+}
+
+ComparisonVerdict VerdictFromParts(const std::vector<std::string>& old_terms,
+                                   const std::vector<std::string>& new_terms, const CoefficientChanges& changes) {
+  // Term order does not make a different model; the set of terms does.
+  std::vector<std::string> old_sorted = old_terms, new_sorted = new_terms;
+  std::sort(old_sorted.begin(), old_sorted.end());
+  std::sort(new_sorted.begin(), new_sorted.end());
+  if (old_sorted != new_sorted || !changes.only_old.empty() || !changes.only_new.empty()) {
+    return ComparisonVerdict::kDifferentTerms;
+  }
+  if (changes.estimates_differ) return ComparisonVerdict::kSameTermsRefitted;
+  return ComparisonVerdict::kSameModel;
+}
+
 }  // namespace
 
 json CompareAudits(const json& old_as_read, const json& new_as_read, const CompareOptions& options) {
   // Both in today's names, so that an audit of an older format_version compares like with like.
   const json old_audit = AuditInCurrentShape(old_as_read);
   const json new_audit = AuditInCurrentShape(new_as_read);
-  const double tolerance = options.relative_tolerance;
   const json& old_data = Section(old_audit, "data", "old");
   const json& new_data = Section(new_audit, "data", "new");
   const json& old_model = Section(old_audit, "model", "old");
@@ -213,82 +306,16 @@ json CompareAudits(const json& old_as_read, const json& new_as_read, const Compa
 
   const std::vector<std::string> old_terms = Strings(old_model.value("terms", json::array()));
   const std::vector<std::string> new_terms = Strings(new_model.value("terms", json::array()));
-  json entered = json::array(), left = json::array(), kept = json::array();
-  for (const std::string& term : new_terms) {
-    if (!Contains(old_terms, term)) entered.push_back(term);
-  }
-  for (const std::string& term : old_terms) {
-    (Contains(new_terms, term) ? kept : left).push_back(term);
-  }
-  comparison["final_terms"] = {{"entered", entered}, {"left", left}, {"kept", kept}};
+  comparison["final_terms"] = FinalTermsComparison(old_terms, new_terms);
 
-  std::map<std::string, json> new_coefficients;
-  std::vector<std::string> new_names;
-  for (const json& coefficient : new_model.value("coefficients", json::array())) {
-    new_coefficients[coefficient.value("name", "")] = coefficient;
-    new_names.push_back(coefficient.value("name", ""));
-  }
-  json coefficients = json::array(), only_old = json::array(), only_new = json::array();
-  bool estimates_differ = false;
-  std::vector<std::string> old_names;
-  for (const json& before : old_model.value("coefficients", json::array())) {
-    const std::string name = before.value("name", "");
-    old_names.push_back(name);
-    if (!new_coefficients.count(name)) {
-      only_old.push_back(name);
-      continue;
-    }
-    const json& after = new_coefficients[name];
-    const auto old_estimate = Number(before, "estimate");
-    const auto new_estimate = Number(after, "estimate");
-    const auto old_se = Number(before, "se");
-    const auto new_se = Number(after, "se");
-    json entry{{"name", name},
-               {"old_estimate", NumberOrNull(old_estimate)},
-               {"new_estimate", NumberOrNull(new_estimate)},
-               {"old_se", NumberOrNull(old_se)},
-               {"new_se", NumberOrNull(new_se)}};
-    std::optional<double> in_old_se, in_joint_se;
-    if (old_estimate && new_estimate) {
-      const double change = *new_estimate - *old_estimate;
-      if (!NumbersAgree(*old_estimate, *new_estimate, tolerance)) estimates_differ = true;
-      if (old_se && *old_se > 0) in_old_se = change / *old_se;
-      if (old_se && new_se && (*old_se > 0 || *new_se > 0)) {
-        in_joint_se = change / std::sqrt(*old_se * *old_se + *new_se * *new_se);
-      }
-    }
-    entry["change_in_old_se"] = NumberOrNull(in_old_se);
-    entry["change_in_joint_se"] = NumberOrNull(in_joint_se);
-    entry["beyond_mark"] = in_old_se.has_value() && std::fabs(*in_old_se) > options.coefficient_mark_in_se;
-    coefficients.push_back(std::move(entry));
-  }
-  for (const std::string& name : new_names) {
-    if (!Contains(old_names, name)) only_new.push_back(name);
-  }
-  comparison["coefficients"] = coefficients;
+  const CoefficientChanges changes = CompareCoefficients(old_model, new_model, options);
+  comparison["coefficients"] = changes.shared;
   comparison["coefficient_mark_in_se"] = options.coefficient_mark_in_se;
-  comparison["coefficients_only_old"] = only_old;
-  comparison["coefficients_only_new"] = only_new;
+  comparison["coefficients_only_old"] = changes.only_old;
+  comparison["coefficients_only_new"] = changes.only_new;
 
-  // The prediction error needs the new rows; a rerun records it in the new audit.
-  json prediction = {{"available", false},
-                     {"reason", "needs the new rows: run 'stepledger rerun' or give compare --data"}};
-  if (new_audit.contains("comparison") && new_audit["comparison"].is_object() &&
-      new_audit["comparison"].value("old_seal", json(nullptr)) == old_audit.value("seal", json(nullptr)) &&
-      new_audit["comparison"].contains("prediction")) {
-    prediction = new_audit["comparison"]["prediction"];
-  }
-  comparison["prediction"] = prediction;
-  // Term order does not make a different model; the set of terms does.
-  std::vector<std::string> old_sorted = old_terms, new_sorted = new_terms;
-  std::sort(old_sorted.begin(), old_sorted.end());
-  std::sort(new_sorted.begin(), new_sorted.end());
-  ComparisonVerdict verdict = ComparisonVerdict::kSameModel;
-  if (old_sorted != new_sorted || !only_old.empty() || !only_new.empty()) {
-    verdict = ComparisonVerdict::kDifferentTerms;
-  } else if (estimates_differ) {
-    verdict = ComparisonVerdict::kSameTermsRefitted;
-  }
+  comparison["prediction"] = RecordedPrediction(old_audit, new_audit);
+  const ComparisonVerdict verdict = VerdictFromParts(old_terms, new_terms, changes);
   comparison["verdict"] = ToString(verdict);
   comparison["models_differ"] = verdict != ComparisonVerdict::kSameModel;
   return comparison;
@@ -426,15 +453,17 @@ std::string VerdictSentence(ComparisonVerdict verdict) {
   return {};
 }
 
-}  // namespace
+std::string NamesText(const json& array) {
+  std::string joined;
+  for (const json& item : array) joined += (joined.empty() ? "" : ", ") + (item.is_string() ? item.get<std::string>() : item.dump());
+  return joined.empty() ? std::string("none") : joined;
+}
 
-std::string ComparisonReport(const json& comparison) {
-  std::ostringstream text;
-  auto names = [](const json& array) {
-    std::string joined;
-    for (const json& item : array) joined += (joined.empty() ? "" : ", ") + (item.is_string() ? item.get<std::string>() : item.dump());
-    return joined.empty() ? std::string("none") : joined;
-  };
+std::string CountText(const json& value) {
+  return value.is_number() ? FormatCount(value.get<std::int64_t>()) : std::string("n/a");
+}
+
+void RenderVerdictAndData(const json& comparison, std::ostringstream& text) {
   text << VerdictSentence(VerdictOf(comparison)) << "\n";
   text << "Comparison with the old run";
   if (comparison.value("old_seal", json(nullptr)).is_string()) {
@@ -442,21 +471,25 @@ std::string ComparisonReport(const json& comparison) {
   }
   text << "\n";
   text << "  data: " << (comparison.value("same_data", false) ? "the same bytes" : "different bytes") << "\n";
-  if (comparison.contains("plan") && comparison["plan"].value("compared", false)) {
-    const json& differences = comparison["plan"]["differences"];
-    if (differences.empty()) {
-      text << "  plan: the same\n";
-    } else {
-      text << "  plan differences:\n";
-      for (const json& entry : differences) {
-        text << "    " << entry.value("key", "") << ": " << PlanValueText(entry["old"]) << " -> "
-             << PlanValueText(entry["new"]) << "\n";
-      }
-    }
+}
+
+void RenderPlanDifferences(const json& comparison, std::ostringstream& text) {
+  if (!comparison.contains("plan") || !comparison["plan"].value("compared", false)) return;
+  const json& differences = comparison["plan"]["differences"];
+  if (differences.empty()) {
+    text << "  plan: the same\n";
+    return;
   }
-  const json& columns = comparison["columns"];
-  text << "  columns added: " << names(columns["added"]) << "\n";
-  text << "  columns lost: " << names(columns["lost"]) << "\n";
+  text << "  plan differences:\n";
+  for (const json& entry : differences) {
+    text << "    " << entry.value("key", "") << ": " << PlanValueText(entry["old"]) << " -> "
+         << PlanValueText(entry["new"]) << "\n";
+  }
+}
+
+void RenderColumns(const json& columns, std::ostringstream& text) {
+  text << "  columns added: " << NamesText(columns["added"]) << "\n";
+  text << "  columns lost: " << NamesText(columns["lost"]) << "\n";
   if (!columns["type_changed"].empty()) {
     text << "  columns whose type changed:";
     for (const json& entry : columns["type_changed"]) {
@@ -469,77 +502,100 @@ std::string ComparisonReport(const json& comparison) {
   if (columns["moved"].empty()) {
     text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
          << ThresholdText(column_threshold) << " old SD): none\n";
-  } else {
-    text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
-         << ThresholdText(column_threshold) << " old SD):\n";
-    for (const json& entry : columns["moved"]) {
-      text << "    " << entry.value("column", "") << ": mean " << FormatJsonNumber(entry["old"]["mean"]) << " -> "
-           << FormatJsonNumber(entry["new"]["mean"]);
-      if (entry["mean_shift_in_old_sd"].is_number()) {
-        text << " (" << FormatFixed(entry["mean_shift_in_old_sd"].get<double>(), 2) << " old SD)";
-      }
-      text << ", range " << FormatJsonNumber(entry["old"]["min"]) << " to " << FormatJsonNumber(entry["old"]["max"])
-           << " -> " << FormatJsonNumber(entry["new"]["min"]) << " to " << FormatJsonNumber(entry["new"]["max"])
-           << "\n";
-    }
+    return;
   }
-  auto count = [](const json& value) {
-    return value.is_number() ? FormatCount(value.get<std::int64_t>()) : std::string("n/a");
-  };
-  text << "  rows used: " << count(comparison["rows"]["old_rows_used"]) << " -> "
-       << count(comparison["rows"]["new_rows_used"]) << "\n";
-  const json& route = comparison["route"];
+  text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
+       << ThresholdText(column_threshold) << " old SD):\n";
+  for (const json& entry : columns["moved"]) {
+    text << "    " << entry.value("column", "") << ": mean " << FormatJsonNumber(entry["old"]["mean"]) << " -> "
+         << FormatJsonNumber(entry["new"]["mean"]);
+    if (entry["mean_shift_in_old_sd"].is_number()) {
+      text << " (" << FormatFixed(entry["mean_shift_in_old_sd"].get<double>(), 2) << " old SD)";
+    }
+    text << ", range " << FormatJsonNumber(entry["old"]["min"]) << " to " << FormatJsonNumber(entry["old"]["max"])
+         << " -> " << FormatJsonNumber(entry["new"]["min"]) << " to " << FormatJsonNumber(entry["new"]["max"])
+         << "\n";
+  }
+}
+
+void RenderRows(const json& rows, std::ostringstream& text) {
+  text << "  rows used: " << CountText(rows["old_rows_used"]) << " -> " << CountText(rows["new_rows_used"]) << "\n";
+}
+
+std::string RouteMoveText(const json& step) {
+  if (!step.is_object()) return std::string("(no step)");
+  std::string out = step.value("action", json(nullptr)).is_string() ? step["action"].get<std::string>() : "?";
+  if (step["term"].is_string()) out += " " + step["term"].get<std::string>();
+  return out;
+}
+
+void RenderRoute(const json& route, std::ostringstream& text) {
   if (route.value("same", false)) {
     text << "  route: the same actions and terms at every step\n";
-  } else {
-    auto move = [](const json& step) {
-      if (!step.is_object()) return std::string("(no step)");
-      std::string out = step.value("action", json(nullptr)).is_string() ? step["action"].get<std::string>() : "?";
-      if (step["term"].is_string()) out += " " + step["term"].get<std::string>();
-      return out;
-    };
-    text << "  route: parts at step " << route["first_difference_step"].dump() << ": old "
-         << move(route["old"]) << ", new " << move(route["new"]) << "\n";
+    return;
   }
-  text << "  terms entered the final model: " << names(comparison["final_terms"]["entered"]) << "\n";
-  text << "  terms left the final model: " << names(comparison["final_terms"]["left"]) << "\n";
-  if (!comparison["coefficients"].empty()) {
-    const double mark = comparison.value("coefficient_mark_in_se", 2.0);
-    text << "  coefficient changes (new - old, in units of the old SE; * beyond " << ThresholdText(mark)
-         << " SE):\n";
-    std::size_t width = 8;
-    for (const json& entry : comparison["coefficients"]) width = std::max(width, entry.value("name", "").size());
-    for (const json& entry : comparison["coefficients"]) {
-      const std::string name = entry.value("name", "");
-      const std::string change = entry["change_in_old_se"].is_number()
-                                     ? FormatFixed(entry["change_in_old_se"].get<double>(), 2) + " SE"
-                                     : std::string("n/a");
-      text << "    " << name << std::string(width - name.size(), ' ') << "  "
-           << FormatJsonNumber(entry["old_estimate"]) << " -> " << FormatJsonNumber(entry["new_estimate"]) << "  "
-           << change << (entry.value("beyond_mark", false) ? " *" : "") << "\n";
-    }
+  text << "  route: parts at step " << route["first_difference_step"].dump() << ": old "
+       << RouteMoveText(route["old"]) << ", new " << RouteMoveText(route["new"]) << "\n";
+}
+
+void RenderFinalTerms(const json& final_terms, std::ostringstream& text) {
+  text << "  terms entered the final model: " << NamesText(final_terms["entered"]) << "\n";
+  text << "  terms left the final model: " << NamesText(final_terms["left"]) << "\n";
+}
+
+void RenderCoefficients(const json& comparison, std::ostringstream& text) {
+  if (comparison["coefficients"].empty()) return;
+  const double mark = comparison.value("coefficient_mark_in_se", 2.0);
+  text << "  coefficient changes (new - old, in units of the old SE; * beyond " << ThresholdText(mark)
+       << " SE):\n";
+  std::size_t width = 8;
+  for (const json& entry : comparison["coefficients"]) width = std::max(width, entry.value("name", "").size());
+  for (const json& entry : comparison["coefficients"]) {
+    const std::string name = entry.value("name", "");
+    const std::string change = entry["change_in_old_se"].is_number()
+                                   ? FormatFixed(entry["change_in_old_se"].get<double>(), 2) + " SE"
+                                   : std::string("n/a");
+    text << "    " << name << std::string(width - name.size(), ' ') << "  "
+         << FormatJsonNumber(entry["old_estimate"]) << " -> " << FormatJsonNumber(entry["new_estimate"]) << "  "
+         << change << (entry.value("beyond_mark", false) ? " *" : "") << "\n";
   }
-  const json& prediction = comparison["prediction"];
-  if (prediction.value("available", false)) {
-    text << "  old model on the new rows: RMSE " << FormatJsonNumber(prediction["old_model_rmse"])
-         << " (mean error " << FormatJsonNumber(prediction["old_model_mean_error"])
-         << "), beside the new model's RMSE " << FormatJsonNumber(prediction["new_model_rmse"]) << " over "
-         << count(prediction["rows"]) << " rows";
-    if (prediction.contains("not_priced") && prediction["not_priced"].is_object()) {
-      std::string skipped;
-      for (const auto& [flag, rows] : prediction["not_priced"].items()) {
-        if (rows.is_number() && rows.get<std::int64_t>() > 0) {
-          skipped += (skipped.empty() ? "" : ", ") + count(rows) + " " + flag;
-        }
-      }
-      if (!skipped.empty()) text << "; not priced: " << skipped;
-    } else if (prediction.value("unseen_level_rows", 0) > 0) {
-      text << "; " << count(prediction["unseen_level_rows"]) << " rows have levels the old model never saw";
-    }
-    text << "\n";
-  } else {
+}
+
+void RenderPrediction(const json& prediction, std::ostringstream& text) {
+  if (!prediction.value("available", false)) {
     text << "  old model on the new rows: not available (" << prediction.value("reason", "") << ")\n";
+    return;
   }
+  text << "  old model on the new rows: RMSE " << FormatJsonNumber(prediction["old_model_rmse"])
+       << " (mean error " << FormatJsonNumber(prediction["old_model_mean_error"])
+       << "), beside the new model's RMSE " << FormatJsonNumber(prediction["new_model_rmse"]) << " over "
+       << CountText(prediction["rows"]) << " rows";
+  if (prediction.contains("not_priced") && prediction["not_priced"].is_object()) {
+    std::string skipped;
+    for (const auto& [flag, rows] : prediction["not_priced"].items()) {
+      if (rows.is_number() && rows.get<std::int64_t>() > 0) {
+        skipped += (skipped.empty() ? "" : ", ") + CountText(rows) + " " + flag;
+      }
+    }
+    if (!skipped.empty()) text << "; not priced: " << skipped;
+  } else if (prediction.value("unseen_level_rows", 0) > 0) {
+    text << "; " << CountText(prediction["unseen_level_rows"]) << " rows have levels the old model never saw";
+  }
+  text << "\n";
+}
+
+}  // namespace
+
+std::string ComparisonReport(const json& comparison) {
+  std::ostringstream text;
+  RenderVerdictAndData(comparison, text);
+  RenderPlanDifferences(comparison, text);
+  RenderColumns(comparison["columns"], text);
+  RenderRows(comparison["rows"], text);
+  RenderRoute(comparison["route"], text);
+  RenderFinalTerms(comparison["final_terms"], text);
+  RenderCoefficients(comparison, text);
+  RenderPrediction(comparison["prediction"], text);
   return text.str();
 }
 

@@ -365,12 +365,11 @@ void WithoutWording(json& value) {
   }
 }
 
-VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
-  VerifyReport report = CheckAuditIntegrity(document, options.public_key);
-  if (options.data.empty()) return report;  // the report says what was not checked
+namespace {
 
-  // Fingerprint: unreadable data is bad input (exit 2), a different file a difference.
-  const std::string actual = FingerprintFile(options.data);
+// Fingerprint: unreadable data is bad input (exit 2), a different file a difference.
+void CheckFingerprint(const json& document, const std::filesystem::path& data_file, VerifyReport& report) {
+  const std::string actual = FingerprintFile(data_file);
   const json data = document.value("data", json::object());
   const std::string recorded = data.is_object() ? data.value("sha256", std::string()) : std::string();
   if (actual == recorded) {
@@ -378,63 +377,52 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   } else {
     report.fingerprint = Check::kFails;
     report.problems.push_back("fingerprint mismatch: the data are not the bytes the audit was made from (" +
-                              DataFileForMessage(options.data) + " has sha256 " + actual.substr(0, 16) +
+                              DataFileForMessage(data_file) + " has sha256 " + actual.substr(0, 16) +
                               "..., the audit records " + recorded.substr(0, 16) + "...)");
   }
+}
 
-  // Replay the recorded plan with the recorded settings and compare.
+// Replays the recorded plan with the recorded settings and returns the document the replay
+// would write; a plan or data that cannot be replayed is a failed replay check (no value).
+std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& options,
+                                     VerifyReport& report) {
   report.replay = Check::kHolds;
-  json replayed;
   try {
     ReplayOverrides overrides;
     if (options.threads > 0) overrides.threads = options.threads;
     const RunResult run = ReplayRecordedPlan(document, options.data, "audit", overrides);
     AuditDocumentOptions document_options;
     document_options.created_at = document.value("created_at", std::string("unknown"));
-    replayed = BuildAuditDocument(run, document_options);
+    return BuildAuditDocument(run, document_options);
   } catch (const json::exception& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
-    return report;
   } catch (const PlanError& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
-    return report;
   } catch (const InputError& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay failed on the data: ") + error.what());
-    return report;
   }
+  return std::nullopt;
+}
 
-  // The recorded content in today's names (an older format_version is translated), so that
-  // a replay by this version compares like with like; the integrity checks above ran on the
-  // document as recorded.
-  json recorded_document = AuditInCurrentShape(document);
-  // The wording of rules, reasons and cautions is this version's own (numbers in them follow the
-  // number policy of the build): for an audit of an older format_version it is not compared.
-  // Every number and name is, in the fields that hold them.
-  const bool older_format =
-      document.value("format_version", kAuditFormatVersion) < kAuditFormatVersion;
-  if (older_format) {
-    WithoutWording(recorded_document);
-    WithoutWording(replayed);
+std::string MoveText(const json& step) {
+  std::string text = step.is_object() && step.contains("action") && step["action"].is_string()
+                         ? step["action"].get<std::string>()
+                         : std::string("?");
+  if (step.is_object() && step.contains("term") && step["term"].is_string()) {
+    text += " " + step["term"].get<std::string>();
   }
-  const double tolerance = options.relative_tolerance;
-  // The route: the first step whose action or term differs, then the first step whose numbers
-  // (or any other content) differ; a changed row moves numbers from step 0 on, so the route
-  // divergence is named first.
-  const json recorded_steps = recorded_document.value("steps", json::array());
-  const json& replayed_steps = replayed["steps"];
+  return "'" + text + "'";
+}
+
+// The route: the first step whose action or term differs, then the first step whose numbers
+// (or any other content) differ; a changed row moves numbers from step 0 on, so the route
+// divergence is named first.
+void CompareReplayedRoute(const json& recorded_steps, const json& replayed_steps, double tolerance,
+                          VerifyReport& report) {
   const std::size_t common = std::min(recorded_steps.size(), replayed_steps.size());
-  auto move_text = [](const json& step) {
-    std::string text = step.is_object() && step.contains("action") && step["action"].is_string()
-                           ? step["action"].get<std::string>()
-                           : std::string("?");
-    if (step.is_object() && step.contains("term") && step["term"].is_string()) {
-      text += " " + step["term"].get<std::string>();
-    }
-    return "'" + text + "'";
-  };
   std::optional<std::string> route_problem;
   for (std::size_t index = 0; index < common && !route_problem; ++index) {
     const json& a = recorded_steps[index];
@@ -442,7 +430,7 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
     if (!a.is_object() || a.value("action", json(nullptr)) != b.value("action", json(nullptr)) ||
         a.value("term", json(nullptr)) != b.value("term", json(nullptr))) {
       route_problem = "route diverges at step " + std::to_string(index) + ": the audit has " +
-                      move_text(a) + ", the replay " + move_text(b);
+                      MoveText(a) + ", the replay " + MoveText(b);
     }
   }
   if (!route_problem && recorded_steps.size() != replayed_steps.size()) {
@@ -467,7 +455,11 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
     report.replay = Check::kFails;
     report.problems.push_back("same actions and terms, but content differs at " + *step_problem);
   }
+}
 
+// The sections outside the steps, in kReplayedSections order; only the first difference is named.
+void CompareReplayedSections(const json& recorded_document, const json& replayed, double tolerance,
+                             VerifyReport& report) {
   for (const char* section : kReplayedSections) {
     json recorded_section =
         recorded_document.contains(section) ? recorded_document[section] : json(nullptr);
@@ -488,6 +480,36 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
       break;
     }
   }
+}
+
+}  // namespace
+
+VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
+  VerifyReport report = CheckAuditIntegrity(document, options.public_key);
+  if (options.data.empty()) return report;  // the report says what was not checked
+
+  CheckFingerprint(document, options.data, report);
+  std::optional<json> replay = ReplayedDocument(document, options, report);
+  if (!replay) return report;
+  json& replayed = *replay;
+
+  // The recorded content in today's names (an older format_version is translated), so that
+  // a replay by this version compares like with like; the integrity checks above ran on the
+  // document as recorded.
+  json recorded_document = AuditInCurrentShape(document);
+  // The wording of rules, reasons and cautions is this version's own (numbers in them follow the
+  // number policy of the build): for an audit of an older format_version it is not compared.
+  // Every number and name is, in the fields that hold them.
+  const bool older_format =
+      document.value("format_version", kAuditFormatVersion) < kAuditFormatVersion;
+  if (older_format) {
+    WithoutWording(recorded_document);
+    WithoutWording(replayed);
+  }
+  const double tolerance = options.relative_tolerance;
+  const json recorded_steps = recorded_document.value("steps", json::array());
+  CompareReplayedRoute(recorded_steps, replayed["steps"], tolerance, report);
+  CompareReplayedSections(recorded_document, replayed, tolerance, report);
   return report;
 }
 

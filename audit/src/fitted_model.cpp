@@ -208,57 +208,55 @@ json PredictionSectionJson(const FitResult& fit, const Design& design, const Pre
           {"smearing_factor", NumberOrNull(support.smearing_factor)}};
 }
 
-FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name) {
-  const AuditReader reader(source_name);
-  // Older audits (TERM[LEVEL] columns, model.ssr) are read with today's names.
-  const json audit = AuditInCurrentShape(audit_as_read);
-  FittedModel model;
-  if (!audit.is_object() || !audit.contains("prediction")) {
-    reader.Fail("prediction",
-                "missing: this audit was written before stepledger recorded what pricing new rows "
-                "needs; run `stepledger rerun` on it (or select again) with this version");
-  }
-  const json& prediction = reader.Object(audit, "", "prediction");
+namespace {
+
+// The plan as normalised when the audit was written (terms explicit, baselines chosen).
+Plan PlanFromAudit(const AuditReader& reader, const json& audit) {
   const json& plan = reader.Object(audit, "", "plan");
   const json& normalised = reader.Object(plan, "plan", "normalised");
   try {
-    model.plan = PlanFromJson(normalised);
+    return PlanFromJson(normalised);
   } catch (const PlanError& error) {
     reader.Fail("plan.normalised" + (error.key_path().empty() ? "" : "." + error.key_path()), error.what());
   }
+}
 
+// The data section: the column profile and the file's name, digest and missing-value tokens.
+void ReadDataSection(const AuditReader& reader, const json& audit, FittedModel& model) {
   const json& data = reader.Object(audit, "", "data");
   model.profile = ProfileFromAudit(reader, data);
   model.data_file_name = reader.String(data, "data", "file");
   model.data_sha256 = reader.String(data, "data", "sha256");
   model.missing_tokens = reader.Strings(reader.Array(data, "data", "missing"), "data.missing");
-  try {
-    model.design = BuildDesign(model.plan.design, model.profile);
-  } catch (const InputError& error) {
-    reader.Fail("plan.normalised", std::string("does not rebuild on the recorded columns: ") + error.what());
-  }
+}
+
+// The plan rebuilt on the recorded columns must give the design columns the audit records.
+void CheckRecordedDesign(const AuditReader& reader, const json& audit, const Design& rebuilt) {
   const json& design = reader.Object(audit, "", "design");
   const json& design_columns = reader.Array(design, "design", "columns");
   std::vector<std::string> recorded;
   for (std::size_t i = 0; i < design_columns.size(); ++i) {
     recorded.push_back(reader.String(design_columns[i], AuditReader::Index("design.columns", i), "name"));
   }
-  if (recorded != DesignColumnNames(model.design)) {
+  if (recorded != DesignColumnNames(rebuilt)) {
     reader.Fail("design.columns", "the plan rebuilds into other design columns than the audit records; "
                                   "the audit is inconsistent (run `stepledger verify` on it)");
   }
+}
 
-  // The final model.
+// The final model's section: terms, status, sums, criteria and coefficients. Returns each
+// coefficient's estimate by name, which the prediction columns are matched against.
+std::map<std::string, double> ReadFinalModel(const AuditReader& reader, const json& audit, const Design& design,
+                                             FitResult& fit) {
   const json& model_json = reader.Object(audit, "", "model");
-  FitResult& fit = model.fit;
   fit.terms = reader.Strings(reader.Array(model_json, "model", "terms"), "model.terms");
   for (std::size_t i = 0; i < fit.terms.size(); ++i) {
-    const std::size_t term = model.design.FindTerm(fit.terms[i]);
+    const std::size_t term = design.FindTerm(fit.terms[i]);
     if (term == kNoTerm) reader.Fail(AuditReader::Index("model.terms", i), "no term \"" + fit.terms[i] + "\" in the design");
     fit.term_indices.push_back(term);
   }
   fit.status = FitStatusFromText(reader, reader.String(model_json, "model", "status"), "model.status");
-  fit.intercept = model_json.value("intercept", model.design.intercept);
+  fit.intercept = model_json.value("intercept", design.intercept);
   fit.n = reader.Count(model_json, "model", "n");
   fit.k = reader.Count(model_json, "model", "k");
   fit.df_residual = reader.Number(model_json, "model", "df_residual");
@@ -289,15 +287,19 @@ FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view sou
     fit.coefficients.push_back(CoefficientFromJson(reader, coefficients[i], AuditReader::Index("model.coefficients", i)));
     estimates[fit.coefficients.back().name] = fit.coefficients.back().estimate;
   }
+  return estimates;
+}
 
-  // The model's columns, estimates and triangle.
+// The model's columns, estimates and triangle from the prediction section.
+void ReadPredictionFit(const AuditReader& reader, const json& prediction, const Design& design,
+                       const std::map<std::string, double>& estimates, FitResult& fit) {
   const std::vector<std::string> columns = reader.Strings(reader.Array(prediction, "prediction", "columns"), "prediction.columns");
   if (columns.size() != fit.k) {
     reader.Fail("prediction.columns", std::to_string(columns.size()) + " columns, but model.k is " + std::to_string(fit.k));
   }
   fit.beta.set_size(columns.size());
   for (std::size_t j = 0; j < columns.size(); ++j) {
-    const std::size_t column = ColumnIndex(model.design, columns[j]);
+    const std::size_t column = ColumnIndex(design, columns[j]);
     const std::string path = AuditReader::Index("prediction.columns", j);
     if (column == kNoTerm) reader.Fail(path, "no design column \"" + columns[j] + "\"");
     const auto estimate = estimates.find(columns[j]);
@@ -321,7 +323,11 @@ FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view sou
   if (fit.model_scales.size() != columns.size() + 1) {
     reader.Fail("prediction.scales", "expected " + std::to_string(columns.size() + 1) + " numbers");
   }
+}
 
+// The support of the model's data: term ranges, the largest unit leverage, the smearing factor.
+PredictionSupport SupportFromAudit(const AuditReader& reader, const json& prediction) {
+  PredictionSupport support;
   const json& ranges = reader.Array(prediction, "prediction", "ranges");
   for (std::size_t i = 0; i < ranges.size(); ++i) {
     const std::string path = AuditReader::Index("prediction.ranges", i);
@@ -331,11 +337,38 @@ FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view sou
     range.kind = TermKindFromText(reader, reader.String(ranges[i], path, "kind"), path + ".kind");
     range.min = reader.Number(ranges[i], path, "min");
     range.max = reader.Number(ranges[i], path, "max");
-    model.support.ranges.push_back(std::move(range));
+    support.ranges.push_back(std::move(range));
   }
-  model.support.max_unit_leverage = reader.OptionalNumber(prediction, "prediction", "max_unit_leverage");
-  model.support.max_unit_leverage_line = prediction.value("max_unit_leverage_line", std::uint64_t{0});
-  model.support.smearing_factor = reader.OptionalNumber(prediction, "prediction", "smearing_factor");
+  support.max_unit_leverage = reader.OptionalNumber(prediction, "prediction", "max_unit_leverage");
+  support.max_unit_leverage_line = prediction.value("max_unit_leverage_line", std::uint64_t{0});
+  support.smearing_factor = reader.OptionalNumber(prediction, "prediction", "smearing_factor");
+  return support;
+}
+
+}  // namespace
+
+FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name) {
+  const AuditReader reader(source_name);
+  // Older audits (TERM[LEVEL] columns, model.ssr) are read with today's names.
+  const json audit = AuditInCurrentShape(audit_as_read);
+  FittedModel model;
+  if (!audit.is_object() || !audit.contains("prediction")) {
+    reader.Fail("prediction",
+                "missing: this audit was written before stepledger recorded what pricing new rows "
+                "needs; run `stepledger rerun` on it (or select again) with this version");
+  }
+  const json& prediction = reader.Object(audit, "", "prediction");
+  model.plan = PlanFromAudit(reader, audit);
+  ReadDataSection(reader, audit, model);
+  try {
+    model.design = BuildDesign(model.plan.design, model.profile);
+  } catch (const InputError& error) {
+    reader.Fail("plan.normalised", std::string("does not rebuild on the recorded columns: ") + error.what());
+  }
+  CheckRecordedDesign(reader, audit, model.design);
+  const std::map<std::string, double> estimates = ReadFinalModel(reader, audit, model.design, model.fit);
+  ReadPredictionFit(reader, prediction, model.design, estimates, model.fit);
+  model.support = SupportFromAudit(reader, prediction);
   return model;
 }
 
