@@ -61,7 +61,8 @@ std::string FitResult::BriefReport() const {
 std::string FitResult::FullReport() const {
   std::ostringstream text;
   text << "Fitted model (" << ToString(status) << ")\n";
-  text << "  response explained by: " << (intercept ? "intercept" : "no intercept");
+  // The terms in model order (the command line states the model with its response's name).
+  text << "  terms: " << (intercept ? "intercept" : "no intercept");
   for (const std::string& term : terms) text << ", " << term;
   text << "\n  rows used " << n << ", coefficients " << k << ", residual df " << Number(df_residual)
        << '\n';
@@ -92,7 +93,7 @@ std::string FitResult::FullReport() const {
     // The residual and total rows have no F test (and the total no mean square): left blank,
     // which is not the same as "undefined" (a test that exists but has no value).
     const bool residual_or_total = row.source == "residual" || row.source == "total";
-    anova_table.push_back({row.source, Number(row.df), Number(row.ss, 10),
+    anova_table.push_back({row.source, Number(row.df), Number(row.ss, 8),
                            row.source == "total" ? "" : Number(row.ms, 8),
                            residual_or_total ? "" : FormatStatistic(row.f),
                            residual_or_total ? "" : PValue(row.p)});
@@ -112,7 +113,8 @@ std::string FitResult::FullReport() const {
       {"BIC", Number(criteria.bic, 10)},
       {"Mallows' Cp", Number(criteria.cp, 8)},
       {"reciprocal condition of R11", Number(rcond, 3)},
-      {"refinement", std::to_string(refinement_passes) + " passes, last relative correction " +
+      {"refinement", std::to_string(refinement_passes) + (refinement_passes == 1 ? " pass" : " passes") +
+                         ", last relative correction " +
                          Number(refinement_correction, 3)}};
   text << Layout(statistics, 2);
   return text.str();
