@@ -27,12 +27,6 @@ struct ProfileArgs {
   std::size_t shown_levels = 5;
 };
 
-std::string FormatNumber(double value) {
-  char buffer[32];
-  std::snprintf(buffer, sizeof buffer, "%.6g", value);
-  return buffer;
-}
-
 // Default baseline of a categorical term: its most frequent level, ties broken byte-wise
 // (the same rule as BuildDesign; levels arrive sorted byte-wise, so the first maximum wins).
 const LevelCount* MostFrequentLevel(const ColumnProfile& column) {
@@ -184,8 +178,8 @@ std::string ColumnsTable(const DataProfile& profile, const ProfileArgs& args) {
     name_width = std::max(name_width, column.name.size());
   }
   std::ostringstream text;
-  text << profile.path.string() << ": " << profile.rows << " rows, " << profile.columns.size()
-       << " columns\n\n";
+  text << profile.path.string() << ": " << FormatCount(static_cast<std::int64_t>(profile.rows)) << " rows, "
+       << FormatCount(static_cast<std::int64_t>(profile.columns.size())) << " columns\n\n";
   char line[256];
   std::snprintf(line, sizeof line, "%-*s  %-11s  %9s  %9s  %s\n", static_cast<int>(name_width),
                 "column", "kind", "present", "missing", "values");
@@ -193,8 +187,8 @@ std::string ColumnsTable(const DataProfile& profile, const ProfileArgs& args) {
   for (const ColumnProfile& column : profile.columns) {
     std::string values;
     if (column.kind == ColumnKind::kNumeric) {
-      values = "range " + FormatNumber(column.min) + " .. " + FormatNumber(column.max) +
-               ", mean " + FormatNumber(column.mean) + ", sd " + FormatNumber(column.sd);
+      values = "range " + FormatQuantity(column.min) + " .. " + FormatQuantity(column.max) +
+               ", mean " + FormatQuantity(column.mean) + ", sd " + FormatQuantity(column.sd);
     } else if (column.kind == ColumnKind::kCategorical) {
       // Most frequent levels first, ties byte-wise, so the default baseline shows first.
       std::vector<LevelCount> levels = column.levels;
@@ -203,17 +197,17 @@ std::string ColumnsTable(const DataProfile& profile, const ProfileArgs& args) {
       const std::size_t shown = std::min(levels.size(), args.shown_levels);
       for (std::size_t i = 0; i < shown; ++i) {
         if (i > 0) values += ", ";
-        values += levels[i].level + " (" + std::to_string(levels[i].count) + ")";
+        values += levels[i].level + " (" + FormatCount(static_cast<std::int64_t>(levels[i].count)) + ")";
       }
       if (levels.size() > shown) {
-        values += ", and " + std::to_string(levels.size() - shown) +
+        values += ", and " + FormatCount(static_cast<std::int64_t>(levels.size() - shown)) +
                   (column.too_many_levels ? "+" : "") + " more";
       }
     }
-    std::snprintf(line, sizeof line, "%-*s  %-11s  %9llu  %9llu  ", static_cast<int>(name_width),
+    std::snprintf(line, sizeof line, "%-*s  %-11s  %9s  %9s  ", static_cast<int>(name_width),
                   column.name.c_str(), ToString(column.kind),
-                  static_cast<unsigned long long>(column.present),
-                  static_cast<unsigned long long>(column.missing));
+                  FormatCount(static_cast<std::int64_t>(column.present)).c_str(),
+                  FormatCount(static_cast<std::int64_t>(column.missing)).c_str());
     text << line << values << "\n";
   }
   return text.str();

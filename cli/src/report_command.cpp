@@ -45,7 +45,7 @@ int RunReport(const ReportArgs& args, CommandContext& context) {
   if (!integrity.Holds()) {
     if (!args.allow_unverified) {
       context.err << "stepledger: " << args.audit << ": the audit does not verify (" << integrity.problems.front()
-                  << "); refusing to render it. `stepledger verify " << args.audit
+                  << "); refusing to render it. `" << ProgramWord() << " verify " << args.audit
                   << "` lists every problem; --allow-unverified renders it anyway, with a warning at the top\n";
       return static_cast<int>(ExitStatus::kDifferenceFound);
     }
@@ -124,6 +124,7 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--title", args->title, "Heading of the report (default: 'Selection report: DATA')")
       ->type_name("TEXT");
   AddCommonOptions(*command, context.common);
+  const std::string program = ProgramWord();
   command->footer(
       "The report renders from the audit alone (and, with --data, one pass over the data that "
       "the audit's fingerprint identifies; a different file is refused with exit 2). The HTML "
@@ -132,12 +133,14 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
       "With --json: the report model itself (sections, facts, tables whose cells carry "
       "{text, number, kind} with the number at full precision, chart series) instead of the "
       "text; \"verified\": false and \"warning\" when rendered with --allow-unverified.\n\n"
-      "Examples:\n"
-      "  stepledger report out/audit.json\n"
-      "  stepledger report out/audit.json --data examples/data/laptops.csv --html review.html\n"
-      "  stepledger report out/audit.json --html review.html --text --force > review.txt\n"
-      "  stepledger report out/audit.json --data examples/data/laptops.csv --rows-out rows.csv\n"
-      "  stepledger report out/audit.json --json > report.json");
+      "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExamples:\n"
+      "  " + program + " report build/demo/audit.json\n"
+      "  " + program + " report build/demo/audit.json --data build/demo/laptops.csv "
+      "--html build/demo/review.html --force\n"
+      "  " + program + " report build/demo/audit.json --html build/demo/review.html --text --force\n"
+      "  " + program + " report build/demo/audit.json --data build/demo/laptops.csv "
+      "--rows-out build/demo/rows.csv --force\n"
+      "  " + program + " report build/demo/audit.json --json");
   command->callback([args, &context] {
     context.action = [args, &context] { return RunReport(*args, context); };
   });

@@ -9,6 +9,8 @@
 #include <filesystem>
 #include <string_view>
 #include <exception>
+#include <functional>
+#include <stdexcept>
 #include <sstream>
 
 #include <CLI/CLI.hpp>
@@ -212,21 +214,38 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
     return static_cast<int>(ExitStatus::kBadInput);
   }
 
+  if (!context.action) {
+    err << "stepledger: no command given (see 'stepledger --help')\n";
+    return static_cast<int>(ExitStatus::kBadInput);
+  }
+  return RunCommandAction(
+      [&context, &err] {
+        context.log = cli::MakeLogger(err, context.common);
+        return context.action();
+      },
+      err);
+}
+
+int RunCommandAction(const std::function<int()>& action, std::ostream& err) {
   try {
-    context.log = cli::MakeLogger(err, context.common);
-    if (!context.action) {
-      err << "stepledger: no command given (see 'stepledger --help')\n";
-      return static_cast<int>(ExitStatus::kBadInput);
-    }
-    return context.action();
+    return action();
   } catch (const InputError& error) {  // PlanError is an InputError
     err << "stepledger: " << cli::OneLineText(error.what()) << "\n";
     return static_cast<int>(ExitStatus::kBadInput);
   } catch (const NumericalError& error) {
     err << "stepledger: numerical failure: " << cli::OneLineText(error.what()) << "\n";
     return static_cast<int>(ExitStatus::kFailure);
+  } catch (const std::logic_error& error) {
+    // A broken internal rule (std::invalid_argument and friends too): a bug, never the
+    // user's input, so it never exits 2.
+    err << "stepledger: internal error (a bug; please report it): " << cli::OneLineText(error.what())
+        << "\n";
+    return static_cast<int>(ExitStatus::kFailure);
   } catch (const std::exception& error) {
     err << "stepledger: internal error: " << cli::OneLineText(error.what()) << "\n";
+    return static_cast<int>(ExitStatus::kFailure);
+  } catch (...) {
+    err << "stepledger: internal error: an exception that is not a std::exception\n";
     return static_cast<int>(ExitStatus::kFailure);
   }
 }

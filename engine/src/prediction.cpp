@@ -2,7 +2,6 @@
 
 #include <algorithm>
 #include <cmath>
-#include <cstdio>
 #include <map>
 #include <stdexcept>
 #include <utility>
@@ -10,18 +9,12 @@
 #include <boost/math/distributions/students_t.hpp>
 
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 
 namespace stepledger {
 namespace {
 
 std::string Quote(std::string_view text) { return "'" + QuoteForMessage(text) + "'"; }
-
-// Short but exact enough for a message (the CSV/JSON output carries the full digits).
-std::string Number(double value) {
-  char buffer[40];
-  std::snprintf(buffer, sizeof buffer, "%.6g", value);
-  return buffer;
-}
 
 }  // namespace
 
@@ -53,13 +46,14 @@ std::string RowProblem::Describe() const {
 std::string OutsideRange::Describe() const {
   switch (kind) {
     case TermKind::kLog:
-      return column + " = " + Number(value) + " outside [" + Number(min) + ", " + Number(max) +
-             "] (log term " + Quote(term) + ")";
+      return column + " = " + FormatQuantity(value) + " outside [" + FormatQuantity(min) + ", " +
+             FormatQuantity(max) + "] (log term " + Quote(term) + ")";
     case TermKind::kPower:
-      return column + "^" + std::to_string(degree) + " = " + Number(value) + " outside [" +
-             Number(min) + ", " + Number(max) + "] (power term " + Quote(term) + ")";
+      return column + "^" + std::to_string(degree) + " = " + FormatQuantity(value) + " outside [" +
+             FormatQuantity(min) + ", " + FormatQuantity(max) + "] (power term " + Quote(term) + ")";
     default:
-      return column + " = " + Number(value) + " outside [" + Number(min) + ", " + Number(max) + "]";
+      return column + " = " + FormatQuantity(value) + " outside [" + FormatQuantity(min) + ", " +
+             FormatQuantity(max) + "]";
   }
 }
 
@@ -92,8 +86,8 @@ std::string PredictedRow::Detail() const {
         for (const OutsideRange& outside : outside_range) add(outside.Describe());
         break;
       case PredictionFlag::kHiddenExtrapolation:
-        add("leverage " + Number(leverage.value_or(0)) + " is above " +
-            Number(max_fitted_leverage.value_or(0)) +
+        add("leverage " + FormatQuantity(leverage.value_or(0)) + " is above " +
+            FormatQuantity(max_fitted_leverage.value_or(0)) +
             ", the largest among the fitted rows, though every column is in range");
         break;
     }
@@ -215,11 +209,11 @@ EvaluatedRow PredictionRowEvaluator::Evaluate(const CsvRecord& record) const {
 
 void PredictionOptions::Validate() const {
   if (!(level > 0 && level < 1)) {
-    throw InputError("level: expected a number strictly between 0 and 1, found " + Number(level));
+    throw InputError("level: expected a number strictly between 0 and 1, found " + FormatQuantity(level));
   }
   if (!(leverage_tolerance >= 0) || !std::isfinite(leverage_tolerance)) {
     throw InputError("leverage_tolerance: expected a finite number >= 0, found " +
-                     Number(leverage_tolerance));
+                     FormatQuantity(leverage_tolerance));
   }
 }
 

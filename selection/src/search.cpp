@@ -4,6 +4,7 @@
 #include <iomanip>
 #include <set>
 #include <sstream>
+#include <stdexcept>
 
 #include "search_internal.h"
 #include "stepledger/engine/errors.h"
@@ -83,8 +84,10 @@ SearchResult RunSearch(const Factor& factor, const Design& design, const SearchO
   ValidateSearchOptions(options, design, run.allow_cycling_thresholds);
   run.kernel.Validate();
   if (factor.column_count() != design.column_count()) {
-    throw InputError("search: the factor has " + std::to_string(factor.column_count()) +
-                     " design columns but the design has " + std::to_string(design.column_count()));
+    // The caller folded the factor from another design: a bug in the caller, not bad input.
+    throw std::logic_error("RunSearch (a bug in the caller): the factor has " +
+                           std::to_string(factor.column_count()) + " design columns but the design has " +
+                           std::to_string(design.column_count()));
   }
   RouteRecorder recorder;
   ObserverFanOut fan_out({&recorder, observer});

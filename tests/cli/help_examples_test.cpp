@@ -55,7 +55,7 @@ class HelpExamples : public ::testing::Test {
 TEST_F(HelpExamples, EveryExampleRunsAsPrintedOnTheDemoFolder) {
   // In an order where each example finds what an earlier one made (compare's first line is
   // the rerun it needs).
-  for (const char* command : {"profile", "fit", "select", "verify", "rerun", "compare", "predict", "demo"}) {
+  for (const char* command : {"profile", "fit", "select", "verify", "rerun", "compare", "predict", "report", "demo"}) {
     const auto help = RunStepledger({command, "--help"});
     ASSERT_EQ(help.status, 0);
     const auto examples = ExampleCommands(help.out);

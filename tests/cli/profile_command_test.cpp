@@ -59,6 +59,22 @@ TEST(ProfileCommand, JsonSummarisesEachColumn) {
   EXPECT_EQ(result["columns"][3]["missing"], 6);
 }
 
+// The text summary is read by people: quantities with 4 significant digits and thousands
+// separators, counts with separators (number_format.h; common practice).
+TEST(ProfileCommand, TextSummaryFollowsTheNumberPolicy) {
+  TempDir folder;
+  const auto data = folder.Write("big.csv",
+                                 "listing_price,grade\n"
+                                 "1234567.5,A\n"
+                                 "2345678.6,A\n"
+                                 "0.0123456,B\n");
+  const CliRun run = RunStepledger({"profile", data.string()});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_NE(run.out.find("range 0.01235 .. 2,345,679, mean 1,193,415"), std::string::npos) << run.out;
+  EXPECT_NE(run.out.find("A (2), B (1)"), std::string::npos) << run.out;
+  EXPECT_EQ(run.out.find("e+06"), std::string::npos) << run.out;
+}
+
 TEST(ProfileCommand, StarterPlanLeavesOutIdsAndEmptyColumnsAndPicksTheBaseline) {
   TempDir folder;
   const auto data = folder.Write("shop.csv", kShopCsv);

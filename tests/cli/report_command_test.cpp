@@ -219,7 +219,7 @@ TEST(ReportCommandHelp, TeachesTheSectionsAndGivesExamples) {
   ASSERT_EQ(help.status, 0);
   for (const char* text : {"--html", "--text", "--data", "--force", "--rows-out", "--allow-unverified", "--json",
                            "Cook's distance", "cautions",
-                           "integrity", "Examples:", "stepledger report out/audit.json"}) {
+                           "integrity", "Examples:", "stepledger report build/demo/audit.json"}) {
     EXPECT_NE(help.out.find(text), std::string::npos) << text;
   }
 }

@@ -484,5 +484,26 @@ TEST(Prediction, EvaluateTermsReportsTheFirstNonPositiveLogTerm) {
   EXPECT_EQ(design.EvaluateTerms(values, levels, x), log_term);
 }
 
+// Row details are read by people: their numbers follow the one number policy
+// (number_format.h: 4 significant digits, thousands separators; common practice).
+TEST(Prediction, RowDetailNumbersFollowTheNumberPolicy) {
+  OutsideRange outside;
+  outside.column = "list_price";
+  outside.value = 1234567.8;
+  outside.min = 0.0123456;
+  outside.max = 1000000;
+  EXPECT_EQ(outside.Describe(), "list_price = 1,234,568 outside [0.01235, 1,000,000]");
+  outside.kind = TermKind::kPower;
+  outside.degree = 2;
+  outside.term = "price2";
+  EXPECT_EQ(outside.Describe(), "list_price^2 = 1,234,568 outside [0.01235, 1,000,000] (power term 'price2')");
+
+  PredictedRow row;
+  row.flags = {PredictionFlag::kHiddenExtrapolation};
+  row.leverage = 0.123456;
+  row.max_fitted_leverage = 0.0456789;
+  EXPECT_NE(row.Detail().find("leverage 0.1235 is above 0.04568,"), std::string::npos) << row.Detail();
+}
+
 }  // namespace
 }  // namespace stepledger

@@ -6,6 +6,7 @@
 #include <gtest/gtest.h>
 
 #include <algorithm>
+#include <stdexcept>
 #include <string>
 #include <vector>
 
@@ -239,6 +240,26 @@ TEST(SearchOptionsValidation, ProbabilitiesOutsideZeroOneNameTheirKey) {
   options.exit_p = 0.1;
   options.entry_p = 0;
   EXPECT_THROW(RunSearch(problem.factor, problem.design, options), PlanError);
+}
+
+// A factor folded from another design is the caller's bug: it leaves as std::logic_error
+// (exit 3 through RunCli), never as InputError (exit 2), and says so (STYLE.md, habit 4).
+TEST(SearchCallerBugs, FactorOfAnotherDesignIsALogicErrorNotInputError) {
+  const DenseProblem small = testing::MakeRandomProblem({.numeric_terms = 3});
+  const DenseProblem large = testing::MakeRandomProblem({.numeric_terms = 5});
+  SearchOptions options;
+  options.method = Method::kForward;
+  try {
+    RunSearch(small.factor, large.design, options);
+    FAIL() << "expected std::logic_error";
+  } catch (const InputError& error) {
+    FAIL() << "a caller's bug left as InputError: " << error.what();
+  } catch (const std::logic_error& error) {
+    const std::string message = error.what();
+    EXPECT_NE(message.find("bug"), std::string::npos) << message;
+    EXPECT_NE(message.find("the factor has 4 design columns but the design has 6"), std::string::npos)
+        << message;
+  }
 }
 
 TEST(SearchResultReports, NotRunSentinel) {

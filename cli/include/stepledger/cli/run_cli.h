@@ -1,6 +1,7 @@
 #pragma once
 // The command line as a function, so that tests run it in-process (STYLE.md, habit 10).
 
+#include <functional>
 #include <ostream>
 #include <string>
 #include <vector>
@@ -19,5 +20,12 @@ enum class ExitStatus : int {
 /// "--plan", "plan.json"}. Results go to out, messages and logs to err. Returns the exit
 /// status (ExitStatus as int). Never throws.
 int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream& err);
+
+/// Runs one command's action and maps what it throws to an exit status, writing one line to
+/// err: InputError/PlanError -> kBadInput (2); NumericalError -> kFailure (3);
+/// std::logic_error (a programmer bug: a broken internal rule, never bad input) and any other
+/// exception -> kFailure (3) with an "internal error" line. RunCli runs every command through
+/// it. Never throws (beyond what writing to err throws).
+int RunCommandAction(const std::function<int()>& action, std::ostream& err);
 
 }  // namespace stepledger
