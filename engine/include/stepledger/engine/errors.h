@@ -1,6 +1,7 @@
 #pragma once
 // Error channels of stepledger (STYLE.md, habit 4):
-//  - programmer bugs: assert();
+//  - programmer bugs: assert(), or std::logic_error where the check must stay in release builds
+//    (RunCli reports it as an internal error, exit 3; never InputError);
 //  - bad input (data file, plan, options): InputError and PlanError, whose message is the
 //    complete one-line text for the user, naming file:line:column or the JSON key path;
 //  - numerical or internal failures that end the work: NumericalError.
