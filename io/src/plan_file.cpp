@@ -231,20 +231,19 @@ json DesignTermToJson(const Design& design, const DesignTerm& term) {
   return TermSpecToJson(spec);
 }
 
-}  // namespace
-
-Plan PlanFromJson(const json& value) {
+// The top-level keys a plan may hold; any other key is an error naming it.
+ObjectReader ReadPlanRoot(const json& value) {
   if (!value.is_object()) {
     throw PlanError("", "expected a JSON object at the top level, found " + Found(value));
   }
-  ObjectReader root(value, "",
-                    {"response", "response_transform", "intercept", "weights", "terms", "keep",
-                     "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
-                     "max_terms", "best_per_size", "folds", "seed", "missing", "max_levels"});
-  Plan plan;
-  DesignSpec& design = plan.design;
-  SearchOptions& search = plan.search;
+  return ObjectReader(value, "",
+                      {"response", "response_transform", "intercept", "weights", "terms", "keep",
+                       "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
+                       "max_terms", "best_per_size", "folds", "seed", "missing", "max_levels"});
+}
 
+// The design's response side: response column, its transform, intercept and weights.
+void ReadResponsePart(const ObjectReader& root, DesignSpec& design) {
   const json* response = root.Get("response");
   if (response == nullptr) {
     throw PlanError("response", "missing: the plan must name the response column");
@@ -264,7 +263,10 @@ Plan PlanFromJson(const json& value) {
   if (const json* weights = root.Get("weights"); weights != nullptr && !weights->is_null()) {
     design.weights = ReadString(*weights, "weights");
   }
+}
 
+// The design's terms (a list or "all") and the level cap, then the design's own checks.
+void ReadDesignTerms(const ObjectReader& root, DesignSpec& design) {
   const json* terms = root.Get("terms");
   if (terms == nullptr) {
     throw PlanError("terms", "missing: the plan must list its terms, or say \"all\"");
@@ -286,7 +288,10 @@ Plan PlanFromJson(const json& value) {
   }
   // Empty names, duplicates, product parts and cycles, with the same key paths as here.
   ValidateDesignSpec(design);
+}
 
+// keep and never: known, unique term names, and no term in both.
+void ReadKeepAndNever(const ObjectReader& root, const DesignSpec& design, SearchOptions& search) {
   if (const json* keep = root.Get("keep")) search.keep = ReadStrings(*keep, "keep", false);
   if (const json* never = root.Get("never")) search.never = ReadStrings(*never, "never", false);
   CheckTermNames(search.keep, "keep", design);
@@ -300,7 +305,11 @@ Plan PlanFromJson(const json& value) {
                           "; a term cannot be both kept and never used");
     }
   }
+}
 
+// The search settings: method, criterion, thresholds and limits. Their cross-checks run in
+// ValidateSearchSettings once the whole plan has been read.
+void ReadSearchSettings(const ObjectReader& root, SearchOptions& search) {
   if (const json* method = root.Get("method")) {
     const auto parsed = method->is_string() ? MethodFromString(method->get<std::string>()) : std::nullopt;
     if (!parsed) {
@@ -335,12 +344,29 @@ Plan PlanFromJson(const json& value) {
     search.folds = static_cast<int>(ReadInteger(*folds, "folds", 2, std::numeric_limits<int>::max()));
   }
   if (const json* seed = root.Get("seed")) search.seed = ReadInteger(*seed, "seed", 0);
+}
+
+// The tokens a data cell may hold to mean "missing"; "" is a token like any other.
+void ReadMissingTokens(const ObjectReader& root, std::vector<std::string>& missing_tokens) {
   if (const json* missing = root.Get("missing")) {
-    plan.missing_tokens = ReadStrings(*missing, "missing", /*allow_empty=*/true);
+    missing_tokens = ReadStrings(*missing, "missing", /*allow_empty=*/true);
   }
+}
+
+}  // namespace
+
+Plan PlanFromJson(const json& value) {
+  const ObjectReader root = ReadPlanRoot(value);
+  Plan plan;
+  // The order of the phases is the order in which errors are reported; keep it.
+  ReadResponsePart(root, plan.design);
+  ReadDesignTerms(root, plan.design);
+  ReadKeepAndNever(root, plan.design, plan.search);
+  ReadSearchSettings(root, plan.search);
+  ReadMissingTokens(root, plan.missing_tokens);
   // The rules that do not depend on how the keys were spelled (ranges, thresholds, keep and
   // never) are the search's own, so that a plan file, the command line and a replay agree.
-  ValidateSearchSettings(search);
+  ValidateSearchSettings(plan.search);
   return plan;
 }
 
