@@ -7,6 +7,7 @@
 #include <cstdio>
 #include <map>
 #include <memory>
+#include <optional>
 #include <set>
 #include <sstream>
 #include <string>
@@ -160,11 +161,11 @@ nlohmann::json RowJson(const Priced& priced, bool with_id) {
   return json;
 }
 
-int RunPredict(const PredictArgs& args, CommandContext& context) {
-  if (!(args.level > 0 && args.level < 1)) {
-    throw InputError("--level: expected a number strictly between 0 and 1, found " + Number(args.level));
-  }
-  const nlohmann::json document = ReadAuditFile(args.audit);
+// Whether the audit may be used to price. An empty warning when its digests hold; the warning
+// to show everywhere when they do not and --allow-unverified was given; nullopt, after saying
+// why on the error stream, when they do not and it was not.
+std::optional<std::string> CheckAuditForPricing(const nlohmann::json& document, const PredictArgs& args,
+                                                CommandContext& context) {
   // Prices from an edited audit would look as trustworthy as any: refuse unless asked.
   std::string unverified_warning;
   if (const VerifyReport integrity = CheckAuditIntegrity(document); !integrity.Holds()) {
@@ -173,16 +174,25 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
       context.err << "stepledger: " << args.audit << " does not verify (" << OneLineText(problem)
                   << "): its coefficients may have been edited; run '" << ProgramWord() << " verify " << args.audit
                   << "' for the details, or add --allow-unverified to price with it anyway\n";
-      return static_cast<int>(ExitStatus::kDifferenceFound);
+      return std::nullopt;
     }
     unverified_warning = "warning: " + args.audit + " does not verify (" + OneLineText(problem) +
                          "); these prices come from an audit whose digests do not hold (--allow-unverified)";
   }
-  const FittedModel fitted = FittedModelFromAudit(document, args.audit);
-  PredictionOptions options;
-  options.level = args.level;
-  const Predictor predictor(MakePricingModel(fitted), options);
+  return unverified_warning;
+}
 
+// The rows priced in input order, with the counts the summary reports.
+struct PricedRows {
+  std::vector<Priced> rows;
+  bool with_id = false;       ///< --id named a column; each row carries its text
+  bool weights_read = false;  ///< the rows file's weight column was read
+  std::size_t priced_count = 0;
+  std::map<PredictionFlag, std::size_t> flag_counts;
+};
+
+PricedRows PriceRows(const PredictArgs& args, CommandContext& context, const FittedModel& fitted,
+                     const Predictor& predictor) {
   CsvOptions csv = MakeCsvOptions(context.common);
   csv.missing_tokens = fitted.missing_tokens;
   CsvReader reader(args.rows, csv);
@@ -195,24 +205,31 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
     }
   }
   const PredictionRowEvaluator evaluator(predictor.design(), reader);
-  const bool with_id = id_index >= 0;
-  const bool logged = predictor.design().response_transform == ResponseTransform::kLog;
+  PricedRows priced_rows;
+  priced_rows.with_id = id_index >= 0;
+  priced_rows.weights_read = evaluator.reads_weights();
 
-  std::vector<Priced> rows;
   CsvRecord record;
   while (reader.Next(record)) {
     Priced priced{predictor.Predict(evaluator.Evaluate(record)), {}};
-    if (with_id) priced.id = std::string(record.fields[static_cast<std::size_t>(id_index)].text);
-    rows.push_back(std::move(priced));
+    if (priced_rows.with_id) priced.id = std::string(record.fields[static_cast<std::size_t>(id_index)].text);
+    priced_rows.rows.push_back(std::move(priced));
   }
 
-  std::map<PredictionFlag, std::size_t> counts;
-  std::size_t priced_count = 0;
-  for (const Priced& priced : rows) {
-    if (priced.row.priced()) ++priced_count;
-    for (const PredictionFlag flag : priced.row.flags) ++counts[flag];
+  for (const Priced& priced : priced_rows.rows) {
+    if (priced.row.priced()) ++priced_rows.priced_count;
+    for (const PredictionFlag flag : priced.row.flags) ++priced_rows.flag_counts[flag];
   }
+  return priced_rows;
+}
 
+// The whole output (JSON document, or CSV with the warning as a leading comment line).
+std::string RenderPredictOutput(const PredictArgs& args, CommandContext& context, const FittedModel& fitted,
+                                const Predictor& predictor, PricedRows& priced_rows,
+                                const std::string& unverified_warning) {
+  const std::vector<Priced>& rows = priced_rows.rows;
+  const bool with_id = priced_rows.with_id;
+  const bool logged = predictor.design().response_transform == ResponseTransform::kLog;
   std::string text;
   if (context.common.json) {
     nlohmann::json result;
@@ -230,42 +247,68 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
     result["t_quantile"] = Json(predictor.t_quantile());
     result["max_unit_leverage"] = Json(fitted.support.max_unit_leverage);
     result["weights"] = predictor.design().weights ? nlohmann::json(*predictor.design().weights) : nlohmann::json(nullptr);
-    result["weights_read"] = evaluator.reads_weights();
+    result["weights_read"] = priced_rows.weights_read;
     nlohmann::json json_rows = nlohmann::json::array();
     for (const Priced& priced : rows) json_rows.push_back(RowJson(priced, with_id));
     result["rows"] = std::move(json_rows);
     nlohmann::json flag_counts = nlohmann::json::object();
-    for (const PredictionFlag flag : kAllPredictionFlags) flag_counts[ToString(flag)] = counts[flag];
-    result["summary"] = {{"rows", rows.size()}, {"priced", priced_count}, {"flags", std::move(flag_counts)}};
+    // operator[] on the map: a flag no row carries counts 0 (and is then present in the map).
+    for (const PredictionFlag flag : kAllPredictionFlags) flag_counts[ToString(flag)] = priced_rows.flag_counts[flag];
+    result["summary"] = {{"rows", rows.size()}, {"priced", priced_rows.priced_count}, {"flags", std::move(flag_counts)}};
     text = result.dump(2) + "\n";
   } else {
     text = RenderCsv(rows, with_id, logged);
     if (!unverified_warning.empty()) text = "# " + unverified_warning + "\n" + text;
   }
-  if (!unverified_warning.empty()) context.err << "stepledger: " << unverified_warning << "\n";
-  WriteOutput(context, args.out, text);
+  return text;
+}
 
-  if (!context.common.quiet) {
-    context.err << "predict: model " << ModelStatement(fitted.design, fitted.fit) << "\n";
-    std::string summary = "predict: " + std::to_string(rows.size()) + " rows, " +
-                          std::to_string(priced_count) + " priced";
-    bool first = true;
-    for (const PredictionFlag flag : {PredictionFlag::kOutsideRange, PredictionFlag::kHiddenExtrapolation,
-                                      PredictionFlag::kUnknownLevel, PredictionFlag::kMissing,
-                                      PredictionFlag::kInvalidValue}) {
-      summary += (first ? "; " : ", ") + std::string(ToString(flag)) + " " + std::to_string(counts[flag]);
-      first = false;
-    }
-    context.err << summary << "\n";
-    if (logged && !context.common.json) {
-      context.err << "predict: response '" << predictor.design().response
-                  << "' was logged: the exp_ columns (first) are the price on its own scale (exp "
-                     "of the log-scale prediction: the median, and its intervals); prediction, "
-                     "se_mean and the intervals after them are on the log scale; mean_smearing = "
-                     "exp_prediction x "
-                  << Number(fitted.support.smearing_factor) << " (smearing factor)\n";
-    }
+// The model and the counts on the error stream, unless --quiet.
+void ReportPredictSummary(CommandContext& context, const FittedModel& fitted, const Predictor& predictor,
+                          PricedRows& priced_rows) {
+  if (context.common.quiet) return;
+  const bool logged = predictor.design().response_transform == ResponseTransform::kLog;
+  context.err << "predict: model " << ModelStatement(fitted.design, fitted.fit) << "\n";
+  std::string summary = "predict: " + std::to_string(priced_rows.rows.size()) + " rows, " +
+                        std::to_string(priced_rows.priced_count) + " priced";
+  bool first = true;
+  for (const PredictionFlag flag : {PredictionFlag::kOutsideRange, PredictionFlag::kHiddenExtrapolation,
+                                    PredictionFlag::kUnknownLevel, PredictionFlag::kMissing,
+                                    PredictionFlag::kInvalidValue}) {
+    summary += (first ? "; " : ", ") + std::string(ToString(flag)) + " " +
+               std::to_string(priced_rows.flag_counts[flag]);
+    first = false;
   }
+  context.err << summary << "\n";
+  if (logged && !context.common.json) {
+    context.err << "predict: response '" << predictor.design().response
+                << "' was logged: the exp_ columns (first) are the price on its own scale (exp "
+                   "of the log-scale prediction: the median, and its intervals); prediction, "
+                   "se_mean and the intervals after them are on the log scale; mean_smearing = "
+                   "exp_prediction x "
+                << Number(fitted.support.smearing_factor) << " (smearing factor)\n";
+  }
+}
+
+int RunPredict(const PredictArgs& args, CommandContext& context) {
+  if (!(args.level > 0 && args.level < 1)) {
+    throw InputError("--level: expected a number strictly between 0 and 1, found " + Number(args.level));
+  }
+  const nlohmann::json document = ReadAuditFile(args.audit);
+  const std::optional<std::string> unverified_warning = CheckAuditForPricing(document, args, context);
+  if (!unverified_warning) return static_cast<int>(ExitStatus::kDifferenceFound);
+  const FittedModel fitted = FittedModelFromAudit(document, args.audit);
+  PredictionOptions options;
+  options.level = args.level;
+  const Predictor predictor(MakePricingModel(fitted), options);
+
+  PricedRows priced_rows = PriceRows(args, context, fitted, predictor);
+
+  const std::string text =
+      RenderPredictOutput(args, context, fitted, predictor, priced_rows, *unverified_warning);
+  if (!unverified_warning->empty()) context.err << "stepledger: " << *unverified_warning << "\n";
+  WriteOutput(context, args.out, text);
+  ReportPredictSummary(context, fitted, predictor, priced_rows);
   return 0;
 }
 
