@@ -40,6 +40,101 @@ std::string Quoted(std::string_view text) {
   return quoted;
 }
 
+// The steps of CsvReader::TryParseQuoted, the reader's hot path for records holding a quote.
+// Each works on pointers into the buffer and the caller's locals (no allocation, no copy) and
+// is small enough to be inlined; errors stay with the caller, which owns the message context.
+
+// How a scan of one field ended: its end was found, the buffer ends before it does and more
+// input may follow, or the text breaks the quoting rules at the position returned.
+enum class FieldScan { kFound, kNeedMoreInput, kBroken };
+
+// The line count of a record as it is parsed: the line the scan is on and the file offset at
+// which that line starts. Committed to the reader only when the whole record is parsed.
+struct LinePosition {
+  std::uint64_t line;
+  std::uint64_t line_start;
+};
+
+// Scans a quoted field's content, from just after its opening quote to its closing quote,
+// stepping over doubled quotes and counting the line ends inside. kFound sets closing_quote;
+// kBroken means the quote is never closed (the file ends first).
+inline FieldScan ScanQuotedContent(const char* content_begin, const char* end, bool at_eof,
+                                   const char* base, std::uint64_t buffer_offset, LinePosition& lines,
+                                   const char*& closing_quote, bool& has_doubled_quotes) {
+  const char* scan = content_begin;
+  for (;;) {
+    const char* quote = FindByte(scan, end, kQuote);
+    const char* segment_end = quote != nullptr ? quote : end;
+    for (const char* lf = FindByte(scan, segment_end, '\n'); lf != nullptr;
+         lf = FindByte(lf + 1, segment_end, '\n')) {
+      ++lines.line;
+      lines.line_start = buffer_offset + static_cast<std::uint64_t>(lf + 1 - base);
+    }
+    if (quote == nullptr) return at_eof ? FieldScan::kBroken : FieldScan::kNeedMoreInput;
+    // A quote at the buffer's end may be the first of a doubled pair: wait for the next byte.
+    if (quote + 1 == end && !at_eof) return FieldScan::kNeedMoreInput;
+    if (quote + 1 < end && quote[1] == kQuote) {
+      has_doubled_quotes = true;
+      scan = quote + 2;
+      continue;
+    }
+    closing_quote = quote;
+    return FieldScan::kFound;
+  }
+}
+
+// After the closing quote only a delimiter, a line end or the end of the file may follow.
+// kFound sets after_field to the delimiter, the LF or end; kBroken means stray text at position.
+inline FieldScan FindEndAfterClosingQuote(const char* position, const char* end, char delimiter,
+                                          bool at_eof, const char*& after_field) {
+  if (position == end) {
+    if (!at_eof) return FieldScan::kNeedMoreInput;
+    after_field = end;
+  } else if (*position == delimiter || *position == '\n') {
+    after_field = position;
+  } else if (*position == '\r' && (position + 1 == end || position[1] == '\n')) {
+    if (position + 1 == end && !at_eof) return FieldScan::kNeedMoreInput;
+    after_field = position + 1;
+  } else {
+    return FieldScan::kBroken;
+  }
+  return FieldScan::kFound;
+}
+
+// Appends a quoted field's content to storage with each doubled quote made single. Every quote
+// inside the content is doubled (ScanQuotedContent checked it): keep the first of each pair.
+inline void AppendUndoubled(std::string_view content, std::string& storage) {
+  for (std::string_view rest = content; !rest.empty();) {
+    const std::size_t quote = rest.find(kQuote);
+    if (quote == std::string_view::npos) {
+      storage.append(rest);
+      break;
+    }
+    storage.append(rest.substr(0, quote + 1));
+    rest.remove_prefix(quote + 2);
+  }
+}
+
+// Scans an unquoted field from position to the delimiter, LF or end that closes it (after_field)
+// and sets text to its content without a CR before a line end. kBroken: a quote at after_field.
+inline FieldScan ScanUnquotedField(const char* position, const char* end, char delimiter, bool at_eof,
+                                   const char*& after_field, std::string_view& text) {
+  const char* scan = position;
+  while (scan < end && *scan != delimiter && *scan != '\n' && *scan != kQuote) ++scan;
+  if (scan < end && *scan == kQuote) {
+    after_field = scan;
+    return FieldScan::kBroken;
+  }
+  if (scan == end && !at_eof) return FieldScan::kNeedMoreInput;
+  const char* text_end = scan;
+  if (scan == end || *scan == '\n') {
+    if (text_end > position && text_end[-1] == '\r') --text_end;
+  }
+  text = std::string_view(position, static_cast<std::size_t>(text_end - position));
+  after_field = scan;
+  return FieldScan::kFound;
+}
+
 }  // namespace
 
 void CsvOptions::Validate() const {
@@ -193,8 +288,8 @@ bool CsvReader::TryParseRecord(std::vector<CsvField>& fields, std::uint64_t& sta
   return true;
 }
 
-// General case: the record holds a quote somewhere. A byte-wise state machine over local
-// copies of the position state, committed only when the whole record is in the buffer.
+// General case: the record holds a quote somewhere. A field-by-field scan over local copies of
+// the position state, committed only when the whole record is in the buffer; false asks for more.
 bool CsvReader::TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& start_line) {
   const char* const base = buffer_.data();
   const char* const end = base + buffer_.size();
@@ -202,14 +297,13 @@ bool CsvReader::TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& sta
   fields.clear();
   stored_texts_.clear();
   record_storage_.clear();
-  std::uint64_t line = line_;
-  std::uint64_t line_start = line_start_offset_;
+  LinePosition lines{line_, line_start_offset_};
   const char* position = base + cursor_;
 
   for (;;) {  // one field per iteration
     CsvField& field = fields.emplace_back();
-    field.line = line;
-    field.column = ColumnAt(position, line_start);
+    field.line = lines.line;
+    field.column = ColumnAt(position, lines.line_start);
     field.quoted = false;
     const char* after_field = nullptr;  // the delimiter, LF or end that closes the field
 
@@ -217,82 +311,47 @@ bool CsvReader::TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& sta
       field.quoted = true;
       const char* const opening = position;
       const char* const content_begin = position + 1;
-      const char* scan = content_begin;
+      const char* closing_quote = nullptr;
       bool has_doubled_quotes = false;
-      const char* content_end = nullptr;
-      for (;;) {
-        const char* quote = FindByte(scan, end, kQuote);
-        const char* segment_end = quote != nullptr ? quote : end;
-        for (const char* lf = FindByte(scan, segment_end, '\n'); lf != nullptr;
-             lf = FindByte(lf + 1, segment_end, '\n')) {
-          ++line;
-          line_start = buffer_offset_ + static_cast<std::uint64_t>(lf + 1 - base);
-        }
-        if (quote == nullptr) {
-          if (!eof_) return false;
+      switch (ScanQuotedContent(content_begin, end, eof_, base, buffer_offset_, lines, closing_quote,
+                                has_doubled_quotes)) {
+        case FieldScan::kFound: break;
+        case FieldScan::kNeedMoreInput: return false;
+        case FieldScan::kBroken:
           Fail(field.line, field.column,
                "quoted field opened here is never closed (it starts " +
                    Quoted(std::string_view(opening, static_cast<std::size_t>(end - opening))) + ")");
-        }
-        if (quote + 1 == end && !eof_) return false;
-        if (quote + 1 < end && quote[1] == kQuote) {
-          has_doubled_quotes = true;
-          scan = quote + 2;
-          continue;
-        }
-        content_end = quote;
-        position = quote + 1;
-        break;
       }
-      // After the closing quote only a delimiter, a line end or the end of the file may follow.
-      if (position == end) {
-        if (!eof_) return false;
-        after_field = end;
-      } else if (*position == delimiter || *position == '\n') {
-        after_field = position;
-      } else if (*position == '\r' && (position + 1 == end || position[1] == '\n')) {
-        if (position + 1 == end && !eof_) return false;
-        after_field = position + 1;
-      } else {
-        Fail(line, ColumnAt(position, line_start),
-             "unexpected text after the closing quote of field " +
-                 Quoted(std::string_view(opening, static_cast<std::size_t>(
-                                                      FieldAround(position, end, delimiter).end() -
-                                                      opening))) +
-                 "; a quoted field ends at its closing quote");
+      position = closing_quote + 1;
+      switch (FindEndAfterClosingQuote(position, end, delimiter, eof_, after_field)) {
+        case FieldScan::kFound: break;
+        case FieldScan::kNeedMoreInput: return false;
+        case FieldScan::kBroken:
+          Fail(lines.line, ColumnAt(position, lines.line_start),
+               "unexpected text after the closing quote of field " +
+                   Quoted(std::string_view(opening, static_cast<std::size_t>(
+                                                        FieldAround(position, end, delimiter).end() -
+                                                        opening))) +
+                   "; a quoted field ends at its closing quote");
       }
-      const std::string_view raw(content_begin, static_cast<std::size_t>(content_end - content_begin));
+      const std::string_view raw(content_begin, static_cast<std::size_t>(closing_quote - content_begin));
       if (has_doubled_quotes) {
+        // Stored as an offset: record_storage_ may move while later fields are appended.
         const std::size_t offset = record_storage_.size();
-        // Every quote inside the content is doubled (checked above): keep the first of each pair.
-        for (std::string_view rest = raw; !rest.empty();) {
-          const std::size_t quote = rest.find(kQuote);
-          if (quote == std::string_view::npos) {
-            record_storage_.append(rest);
-            break;
-          }
-          record_storage_.append(rest.substr(0, quote + 1));
-          rest.remove_prefix(quote + 2);
-        }
+        AppendUndoubled(raw, record_storage_);
         stored_texts_.push_back({fields.size() - 1, offset, record_storage_.size() - offset});
       } else {
         field.text = raw;
       }
     } else {
-      const char* scan = position;
-      while (scan < end && *scan != delimiter && *scan != '\n' && *scan != kQuote) ++scan;
-      if (scan < end && *scan == kQuote) {
-        Fail(line, ColumnAt(scan, line_start),
-             "quote character inside unquoted field " + Quoted(FieldAround(position, end, delimiter)) +
-                 "; quote the whole field and double each quote inside it");
+      switch (ScanUnquotedField(position, end, delimiter, eof_, after_field, field.text)) {
+        case FieldScan::kFound: break;
+        case FieldScan::kNeedMoreInput: return false;
+        case FieldScan::kBroken:
+          Fail(lines.line, ColumnAt(after_field, lines.line_start),
+               "quote character inside unquoted field " + Quoted(FieldAround(position, end, delimiter)) +
+                   "; quote the whole field and double each quote inside it");
       }
-      if (scan == end && !eof_) return false;
-      const char* text_end = scan;
-      if (scan == end || *scan == '\n') {
-        if (text_end > position && text_end[-1] == '\r') --text_end;
-      }
-      field.text = std::string_view(position, static_cast<std::size_t>(text_end - position));
-      after_field = scan;
     }
 
     if (after_field < end && *after_field == delimiter) {
@@ -302,14 +361,14 @@ bool CsvReader::TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& sta
     // End of the record: at a LF or at the end of the file.
     start_line = line_;
     if (after_field < end) {  // *after_field == '\n'
-      ++line;
+      ++lines.line;
       cursor_ = static_cast<std::size_t>(after_field + 1 - base);
-      line_start = buffer_offset_ + cursor_;
+      lines.line_start = buffer_offset_ + cursor_;
     } else {
       cursor_ = buffer_.size();
     }
-    line_ = line;
-    line_start_offset_ = line_start;
+    line_ = lines.line;
+    line_start_offset_ = lines.line_start;
     for (const StoredText& stored : stored_texts_) {
       fields[stored.field_index].text =
           std::string_view(record_storage_.data() + stored.offset, stored.length);
