@@ -6,6 +6,8 @@
 #include <cstdio>
 #include <array>
 #include <map>
+#include <string>
+#include <vector>
 #include <sstream>
 
 #include "stepledger/audit/audit_format_versions.h"
@@ -81,7 +83,25 @@ double ShiftInOldSd(const json& before, const json& after, double tolerance) {
   return (old_sd && *old_sd > 0) ? largest / *old_sd : std::numeric_limits<double>::infinity();
 }
 
-json ColumnsComparison(const json& old_data, const json& new_data, const CompareOptions& options) {
+std::optional<std::string> StringOrEmpty(const json& object, const char* key) {
+  if (!object.is_object() || !object.contains(key) || !object[key].is_string()) return std::nullopt;
+  return object[key].get<std::string>();
+}
+
+std::optional<std::int64_t> CountOrEmpty(const json& object, const char* key) {
+  if (!object.is_object() || !object.contains(key) || !object[key].is_number_integer()) return std::nullopt;
+  return object[key].get<std::int64_t>();
+}
+
+json StringOrNull(const std::optional<std::string>& value) { return value ? json(*value) : json(nullptr); }
+
+json StringsJson(const std::vector<std::string>& names) {
+  json array = json::array();
+  for (const std::string& name : names) array.push_back(name);
+  return array;
+}
+
+ColumnsComparisonPart ColumnsComparison(const json& old_data, const json& new_data, const CompareOptions& options) {
   std::map<std::string, json> old_columns, new_columns;
   std::vector<std::string> old_order, new_order;
   for (const json& column : old_data.value("columns", json::array())) {
@@ -92,58 +112,50 @@ json ColumnsComparison(const json& old_data, const json& new_data, const Compare
     new_columns[column.value("name", "")] = column;
     new_order.push_back(column.value("name", ""));
   }
-  json added = json::array(), lost = json::array(), type_changed = json::array(), moved = json::array();
-  std::uint64_t numeric_compared = 0;
+  ColumnsComparisonPart columns;
+  columns.moved_threshold_in_old_sd = options.column_shift_in_old_sd;
   for (const std::string& name : new_order) {
-    if (!old_columns.count(name)) added.push_back(name);
+    if (!old_columns.count(name)) columns.added.push_back(name);
   }
   for (const std::string& name : old_order) {
     if (!new_columns.count(name)) {
-      lost.push_back(name);
+      columns.lost.push_back(name);
       continue;
     }
     const json& before = old_columns[name];
     const json& after = new_columns[name];
     if (before.value("type", "") != after.value("type", "")) {
-      type_changed.push_back({{"column", name}, {"old", before.value("type", "")}, {"new", after.value("type", "")}});
+      columns.type_changed.push_back({name, before.value("type", ""), after.value("type", "")});
       continue;
     }
     if (before.value("type", "") != "numeric") continue;
-    ++numeric_compared;
+    ++columns.numeric_compared;
     const double shift = ShiftInOldSd(before, after, options.relative_tolerance);
     if (shift <= options.column_shift_in_old_sd) continue;
-    json entry{{"column", name}};
-    for (const char* side : {"old", "new"}) {
-      const json& source = std::string(side) == "old" ? before : after;
-      entry[side] = {{"min", source.value("min", json(nullptr))},
-                     {"max", source.value("max", json(nullptr))},
-                     {"mean", source.value("mean", json(nullptr))},
-                     {"sd", source.value("sd", json(nullptr))}};
-    }
+    MovedColumn entry;
+    entry.column = name;
+    const auto summary = [](const json& source) {
+      return json{{"min", source.value("min", json(nullptr))},
+                  {"max", source.value("max", json(nullptr))},
+                  {"mean", source.value("mean", json(nullptr))},
+                  {"sd", source.value("sd", json(nullptr))}};
+    };
+    entry.old_summary = summary(before);
+    entry.new_summary = summary(after);
     const auto old_mean = Number(before, "mean");
     const auto new_mean = Number(after, "mean");
     const auto old_sd = Number(before, "sd");
-    entry["mean_shift_in_old_sd"] = (old_mean && new_mean && old_sd && *old_sd > 0)
-                                        ? json((*new_mean - *old_mean) / *old_sd)
-                                        : json(nullptr);
-    entry["shift_in_old_sd"] = std::isfinite(shift) ? json(shift) : json(nullptr);
-    moved.push_back(std::move(entry));
+    if (old_mean && new_mean && old_sd && *old_sd > 0) entry.mean_shift_in_old_sd = (*new_mean - *old_mean) / *old_sd;
+    if (std::isfinite(shift)) entry.shift_in_old_sd = shift;
+    columns.moved.push_back(std::move(entry));
   }
-  return {{"added", added},
-          {"lost", lost},
-          {"type_changed", type_changed},
-          {"moved", moved},
-          {"numeric_compared", numeric_compared},
-          {"moved_rule", "a numeric column is listed when its mean moved, or its range reaches beyond the old "
-                         "range, by more than " + ThresholdText(options.column_shift_in_old_sd) +
-                             " old standard deviations"},
-          {"moved_threshold_in_old_sd", options.column_shift_in_old_sd}};
+  return columns;
 }
 
 // Keys of the two normalised plans whose values differ, in the new plan's key order. A key
 // only one side records (an audit of an older format) is not compared.
-json PlanComparison(const json& old_audit, const json& new_audit) {
-  json differences = json::array();
+PlanComparisonPart PlanComparison(const json& old_audit, const json& new_audit) {
+  PlanComparisonPart part;
   const json* old_plan = nullptr;
   const json* new_plan = nullptr;
   if (old_audit.contains("plan") && old_audit["plan"].is_object()) {
@@ -154,57 +166,54 @@ json PlanComparison(const json& old_audit, const json& new_audit) {
     const json& plan = new_audit["plan"];
     if (plan.contains("normalised") && plan["normalised"].is_object()) new_plan = &plan["normalised"];
   }
-  if (old_plan == nullptr || new_plan == nullptr) {
-    return {{"compared", false}, {"same", nullptr}, {"differences", differences}};
-  }
+  if (old_plan == nullptr || new_plan == nullptr) return part;
+  part.compared = true;
   for (const auto& [key, new_value] : new_plan->items()) {
     if (!old_plan->contains(key)) continue;
     const json& old_value = (*old_plan)[key];
-    if (old_value != new_value) differences.push_back({{"key", key}, {"old", old_value}, {"new", new_value}});
+    if (old_value != new_value) part.differences.push_back({key, old_value, new_value});
   }
-  return {{"compared", true}, {"same", differences.empty()}, {"differences", differences}};
+  return part;
 }
 
-json StepMove(const json& step) {
-  return {{"action", step.value("action", json(nullptr))}, {"term", step.value("term", json(nullptr))}};
-}
+RouteMove StepMove(const json& step) { return {StringOrEmpty(step, "action"), StringOrEmpty(step, "term")}; }
 
-json RouteComparison(const json& old_steps, const json& new_steps) {
+RouteComparisonPart RouteComparison(const json& old_steps, const json& new_steps) {
+  RouteComparisonPart route;
   const std::size_t common = std::min(old_steps.size(), new_steps.size());
   for (std::size_t index = 0; index < common; ++index) {
-    const json a = StepMove(old_steps[index]);
-    const json b = StepMove(new_steps[index]);
-    if (a != b) {
-      return {{"same", false}, {"first_difference_step", index}, {"old", a}, {"new", b}};
-    }
+    const RouteMove a = StepMove(old_steps[index]);
+    const RouteMove b = StepMove(new_steps[index]);
+    if (a != b) return {false, index, a, b};
   }
   if (old_steps.size() != new_steps.size()) {
-    return {{"same", false},
-            {"first_difference_step", common},
-            {"old", common < old_steps.size() ? StepMove(old_steps[common]) : json(nullptr)},
-            {"new", common < new_steps.size() ? StepMove(new_steps[common]) : json(nullptr)}};
+    route.same = false;
+    route.first_difference_step = common;
+    if (common < old_steps.size()) route.old_move = StepMove(old_steps[common]);
+    if (common < new_steps.size()) route.new_move = StepMove(new_steps[common]);
   }
-  return {{"same", true}, {"first_difference_step", nullptr}, {"old", nullptr}, {"new", nullptr}};
+  return route;
 }
 
 // Which terms of the final models entered, left or stayed, in each model's own term order.
-json FinalTermsComparison(const std::vector<std::string>& old_terms, const std::vector<std::string>& new_terms) {
-  json entered = json::array(), left = json::array(), kept = json::array();
+FinalTermsComparisonPart FinalTermsComparison(const std::vector<std::string>& old_terms,
+                                              const std::vector<std::string>& new_terms) {
+  FinalTermsComparisonPart terms;
   for (const std::string& term : new_terms) {
-    if (!Contains(old_terms, term)) entered.push_back(term);
+    if (!Contains(old_terms, term)) terms.entered.push_back(term);
   }
   for (const std::string& term : old_terms) {
-    (Contains(new_terms, term) ? kept : left).push_back(term);
+    (Contains(new_terms, term) ? terms.kept : terms.left).push_back(term);
   }
-  return {{"entered", entered}, {"left", left}, {"kept", kept}};
+  return terms;
 }
 
 // The coefficients both models share, compared in the old model's order, and the names only one
 // of them has.
 struct CoefficientChanges {
-  json shared = json::array();
-  json only_old = json::array();
-  json only_new = json::array();
+  std::vector<CoefficientChange> shared;
+  std::vector<std::string> only_old;
+  std::vector<std::string> only_new;
   // True when some shared estimate moved beyond the relative tolerance.
   bool estimates_differ = false;
 };
@@ -227,27 +236,24 @@ CoefficientChanges CompareCoefficients(const json& old_model, const json& new_mo
       continue;
     }
     const json& after = new_coefficients[name];
-    const auto old_estimate = Number(before, "estimate");
-    const auto new_estimate = Number(after, "estimate");
-    const auto old_se = Number(before, "se");
-    const auto new_se = Number(after, "se");
-    json entry{{"name", name},
-               {"old_estimate", NumberOrNull(old_estimate)},
-               {"new_estimate", NumberOrNull(new_estimate)},
-               {"old_se", NumberOrNull(old_se)},
-               {"new_se", NumberOrNull(new_se)}};
-    std::optional<double> in_old_se, in_joint_se;
-    if (old_estimate && new_estimate) {
-      const double change = *new_estimate - *old_estimate;
-      if (!NumbersAgree(*old_estimate, *new_estimate, tolerance)) changes.estimates_differ = true;
-      if (old_se && *old_se > 0) in_old_se = change / *old_se;
+    CoefficientChange entry;
+    entry.name = name;
+    entry.old_estimate = Number(before, "estimate");
+    entry.new_estimate = Number(after, "estimate");
+    entry.old_se = Number(before, "se");
+    entry.new_se = Number(after, "se");
+    const auto& old_se = entry.old_se;
+    const auto& new_se = entry.new_se;
+    if (entry.old_estimate && entry.new_estimate) {
+      const double change = *entry.new_estimate - *entry.old_estimate;
+      if (!NumbersAgree(*entry.old_estimate, *entry.new_estimate, tolerance)) changes.estimates_differ = true;
+      if (old_se && *old_se > 0) entry.change_in_old_se = change / *old_se;
       if (old_se && new_se && (*old_se > 0 || *new_se > 0)) {
-        in_joint_se = change / std::sqrt(*old_se * *old_se + *new_se * *new_se);
+        entry.change_in_joint_se = change / std::sqrt(*old_se * *old_se + *new_se * *new_se);
       }
     }
-    entry["change_in_old_se"] = NumberOrNull(in_old_se);
-    entry["change_in_joint_se"] = NumberOrNull(in_joint_se);
-    entry["beyond_mark"] = in_old_se.has_value() && std::fabs(*in_old_se) > options.coefficient_mark_in_se;
+    entry.beyond_mark =
+        entry.change_in_old_se.has_value() && std::fabs(*entry.change_in_old_se) > options.coefficient_mark_in_se;
     changes.shared.push_back(std::move(entry));
   }
   for (const std::string& name : new_names) {
@@ -283,7 +289,7 @@ ComparisonVerdict VerdictFromParts(const std::vector<std::string>& old_terms,
 
 }  // namespace
 
-json CompareAudits(const json& old_as_read, const json& new_as_read, const CompareOptions& options) {
+AuditComparison CompareAudits(const json& old_as_read, const json& new_as_read, const CompareOptions& options) {
   // Both in today's names, so that an audit of an older format_version compares like with like.
   const json old_audit = AuditInCurrentShape(old_as_read);
   const json new_audit = AuditInCurrentShape(new_as_read);
@@ -292,32 +298,101 @@ json CompareAudits(const json& old_as_read, const json& new_as_read, const Compa
   const json& old_model = Section(old_audit, "model", "old");
   const json& new_model = Section(new_audit, "model", "new");
 
-  json comparison;
-  comparison["old_seal"] = old_audit.value("seal", json(nullptr));
-  comparison["old_data_sha256"] = old_data.value("sha256", json(nullptr));
-  comparison["new_data_sha256"] = new_data.value("sha256", json(nullptr));
-  comparison["same_data"] = old_data.value("sha256", json(nullptr)) == new_data.value("sha256", json(nullptr));
-  comparison["plan"] = PlanComparison(old_audit, new_audit);
-  comparison["columns"] = ColumnsComparison(old_data, new_data, options);
-  comparison["rows"] = {{"old_rows_used", old_data.value("rows_used", json(nullptr))},
-                        {"new_rows_used", new_data.value("rows_used", json(nullptr))}};
-  comparison["route"] = RouteComparison(old_audit.value("steps", json::array()),
-                                        new_audit.value("steps", json::array()));
+  AuditComparison comparison;
+  comparison.old_seal = StringOrEmpty(old_audit, "seal");
+  comparison.old_data_sha256 = StringOrEmpty(old_data, "sha256");
+  comparison.new_data_sha256 = StringOrEmpty(new_data, "sha256");
+  comparison.same_data = old_data.value("sha256", json(nullptr)) == new_data.value("sha256", json(nullptr));
+  comparison.plan = PlanComparison(old_audit, new_audit);
+  comparison.columns = ColumnsComparison(old_data, new_data, options);
+  comparison.rows = {CountOrEmpty(old_data, "rows_used"), CountOrEmpty(new_data, "rows_used")};
+  comparison.route = RouteComparison(old_audit.value("steps", json::array()), new_audit.value("steps", json::array()));
 
   const std::vector<std::string> old_terms = Strings(old_model.value("terms", json::array()));
   const std::vector<std::string> new_terms = Strings(new_model.value("terms", json::array()));
-  comparison["final_terms"] = FinalTermsComparison(old_terms, new_terms);
+  comparison.final_terms = FinalTermsComparison(old_terms, new_terms);
 
-  const CoefficientChanges changes = CompareCoefficients(old_model, new_model, options);
-  comparison["coefficients"] = changes.shared;
-  comparison["coefficient_mark_in_se"] = options.coefficient_mark_in_se;
-  comparison["coefficients_only_old"] = changes.only_old;
-  comparison["coefficients_only_new"] = changes.only_new;
+  CoefficientChanges changes = CompareCoefficients(old_model, new_model, options);
+  comparison.verdict = VerdictFromParts(old_terms, new_terms, changes);
+  comparison.coefficients = std::move(changes.shared);
+  comparison.coefficient_mark_in_se = options.coefficient_mark_in_se;
+  comparison.coefficients_only_old = std::move(changes.only_old);
+  comparison.coefficients_only_new = std::move(changes.only_new);
+  comparison.prediction = RecordedPrediction(old_audit, new_audit);
+  return comparison;
+}
 
-  comparison["prediction"] = RecordedPrediction(old_audit, new_audit);
-  const ComparisonVerdict verdict = VerdictFromParts(old_terms, new_terms, changes);
+namespace {
+
+json RouteMoveJson(const std::optional<RouteMove>& move) {
+  if (!move) return nullptr;
+  return {{"action", StringOrNull(move->action)}, {"term", StringOrNull(move->term)}};
+}
+
+}  // namespace
+
+json AuditComparison::ToJson() const {
+  json plan_json = {{"compared", plan.compared}, {"same", nullptr}, {"differences", json::array()}};
+  if (plan.compared) plan_json["same"] = plan.differences.empty();
+  for (const PlanDifference& difference : plan.differences) {
+    plan_json["differences"].push_back({{"key", difference.key}, {"old", difference.old_value}, {"new", difference.new_value}});
+  }
+  json type_changed = json::array(), moved = json::array();
+  for (const ColumnTypeChange& change : columns.type_changed) {
+    type_changed.push_back({{"column", change.column}, {"old", change.old_type}, {"new", change.new_type}});
+  }
+  for (const MovedColumn& entry : columns.moved) {
+    moved.push_back({{"column", entry.column},
+                     {"old", entry.old_summary},
+                     {"new", entry.new_summary},
+                     {"mean_shift_in_old_sd", NumberOrNull(entry.mean_shift_in_old_sd)},
+                     {"shift_in_old_sd", NumberOrNull(entry.shift_in_old_sd)}});
+  }
+  json coefficients_json = json::array();
+  for (const CoefficientChange& entry : coefficients) {
+    coefficients_json.push_back({{"name", entry.name},
+                                 {"old_estimate", NumberOrNull(entry.old_estimate)},
+                                 {"new_estimate", NumberOrNull(entry.new_estimate)},
+                                 {"old_se", NumberOrNull(entry.old_se)},
+                                 {"new_se", NumberOrNull(entry.new_se)},
+                                 {"change_in_old_se", NumberOrNull(entry.change_in_old_se)},
+                                 {"change_in_joint_se", NumberOrNull(entry.change_in_joint_se)},
+                                 {"beyond_mark", entry.beyond_mark}});
+  }
+  const auto count_or_null = [](const std::optional<std::int64_t>& value) { return value ? json(*value) : json(nullptr); };
+  json comparison;
+  comparison["old_seal"] = StringOrNull(old_seal);
+  comparison["old_data_sha256"] = StringOrNull(old_data_sha256);
+  comparison["new_data_sha256"] = StringOrNull(new_data_sha256);
+  comparison["same_data"] = same_data;
+  comparison["plan"] = std::move(plan_json);
+  comparison["columns"] = {{"added", StringsJson(columns.added)},
+                           {"lost", StringsJson(columns.lost)},
+                           {"type_changed", type_changed},
+                           {"moved", moved},
+                           {"numeric_compared", columns.numeric_compared},
+                           {"moved_rule", "a numeric column is listed when its mean moved, or its range reaches beyond "
+                                          "the old range, by more than " +
+                                              ThresholdText(columns.moved_threshold_in_old_sd) +
+                                              " old standard deviations"},
+                           {"moved_threshold_in_old_sd", columns.moved_threshold_in_old_sd}};
+  comparison["rows"] = {{"old_rows_used", count_or_null(rows.old_rows_used)},
+                        {"new_rows_used", count_or_null(rows.new_rows_used)}};
+  comparison["route"] = {{"same", route.same},
+                         {"first_difference_step", route.first_difference_step ? json(*route.first_difference_step)
+                                                                               : json(nullptr)},
+                         {"old", RouteMoveJson(route.old_move)},
+                         {"new", RouteMoveJson(route.new_move)}};
+  comparison["final_terms"] = {{"entered", StringsJson(final_terms.entered)},
+                               {"left", StringsJson(final_terms.left)},
+                               {"kept", StringsJson(final_terms.kept)}};
+  comparison["coefficients"] = std::move(coefficients_json);
+  comparison["coefficient_mark_in_se"] = coefficient_mark_in_se;
+  comparison["coefficients_only_old"] = StringsJson(coefficients_only_old);
+  comparison["coefficients_only_new"] = StringsJson(coefficients_only_new);
+  comparison["prediction"] = prediction;
   comparison["verdict"] = ToString(verdict);
-  comparison["models_differ"] = verdict != ComparisonVerdict::kSameModel;
+  comparison["models_differ"] = ModelsDiffer();
   return comparison;
 }
 
@@ -421,16 +496,6 @@ std::optional<ComparisonVerdict> ComparisonVerdictFromString(std::string_view te
   return std::nullopt;
 }
 
-ComparisonVerdict VerdictOf(const json& comparison) {
-  if (comparison.is_object() && comparison.contains("verdict") && comparison["verdict"].is_string()) {
-    if (auto verdict = ComparisonVerdictFromString(comparison["verdict"].get<std::string>())) return *verdict;
-  }
-  // A comparison recorded before verdicts existed: only models_differ.
-  return comparison.value("models_differ", true) ? ComparisonVerdict::kDifferentTerms : ComparisonVerdict::kSameModel;
-}
-
-bool FinalModelsDiffer(const json& comparison) { return VerdictOf(comparison) != ComparisonVerdict::kSameModel; }
-
 namespace {
 
 std::string PlanValueText(const json& value) {
@@ -453,9 +518,9 @@ std::string VerdictSentence(ComparisonVerdict verdict) {
   return {};
 }
 
-std::string NamesText(const json& array) {
+std::string NamesText(const std::vector<std::string>& names) {
   std::string joined;
-  for (const json& item : array) joined += (joined.empty() ? "" : ", ") + (item.is_string() ? item.get<std::string>() : item.dump());
+  for (const std::string& name : names) joined += (joined.empty() ? "" : ", ") + name;
   return joined.empty() ? std::string("none") : joined;
 }
 
@@ -463,101 +528,97 @@ std::string CountText(const json& value) {
   return value.is_number() ? FormatCount(value.get<std::int64_t>()) : std::string("n/a");
 }
 
-void RenderVerdictAndData(const json& comparison, std::ostringstream& text) {
-  text << VerdictSentence(VerdictOf(comparison)) << "\n";
-  text << "Comparison with the old run";
-  if (comparison.value("old_seal", json(nullptr)).is_string()) {
-    text << " (seal " << comparison["old_seal"].get<std::string>().substr(0, 16) << "...)";
-  }
-  text << "\n";
-  text << "  data: " << (comparison.value("same_data", false) ? "the same bytes" : "different bytes") << "\n";
+std::string CountText(const std::optional<std::int64_t>& value) {
+  return value ? FormatCount(*value) : std::string("n/a");
 }
 
-void RenderPlanDifferences(const json& comparison, std::ostringstream& text) {
-  if (!comparison.contains("plan") || !comparison["plan"].value("compared", false)) return;
-  const json& differences = comparison["plan"]["differences"];
-  if (differences.empty()) {
+void RenderVerdictAndData(const AuditComparison& comparison, std::ostringstream& text) {
+  text << comparison.BriefReport() << "\n";
+  text << "Comparison with the old run";
+  if (comparison.old_seal) text << " (seal " << comparison.old_seal->substr(0, 16) << "...)";
+  text << "\n";
+  text << "  data: " << (comparison.same_data ? "the same bytes" : "different bytes") << "\n";
+}
+
+void RenderPlanDifferences(const PlanComparisonPart& plan, std::ostringstream& text) {
+  if (!plan.compared) return;
+  if (plan.differences.empty()) {
     text << "  plan: the same\n";
     return;
   }
   text << "  plan differences:\n";
-  for (const json& entry : differences) {
-    text << "    " << entry.value("key", "") << ": " << PlanValueText(entry["old"]) << " -> "
-         << PlanValueText(entry["new"]) << "\n";
+  for (const PlanDifference& entry : plan.differences) {
+    text << "    " << entry.key << ": " << PlanValueText(entry.old_value) << " -> " << PlanValueText(entry.new_value)
+         << "\n";
   }
 }
 
-void RenderColumns(const json& columns, std::ostringstream& text) {
-  text << "  columns added: " << NamesText(columns["added"]) << "\n";
-  text << "  columns lost: " << NamesText(columns["lost"]) << "\n";
-  if (!columns["type_changed"].empty()) {
+void RenderColumns(const ColumnsComparisonPart& columns, std::ostringstream& text) {
+  text << "  columns added: " << NamesText(columns.added) << "\n";
+  text << "  columns lost: " << NamesText(columns.lost) << "\n";
+  if (!columns.type_changed.empty()) {
     text << "  columns whose type changed:";
-    for (const json& entry : columns["type_changed"]) {
-      text << " " << entry.value("column", "") << " (" << entry.value("old", "") << " -> "
-           << entry.value("new", "") << ")";
+    for (const ColumnTypeChange& entry : columns.type_changed) {
+      text << " " << entry.column << " (" << entry.old_type << " -> " << entry.new_type << ")";
     }
     text << "\n";
   }
-  const double column_threshold = columns.value("moved_threshold_in_old_sd", 0.1);
-  if (columns["moved"].empty()) {
+  const double column_threshold = columns.moved_threshold_in_old_sd;
+  if (columns.moved.empty()) {
     text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
          << ThresholdText(column_threshold) << " old SD): none\n";
     return;
   }
   text << "  columns that moved (mean, or range reaching beyond the old one, by more than "
        << ThresholdText(column_threshold) << " old SD):\n";
-  for (const json& entry : columns["moved"]) {
-    text << "    " << entry.value("column", "") << ": mean " << FormatJsonNumber(entry["old"]["mean"]) << " -> "
-         << FormatJsonNumber(entry["new"]["mean"]);
-    if (entry["mean_shift_in_old_sd"].is_number()) {
-      text << " (" << FormatFixed(entry["mean_shift_in_old_sd"].get<double>(), 2) << " old SD)";
-    }
-    text << ", range " << FormatJsonNumber(entry["old"]["min"]) << " to " << FormatJsonNumber(entry["old"]["max"])
-         << " -> " << FormatJsonNumber(entry["new"]["min"]) << " to " << FormatJsonNumber(entry["new"]["max"])
-         << "\n";
+  for (const MovedColumn& entry : columns.moved) {
+    text << "    " << entry.column << ": mean " << FormatJsonNumber(entry.old_summary["mean"]) << " -> "
+         << FormatJsonNumber(entry.new_summary["mean"]);
+    if (entry.mean_shift_in_old_sd) text << " (" << FormatFixed(*entry.mean_shift_in_old_sd, 2) << " old SD)";
+    text << ", range " << FormatJsonNumber(entry.old_summary["min"]) << " to "
+         << FormatJsonNumber(entry.old_summary["max"]) << " -> " << FormatJsonNumber(entry.new_summary["min"])
+         << " to " << FormatJsonNumber(entry.new_summary["max"]) << "\n";
   }
 }
 
-void RenderRows(const json& rows, std::ostringstream& text) {
-  text << "  rows used: " << CountText(rows["old_rows_used"]) << " -> " << CountText(rows["new_rows_used"]) << "\n";
+void RenderRows(const RowsComparisonPart& rows, std::ostringstream& text) {
+  text << "  rows used: " << CountText(rows.old_rows_used) << " -> " << CountText(rows.new_rows_used) << "\n";
 }
 
-std::string RouteMoveText(const json& step) {
-  if (!step.is_object()) return std::string("(no step)");
-  std::string out = step.value("action", json(nullptr)).is_string() ? step["action"].get<std::string>() : "?";
-  if (step["term"].is_string()) out += " " + step["term"].get<std::string>();
+std::string RouteMoveText(const std::optional<RouteMove>& move) {
+  if (!move) return std::string("(no step)");
+  std::string out = move->action.value_or("?");
+  if (move->term) out += " " + *move->term;
   return out;
 }
 
-void RenderRoute(const json& route, std::ostringstream& text) {
-  if (route.value("same", false)) {
+void RenderRoute(const RouteComparisonPart& route, std::ostringstream& text) {
+  if (route.same) {
     text << "  route: the same actions and terms at every step\n";
     return;
   }
-  text << "  route: parts at step " << route["first_difference_step"].dump() << ": old "
-       << RouteMoveText(route["old"]) << ", new " << RouteMoveText(route["new"]) << "\n";
+  text << "  route: parts at step "
+       << (route.first_difference_step ? std::to_string(*route.first_difference_step) : std::string("null"))
+       << ": old " << RouteMoveText(route.old_move) << ", new " << RouteMoveText(route.new_move) << "\n";
 }
 
-void RenderFinalTerms(const json& final_terms, std::ostringstream& text) {
-  text << "  terms entered the final model: " << NamesText(final_terms["entered"]) << "\n";
-  text << "  terms left the final model: " << NamesText(final_terms["left"]) << "\n";
+void RenderFinalTerms(const FinalTermsComparisonPart& final_terms, std::ostringstream& text) {
+  text << "  terms entered the final model: " << NamesText(final_terms.entered) << "\n";
+  text << "  terms left the final model: " << NamesText(final_terms.left) << "\n";
 }
 
-void RenderCoefficients(const json& comparison, std::ostringstream& text) {
-  if (comparison["coefficients"].empty()) return;
-  const double mark = comparison.value("coefficient_mark_in_se", 2.0);
-  text << "  coefficient changes (new - old, in units of the old SE; * beyond " << ThresholdText(mark)
-       << " SE):\n";
+void RenderCoefficients(const AuditComparison& comparison, std::ostringstream& text) {
+  if (comparison.coefficients.empty()) return;
+  text << "  coefficient changes (new - old, in units of the old SE; * beyond "
+       << ThresholdText(comparison.coefficient_mark_in_se) << " SE):\n";
   std::size_t width = 8;
-  for (const json& entry : comparison["coefficients"]) width = std::max(width, entry.value("name", "").size());
-  for (const json& entry : comparison["coefficients"]) {
-    const std::string name = entry.value("name", "");
-    const std::string change = entry["change_in_old_se"].is_number()
-                                   ? FormatFixed(entry["change_in_old_se"].get<double>(), 2) + " SE"
-                                   : std::string("n/a");
-    text << "    " << name << std::string(width - name.size(), ' ') << "  "
-         << FormatJsonNumber(entry["old_estimate"]) << " -> " << FormatJsonNumber(entry["new_estimate"]) << "  "
-         << change << (entry.value("beyond_mark", false) ? " *" : "") << "\n";
+  for (const CoefficientChange& entry : comparison.coefficients) width = std::max(width, entry.name.size());
+  for (const CoefficientChange& entry : comparison.coefficients) {
+    const std::string change =
+        entry.change_in_old_se ? FormatFixed(*entry.change_in_old_se, 2) + " SE" : std::string("n/a");
+    text << "    " << entry.name << std::string(width - entry.name.size(), ' ') << "  "
+         << FormatQuantity(entry.old_estimate) << " -> " << FormatQuantity(entry.new_estimate) << "  " << change
+         << (entry.beyond_mark ? " *" : "") << "\n";
   }
 }
 
@@ -586,16 +647,18 @@ void RenderPrediction(const json& prediction, std::ostringstream& text) {
 
 }  // namespace
 
-std::string ComparisonReport(const json& comparison) {
+std::string AuditComparison::BriefReport() const { return VerdictSentence(verdict); }
+
+std::string AuditComparison::FullReport() const {
   std::ostringstream text;
-  RenderVerdictAndData(comparison, text);
-  RenderPlanDifferences(comparison, text);
-  RenderColumns(comparison["columns"], text);
-  RenderRows(comparison["rows"], text);
-  RenderRoute(comparison["route"], text);
-  RenderFinalTerms(comparison["final_terms"], text);
-  RenderCoefficients(comparison, text);
-  RenderPrediction(comparison["prediction"], text);
+  RenderVerdictAndData(*this, text);
+  RenderPlanDifferences(plan, text);
+  RenderColumns(columns, text);
+  RenderRows(rows, text);
+  RenderRoute(route, text);
+  RenderFinalTerms(final_terms, text);
+  RenderCoefficients(*this, text);
+  RenderPrediction(prediction, text);
   return text.str();
 }
 

@@ -24,12 +24,12 @@ struct CompareArgs {
 int RunCompare(const CompareArgs& args, CommandContext& context) {
   const nlohmann::json old_audit = ReadAuditFile(args.old_audit);
   const nlohmann::json new_audit = ReadAuditFile(args.new_audit);
-  nlohmann::json comparison = CompareAudits(old_audit, new_audit);
+  AuditComparison comparison = CompareAudits(old_audit, new_audit);
   if (!args.data.empty()) {
     // B's data are read the way B's run read them (its recorded delimiter).
     const CsvOptions csv =
         RunOptionsFromSettings(new_audit.value("settings", nlohmann::json::object())).csv;
-    comparison["prediction"] = PredictionComparison(old_audit, new_audit, args.data, csv);
+    comparison.prediction = PredictionComparison(old_audit, new_audit, args.data, csv);
   }
   // A comparison of edited files would mislead: say so first (verify gives the details).
   nlohmann::json warnings = nlohmann::json::array();
@@ -37,21 +37,20 @@ int RunCompare(const CompareArgs& args, CommandContext& context) {
     const VerifyReport integrity = CheckAuditIntegrity(*audit);
     if (!integrity.Holds()) warnings.push_back(name + " does not verify: " + integrity.problems.front());
   }
-  const ComparisonVerdict verdict = VerdictOf(comparison);
   if (context.common.json) {
     context.out << nlohmann::json{{"old", args.old_audit},
                                   {"new", args.new_audit},
-                                  {"verdict", ToString(verdict)},
-                                  {"comparison", comparison},
+                                  {"verdict", ToString(comparison.verdict)},
+                                  {"comparison", comparison.ToJson()},
                                   {"warnings", warnings}}
                        .dump(2)
                 << "\n";
   } else {
     for (const auto& warning : warnings) context.out << "Warning: " << warning.get<std::string>() << "\n";
-    context.out << ComparisonReport(comparison);
+    context.out << comparison.FullReport();
   }
-  return verdict == ComparisonVerdict::kSameModel ? static_cast<int>(ExitStatus::kDone)
-                                                  : static_cast<int>(ExitStatus::kDifferenceFound);
+  return comparison.ModelsDiffer() ? static_cast<int>(ExitStatus::kDifferenceFound)
+                                    : static_cast<int>(ExitStatus::kDone);
 }
 
 }  // namespace

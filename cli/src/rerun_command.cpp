@@ -60,8 +60,8 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   const RunResult run = ReplayRecordedPlan(parent, args.data, args.audit, overrides, progress.get());
 
   const nlohmann::json unsealed = BuildAuditDocument(run);
-  nlohmann::json comparison = CompareAudits(parent, unsealed);
-  comparison["prediction"] = PredictionComparison(parent, unsealed, args.data, run.options.csv);
+  AuditComparison comparison = CompareAudits(parent, unsealed);
+  comparison.prediction = PredictionComparison(parent, unsealed, args.data, run.options.csv);
 
   AuditDocumentOptions document_options;
   document_options.parent = nlohmann::json{
@@ -69,7 +69,7 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
       {"created_at", parent.value("created_at", nlohmann::json(nullptr))},
       {"data_sha256", parent.at("data").value("sha256", nlohmann::json(nullptr))},
       {"data_file", parent.at("data").value("file", nlohmann::json(nullptr))}};
-  document_options.comparison = comparison;
+  document_options.comparison = comparison.ToJson();
   // The new audit and its reviewer's report, written as one unit (as select writes them).
   const nlohmann::json written = BuildSealedAudit(run, document_options, args.sign_key);
   std::optional<ReportDiagnostics> diagnostics;
@@ -78,17 +78,16 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   WriteAuditFolder(folder, written, {{std::string(kReportFileName), std::move(report)}},
                    context.common.force);
 
-  const ComparisonVerdict verdict = VerdictOf(comparison);
   if (context.common.json) {
     context.out << nlohmann::json{{"audit", audit_path.string()},
                                   {"report", report_path.string()},
-                                  {"verdict", ToString(verdict)},
+                                  {"verdict", ToString(comparison.verdict)},
                                   {"model_statement", ModelStatement(run.design, run.fit)},
-                                  {"comparison", comparison}}
+                                  {"comparison", comparison.ToJson()}}
                        .dump(2)
                 << "\n";
   } else {
-    context.out << ComparisonReport(comparison) << "\n"
+    context.out << comparison.FullReport() << "\n"
                 << "New model: " << ModelStatement(run.design, run.fit) << "\n"
                 << run.search.BriefReport();
     if (!context.common.quiet) {

@@ -207,9 +207,9 @@ TEST(AuditFormatV1, ComparedWithARerunOfTheSamePlanTheModelsAreTheSame) {
   // compare and rerun read both audits in today's names: grade[A] and grade=A are one column.
   const json old_audit = ReadAuditFile(FixtureAudit());
   const json new_audit = FreshAuditOfTheFixturePlan();
-  const json comparison = CompareAudits(old_audit, new_audit);
-  EXPECT_FALSE(FinalModelsDiffer(comparison)) << comparison.dump(2);
-  EXPECT_EQ(comparison["coefficients"].size(), 6u) << comparison["coefficients"].dump(2);
+  const AuditComparison comparison = CompareAudits(old_audit, new_audit);
+  EXPECT_FALSE(comparison.ModelsDiffer()) << comparison.FullReport();
+  EXPECT_EQ(comparison.coefficients.size(), 6u) << comparison.ToJson()["coefficients"].dump(2);
   CsvOptions csv;
   csv.missing_tokens = {"", "NA"};
   const json prediction = PredictionComparison(old_audit, new_audit, FixtureData(), csv);

@@ -196,9 +196,10 @@ TEST_F(AuditVerify, ReplayNamesTheFirstStepWhereTheRouteDiverges) {
 
   // The route on the changed data, run independently, says where the routes part.
   const json other = BuildAuditDocument(RunPlan(changed, ParsePlanText(testing::LaptopPlan()), {}));
-  const json comparison = CompareAudits(*sealed_, other);
-  ASSERT_FALSE(comparison["route"]["same"].get<bool>()) << "the changed row must change the route";
-  const auto expected_step = comparison["route"]["first_difference_step"].get<std::size_t>();
+  const AuditComparison comparison = CompareAudits(*sealed_, other);
+  ASSERT_FALSE(comparison.route.same) << "the changed row must change the route";
+  ASSERT_TRUE(comparison.route.first_difference_step.has_value());
+  const std::size_t expected_step = *comparison.route.first_difference_step;
 
   VerifyOptions options;
   options.data = changed;

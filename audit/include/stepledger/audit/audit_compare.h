@@ -24,9 +24,13 @@
 //                else {available: false, reason}
 //   models_differ true unless the verdict is "same model".
 
+#include <cstddef>
+#include <cstdint>
 #include <filesystem>
 #include <optional>
 #include <string>
+#include <string_view>
+#include <vector>
 
 #include <nlohmann/json.hpp>
 
@@ -58,10 +62,139 @@ struct CompareOptions {
   double coefficient_mark_in_se = 2;
 };
 
+/// One key of the normalised plans whose values differ. The values are kept as the audits
+/// record them (a plan value may be a string, a number, a list or null).
+struct PlanDifference {
+  std::string key;
+  nlohmann::json old_value;
+  nlohmann::json new_value;
+};
+
+/// The normalised plans compared key by key.
+struct PlanComparisonPart {
+  /// False when either audit records no normalised plan (then `differences` is empty).
+  bool compared = false;
+  std::vector<PlanDifference> differences;
+};
+
+/// A column present in both audits whose recorded type differs.
+struct ColumnTypeChange {
+  std::string column;
+  std::string old_type;
+  std::string new_type;
+};
+
+/// A numeric column that really moved. The summaries ({min, max, mean, sd}) are copied as the
+/// audits record them, so that the `comparison` section reproduces them exactly.
+struct MovedColumn {
+  std::string column;
+  nlohmann::json old_summary;
+  nlohmann::json new_summary;
+  /// (new mean - old mean) / old SD; empty when a mean is missing or the old SD is not positive.
+  std::optional<double> mean_shift_in_old_sd;
+  /// The larger of the mean's shift and the range's reach beyond the old one, in old SDs;
+  /// empty when that is infinite (old SD 0 or undefined, or a value recorded on one side only).
+  std::optional<double> shift_in_old_sd;
+};
+
+/// The data columns compared.
+struct ColumnsComparisonPart {
+  std::vector<std::string> added;
+  std::vector<std::string> lost;
+  std::vector<ColumnTypeChange> type_changed;
+  std::vector<MovedColumn> moved;
+  std::uint64_t numeric_compared = 0;
+  /// CompareOptions::column_shift_in_old_sd the comparison used.
+  double moved_threshold_in_old_sd = CompareOptions{}.column_shift_in_old_sd;
+};
+
+/// Rows used by each fit; empty when an audit does not record them.
+struct RowsComparisonPart {
+  std::optional<std::int64_t> old_rows_used;
+  std::optional<std::int64_t> new_rows_used;
+};
+
+/// One step's move: its action ("add", "remove", ...) and term, each empty when not recorded.
+struct RouteMove {
+  std::optional<std::string> action;
+  std::optional<std::string> term;
+  bool operator==(const RouteMove& other) const { return action == other.action && term == other.term; }
+  bool operator!=(const RouteMove& other) const { return !(*this == other); }
+};
+
+/// Where the two routes part.
+struct RouteComparisonPart {
+  bool same = true;
+  /// Empty when the routes are the same.
+  std::optional<std::size_t> first_difference_step;
+  /// The moves at that step; empty when that route has no such step (or the routes agree).
+  std::optional<RouteMove> old_move;
+  std::optional<RouteMove> new_move;
+};
+
+/// Terms of the final models, each list in its model's own term order.
+struct FinalTermsComparisonPart {
+  std::vector<std::string> entered;  ///< in the new model, not the old
+  std::vector<std::string> left;     ///< in the old model, not the new
+  std::vector<std::string> kept;     ///< in both (old order)
+};
+
+/// One coefficient both final models have.
+struct CoefficientChange {
+  std::string name;
+  std::optional<double> old_estimate;
+  std::optional<double> new_estimate;
+  std::optional<double> old_se;
+  std::optional<double> new_se;
+  /// (new - old) / old SE; empty when an estimate is missing or the old SE is not positive.
+  std::optional<double> change_in_old_se;
+  /// (new - old) / sqrt(old SE^2 + new SE^2); empty when undefined.
+  std::optional<double> change_in_joint_se;
+  /// |change_in_old_se| > CompareOptions::coefficient_mark_in_se.
+  bool beyond_mark = false;
+};
+
+/// The comparison of an old and a new audit as one value (what `compare` prints and `rerun`
+/// records as the new audit's `comparison` section). A default-made value is "not run": no
+/// seals, no differences, the cautious verdict kDifferentTerms and a prediction part that says
+/// it was not computed.
+struct AuditComparison {
+  std::optional<std::string> old_seal;
+  std::optional<std::string> old_data_sha256;
+  std::optional<std::string> new_data_sha256;
+  /// The two data fingerprints are equal (two missing ones count as equal, as recorded).
+  bool same_data = false;
+  PlanComparisonPart plan;
+  ColumnsComparisonPart columns;
+  RowsComparisonPart rows;
+  RouteComparisonPart route;
+  FinalTermsComparisonPart final_terms;
+  /// Coefficients in both final models, in the old model's order.
+  std::vector<CoefficientChange> coefficients;
+  /// CompareOptions::coefficient_mark_in_se the comparison used.
+  double coefficient_mark_in_se = CompareOptions{}.coefficient_mark_in_se;
+  std::vector<std::string> coefficients_only_old;
+  std::vector<std::string> coefficients_only_new;
+  /// The PredictionComparison part as that function builds it ({available, ...}); kept as JSON
+  /// because it is also copied from a recorded comparison of an earlier rerun.
+  nlohmann::json prediction = {{"available", false}, {"reason", "not computed"}};
+  ComparisonVerdict verdict = ComparisonVerdict::kDifferentTerms;
+
+  /// True unless the verdict is "same model".
+  bool ModelsDiffer() const { return verdict != ComparisonVerdict::kSameModel; }
+  /// The verdict line ("Verdict: same model (...)." ...).
+  std::string BriefReport() const;
+  /// The comparison as text for the terminal: the verdict first, then data, plan, columns,
+  /// rows, route, terms, coefficients and the old model on the new rows.
+  std::string FullReport() const;
+  /// The `comparison` section of an audit and of `compare --json`.
+  nlohmann::json ToJson() const;
+};
+
 /// The comparison of an old and a new audit (parsed). Throws InputError naming the key when an
 /// audit lacks a section the comparison needs.
-nlohmann::json CompareAudits(const nlohmann::json& old_audit, const nlohmann::json& new_audit,
-                             const CompareOptions& options = {});
+AuditComparison CompareAudits(const nlohmann::json& old_audit, const nlohmann::json& new_audit,
+                              const CompareOptions& options = {});
 
 /// The old audit's final model priced on the rows of a data file through the same path as
 /// `predict` (FittedModelFromAudit, MakePricingModel, PredictionRowEvaluator, Predictor), with
@@ -75,14 +208,5 @@ nlohmann::json CompareAudits(const nlohmann::json& old_audit, const nlohmann::js
 /// "reason": ...} when the old model cannot be rebuilt or the data lack its columns.
 nlohmann::json PredictionComparison(const nlohmann::json& old_audit, const nlohmann::json& new_audit,
                                     const std::filesystem::path& new_data, const CsvOptions& csv);
-
-/// The comparison as text for the terminal: the verdict first.
-std::string ComparisonReport(const nlohmann::json& comparison);
-
-/// The verdict a comparison records (kDifferentTerms when it records none).
-ComparisonVerdict VerdictOf(const nlohmann::json& comparison);
-
-/// True when the comparison says the final models differ (verdict other than "same model").
-bool FinalModelsDiffer(const nlohmann::json& comparison);
 
 }  // namespace stepledger
