@@ -3,17 +3,20 @@
 // per subcommand (each in its own <name>_command.cpp). Adding a command is one line in
 // run_cli.cpp: Add<Name>Command(app, context).
 
+#include <filesystem>
 #include <functional>
 #include <memory>
 #include <ostream>
 #include <string>
 
 #include <CLI/CLI.hpp>
+#include <nlohmann/json.hpp>
 #include <spdlog/logger.h>
 
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/run/run_plan.h"
 #include "stepledger/selection/plan.h"
 
 namespace stepledger::cli {
@@ -81,6 +84,12 @@ std::string ProgramWord();
 
 /// text on one line (line breaks become spaces): what stderr messages must be.
 std::string OneLineText(std::string text);
+
+/// Writes DIR/audit.json (the sealed document) and DIR/report.html, rendered from that very
+/// document with the run's own diagnostics (no second pass), as one unit (WriteAuditFolder):
+/// what `select --out` and `rerun --out` write.
+void WriteAuditWithReport(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
+                          const RunResult& run, bool overwrite);
 
 /// Writes text to a file atomically (refusing to overwrite without --force), or to out when
 /// path is "-".

@@ -72,11 +72,7 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   document_options.comparison = comparison.ToJson();
   // The new audit and its reviewer's report, written as one unit (as select writes them).
   const nlohmann::json written = BuildSealedAudit(run, document_options, args.sign_key);
-  std::optional<ReportDiagnostics> diagnostics;
-  if (run.diagnostics) diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma};
-  std::string report = RenderHtmlReport(written, diagnostics ? &*diagnostics : nullptr);
-  WriteAuditFolder(folder, written, {{std::string(kReportFileName), std::move(report)}},
-                   context.common.force);
+  WriteAuditWithReport(folder, written, run, context.common.force);
 
   if (context.common.json) {
     context.out << nlohmann::json{{"audit", audit_path.string()},

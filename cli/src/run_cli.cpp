@@ -18,6 +18,8 @@
 #include <spdlog/spdlog.h>
 
 #include "commands.h"
+#include "stepledger/audit/audit_document.h"
+#include "stepledger/report/report.h"
 #include "stepledger/io/atomic_file.h"
 #include "stepledger/engine/errors.h"
 
@@ -107,6 +109,14 @@ Criterion ParseCriterionOption(const std::string& text) {
                      "'; use adj-r2, aic, aicc, bic, cp, partial-f or cv (any case)");
   }
   return *criterion;
+}
+
+void WriteAuditWithReport(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
+                          const RunResult& run, bool overwrite) {
+  std::optional<ReportDiagnostics> diagnostics;
+  if (run.diagnostics) diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma};
+  std::string report = RenderHtmlReport(sealed_document, diagnostics ? &*diagnostics : nullptr);
+  WriteAuditFolder(folder, sealed_document, {{std::string(kReportFileName), std::move(report)}}, overwrite);
 }
 
 std::string ModelStatement(const Design& design, const FitResult& fit) {

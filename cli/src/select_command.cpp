@@ -49,11 +49,7 @@ std::vector<std::string> WriteAuditAndReport(const SelectArgs& args, const RunRe
                                              CommandContext& context) {
   AuditDocumentOptions document_options;
   const nlohmann::json document = BuildSealedAudit(run, document_options, args.sign_key);
-  std::optional<ReportDiagnostics> diagnostics;
-  if (run.diagnostics) diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma};
-  std::string report = RenderHtmlReport(document, diagnostics ? &*diagnostics : nullptr);
-  WriteAuditFolder(args.out_dir, document, {{std::string(kReportFileName), std::move(report)}},
-                   context.common.force);
+  WriteAuditWithReport(args.out_dir, document, run, context.common.force);
   const std::filesystem::path folder = args.out_dir;
   const std::string audit_path = (folder / kAuditFileName).string();
   const std::string report_path = (folder / kReportFileName).string();

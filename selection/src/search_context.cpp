@@ -11,17 +11,15 @@ namespace stepledger::selection_detail {
 std::string Num(double value) { return FormatQuantity(value, 6); }
 
 std::string Threshold(double value) {
-  // A plan setting as the plan states it (0.05, not 0.05000): the shortest text that reads back.
+  // A plan setting as the plan states it (0.05, not 0.05000): the shortest text that reads back
+  // (17 significant digits always do).
   std::ostringstream text;
-  text.precision(17);
-  for (int digits = 1; digits <= 17; ++digits) {
-    std::ostringstream candidate;
-    candidate.precision(digits);
-    candidate << value;
-    if (std::stod(candidate.str()) == value) return candidate.str();
+  for (int digits = 1;; ++digits) {
+    text.str("");
+    text.precision(digits);
+    text << value;
+    if (digits == 17 || std::stod(text.str()) == value) return text.str();
   }
-  text << value;
-  return text.str();
 }
 
 namespace {
