@@ -368,15 +368,17 @@ void WithoutWording(json& value) {
 namespace {
 
 // Fingerprint: unreadable data is bad input (exit 2), a different file a difference.
-void CheckFingerprint(const json& document, const std::filesystem::path& data_file, VerifyReport& report) {
-  const std::string actual = FingerprintFile(data_file);
+// `actual` is the fingerprint the replay's scan took (or, when the replay could not run, one
+// taken by reading the file); its problem is named before the replay's.
+void CheckFingerprint(const json& document, const std::filesystem::path& data_file, const std::string& actual,
+                      VerifyReport& report) {
   const json data = document.value("data", json::object());
   const std::string recorded = data.is_object() ? data.value("sha256", std::string()) : std::string();
   if (actual == recorded) {
     report.fingerprint = Check::kHolds;
   } else {
     report.fingerprint = Check::kFails;
-    report.problems.push_back("fingerprint mismatch: the data are not the bytes the audit was made from (" +
+    report.problems.insert(report.problems.begin(), "fingerprint mismatch: the data are not the bytes the audit was made from (" +
                               DataFileForMessage(data_file) + " has sha256 " + actual.substr(0, 16) +
                               "..., the audit records " + recorded.substr(0, 16) + "...)");
   }
@@ -390,6 +392,7 @@ std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& 
   try {
     ReplayOverrides overrides;
     if (options.threads > 0) overrides.threads = options.threads;
+    overrides.work_dir = options.work_dir;
     const RunResult run = ReplayRecordedPlan(document, options.data, "audit", overrides);
     AuditDocumentOptions document_options;
     document_options.created_at = document.value("created_at", std::string("unknown"));
@@ -488,8 +491,13 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   VerifyReport report = CheckAuditIntegrity(document, options.public_key);
   if (options.data.empty()) return report;  // the report says what was not checked
 
-  CheckFingerprint(document, options.data, report);
+  // One scan of the data: the replay's, which also takes the fingerprint.
   std::optional<json> replay = ReplayedDocument(document, options, report);
+  const json* replayed_data = replay && replay->contains("data") ? &(*replay)["data"] : nullptr;
+  const std::string actual = replayed_data != nullptr && replayed_data->is_object()
+                                 ? replayed_data->value("sha256", std::string())
+                                 : FingerprintFile(options.data);
+  CheckFingerprint(document, options.data, actual, report);
   if (!replay) return report;
   json& replayed = *replay;
 

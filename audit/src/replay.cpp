@@ -21,6 +21,7 @@ RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem:
   RunOptions options = RunOptionsFromSettings(audit.value("settings", nlohmann::json::object()));
   if (overrides.threads) options.threads = *overrides.threads;
   if (overrides.delimiter) options.csv.delimiter = *overrides.delimiter;
+  options.work_dir = overrides.work_dir;
   return RunPlan(data, loaded, options, observer);
 }
 

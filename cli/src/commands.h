@@ -17,9 +17,13 @@
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
 #include "stepledger/run/run_plan.h"
+#include "stepledger/engine/table_scan.h"
 #include "stepledger/selection/plan.h"
 
 namespace stepledger::cli {
+
+/// The cores this process may run on (sched_getaffinity), at least 1 and at most 256.
+int DefaultThreads();
 
 /// Options every command accepts (CONTRACT.md "Common options").
 struct CommonOptions {
@@ -27,8 +31,14 @@ struct CommonOptions {
   bool json = false;
   /// Allow overwriting an output file. Default: refuse.
   bool force = false;
-  /// Threads folding the factor during a pass over the data (>= 1). Default 1.
-  int threads = 1;
+  /// Threads reading the text and folding the factor (>= 1). Default: the cores available to
+  /// the process. A compressed file, a pipe or a FIFO is read by one thread (the folds still use
+  /// them all).
+  int threads = DefaultThreads();
+  /// Whether --threads was given (a replay otherwise uses the recorded count).
+  bool threads_given = false;
+  /// Folder for the typed copy of the rows (--work-dir); empty: the system temporary folder.
+  std::string work_dir;
   /// Only results and errors: no notes, no log lines below "error". Default: off.
   bool quiet = false;
   /// trace, debug, info, warn, error, off. Default warn.
@@ -36,6 +46,9 @@ struct CommonOptions {
   /// Field separator of the data file: one character, or "tab". Default ",".
   std::string delimiter = ",";
 };
+
+/// The --threads and --work-dir of a command as the engine takes them.
+DataReadOptions MakeDataReadOptions(const CommonOptions& common);
 
 /// Shared by the commands during one RunCli call.
 struct CommandContext {

@@ -3,9 +3,37 @@
 #include <string>
 #include <vector>
 
+#include <signal.h>
+
 #include "stepledger/cli/run_cli.h"
+#include "stepledger/engine/spill.h"
+
+namespace {
+
+// On SIGINT, SIGTERM or SIGHUP: remove the typed spill (async-signal-safe), then die of the
+// signal as if unhandled, so that the parent sees the usual status.
+extern "C" void RemoveSpillAndDie(int signal_number) {
+  stepledger::RemoveSpillFilesNow();
+  ::signal(signal_number, SIG_DFL);
+  ::raise(signal_number);
+}
+
+void RemoveSpillOnSignals() {
+  struct sigaction action {};
+  action.sa_handler = RemoveSpillAndDie;
+  sigemptyset(&action.sa_mask);
+  for (int signal_number : {SIGINT, SIGTERM, SIGHUP}) {
+    struct sigaction previous {};
+    // A signal ignored by the parent (nohup, a shell's background job) stays ignored.
+    if (::sigaction(signal_number, nullptr, &previous) == 0 && previous.sa_handler == SIG_IGN) continue;
+    ::sigaction(signal_number, &action, nullptr);
+  }
+}
+
+}  // namespace
 
 int main(int argc, char** argv) {
+  RemoveSpillOnSignals();
   std::vector<std::string> args(argv + (argc > 0 ? 1 : 0), argv + argc);
   return stepledger::RunCli(args, std::cout, std::cerr);
 }

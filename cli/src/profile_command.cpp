@@ -12,6 +12,7 @@
 #include <nlohmann/json.hpp>
 
 #include "commands.h"
+#include "stepledger/engine/table_scan.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/number_format.h"
 #include "stepledger/engine/profile.h"
@@ -216,7 +217,11 @@ std::string ColumnsTable(const DataProfile& profile, const ProfileArgs& args) {
 int RunProfile(const ProfileArgs& args, CommandContext& context) {
   const CsvOptions csv = MakeCsvOptions(context.common);
   context.log->info("profiling {}", args.data);
-  const DataProfile profile = ProfileCsv(args.data, csv);
+  ScanOptions scan;
+  scan.csv = csv;
+  scan.threads = context.common.threads;
+  scan.spill = false;  // the profile is all this command needs
+  const DataProfile profile = ScanData(args.data, scan).profile;
   const StarterPlan starter = MakeStarterPlan(profile, args, context.common);
   const bool has_plan = !starter.plan.is_null();
   const std::string plan_text = has_plan ? PlanText(starter.plan) : std::string();
@@ -269,7 +274,8 @@ void AddProfileCommand(CLI::App& app, CommandContext& context) {
                                                "--force)")
                               ->type_name("FILE")
                               ->needs(response);
-  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kThreadsOption);
+  AddCommonOptions(*command, context.common, kAllCommonOptions);
+  command->remove_option(command->get_option("--work-dir"));  // a profile writes no spill
   command->get_option("--force")->needs(plan_out);
   command->footer(
       "Reads the data file once and shows each column's kind, present and missing cells, "

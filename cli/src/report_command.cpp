@@ -55,7 +55,7 @@ int RunReport(const ReportArgs& args, CommandContext& context) {
   std::optional<ReportDiagnostics> diagnostics;
   if (!args.data.empty()) {
     if (context.log) context.log->info("diagnosing the final model on {}", args.data);
-    diagnostics = DiagnoseAuditRows(audit, args.data, audit_name);
+    diagnostics = DiagnoseAuditRows(audit, args.data, audit_name, MakeDataReadOptions(context.common));
   }
   const ReportDiagnostics* diagnostics_pointer = diagnostics ? &*diagnostics : nullptr;
   const bool write_text = args.text || (args.html.empty() && !context.common.json);

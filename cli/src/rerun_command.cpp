@@ -27,7 +27,6 @@ struct RerunArgs {
   std::string out;
   std::string sign_key;
   CLI::Option* delimiter_option = nullptr;
-  CLI::Option* threads_option = nullptr;
 };
 
 int RunRerun(const RerunArgs& args, CommandContext& context) {
@@ -51,9 +50,8 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   if (args.delimiter_option != nullptr && args.delimiter_option->count() > 0) {
     overrides.delimiter = MakeCsvOptions(context.common).delimiter;
   }
-  if (args.threads_option != nullptr && args.threads_option->count() > 0) {
-    overrides.threads = context.common.threads;
-  }
+  if (context.common.threads_given) overrides.threads = context.common.threads;
+  overrides.work_dir = context.common.work_dir;
   if (context.log) context.log->info("running the plan of {} on {}", args.audit, args.data);
   const std::unique_ptr<ProgressPrinter> progress =
       MakeProgressPrinter(context.err, context.common.quiet, "rerun");
@@ -117,7 +115,6 @@ void AddRerunCommand(CLI::App& app, CommandContext& context) {
       ->type_name("FILE");
   AddCommonOptions(*command, context.common);
   args->delimiter_option = command->get_option("--delimiter");
-  args->threads_option = command->get_option("--threads");
   command->footer(
       "Verdicts (text, and the JSON field `verdict`): same model; same terms, refitted "
       "coefficients; different terms (see `stepledger compare --help` for the rules). Exit 0 "

@@ -3,7 +3,10 @@
 
 #include "stepledger/cli/run_cli.h"
 
+#include <sched.h>
+
 #include <algorithm>
+#include <thread>
 #include <cctype>
 #include <cstdlib>
 #include <filesystem>
@@ -38,9 +41,25 @@ void AddCommonOptions(CLI::App& command, CommonOptions& common, unsigned options
     command.add_flag("--force", common.force, "Allow overwriting an existing output file");
   }
   if (options & kThreadsOption) {
-    command.add_option("--threads", common.threads, "Threads folding the factor during a data pass")
+    command
+        .add_option_function<int>(
+            "--threads",
+            [&common](int threads) {
+              common.threads = threads;
+              common.threads_given = true;
+            },
+            "Threads reading the data file (in byte ranges cut at record boundaries) and folding "
+            "the factor; default: the cores available (" + std::to_string(DefaultThreads()) +
+                " here). A compressed file, a pipe or a FIFO is read by one thread; the same count "
+                "on the same file gives the same numbers to the last bit")
         ->check(CLI::Range(1, 256))
         ->type_name("N");
+    command
+        .add_option("--work-dir", common.work_dir,
+                    "Folder for the typed copy of the rows that every pass after the first reads "
+                    "(about 8 bytes per cell; removed at the end, on error and on Ctrl-C); default: "
+                    "the system temporary folder ($TMPDIR or /tmp)")
+        ->type_name("DIR");
   }
   if (options & kQuietOption) command.add_flag("--quiet", common.quiet, "Print only results and errors");
   if (options & kLogLevelOption) {
@@ -53,6 +72,22 @@ void AddCommonOptions(CLI::App& command, CommonOptions& common, unsigned options
                        "Field separator of the data file: one character, or 'tab'")
         ->type_name("CHAR");
   }
+}
+
+int DefaultThreads() {
+  cpu_set_t set;
+  CPU_ZERO(&set);
+  int cores = 0;
+  if (sched_getaffinity(0, sizeof set, &set) == 0) cores = CPU_COUNT(&set);
+  if (cores < 1) cores = static_cast<int>(std::thread::hardware_concurrency());
+  return std::clamp(cores, 1, 256);
+}
+
+DataReadOptions MakeDataReadOptions(const CommonOptions& common) {
+  DataReadOptions options;
+  options.threads = common.threads;
+  options.work_dir = common.work_dir;
+  return options;
 }
 
 std::string OneLineText(std::string text) {

@@ -83,6 +83,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   RunOptions run_options;
   run_options.csv = MakeCsvOptions(context.common);
   run_options.threads = context.common.threads;
+  run_options.work_dir = context.common.work_dir;
   run_options.fit.max_refinement_passes = args.refinement_passes;
   run_options.diagnostics = !args.out_dir.empty();  // the audit's extrapolation caution needs it
   const std::unique_ptr<ProgressPrinter> progress =

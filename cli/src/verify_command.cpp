@@ -24,7 +24,8 @@ int RunVerify(const VerifyArgs& args, CommandContext& context) {
   VerifyOptions options;
   options.public_key = args.public_key;
   options.data = args.data;
-  options.threads = context.common.threads > 1 ? context.common.threads : 0;
+  options.threads = context.common.threads_given ? context.common.threads : 0;
+  options.work_dir = context.common.work_dir;
   if (!args.data.empty() && context.log) context.log->info("replaying the plan on {}", args.data);
   const VerifyReport report = VerifyAudit(document, options);
   if (context.common.json) {

@@ -189,6 +189,21 @@ CsvReader::FileHandle::~FileHandle() {
   if (fd_ >= 0) ::close(fd_);
 }
 
+namespace {
+
+// read(2) on a descriptor the reader owns, retried on EINTR.
+std::size_t ReadDescriptor(int fd, char* buffer, std::size_t capacity, const std::string& name) {
+  for (;;) {
+    const ssize_t got = ::read(fd, buffer, capacity);
+    if (got >= 0) return static_cast<std::size_t>(got);
+    if (errno != EINTR) {
+      throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
+    }
+  }
+}
+
+}  // namespace
+
 CsvReader::CsvReader(std::filesystem::path path, CsvOptions options)
     : path_(std::move(path)), display_name_(path_.string()), options_(std::move(options)) {
   options_.Validate();
@@ -197,7 +212,39 @@ CsvReader::CsvReader(std::filesystem::path path, CsvOptions options)
     throw InputError("cannot open data file '" + display_name_ + "': " + std::strerror(errno));
   }
   file_ = FileHandle(fd);
+  read_ = [fd, name = display_name_](char* buffer, std::size_t capacity) {
+    return ReadDescriptor(fd, buffer, capacity, name);
+  };
   ReadHeader();
+}
+
+CsvReader::CsvReader(std::filesystem::path path, ReadFunction read, CsvOptions options)
+    : path_(std::move(path)), display_name_(path_.string()), options_(std::move(options)),
+      read_(std::move(read)) {
+  options_.Validate();
+  ReadHeader();
+}
+
+CsvReader::CsvReader(std::filesystem::path path, int fd, CsvRange range, CsvOptions options)
+    : path_(std::move(path)), display_name_(path_.string()), options_(std::move(options)),
+      header_(std::move(range.header)) {
+  options_.Validate();
+  range_end_ = range.end;
+  buffer_offset_ = range.begin;
+  line_start_offset_ = range.begin;
+  bytes_read_ = range.begin;
+  read_ = [fd, next = range.begin, name = display_name_](char* buffer, std::size_t capacity) mutable {
+    for (;;) {
+      const ssize_t got = ::pread(fd, buffer, capacity, static_cast<off_t>(next));
+      if (got >= 0) {
+        next += static_cast<std::uint64_t>(got);
+        return static_cast<std::size_t>(got);
+      }
+      if (errno != EINTR) {
+        throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
+      }
+    }
+  };
 }
 
 void CsvReader::ReadMore() {
@@ -215,16 +262,14 @@ void CsvReader::ReadMore() {
   while (appended < wanted) {
     const std::size_t old_size = buffer_.size();
     buffer_.resize(old_size + options_.block_bytes);
-    ssize_t got;
-    do {
-      got = ::read(file_.get(), buffer_.data() + old_size, options_.block_bytes);
-    } while (got < 0 && errno == EINTR);
-    if (got < 0) {
-      const int error = errno;
+    std::size_t got = 0;
+    try {
+      got = read_(buffer_.data() + old_size, options_.block_bytes);
+    } catch (...) {
       buffer_.resize(old_size);
-      throw InputError("cannot read data file '" + display_name_ + "': " + std::strerror(error));
+      throw;
     }
-    buffer_.resize(old_size + static_cast<std::size_t>(got));
+    buffer_.resize(old_size + got);
     if (got == 0) {
       eof_ = true;
       break;
@@ -244,7 +289,7 @@ std::uint64_t CsvReader::ColumnAt(const char* position, std::uint64_t line_start
 }
 
 void CsvReader::Fail(std::uint64_t line, std::uint64_t column, const std::string& what) const {
-  throw InputError(FormatLocation(display_name_, line, column) + ": " + what);
+  throw LocatedInputError(display_name_, line, column, what);
 }
 
 bool CsvReader::TryParseRecord(std::vector<CsvField>& fields, std::uint64_t& start_line) {
@@ -461,6 +506,10 @@ bool CsvReader::Next(CsvRecord& record) {
   std::uint64_t start_line = 0;
   // Absolute, because reading more bytes moves the unconsumed part to the buffer's front.
   const std::uint64_t record_offset = buffer_offset_ + cursor_;
+  if (record_offset >= range_end_) {  // the next range's first record
+    bytes_read_ = record_offset;
+    return false;
+  }
   if (!ReadRecord(record.fields, start_line)) {
     bytes_read_ = buffer_offset_ + cursor_;
     return false;
@@ -496,6 +545,7 @@ bool CsvReader::Next(CsvRecord& record) {
     Fail(start_line, record.fields.front().column, counts + " in the record " + Quoted(raw));
   }
   record.line = start_line;
+  record.offset = record_offset;
   record.row_index = next_row_index_++;
   return true;
 }

@@ -10,7 +10,16 @@
 #include <utility>
 #include <vector>
 
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <charconv>
+
+#include "design_expand.h"
+#include "lapack.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/table_scan.h"
 
 namespace stepledger {
 namespace {
@@ -31,147 +40,158 @@ void Count(RowAccounting& accounting, const RowOutcome& outcome) {
   }
 }
 
-// Rows expanded on the reading thread, handed to one worker: per row the m design values,
-// then y, then the weight.
-struct RowBlock {
-  std::vector<double> values;
-  std::size_t rows = 0;
-};
+// The level offsets of every categorical cell of the design for every range of the spill:
+// levels[range][cell][code] is the offset among the term's columns (kNoTerm: the baseline) or
+// kUnseenLevel. Bounded by ranges x cells x levels.
+constexpr std::size_t kUnseenLevel = kNoTerm - 1;
+using LevelTables = std::vector<std::vector<std::vector<std::size_t>>>;
 
-// A small blocking queue; capacity bounds the memory held by blocks in flight.
-template <typename T>
-class BlockingQueue {
- public:
-  void Push(T item) {
-    std::unique_lock lock(mutex_);
-    items_.push_back(std::move(item));
-    ready_.notify_one();
-  }
-  T Pop() {
-    std::unique_lock lock(mutex_);
-    ready_.wait(lock, [&] { return !items_.empty(); });
-    T item = std::move(items_.front());
-    items_.pop_front();
-    return item;
-  }
-
- private:
-  std::mutex mutex_;
-  std::condition_variable ready_;
-  std::deque<T> items_;
-};
-
-PassResult RunSingleThreaded(CsvReader& reader, const Design& design, const PassOptions& options) {
-  PassResult result;
-  FactorBuilder builder(design.scales(), options.block_rows);
-  CsvRecord record;
-  std::vector<double> x(design.column_count());
-  double y = 0, w = 1;
-  while (reader.Next(record)) {
-    const RowOutcome outcome = design.Expand(reader, record, x, y, w);
-    Count(result.accounting, outcome);
-    if (outcome.used) builder.AddRow(x, y, w);
-  }
-  result.factor = builder.Finish();
-  return result;
-}
-
-// The reading thread parses and expands; block b of block_rows used rows goes to worker
-// b % threads, which folds it into its own builder. Blocks circulate through a free list of
-// 2 per worker, so memory stays bounded whatever the file size; the reader waits when all
-// are in flight. Workers merge in worker order at the end: a given thread count always gives
-// the same bits.
-PassResult RunThreaded(CsvReader& reader, const Design& design, const PassOptions& options) {
-  const std::size_t threads = static_cast<std::size_t>(options.threads);
-  const std::size_t m = design.column_count();
-  const std::size_t stride = m + 2;
-  const std::vector<double> scales = design.scales();
-
-  BlockingQueue<RowBlock> free_blocks;
-  for (std::size_t i = 0; i < 2 * threads; ++i) {
-    RowBlock block;
-    block.values.resize(options.block_rows * stride);
-    free_blocks.Push(std::move(block));
-  }
-  std::vector<BlockingQueue<std::optional<RowBlock>>> work(threads);
-  std::vector<FactorBuilder> builders;
-  builders.reserve(threads);
-  for (std::size_t t = 0; t < threads; ++t) builders.emplace_back(scales, options.block_rows);
-  std::vector<std::exception_ptr> worker_errors(threads);
-  std::mutex failure_mutex;
-  bool worker_failed = false;
-
-  std::vector<std::thread> workers;
-  workers.reserve(threads);
-  for (std::size_t t = 0; t < threads; ++t) {
-    workers.emplace_back([&, t] {
-      bool failed = false;
-      for (;;) {
-        std::optional<RowBlock> block = work[t].Pop();
-        if (!block) break;
-        if (!failed) {
-          try {
-            for (std::size_t r = 0; r < block->rows; ++r) {
-              const double* row = block->values.data() + r * stride;
-              builders[t].AddRow(std::span<const double>(row, m), row[m], row[m + 1]);
-            }
-          } catch (...) {
-            failed = true;
-            worker_errors[t] = std::current_exception();
-            std::lock_guard lock(failure_mutex);
-            worker_failed = true;
-          }
-        }
-        // Always hand the block back, so the reader never waits for a failed worker.
-        block->rows = 0;
-        free_blocks.Push(std::move(*block));
-      }
-    });
-  }
-
-  PassResult result;
-  std::exception_ptr reader_error;
-  try {
-    CsvRecord record;
-    double y = 0, w = 1;
-    std::size_t next_worker = 0;
-    RowBlock current = free_blocks.Pop();
-    auto any_worker_failed = [&] {
-      std::lock_guard lock(failure_mutex);
-      return worker_failed;
-    };
-    while (reader.Next(record)) {
-      double* row = current.values.data() + current.rows * stride;
-      const RowOutcome outcome = design.Expand(reader, record, std::span<double>(row, m), y, w);
-      Count(result.accounting, outcome);
-      if (!outcome.used) continue;
-      row[m] = y;
-      row[m + 1] = w;
-      if (++current.rows == options.block_rows) {
-        work[next_worker].Push(std::move(current));
-        next_worker = (next_worker + 1) % threads;
-        if (any_worker_failed()) break;
-        current = free_blocks.Pop();
+LevelTables MakeLevelTables(const Spill& spill, const Design& design) {
+  LevelTables tables(spill.ranges().size());
+  for (std::size_t r = 0; r < spill.ranges().size(); ++r) {
+    tables[r].resize(design.source.cells.size());
+    for (std::size_t c = 0; c < design.source.cells.size(); ++c) {
+      const Design::Source::Cell& cell = design.source.cells[c];
+      if (!cell.categorical) continue;
+      const auto& index = design.source.level_index[cell.term];
+      const auto& texts = spill.ranges()[r].levels[static_cast<std::size_t>(cell.header_index)];
+      std::vector<std::size_t>& table = tables[r][c];
+      table.reserve(texts.size());
+      for (const std::string& text : texts) {
+        const auto found = index.find(text);
+        table.push_back(found == index.end() ? kUnseenLevel : found->second);
       }
     }
-    if (current.rows > 0 && !any_worker_failed()) work[next_worker].Push(std::move(current));
-  } catch (...) {
-    reader_error = std::current_exception();
   }
-  for (std::size_t t = 0; t < threads; ++t) work[t].Push(std::nullopt);
-  for (auto& worker : workers) worker.join();
-  if (reader_error) std::rethrow_exception(reader_error);
-  for (const auto& error : worker_errors) {
-    if (error) std::rethrow_exception(error);
+  return tables;
+}
+
+// The cell's text and place, read again from the data file for a message, when the file is a
+// plain regular file that has not changed since the scan; nullopt otherwise.
+struct RereadCell {
+  std::uint64_t line = 0;
+  std::uint64_t column = 0;
+  std::string text;
+};
+
+std::optional<RereadCell> Reread(const SpillSource& source, std::uint64_t offset, std::uint64_t line,
+                                 std::size_t header_index) {
+  if (!source.rereadable) return std::nullopt;
+  try {
+    const int fd = ::open(source.path.c_str(), O_RDONLY | O_CLOEXEC);
+    if (fd < 0) return std::nullopt;
+    struct FdCloser {
+      int fd;
+      ~FdCloser() { ::close(fd); }
+    } closer{fd};
+    struct stat status {};
+    if (::fstat(fd, &status) != 0) return std::nullopt;
+    const std::int64_t modified =
+        static_cast<std::int64_t>(status.st_mtim.tv_sec) * 1000000000 + status.st_mtim.tv_nsec;
+    if (status.st_dev != source.device || status.st_ino != source.inode ||
+        static_cast<std::uint64_t>(status.st_size) != source.size || modified != source.modified_ns) {
+      return std::nullopt;
+    }
+    CsvOptions csv;
+    csv.delimiter = source.delimiter;
+    csv.block_bytes = 1 << 16;
+    CsvReader reader(source.path, fd, CsvRange{offset, offset + 1, source.header}, csv);
+    CsvRecord record;
+    if (!reader.Next(record) || header_index >= record.fields.size()) return std::nullopt;
+    const CsvField& field = record.fields[header_index];
+    return RereadCell{line + field.line - 1, field.column, std::string(field.text)};
+  } catch (const std::exception&) {
+    return std::nullopt;
   }
-  for (std::size_t t = 1; t < threads; ++t) builders[0].Merge(std::move(builders[t]));
-  result.factor = builders[0].Finish();
-  return result;
+}
+
+// The cells of one spill row, for design_detail::ExpandRow.
+class SpillCells {
+ public:
+  SpillCells(const Design& design, const Spill& spill, const LevelTables& tables)
+      : design_(design), spill_(spill), tables_(tables) {}
+  void Point(const SpillChunk& chunk, std::size_t row) {
+    chunk_ = &chunk;
+    row_ = row;
+  }
+  CellKind Classify(std::size_t cell, double& value) const {
+    value = chunk_->values(HeaderIndex(cell))[row_];
+    const std::uint64_t bits = SpillBits(value);
+    if (bits == kSpillMissingBits) return CellKind::kMissing;
+    if (bits == kSpillTextBits) return CellKind::kText;
+    return CellKind::kNumber;
+  }
+  bool Level(std::size_t cell, std::size_t& offset) const {
+    const std::uint32_t* codes = chunk_->codes[HeaderIndex(cell)];
+    if (codes == nullptr) {
+      throw std::logic_error("the typed spill holds no level codes for column '" +
+                             design_.source.cells[cell].column_name + "'");
+    }
+    const std::vector<std::size_t>& table = tables_[chunk_->range][cell];
+    const std::uint32_t code = codes[row_];
+    if (code >= table.size() || table[code] == kUnseenLevel) return false;
+    offset = table[code];
+    return true;
+  }
+  template <typename Detail>
+  [[noreturn]] void Fail(std::size_t cell, const Detail& detail) const {
+    const SpillSource& source = spill_.source();
+    const std::size_t header_index = HeaderIndex(cell);
+    const std::uint64_t line = Line();
+    if (auto reread = Reread(source, chunk_->offsets[row_], line, header_index)) {
+      throw LocatedInputError(source.display_name, reread->line, reread->column, detail(reread->text));
+    }
+    // The text cannot be read again (a pipe, a compressed or a changed file): quote the value.
+    const double value = chunk_->values(header_index)[row_];
+    char text[32];
+    const auto written = std::to_chars(text, text + sizeof text, value);
+    throw LocatedInputError(source.display_name, line, 0,
+                            detail(std::string_view(text, static_cast<std::size_t>(written.ptr - text))));
+  }
+  std::uint64_t RowIndex() const {
+    return spill_.ranges()[chunk_->range].rows_before + chunk_->first_row + row_;
+  }
+  std::uint64_t Line() const { return spill_.ranges()[chunk_->range].lines_before + chunk_->lines[row_]; }
+
+ private:
+  std::size_t HeaderIndex(std::size_t cell) const {
+    return static_cast<std::size_t>(design_.source.cells[cell].header_index);
+  }
+  const Design& design_;
+  const Spill& spill_;
+  const LevelTables& tables_;
+  const SpillChunk* chunk_ = nullptr;
+  std::size_t row_ = 0;
+};
+
+// Reads chunks [first, last) and calls on_row(cells, outcome, x, y, w, x_low) for every row.
+template <typename OnRow>
+void ForEachRow(const Spill& spill, const Design& design, const LevelTables& tables, std::uint64_t first,
+                std::uint64_t last, bool low_parts, const OnRow& on_row) {
+  SpillReader reader(spill, first, last);
+  SpillCells cells(design, spill, tables);
+  SpillChunk chunk;
+  std::vector<double> x(design.column_count());
+  std::vector<double> x_low(low_parts && design.HasLowOrderParts() ? design.column_count() : 0);
+  double y = 0, w = 1;
+  while (reader.Next(chunk)) {
+    for (std::size_t row = 0; row < chunk.rows; ++row) {
+      cells.Point(chunk, row);
+      const RowOutcome outcome = design_detail::ExpandRow(design, cells, x, y, w, x_low);
+      on_row(cells, outcome, x, y, w, x_low);
+    }
+  }
 }
 
 }  // namespace
 
-void RowAccounting::CountDropped(DropReason reason, std::string_view column) {
+void RowAccounting::Add(const RowAccounting& other) {
+  rows_read += other.rows_read;
+  rows_used += other.rows_used;
+  for (const RowDrop& entry : other.rows_dropped) CountDropped(entry.reason, entry.column, entry.rows);
+}
+
+void RowAccounting::CountDropped(DropReason reason, std::string_view column, std::uint64_t rows) {
   auto before = [&](const RowDrop& entry) {
     return entry.reason != reason ? entry.reason < reason : std::string_view(entry.column) < column;
   };
@@ -179,7 +199,7 @@ void RowAccounting::CountDropped(DropReason reason, std::string_view column) {
   if (place == rows_dropped.end() || place->reason != reason || place->column != column) {
     place = rows_dropped.insert(place, RowDrop{reason, std::string(column), 0});
   }
-  ++place->rows;
+  place->rows += rows;
 }
 
 std::uint64_t RowAccounting::RowsDroppedTotal() const {
@@ -188,42 +208,93 @@ std::uint64_t RowAccounting::RowsDroppedTotal() const {
   return total;
 }
 
-PassResult RunFactorPass(const std::filesystem::path& path, const Design& design,
-                         const PassOptions& options,
-                         std::function<void(std::string_view)> byte_observer) {
+PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOptions& options) {
   ValidatePassOptions(options);
-  CsvReader reader(path, options.csv);
-  if (byte_observer) reader.SetByteObserver(std::move(byte_observer));
-  design.CheckHeader(reader);
-  if (options.threads == 1) return RunSingleThreaded(reader, design, options);
-  return RunThreaded(reader, design, options);
-}
-
-void ForEachUsedRow(const std::filesystem::path& path, const Design& design,
-                    const CsvOptions& csv, const std::function<void(const UsedRow&)>& visit) {
-  CsvReader reader(path, csv);
-  design.CheckHeader(reader);
-  CsvRecord record;
-  std::vector<double> x(design.column_count());
-  // Low-order parts only when a power makes them nonzero (UsedRow: empty means all zero).
-  std::vector<double> x_low(design.HasLowOrderParts() ? design.column_count() : 0);
-  UsedRow row;
-  while (reader.Next(record)) {
-    const RowOutcome outcome = design.Expand(reader, record, x, row.y, row.weight, x_low);
-    if (!outcome.used) continue;
-    row.row_index = record.row_index;
-    row.line = record.line;
-    row.x = x;
-    row.x_low = x_low;
-    visit(row);
-  }
-}
-
-RowReplay FileRowReplay(std::filesystem::path path, const Design& design, CsvOptions csv) {
-  return [path = std::move(path), design, csv = std::move(csv)](
-             const std::function<void(const UsedRow&)>& visit) {
-    ForEachUsedRow(path, design, csv, visit);
+  lapack::UseOneBlasThread();
+  design.CheckHeader(spill.source().header, spill.source().display_name);
+  const LevelTables tables = MakeLevelTables(spill, design);
+  const std::uint64_t chunks = spill.chunk_count();
+  const std::size_t workers =
+      static_cast<std::size_t>(std::max<std::uint64_t>(1, std::min<std::uint64_t>(options.threads, chunks)));
+  const std::vector<double> scales = design.scales();
+  std::vector<FactorBuilder> builders;
+  builders.reserve(workers);
+  for (std::size_t t = 0; t < workers; ++t) builders.emplace_back(scales, options.block_rows);
+  std::vector<RowAccounting> accounting(workers);
+  std::vector<std::exception_ptr> errors(workers);
+  auto fold_share = [&](std::size_t t) {
+    try {
+      ForEachRow(spill, design, tables, chunks * t / workers, chunks * (t + 1) / workers, false,
+                 [&](const SpillCells&, const RowOutcome& outcome, std::span<const double> x, double y, double w,
+                     std::span<const double>) {
+                   Count(accounting[t], outcome);
+                   if (outcome.used) builders[t].AddRow(x, y, w);
+                 });
+    } catch (...) {
+      errors[t] = std::current_exception();
+    }
   };
+  if (workers == 1) {
+    fold_share(0);
+  } else {
+    std::vector<std::thread> threads;
+    for (std::size_t t = 0; t < workers; ++t) threads.emplace_back(fold_share, t);
+    for (auto& thread : threads) thread.join();
+  }
+  // The first error in file order: the shares are contiguous and in order.
+  for (const auto& error : errors) {
+    if (error) std::rethrow_exception(error);
+  }
+  PassResult result;
+  for (std::size_t t = 0; t < workers; ++t) result.accounting.Add(accounting[t]);
+  for (std::size_t t = 1; t < workers; ++t) builders[0].Merge(std::move(builders[t]));
+  result.factor = builders[0].Finish();
+  return result;
+}
+
+namespace {
+
+ScanResult ScanForPass(const std::filesystem::path& path, const CsvOptions& csv, int threads) {
+  ScanOptions scan;
+  scan.csv = csv;
+  scan.threads = threads;
+  return ScanData(path, scan);
+}
+
+}  // namespace
+
+PassResult RunFactorPass(const std::filesystem::path& path, const Design& design, const PassOptions& options) {
+  ValidatePassOptions(options);
+  const ScanResult scan = ScanForPass(path, options.csv, options.threads);
+  return RunFactorPass(*scan.spill, design, options);
+}
+
+void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit) {
+  design.CheckHeader(spill.source().header, spill.source().display_name);
+  const LevelTables tables = MakeLevelTables(spill, design);
+  UsedRow row;
+  ForEachRow(spill, design, tables, 0, spill.chunk_count(), true,
+             [&](const SpillCells& cells, const RowOutcome& outcome, std::span<const double> x, double y, double w,
+                 std::span<const double> x_low) {
+               if (!outcome.used) return;
+               row.row_index = cells.RowIndex();
+               row.line = cells.Line();
+               row.x = x;
+               row.x_low = x_low;
+               row.y = y;
+               row.weight = w;
+               visit(row);
+             });
+}
+
+RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design) {
+  return [spill = std::move(spill), design](const std::function<void(const UsedRow&)>& visit) {
+    ForEachUsedRow(*spill, design, visit);
+  };
+}
+
+RowReplay FileRowReplay(const std::filesystem::path& path, const Design& design, const CsvOptions& csv) {
+  return SpillRowReplay(ScanForPass(path, csv, 1).spill, design);
 }
 
 }  // namespace stepledger

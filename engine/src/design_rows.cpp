@@ -9,6 +9,7 @@
 #include <string>
 #include <vector>
 
+#include "design_expand.h"
 #include "design_quote.h"
 #include "stepledger/engine/errors.h"
 
@@ -45,12 +46,17 @@ std::vector<double> Design::scales() const {
 }
 
 void Design::CheckHeader(const CsvReader& reader) const {
+  CheckHeader(reader.header(), reader.path().string());
+}
+
+void Design::CheckHeader(const std::vector<std::string>& header, const std::string& file_name) const {
   for (const auto& cell : source.cells) {
-    const std::ptrdiff_t found = reader.ColumnIndex(cell.column_name);
+    const auto at = std::find(header.begin(), header.end(), cell.column_name);
+    const std::ptrdiff_t found = at == header.end() ? -1 : at - header.begin();
     if (found != cell.header_index) {
       const std::string now = found < 0 ? std::string("is missing from the header")
                                         : "is now column " + std::to_string(found + 1);
-      throw InputError(reader.path().string() + ": column " + Quote(cell.column_name) + " " + now +
+      throw InputError(file_name + ": column " + Quote(cell.column_name) + " " + now +
                        ", but it was column " + std::to_string(cell.header_index + 1) +
                        " when the design was built from " + QuotePath(source.file_name) +
                        "; the data changed since they were profiled");
@@ -63,91 +69,45 @@ bool Design::HasLowOrderParts() const {
                      [](const DesignTerm& term) { return term.kind == TermKind::kPower; });
 }
 
+namespace {
+
+// The cells of one CSV record, for design_detail::ExpandRow.
+class RecordCells {
+ public:
+  RecordCells(const Design& design, const CsvReader& reader, const CsvRecord& record)
+      : design_(design), reader_(reader), record_(record) {}
+  const CsvField& Field(std::size_t cell) const {
+    return record_.fields[static_cast<std::size_t>(design_.source.cells[cell].header_index)];
+  }
+  CellKind Classify(std::size_t cell, double& value) const {
+    return ClassifyCell(Field(cell).text, reader_.options().missing_tokens, value);
+  }
+  bool Level(std::size_t cell, std::size_t& offset) const {
+    const auto& levels = design_.source.level_index[design_.source.cells[cell].term];
+    const auto level = levels.find(Field(cell).text);
+    if (level == levels.end()) return false;
+    offset = level->second;
+    return true;
+  }
+  template <typename Detail>
+  [[noreturn]] void Fail(std::size_t cell, const Detail& detail) const {
+    const CsvField& field = Field(cell);
+    reader_.Fail(field.line, field.column, detail(field.text));
+  }
+  std::uint64_t RowIndex() const { return record_.row_index; }
+
+ private:
+  const Design& design_;
+  const CsvReader& reader_;
+  const CsvRecord& record_;
+};
+
+}  // namespace
+
 RowOutcome Design::Expand(const CsvReader& reader, const CsvRecord& record, std::span<double> x,
                           double& y, double& w, std::span<double> x_low) const {
-  // Per-thread scratch: grows once, so a row costs no heap allocation.
-  thread_local std::vector<double> cell_values;
-  thread_local std::vector<std::size_t> cell_levels;
-  const std::size_t cell_count = source.cells.size();
-  if (cell_values.size() < cell_count) {
-    cell_values.resize(cell_count);
-    cell_levels.resize(cell_count);
-  }
-  const std::vector<std::string>& missing_tokens = reader.options().missing_tokens;
-  // The first cell that drops the row, and why.
-  const Source::Cell* dropping_cell = nullptr;
-  DropReason reason = DropReason::kMissing;
-
-  for (std::size_t c = 0; c < cell_count; ++c) {
-    const Source::Cell& cell = source.cells[c];
-    const CsvField& field = record.fields[static_cast<std::size_t>(cell.header_index)];
-    double value = 0;
-    const CellKind kind = ClassifyCell(field.text, missing_tokens, value);
-    if (kind == CellKind::kMissing) {
-      if (dropping_cell == nullptr) dropping_cell = &cell;
-      continue;
-    }
-    if (cell.categorical) {
-      const auto& levels = source.level_index[cell.term];
-      const auto level = levels.find(field.text);
-      if (level == levels.end()) {
-        throw InputError(reader.Where(field) + ": level " + Quote(field.text) + " of column " +
-                         Quote(cell.column_name) +
-                         " was not in the data when the design was built");
-      }
-      cell_levels[c] = level->second;
-      continue;
-    }
-    if (kind == CellKind::kNonFinite) {
-      throw InputError(reader.Where(field) + ": column " + Quote(cell.column_name) +
-                       " holds the non-finite number " + Quote(field.text) +
-                       "; values must be finite");
-    }
-    if (kind != CellKind::kNumber) {
-      throw InputError(reader.Where(field) + ": column " + Quote(cell.column_name) +
-                       " is numeric, but this cell holds " + Quote(field.text));
-    }
-    if (static_cast<std::ptrdiff_t>(c) == source.weights_cell) {
-      if (value < 0) {
-        throw InputError(reader.Where(field) + ": weight " + Quote(field.text) + " in column " +
-                         Quote(cell.column_name) + " is negative; precision weights must be >= 0");
-      }
-      if (value == 0 && dropping_cell == nullptr) {
-        dropping_cell = &cell;
-        reason = DropReason::kZeroWeight;
-      }
-    }
-    cell_values[c] = value;
-  }
-  if (dropping_cell != nullptr) return RowOutcome{false, reason, dropping_cell->column_name};
-
-  double response_value = cell_values[static_cast<std::size_t>(source.response_cell)];
-  if (response_transform == ResponseTransform::kLog) {
-    if (!(response_value > 0)) {
-      const CsvField& field = record.fields[static_cast<std::size_t>(source.response)];
-      throw InputError(reader.Where(field) + ": response " + Quote(response) + " is " +
-                       Quote(field.text) + " in data row " + std::to_string(record.row_index + 1) +
-                       ", but response_transform \"log\" needs positive values");
-    }
-    response_value = std::log(response_value);
-  }
-  y = response_value;
-  w = source.weights_cell >= 0 ? cell_values[static_cast<std::size_t>(source.weights_cell)] : 1.0;
-
-  const std::size_t bad_log_term = EvaluateTerms(std::span<const double>(cell_values.data(), cell_count),
-                                                 std::span<const std::size_t>(cell_levels.data(), cell_count),
-                                                 x, x_low);
-  if (bad_log_term != kNoTerm) {
-    const DesignTerm& term = terms[bad_log_term];
-    const auto cell = static_cast<std::size_t>(source.term_cell[bad_log_term]);
-    const CsvField& field = record.fields[static_cast<std::size_t>(source.cells[cell].header_index)];
-    throw InputError(reader.Where(field) + ": log term " + Quote(term.name) + " of column " +
-                     Quote(term.source_column) + " needs a positive value, found " +
-                     Quote(field.text));
-  }
-  RowOutcome outcome;
-  outcome.used = true;
-  return outcome;
+  RecordCells cells(*this, reader, record);
+  return design_detail::ExpandRow(*this, cells, x, y, w, x_low);
 }
 
 std::size_t Design::EvaluateTerms(std::span<const double> cell_values,

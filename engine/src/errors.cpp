@@ -8,9 +8,23 @@ std::string FormatLocation(std::string_view file, std::uint64_t line, std::uint6
   std::string location(file);
   location += ':';
   location += std::to_string(line);
-  location += ':';
-  location += std::to_string(column);
+  if (column > 0) {
+    location += ':';
+    location += std::to_string(column);
+  }
   return location;
+}
+
+LocatedInputError::LocatedInputError(std::string file, std::uint64_t line, std::uint64_t column,
+                                     std::string detail)
+    : InputError(FormatLocation(file, line, column) + ": " + detail),
+      file_(std::move(file)),
+      line_(line),
+      column_(column),
+      detail_(std::move(detail)) {}
+
+LocatedInputError LocatedInputError::WithLinesBefore(std::uint64_t lines) const {
+  return LocatedInputError(file_, line_ + lines, column_, detail_);
 }
 
 std::string QuoteForMessage(std::string_view text, std::size_t max_chars) {

@@ -32,7 +32,15 @@ void dgeqrf_(const int* m, const int* n, double* a, const int* lda, double* tau,
              const int* lwork, int* info);
 }
 
+// Weak: present when OpenBLAS is the BLAS in use, null otherwise (reference BLAS has one thread).
+extern "C" void openblas_set_num_threads(int threads) __attribute__((weak));
+
 namespace stepledger::lapack {
+
+void UseOneBlasThread() {
+  if (openblas_set_num_threads != nullptr) openblas_set_num_threads(1);
+}
+
 namespace {
 
 // info < 0 means we passed an illegal argument: a bug in this file or its caller.

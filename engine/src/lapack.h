@@ -10,6 +10,10 @@
 
 namespace stepledger::lapack {
 
+/// Asks OpenBLAS (when it is the BLAS in use) for one thread: the engine's passes bring their own
+/// threads, and idle OpenBLAS threads spin in sched_yield. Idempotent and cheap.
+void UseOneBlasThread();
+
 /// Triangular-pentagonal QR (dtpqrt): on entry a is the n x n upper triangle R, b is m x n
 /// and pentagonal (its first m - l rows dense, its last l rows upper trapezoidal; l = 0 for
 /// a dense block of rows, l = n = m for another triangle). On exit a holds R' with

@@ -5,11 +5,12 @@
 #include "stepledger/report/report.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/table_scan.h"
 
 namespace stepledger {
 
 ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::filesystem::path& data,
-                                    std::string_view audit_name) {
+                                    std::string_view audit_name, const DataReadOptions& options) {
   const std::string expected =
       audit.contains("data") && audit["data"].is_object() && audit["data"].contains("sha256") &&
               audit["data"]["sha256"].is_string()
@@ -18,18 +19,24 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::file
   if (expected.empty()) {
     throw InputError(std::string(audit_name) + ": data.sha256: missing; cannot check the data file");
   }
-  // The fingerprint first: diagnostics of other rows than the audited ones would mislead.
-  const std::string actual = FingerprintFile(data);
-  if (actual != expected) {
-    throw InputError(data.string() + ": not the data of " + std::string(audit_name) + ": its SHA-256 is " +
-                     actual + ", the audit's data.sha256 is " + expected);
-  }
   const FittedModel model = FittedModelFromAudit(audit, audit_name);
-  CsvOptions csv = RunOptionsFromSettings(audit.contains("settings") ? audit["settings"] : nlohmann::json())
-                       .csv;
-  csv.missing_tokens = model.missing_tokens;
+  const RunOptions recorded =
+      RunOptionsFromSettings(audit.contains("settings") ? audit["settings"] : nlohmann::json());
+  // One scan: the fingerprint and the typed spill of the rows in the same pass over the text.
+  ScanOptions scan_options;
+  scan_options.csv = recorded.csv;
+  scan_options.csv.missing_tokens = model.missing_tokens;
+  scan_options.threads = options.threads;
+  scan_options.work_dir = options.work_dir;
+  const ScanResult scan = ScanData(data, scan_options);
+  // The fingerprint before any row is used: diagnostics of other rows than the audited ones
+  // would mislead.
+  if (scan.sha256 != expected) {
+    throw InputError(data.string() + ": not the data of " + std::string(audit_name) + ": its SHA-256 is " +
+                     scan.sha256 + ", the audit's data.sha256 is " + expected);
+  }
   ReportDiagnostics diagnostics;
-  diagnostics.result = ComputeDiagnostics(model.fit, model.design, FileRowReplay(data, model.design, csv));
+  diagnostics.result = ComputeDiagnostics(model.fit, model.design, SpillRowReplay(scan.spill, model.design));
   diagnostics.k = model.fit.k;
   diagnostics.sigma = model.fit.criteria.sigma;
   return diagnostics;

@@ -1,5 +1,6 @@
 #include "stepledger/run/run_plan.h"
 
+#include <algorithm>
 #include <chrono>
 #include <fstream>
 #include <string_view>
@@ -7,6 +8,7 @@
 
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
+#include "stepledger/engine/table_scan.h"
 
 namespace stepledger {
 
@@ -44,19 +46,23 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   run.options.csv.missing_tokens = plan.plan.missing_tokens;
   run.data_file_name = data.filename().string();
 
-  run.profile = ProfileCsv(data, run.options.csv);
+  ScanOptions scan_options;
+  scan_options.csv = run.options.csv;
+  scan_options.threads = options.threads;
+  scan_options.work_dir = options.work_dir;
+  scan_options.profile.max_levels = std::max<std::size_t>(ProfileOptions{}.max_levels, plan.plan.design.max_levels);
+  ScanResult scan = ScanData(data, scan_options);
+  run.profile = std::move(scan.profile);
+  run.data_bytes = scan.stored_bytes;
+  run.data_sha256 = scan.sha256;
+  run.data_encoding = scan.encoding;
   run.design = BuildDesign(plan.plan.design, run.profile);
   // Before the factor pass, so that a plan error costs no pass over the rows.
   ValidateSearchOptions(plan.plan.search, run.design);
 
   PassOptions pass_options;
-  pass_options.csv = run.options.csv;
   pass_options.threads = options.threads;
-  DataFingerprint fingerprint;
-  PassResult pass = RunFactorPass(data, run.design, pass_options,
-                                  [&fingerprint](std::string_view bytes) { fingerprint.Update(bytes); });
-  run.data_bytes = fingerprint.total_bytes();
-  run.data_sha256 = fingerprint.Finish();
+  PassResult pass = RunFactorPass(*scan.spill, run.design, pass_options);
   run.accounting = pass.accounting;
 
   SearchRunOptions search_run;
@@ -65,7 +71,7 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
 
   FitOptions fit_options = options.fit;
   fit_options.cp_sigma2 = run.search.cp_sigma2;
-  const RowReplay replay = FileRowReplay(data, run.design, run.options.csv);
+  const RowReplay replay = SpillRowReplay(scan.spill, run.design);
   run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
   if (options.diagnostics && run.fit.n > 0) {
     run.diagnostics = DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);

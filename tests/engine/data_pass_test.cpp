@@ -14,7 +14,9 @@
 #include <gtest/gtest.h>
 
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/fingerprint.h"
 #include "stepledger/engine/profile.h"
+#include "stepledger/engine/table_scan.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -162,16 +164,20 @@ TEST(RowAccountingTest, DropsAreKeptByReasonThenColumnWhateverTheOrderSeen) {
   EXPECT_STREQ(ToString(DropReason::kZeroWeight), "zero weight");
 }
 
-TEST(DataPassTest, ByteObserverSeesTheWholeFile) {
+TEST(DataPassTest, TheScanFingerprintsTheWholeFileForAnyThreadCount) {
   TempDir folder;
   const auto path = folder.Write("laptops.csv", kLaptops);
-  const Design design = BuildDesign(LaptopSpec(), ProfileCsv(path, CsvOptions{}));
-  for (int threads : {1, 2}) {
-    std::string seen;
-    PassOptions options;
+  DataFingerprint whole;
+  whole.Update(kLaptops);
+  const std::string expected = whole.Finish();
+  for (int threads : {1, 2, 3}) {
+    ScanOptions options;
     options.threads = threads;
-    RunFactorPass(path, design, options, [&](std::string_view bytes) { seen += bytes; });
-    EXPECT_EQ(seen, kLaptops) << threads << " threads";
+    options.min_range_bytes = 1;
+    const ScanResult scan = ScanData(path, options);
+    EXPECT_EQ(scan.sha256, expected) << threads << " threads";
+    EXPECT_EQ(scan.stored_bytes, std::string_view(kLaptops).size());
+    EXPECT_EQ(scan.ranges, threads);
   }
 }
 

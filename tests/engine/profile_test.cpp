@@ -205,7 +205,9 @@ TEST_F(ProfileTest, LevelLimit) {
   const ColumnProfile& grade = profile.columns[0];
   EXPECT_EQ(grade.kind, ColumnKind::kCategorical);
   EXPECT_TRUE(grade.too_many_levels);
-  ExpectLevels(grade, Levels({{"A", 1}, {"C", 1}}));
+  // Over the limit no levels are kept: a partial list would depend on how the file was cut.
+  EXPECT_TRUE(grade.levels.empty());
+  EXPECT_EQ(grade.level_limit, 2u);
   EXPECT_EQ(grade.present, 5u);
   // A numeric column over the limit keeps no levels and is not flagged.
   const ColumnProfile& code = profile.columns[1];

@@ -37,6 +37,8 @@ struct VerifyOptions {
   std::filesystem::path data;
   /// Threads of the replay's data pass (0: as recorded in settings).
   int threads = 0;
+  /// Where the replay's typed spill goes; empty: the system temporary folder.
+  std::filesystem::path work_dir;
   /// Numbers in a replay agree when |a - b| <= relative_tolerance * max(|a|, |b|).
   /// Default 1e-9 (the contract); actions, terms and texts must match exactly.
   double relative_tolerance = 1e-9;

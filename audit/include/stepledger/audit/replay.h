@@ -20,6 +20,8 @@ struct ReplayOverrides {
   std::optional<int> threads;
   /// Field delimiter of the data; nullopt: as recorded.
   std::optional<char> delimiter;
+  /// Where the typed spill goes (never recorded); empty: the system temporary folder.
+  std::filesystem::path work_dir;
 };
 
 /// Runs the audit's recorded plan (plan.verbatim, read as a plan file is read) with its recorded

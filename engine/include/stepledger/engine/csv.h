@@ -39,7 +39,19 @@ struct CsvField {
 struct CsvRecord {
   std::uint64_t line = 0;        ///< 1-based line on which the record starts
   std::uint64_t row_index = 0;   ///< 0-based index among data records
+  std::uint64_t offset = 0;      ///< byte offset of the record's first byte in the (decoded) text
   std::vector<CsvField> fields;  ///< exactly header().size() of them
+};
+
+/// A part of a file read by one of several readers (parallel reading): the records that start
+/// at or after `begin` and before `end`. begin must be the start of a record (the caller finds
+/// candidates after a line end and checks them, see engine/table_scan.h); a record that starts
+/// before end is read whole even when it runs past end. Lines, columns and row indices count
+/// from the range's start (line 1, row 0): the caller adds the lines and rows before it.
+struct CsvRange {
+  std::uint64_t begin = 0;
+  std::uint64_t end = UINT64_MAX;
+  std::vector<std::string> header;  ///< the file's header, read once by the caller
 };
 
 /// How a cell parses as a number.
@@ -59,6 +71,13 @@ class CsvReader {
   /// Opens the file and reads the header. Throws InputError on an unreadable file,
   /// an empty file, and duplicate or empty header names.
   CsvReader(std::filesystem::path path, CsvOptions options = {});
+  /// A reader of bytes supplied by `read` (returns the bytes written into the buffer, 0 at the
+  /// end; throws InputError on failure), e.g. a decompressing source; the header is read here.
+  using ReadFunction = std::function<std::size_t(char* buffer, std::size_t capacity)>;
+  CsvReader(std::filesystem::path path, ReadFunction read, CsvOptions options = {});
+  /// A reader of one range of a seekable file open as `fd` (read with pread, so that readers of
+  /// other ranges share the descriptor); the header is range.header and is not read again.
+  CsvReader(std::filesystem::path path, int fd, CsvRange range, CsvOptions options = {});
   CsvReader(CsvReader&&) noexcept = default;
   CsvReader& operator=(CsvReader&&) noexcept = default;
 
@@ -78,8 +97,12 @@ class CsvReader {
   bool Next(CsvRecord& record);
 
   /// Bytes of the file parsed so far (through the last record returned, BOM included);
-  /// equals the file size once Next() has returned false.
+  /// equals the file size once Next() has returned false. For a range reader, the offset in
+  /// the file: once Next() has returned false, where the first record after the range starts
+  /// (or the file's end).
   std::uint64_t bytes_read() const { return bytes_read_; }
+  /// Line ends consumed so far (header included for a whole-file reader).
+  std::uint64_t line_ends_read() const { return line_ - 1; }
 
   /// Called with every block of raw bytes as it is read, in file order, including the header.
   /// Set it before the first Next() to see every byte (the constructor reads the header, so the
@@ -89,6 +112,10 @@ class CsvReader {
 
   /// file:line:column of a field, for messages.
   std::string Where(const CsvField& field) const;
+  /// The file's name as messages show it.
+  const std::string& display_name() const { return display_name_; }
+  /// Throws LocatedInputError "file:line:column: what".
+  [[noreturn]] void Fail(std::uint64_t line, std::uint64_t column, const std::string& what) const;
 
  private:
   // Owns a POSIX file descriptor (read(2) straight into our buffer, no stream copies).
@@ -126,13 +153,14 @@ class CsvReader {
   // True when only CR and LF bytes remain in the file.
   bool OnlyLineBreaksRemain();
   std::uint64_t ColumnAt(const char* position, std::uint64_t line_start) const;
-  [[noreturn]] void Fail(std::uint64_t line, std::uint64_t column, const std::string& what) const;
   void ReadHeader();
 
   std::filesystem::path path_;
   std::string display_name_;
   CsvOptions options_;
   FileHandle file_;
+  ReadFunction read_;                  // where bytes come from (set by every constructor)
+  std::uint64_t range_end_ = UINT64_MAX;  // records starting here or later are not ours
   std::vector<std::string> header_;
   std::string buffer_;        // bytes not yet consumed start at cursor_
   std::size_t cursor_ = 0;

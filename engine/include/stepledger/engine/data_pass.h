@@ -1,10 +1,12 @@
 #pragma once
-// Passes over the data file: the factor pass (streaming, optionally multi-threaded) and the
-// row replay used for refinement and per-row diagnostics of a final model.
+// Passes over the rows of a data file, read back from its typed spill (engine/spill.h; the text
+// itself is parsed once, by engine/table_scan.h): the factor pass (optionally multi-threaded)
+// and the row replay used for refinement and the diagnostics of a final model.
 
 #include <cstdint>
 #include <filesystem>
 #include <functional>
+#include <memory>
 #include <span>
 #include <string>
 #include <string_view>
@@ -13,14 +15,16 @@
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/factor.h"
+#include "stepledger/engine/spill.h"
 
 namespace stepledger {
 
 struct PassOptions {
+  /// Reading options for the conveniences that start from a file (the spill carries its own).
   CsvOptions csv;
-  /// Threads folding factors (>= 1). The reader parses on the calling thread; blocks of rows
-  /// go to worker b % threads and the workers' factors merge in worker order, so a given
-  /// thread count always gives the same bits.
+  /// Threads folding factors (>= 1). Worker t folds the t-th contiguous share of the spill's
+  /// chunks and the workers' factors merge in worker order, so a given thread count on a given
+  /// spill always gives the same bits.
   int threads = 1;
   /// Rows per fold block.
   std::size_t block_rows = 256;
@@ -42,8 +46,10 @@ struct RowAccounting {
   /// then column (byte-wise), so that any pass over the same rows gives the same list.
   std::vector<RowDrop> rows_dropped;
 
-  /// Counts one dropped row (O(entries); there are few: one per reason and column).
-  void CountDropped(DropReason reason, std::string_view column);
+  /// Counts dropped rows (O(entries); there are few: one per reason and column).
+  void CountDropped(DropReason reason, std::string_view column, std::uint64_t rows = 1);
+  /// Adds another pass's counts (of other rows).
+  void Add(const RowAccounting& other);
   /// The sum of rows_dropped[i].rows.
   std::uint64_t RowsDroppedTotal() const;
 };
@@ -53,11 +59,13 @@ struct PassResult {
   RowAccounting accounting;
 };
 
-/// One pass over the file: expands every row and folds the used ones into the factor.
-/// byte_observer (optional) sees every byte read, in order (for the data fingerprint).
-PassResult RunFactorPass(const std::filesystem::path& path, const Design& design,
-                         const PassOptions& options,
-                         std::function<void(std::string_view)> byte_observer = {});
+/// One pass over the spill: expands every row and folds the used ones into the factor.
+/// Sets BLAS to one thread (engine/lapack.h): the pass's own threads are the parallelism.
+PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOptions& options);
+
+/// The same from a file: one ScanData (engine/table_scan.h) into a spill removed afterwards.
+/// For tests and small tools; a run scans once and passes the spill to every pass.
+PassResult RunFactorPass(const std::filesystem::path& path, const Design& design, const PassOptions& options);
 
 /// A used row seen again: x unscaled (design.column_count() values).
 struct UsedRow {
@@ -74,15 +82,18 @@ struct UsedRow {
   double weight = 1;
 };
 
-/// Reads the file again and calls visit for every used row, in file order.
-void ForEachUsedRow(const std::filesystem::path& path, const Design& design,
-                    const CsvOptions& csv, const std::function<void(const UsedRow&)>& visit);
+/// Calls visit for every used row of the spill, in file order.
+void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit);
 
 /// Something that can replay the used rows of the data a factor was built from.
-/// (A file through ForEachUsedRow, or rows kept in memory by tests.)
+/// (A spill, or rows kept in memory by tests.)
 using RowReplay = std::function<void(const std::function<void(const UsedRow&)>&)>;
 
-/// A RowReplay over a file.
-RowReplay FileRowReplay(std::filesystem::path path, const Design& design, CsvOptions csv);
+/// A RowReplay over a spill (kept alive by the replay).
+RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design);
+
+/// A RowReplay over a file: scans it once into a spill that the replay keeps (for tests and
+/// small tools; a run replays the spill of its own scan).
+RowReplay FileRowReplay(const std::filesystem::path& path, const Design& design, const CsvOptions& csv);
 
 }  // namespace stepledger

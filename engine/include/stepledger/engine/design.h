@@ -165,6 +165,8 @@ class Design {
   /// Throws InputError when the reader's header does not put the design's source columns
   /// where the profile found them (the file changed since it was profiled).
   void CheckHeader(const CsvReader& reader) const;
+  /// The same check against a header read elsewhere (e.g. the typed spill's source).
+  void CheckHeader(const std::vector<std::string>& header, const std::string& file_name) const;
 
   // Filled by BuildDesign: header positions of the source columns of each term etc.
   struct Source {

@@ -21,6 +21,27 @@ class InputError : public std::runtime_error {
   using std::runtime_error::runtime_error;
 };
 
+/// Bad input at a place in a data file: what() is "file:line:column: detail" (column 0 is left
+/// out when the byte column cannot be known). The parts are kept so that a reader of one byte
+/// range of a file, which counts lines from its own start, can be corrected by the lines before
+/// the range once they are known (WithLinesBefore).
+class LocatedInputError : public InputError {
+ public:
+  LocatedInputError(std::string file, std::uint64_t line, std::uint64_t column, std::string detail);
+  const std::string& file() const { return file_; }
+  std::uint64_t line() const { return line_; }
+  std::uint64_t column() const { return column_; }
+  const std::string& detail() const { return detail_; }
+  /// The same error with `lines` added to its line.
+  LocatedInputError WithLinesBefore(std::uint64_t lines) const;
+
+ private:
+  std::string file_;
+  std::uint64_t line_ = 0;
+  std::uint64_t column_ = 0;
+  std::string detail_;
+};
+
 /// Bad plan: key_path() is the JSON path of the offending key, e.g. "terms[3].power.degree".
 class PlanError : public InputError {
  public:
@@ -40,7 +61,8 @@ class NumericalError : public std::runtime_error {
   using std::runtime_error::runtime_error;
 };
 
-/// "file:line:column" (1-based line and column) as used at the start of input messages.
+/// "file:line:column" (1-based line and column) as used at the start of input messages;
+/// "file:line" when column is 0 (unknown).
 std::string FormatLocation(std::string_view file, std::uint64_t line, std::uint64_t column);
 
 /// Shortens text for quoting in a message (keeps at most max_chars, appends "...").

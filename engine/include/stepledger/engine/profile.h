@@ -46,9 +46,12 @@ struct ColumnProfile {
   /// more has empty levels and too_many_levels false. Empty columns: no levels.
   std::vector<LevelCount> levels;
   /// Categorical columns: true when the column had more distinct levels than
-  /// ProfileOptions::max_levels; levels then holds only the first max_levels seen, counted until
-  /// the limit was reached, and the column cannot be a term. Always false for other kinds.
+  /// ProfileOptions::max_levels (level_limit); levels is then empty (which levels a partial list
+  /// would hold would depend on how the file was cut for parallel reading) and the column cannot
+  /// be a term. Always false for other kinds.
   bool too_many_levels = false;
+  /// ProfileOptions::max_levels of the pass (what too_many_levels counts against).
+  std::size_t level_limit = 0;
   /// Categorical columns: the first cell that is not a number (line, column as in csv.h and
   /// the cell's text). Unset for other kinds.
   std::optional<CellLocation> first_text;

@@ -38,6 +38,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/table_scan.h"
 
 namespace stepledger {
 
@@ -266,9 +267,11 @@ std::string RenderRowsThatStandOutCsv(const ReportDiagnostics& diagnostics);
 /// file's fingerprint equals the audit's data.sha256 (else InputError naming both digests and
 /// the file), rebuilds the model (FittedModelFromAudit) and makes one pass over the rows with
 /// the audit's recorded reader settings. audit_name (the audit's file name) starts messages.
+/// The text is read once: the fingerprint and the typed spill come from the same scan, and no
+/// row is used before the fingerprint has been checked.
 ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit,
                                     const std::filesystem::path& data,
-                                    std::string_view audit_name);
+                                    std::string_view audit_name, const DataReadOptions& options = {});
 
 /// File name of the HTML report that `select --out DIR` writes beside the audit.
 inline constexpr std::string_view kReportFileName = "report.html";

@@ -1,7 +1,9 @@
 #pragma once
 // One run of a plan on a data file, composed once for every command (DESIGN.md §8):
-// profile -> design -> one factor pass that also fingerprints the bytes -> search -> refined fit
-// of the final model -> diagnostics pass (which also learns what pricing new rows needs).
+// one scan of the text (profile, fingerprint over the bytes as stored, typed spill; parallel
+// over byte ranges) -> design -> factor pass over the spill -> search -> refined fit of the
+// final model -> diagnostics pass (which also learns what pricing new rows needs), every pass
+// after the scan reading the spill, never the text.
 // `fit` (method "none", no audit), `select`, `verify --data` and `rerun` all run through RunPlan,
 // so a replay takes the very path the recorded run took. The result is one typed value that the
 // audit, the report and the terminal output render; none of them recomputes it.
@@ -27,8 +29,13 @@ namespace stepledger {
 struct RunOptions {
   /// Delimiter and block size of the reader; the missing tokens always come from the plan.
   CsvOptions csv;
-  /// Threads folding the factor (>= 1). Default 1. Different counts agree to rounding only.
+  /// Threads reading the text and folding the factor (>= 1). Default 1 (the command line's
+  /// default is the cores available). Different counts agree to rounding only; the same count
+  /// on the same file gives the same bits.
   int threads = 1;
+  /// Where the typed spill's private folder is made (empty: the system temporary folder). Not
+  /// recorded: it cannot change a result.
+  std::filesystem::path work_dir;
   /// Confidence level, refinement and the kernel's alias tolerance of the final fit.
   FitOptions fit;
   /// VIF above which a final-model coefficient is named in the collinearity caution
@@ -47,7 +54,8 @@ struct RunResult {
   LoadedPlan plan;
   std::string data_file_name;       ///< the data file's name (no folder), for readers
   std::string data_sha256;          ///< DataFingerprint over every byte read
-  std::uint64_t data_bytes = 0;
+  std::uint64_t data_bytes = 0;    ///< bytes of the file as stored
+  std::string data_encoding = "plain";  ///< plain, gzip or zstd
   DataProfile profile;
   Design design;
   RowAccounting accounting;

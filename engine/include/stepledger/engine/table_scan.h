@@ -1,0 +1,77 @@
+#pragma once
+// The first and only pass over a data file's text: it profiles every column, takes the data
+// fingerprint over the bytes as stored, and (unless asked not to) writes the typed spill
+// (engine/spill.h) that every later pass of the run reads instead of the text.
+//
+// Parallel reading. With threads > 1 and a plain regular file, the text after the header is cut
+// into `threads` byte ranges at record boundaries and each thread parses, profiles and spills
+// its own range; the profiles merge in range order. A cut is first placed just after the first
+// line end at or after an even share of the bytes — a guess, since that line end may lie inside
+// a quoted field. The guess is then checked exactly: the reader of the range before parses
+// whole records from a known record start and reports where its last record ends; when that is
+// not the guessed cut, the next range is read again from the true boundary (on the calling
+// thread). So quoted fields with embedded line ends never corrupt a split, and the records,
+// line numbers, row indices and messages are those of a single reader; only the guess can cost
+// time. Errors are reported for the first range, in file order, that holds one, with lines
+// counted from the file's start. Compressed files, pipes and FIFOs are read by one thread.
+// The fingerprint's 1 MiB blocks (engine/fingerprint.h) are hashed by the same threads.
+
+#include <cstdint>
+#include <filesystem>
+#include <memory>
+#include <string>
+#include <vector>
+
+#include "stepledger/engine/csv.h"
+#include "stepledger/engine/profile.h"
+#include "stepledger/engine/spill.h"
+
+namespace stepledger {
+
+/// The resources a command gives to reading its data (the command line's --threads and
+/// --work-dir); neither changes a result beyond rounding.
+struct DataReadOptions {
+  /// Threads reading and folding (>= 1). Default 1.
+  int threads = 1;
+  /// Where the typed spill goes; empty: the system temporary folder.
+  std::filesystem::path work_dir;
+};
+
+struct ScanOptions {
+  /// Delimiter, missing tokens and block size of the reader.
+  CsvOptions csv;
+  ProfileOptions profile;
+  /// Threads reading byte ranges (>= 1). Default 1.
+  int threads = 1;
+  /// A range is at least this many bytes (so that a small file is not cut into many pieces);
+  /// tests set 1 to cut tiny files. Default 1 MiB.
+  std::uint64_t min_range_bytes = 1 << 20;
+  /// Where to guess the cuts between ranges, as byte offsets (each cut moves to just after the
+  /// first line end at or after it, then is checked as usual); empty: even shares of the bytes
+  /// (threads - 1 cuts). Tests use it to cut a file at every possible place.
+  std::vector<std::uint64_t> range_cuts;
+  /// Write the typed spill. Default: yes; `profile` alone says no.
+  bool spill = true;
+  /// Where the spill's private folder is made; empty: the system temporary folder.
+  std::filesystem::path work_dir;
+  /// Throws InputError naming the field when a value is out of range.
+  void Validate() const;
+};
+
+struct ScanResult {
+  DataProfile profile;
+  std::vector<std::string> header;
+  std::string sha256;          ///< DataFingerprint over the bytes as stored
+  std::uint64_t stored_bytes = 0;
+  std::string encoding = "plain";  ///< how the file is stored: plain, gzip, zstd
+  int ranges = 1;              ///< byte ranges read in parallel
+  /// The rows, for every later pass; null when ScanOptions::spill is false.
+  std::shared_ptr<const Spill> spill;
+};
+
+/// Reads the file once (see above). Throws InputError naming file:line:column for any cell that
+/// parses as a non-finite number and for the reader's errors, and naming the folder for a spill
+/// that cannot be written; nothing is left in the working folder then.
+ScanResult ScanData(const std::filesystem::path& path, const ScanOptions& options);
+
+}  // namespace stepledger

@@ -1,0 +1,541 @@
+#include "stepledger/engine/table_scan.h"
+
+#include <fcntl.h>
+#include <sys/stat.h>
+#include <unistd.h>
+
+#include <algorithm>
+#include <cerrno>
+#include <cmath>
+#include <cstring>
+#include <exception>
+#include <limits>
+#include <optional>
+#include <thread>
+#include <unordered_map>
+
+#include "stepledger/engine/errors.h"
+#include "stepledger/engine/fingerprint.h"
+
+namespace stepledger {
+namespace {
+
+constexpr double kUndefined = std::numeric_limits<double>::quiet_NaN();
+
+// Hashes std::string and std::string_view alike, so that counting a cell needs no allocation
+// unless its text is a new level.
+struct TextHash {
+  using is_transparent = void;
+  std::size_t operator()(std::string_view text) const noexcept {
+    return std::hash<std::string_view>{}(text);
+  }
+};
+
+struct LevelEntry {
+  std::uint32_t code = 0;
+  std::uint64_t count = 0;
+};
+
+// One column's state in one range.
+struct ColumnTally {
+  std::uint64_t present = 0;
+  std::uint64_t missing = 0;
+  std::uint64_t numeric_cells = 0;
+  // Welford's running mean and sum of squared deviations (Welford 1962, Technometrics 4(3));
+  // ranges merge with the pairwise formula of Chan, Golub and LeVeque (1979).
+  double mean = 0;
+  double squared_deviations = 0;
+  double min = std::numeric_limits<double>::infinity();
+  double max = -std::numeric_limits<double>::infinity();
+  bool levels_overflowed = false;
+  std::unordered_map<std::string, LevelEntry, TextHash, std::equal_to<>> levels;
+  std::vector<std::string> level_texts;  // by code
+  std::optional<CellLocation> first_text;
+};
+
+// What one reader made of its range.
+struct RangeScan {
+  std::vector<ColumnTally> tallies;
+  std::uint64_t rows = 0;
+  std::uint64_t line_ends = 0;  // line ends consumed from the range's start
+  std::uint64_t stop = 0;       // where the first record after the range starts
+  std::filesystem::path spill_file;
+  std::vector<SpillChunkEntry> chunks;
+  std::exception_ptr error;
+};
+
+struct FileIdentity {
+  dev_t device = 0;
+  ino_t inode = 0;
+  std::uint64_t size = 0;
+  std::int64_t modified_ns = 0;
+  bool regular = false;
+  bool operator==(const FileIdentity& other) const {
+    return device == other.device && inode == other.inode && size == other.size &&
+           modified_ns == other.modified_ns;
+  }
+};
+
+FileIdentity IdentityOf(int fd, const std::string& name) {
+  struct stat status {};
+  if (::fstat(fd, &status) != 0) {
+    throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
+  }
+  FileIdentity identity;
+  identity.device = status.st_dev;
+  identity.inode = status.st_ino;
+  identity.size = static_cast<std::uint64_t>(status.st_size);
+  identity.modified_ns = static_cast<std::int64_t>(status.st_mtim.tv_sec) * 1000000000 + status.st_mtim.tv_nsec;
+  identity.regular = S_ISREG(status.st_mode);
+  return identity;
+}
+
+class Descriptor {
+ public:
+  explicit Descriptor(const std::filesystem::path& path) {
+    fd_ = ::open(path.c_str(), O_RDONLY | O_CLOEXEC);
+    if (fd_ < 0) {
+      throw InputError("cannot open data file '" + path.string() + "': " + std::strerror(errno));
+    }
+  }
+  ~Descriptor() { ::close(fd_); }
+  Descriptor(const Descriptor&) = delete;
+  Descriptor& operator=(const Descriptor&) = delete;
+  int get() const { return fd_; }
+
+ private:
+  int fd_ = -1;
+};
+
+std::size_t PreadSome(int fd, char* buffer, std::size_t capacity, std::uint64_t offset, const std::string& name) {
+  for (;;) {
+    const ssize_t got = ::pread(fd, buffer, capacity, static_cast<off_t>(offset));
+    if (got >= 0) return static_cast<std::size_t>(got);
+    if (errno != EINTR) throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
+  }
+}
+
+// Counts one cell into the tally and returns what the spill stores for it.
+inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_t column,
+                      const std::vector<std::string>& missing_tokens, std::size_t max_levels,
+                      ColumnTally& tally, std::uint64_t& bits, std::uint32_t& code) {
+  double value = 0;
+  code = kSpillNoCode;
+  switch (ClassifyCell(field.text, missing_tokens, value)) {
+    case CellKind::kMissing:
+      ++tally.missing;
+      bits = kSpillMissingBits;
+      return;
+    case CellKind::kNonFinite:
+      reader.Fail(field.line, field.column,
+                  "column '" + QuoteForMessage(reader.header()[column]) + "' holds '" +
+                      QuoteForMessage(field.text) + "', which is not a finite number");
+    case CellKind::kNumber: {
+      ++tally.numeric_cells;
+      const double delta = value - tally.mean;
+      tally.mean += delta / static_cast<double>(tally.numeric_cells);
+      tally.squared_deviations += delta * (value - tally.mean);
+      tally.min = std::min(tally.min, value);
+      tally.max = std::max(tally.max, value);
+      bits = SpillBits(value);
+      break;
+    }
+    case CellKind::kText:
+      if (!tally.first_text) tally.first_text = CellLocation{field.line, field.column, std::string(field.text)};
+      bits = kSpillTextBits;
+      break;
+  }
+  ++tally.present;
+  if (tally.levels_overflowed) return;
+  const auto found = tally.levels.find(field.text);
+  if (found != tally.levels.end()) {
+    ++found->second.count;
+    code = found->second.code;
+  } else if (tally.levels.size() < max_levels) {
+    code = static_cast<std::uint32_t>(tally.level_texts.size());
+    tally.levels.emplace(std::string(field.text), LevelEntry{code, 1});
+    tally.level_texts.emplace_back(field.text);
+  } else {
+    // Once past the limit the column cannot be a categorical term; stop paying for it.
+    tally.levels_overflowed = true;
+  }
+}
+
+// Reads every record of the reader's range (or file) into the tallies and the spill writer.
+// total_bytes (0: unknown) lets the writer estimate the room it needs for a message.
+void ScanRecords(CsvReader& reader, const ScanOptions& options, SpillWriter* writer,
+                 std::uint64_t first_byte, std::uint64_t total_bytes, RangeScan& out) {
+  const std::size_t columns = reader.header().size();
+  out.tallies.assign(columns, ColumnTally{});
+  const std::vector<std::string>& missing_tokens = options.csv.missing_tokens;
+  const std::size_t max_levels = options.profile.max_levels;
+  CsvRecord record;
+  while (reader.Next(record)) {
+    ++out.rows;
+    if (writer != nullptr) writer->BeginRow(record.line, record.offset);
+    for (std::size_t c = 0; c < columns; ++c) {
+      std::uint64_t bits = 0;
+      std::uint32_t code = kSpillNoCode;
+      TallyCell(reader, record.fields[c], c, missing_tokens, max_levels, out.tallies[c], bits, code);
+      if (writer != nullptr) writer->Set(c, bits, code);
+    }
+    if (writer != nullptr) {
+      writer->EndRow();
+      if (total_bytes > 0 && out.rows % kSpillChunkRows == 0) {
+        const std::uint64_t done = std::max<std::uint64_t>(reader.bytes_read() - first_byte, 1);
+        writer->SetEstimatedTotalRows(out.rows * (total_bytes / done + 1));
+      }
+    }
+  }
+  out.line_ends = reader.line_ends_read();
+  out.stop = reader.bytes_read();
+  if (writer != nullptr) out.chunks = writer->Finish();
+}
+
+void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_before, std::size_t max_levels) {
+  if (from.numeric_cells > 0) {
+    if (into.numeric_cells == 0) {
+      into.mean = from.mean;
+      into.squared_deviations = from.squared_deviations;
+    } else {
+      const double na = static_cast<double>(into.numeric_cells);
+      const double nb = static_cast<double>(from.numeric_cells);
+      const double n = na + nb;
+      const double delta = from.mean - into.mean;
+      into.mean += delta * (nb / n);
+      into.squared_deviations += from.squared_deviations + delta * delta * (na * nb / n);
+    }
+    into.min = std::min(into.min, from.min);
+    into.max = std::max(into.max, from.max);
+  }
+  into.present += from.present;
+  into.missing += from.missing;
+  into.numeric_cells += from.numeric_cells;
+  if (!into.first_text && from.first_text) {
+    into.first_text = std::move(from.first_text);
+    into.first_text->line += lines_before;
+  }
+  if (from.levels_overflowed) into.levels_overflowed = true;
+  if (into.levels_overflowed) return;
+  for (auto& [text, entry] : from.levels) {
+    const auto found = into.levels.find(text);
+    if (found != into.levels.end()) {
+      found->second.count += entry.count;
+    } else if (into.levels.size() < max_levels) {
+      into.levels.emplace(text, entry);
+    } else {
+      into.levels_overflowed = true;
+      return;
+    }
+  }
+}
+
+ColumnProfile FinishColumn(const std::string& name, std::size_t index, ColumnTally& tally,
+                           std::size_t max_levels) {
+  ColumnProfile column;
+  column.level_limit = max_levels;
+  column.name = name;
+  column.index = index;
+  column.present = tally.present;
+  column.missing = tally.missing;
+  column.numeric_cells = tally.numeric_cells;
+  if (tally.first_text) {
+    column.kind = ColumnKind::kCategorical;
+  } else if (tally.numeric_cells > 0) {
+    column.kind = ColumnKind::kNumeric;
+  } else {
+    column.kind = ColumnKind::kEmpty;
+  }
+  if (column.kind == ColumnKind::kNumeric) {
+    // Degenerate case: one present cell has no sample standard deviation (n-1 = 0).
+    const double n = static_cast<double>(tally.numeric_cells);
+    column.min = tally.min;
+    column.max = tally.max;
+    column.mean = tally.mean;
+    column.sd = tally.numeric_cells > 1 ? std::sqrt(tally.squared_deviations / (n - 1)) : kUndefined;
+  } else {
+    column.min = column.max = column.mean = column.sd = kUndefined;
+  }
+  // A column past the level limit keeps no levels: which ones a partial list would hold would
+  // depend on how the file was cut into ranges.
+  if (!tally.levels_overflowed && column.kind != ColumnKind::kEmpty) {
+    column.levels.reserve(tally.levels.size());
+    for (auto& [level, entry] : tally.levels) column.levels.push_back(LevelCount{level, entry.count});
+    // std::string compares with char_traits<char>, i.e. memcmp: byte-wise, unsigned.
+    std::sort(column.levels.begin(), column.levels.end(),
+              [](const LevelCount& a, const LevelCount& b) { return a.level < b.level; });
+  }
+  column.too_many_levels = column.kind == ColumnKind::kCategorical && tally.levels_overflowed;
+  column.first_text = std::move(tally.first_text);
+  return column;
+}
+
+// The profile of ranges read in file order; lines_before[r] is added to range r's lines.
+DataProfile MergeProfile(const std::filesystem::path& path, const std::vector<std::string>& header,
+                         std::vector<RangeScan>& ranges, const std::vector<std::uint64_t>& lines_before,
+                         const ScanOptions& options) {
+  DataProfile profile;
+  profile.path = path;
+  std::vector<ColumnTally> merged(header.size());
+  for (std::size_t r = 0; r < ranges.size(); ++r) {
+    profile.rows += ranges[r].rows;
+    for (std::size_t c = 0; c < header.size() && c < ranges[r].tallies.size(); ++c) {
+      MergeTally(merged[c], std::move(ranges[r].tallies[c]), lines_before[r], options.profile.max_levels);
+    }
+  }
+  profile.columns.reserve(header.size());
+  for (std::size_t c = 0; c < header.size(); ++c) profile.columns.push_back(FinishColumn(header[c], c, merged[c], options.profile.max_levels));
+  return profile;
+}
+
+bool StartsCompressed(const char* bytes, std::size_t size) {
+  return (size >= 2 && static_cast<unsigned char>(bytes[0]) == 0x1F && static_cast<unsigned char>(bytes[1]) == 0x8B) ||
+         (size >= 4 && static_cast<unsigned char>(bytes[0]) == 0x28 && static_cast<unsigned char>(bytes[1]) == 0xB5 &&
+          static_cast<unsigned char>(bytes[2]) == 0x2F && static_cast<unsigned char>(bytes[3]) == 0xFD);
+}
+
+// The offset just after the first LF at or after `from` (size when there is none).
+std::uint64_t NextLineStart(int fd, std::uint64_t from, std::uint64_t size, const std::string& name) {
+  std::vector<char> buffer(1 << 16);
+  for (std::uint64_t at = from; at < size;) {
+    const std::size_t got = PreadSome(fd, buffer.data(), buffer.size(), at, name);
+    if (got == 0) break;
+    const void* lf = std::memchr(buffer.data(), '\n', got);
+    if (lf != nullptr) return at + static_cast<std::uint64_t>(static_cast<const char*>(lf) - buffer.data()) + 1;
+    at += got;
+  }
+  return size;
+}
+
+// Hashes the fingerprint blocks [first, last) of the file.
+void HashBlocks(int fd, std::uint64_t size, std::size_t first, std::size_t last,
+                std::vector<Sha256Digest>& digests, const std::string& name) {
+  std::vector<char> buffer(DataFingerprint::kBlockBytes);
+  for (std::size_t block = first; block < last; ++block) {
+    const std::uint64_t begin = static_cast<std::uint64_t>(block) * DataFingerprint::kBlockBytes;
+    const std::size_t length = static_cast<std::size_t>(std::min<std::uint64_t>(DataFingerprint::kBlockBytes, size - begin));
+    std::size_t done = 0;
+    while (done < length) {
+      const std::size_t got = PreadSome(fd, buffer.data() + done, length - done, begin + done, name);
+      if (got == 0) throw InputError("data file '" + name + "' became shorter while it was read");
+      done += got;
+    }
+    digests[block] = Sha256(std::string_view(buffer.data(), length));
+  }
+}
+
+SpillSource MakeSource(const std::filesystem::path& path, const FileIdentity& identity, bool plain,
+                       const std::vector<std::string>& header, const CsvOptions& csv) {
+  SpillSource source;
+  source.path = path;
+  source.display_name = path.string();
+  source.rereadable = plain && identity.regular;
+  source.device = identity.device;
+  source.inode = identity.inode;
+  source.size = identity.size;
+  source.modified_ns = identity.modified_ns;
+  source.header = header;
+  source.delimiter = csv.delimiter;
+  return source;
+}
+
+void CheckUnchanged(int fd, const FileIdentity& before, const std::string& name) {
+  if (!before.regular) return;
+  if (!(IdentityOf(fd, name) == before)) {
+    throw InputError("data file '" + name + "' changed while it was read (its size or time of last "
+                     "change moved); run again once it is complete");
+  }
+}
+
+std::vector<SpillRange> MakeSpillRanges(std::vector<RangeScan>& scans, const std::vector<std::uint64_t>& lines_before) {
+  std::vector<SpillRange> ranges;
+  std::uint64_t rows_before = 0;
+  for (std::size_t r = 0; r < scans.size(); ++r) {
+    SpillRange range;
+    range.file = scans[r].spill_file;
+    range.rows = scans[r].rows;
+    range.rows_before = rows_before;
+    range.lines_before = lines_before[r];
+    range.chunks = std::move(scans[r].chunks);
+    range.levels.resize(scans[r].tallies.size());
+    for (std::size_t c = 0; c < scans[r].tallies.size(); ++c) {
+      if (!scans[r].tallies[c].levels_overflowed) range.levels[c] = std::move(scans[r].tallies[c].level_texts);
+    }
+    rows_before += range.rows;
+    ranges.push_back(std::move(range));
+  }
+  return ranges;
+}
+
+// One reader over the whole stream: pipes, FIFOs, compressed files, one thread, small files.
+ScanResult ScanWhole(const std::filesystem::path& path, Descriptor& file, const FileIdentity& identity,
+                     const ScanOptions& options) {
+  ScanResult result;
+  DataFingerprint fingerprint;
+  const int fd = file.get();
+  const std::string name = path.string();
+  CsvReader reader(path, [fd, name](char* buffer, std::size_t capacity) {
+    for (;;) {
+      const ssize_t got = ::read(fd, buffer, capacity);
+      if (got >= 0) return static_cast<std::size_t>(got);
+      if (errno != EINTR) throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
+    }
+  }, options.csv);
+  reader.SetByteObserver([&fingerprint](std::string_view bytes) { fingerprint.Update(bytes); });
+  result.header = reader.header();
+
+  std::unique_ptr<SpillFolder> folder;
+  std::unique_ptr<SpillWriter> writer;
+  std::vector<RangeScan> scans(1);
+  if (options.spill) {
+    folder = std::make_unique<SpillFolder>(options.work_dir);
+    scans[0].spill_file = folder->NewFile("range-0.bin");
+    writer = std::make_unique<SpillWriter>(scans[0].spill_file, folder->work_dir(), result.header.size());
+  }
+  ScanRecords(reader, options, writer.get(), 0, identity.regular ? identity.size : 0, scans[0]);
+  CheckUnchanged(fd, identity, name);
+  result.stored_bytes = fingerprint.total_bytes();
+  result.sha256 = fingerprint.Finish();
+  const std::vector<std::uint64_t> lines_before = {0};  // a whole-file reader counts from line 1
+  result.profile = MergeProfile(path, result.header, scans, lines_before, options);
+  if (options.spill) {
+    result.spill = std::make_shared<Spill>(std::move(folder), MakeSpillRanges(scans, lines_before),
+                                           result.header.size(),
+                                           MakeSource(path, identity, true, result.header, options.csv));
+  }
+  return result;
+}
+
+ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, const FileIdentity& identity,
+                        const ScanOptions& options) {
+  const int fd = file.get();
+  const std::string name = path.string();
+  const std::uint64_t size = identity.size;
+  ScanResult result;
+  std::uint64_t header_end = 0, header_lines = 0;
+  {
+    std::uint64_t next = 0;
+    CsvReader header_reader(path, [&](char* buffer, std::size_t capacity) {
+      const std::size_t got = PreadSome(fd, buffer, capacity, next, name);
+      next += got;
+      return got;
+    }, options.csv);
+    result.header = header_reader.header();
+    header_end = header_reader.bytes_read();
+    header_lines = header_reader.line_ends_read();
+  }
+
+  // The guessed cuts: after the first line end at or after each even share of the bytes (or at
+  // the places the caller chose).
+  const std::uint64_t body = size - header_end;
+  std::vector<std::uint64_t> cuts = options.range_cuts;
+  if (cuts.empty()) {
+    const std::uint64_t by_size = std::max<std::uint64_t>(1, body / std::max<std::uint64_t>(1, options.min_range_bytes));
+    const std::uint64_t count = std::min<std::uint64_t>(options.threads, by_size);
+    for (std::uint64_t r = 1; r < count; ++r) cuts.push_back(header_end + body * r / count);
+  }
+  std::sort(cuts.begin(), cuts.end());
+  const std::size_t range_count = cuts.size() + 1;
+  std::vector<std::uint64_t> starts(range_count);
+  starts[0] = header_end;
+  for (std::size_t r = 1; r < range_count; ++r) {
+    const std::uint64_t cut = std::max(cuts[r - 1], header_end);
+    starts[r] = std::max(starts[r - 1], cut == 0 ? 0 : NextLineStart(fd, cut - 1, size, name));
+  }
+  auto end_of = [&](std::size_t r) { return r + 1 < range_count ? starts[r + 1] : UINT64_MAX; };
+
+  auto folder = options.spill ? std::make_unique<SpillFolder>(options.work_dir) : nullptr;
+  std::vector<RangeScan> scans(range_count);
+  const std::size_t blocks = static_cast<std::size_t>((size + DataFingerprint::kBlockBytes - 1) / DataFingerprint::kBlockBytes);
+  std::vector<Sha256Digest> digests(blocks);
+  std::vector<std::exception_ptr> hash_errors(range_count);
+  auto scan_range = [&](std::size_t r, std::uint64_t begin, const std::string& file_name) {
+    RangeScan& scan = scans[r];
+    scan = RangeScan{};
+    try {
+      std::unique_ptr<SpillWriter> writer;
+      if (folder) {
+        scan.spill_file = folder->NewFile(file_name);
+        writer = std::make_unique<SpillWriter>(scan.spill_file, folder->work_dir(), result.header.size());
+      }
+      CsvReader reader(path, fd, CsvRange{begin, end_of(r), result.header}, options.csv);
+      const std::uint64_t range_bytes = end_of(r) == UINT64_MAX ? size - std::min(size, begin)
+                                                                : end_of(r) - std::min(end_of(r), begin);
+      ScanRecords(reader, options, writer.get(), begin, range_bytes, scan);
+    } catch (...) {
+      scan.error = std::current_exception();
+    }
+  };
+  {
+    std::vector<std::thread> threads;
+    for (std::size_t r = 0; r < range_count; ++r) {
+      threads.emplace_back([&, r] {
+        scan_range(r, starts[r], "range-" + std::to_string(r) + ".bin");
+        try {
+          HashBlocks(fd, size, blocks * r / range_count, blocks * (r + 1) / range_count, digests, name);
+        } catch (...) {
+          hash_errors[r] = std::current_exception();
+        }
+      });
+    }
+    for (auto& thread : threads) thread.join();
+  }
+  // Check the guessed cuts in file order; read a range again from the true boundary when the
+  // range before ends elsewhere (a quoted field held the guessed line end).
+  std::vector<std::uint64_t> lines_before(range_count);
+  lines_before[0] = header_lines;
+  for (std::size_t r = 0; r < range_count; ++r) {
+    if (r > 0) {
+      const RangeScan& previous = scans[r - 1];
+      lines_before[r] = lines_before[r - 1] + previous.line_ends;
+      if (previous.stop != starts[r]) {
+        starts[r] = previous.stop;
+        scan_range(r, starts[r], "range-" + std::to_string(r) + "-again.bin");
+      }
+    }
+    if (scans[r].error) {
+      try {
+        std::rethrow_exception(scans[r].error);
+      } catch (const LocatedInputError& error) {
+        throw error.WithLinesBefore(lines_before[r]);
+      }
+    }
+  }
+  for (const auto& error : hash_errors) {
+    if (error) std::rethrow_exception(error);
+  }
+  CheckUnchanged(fd, identity, name);
+  result.stored_bytes = size;
+  result.sha256 = DataFingerprint::Combine(digests, size);
+  result.ranges = static_cast<int>(range_count);
+  result.profile = MergeProfile(path, result.header, scans, lines_before, options);
+  if (folder) {
+    result.spill = std::make_shared<Spill>(std::move(folder), MakeSpillRanges(scans, lines_before),
+                                           result.header.size(),
+                                           MakeSource(path, identity, true, result.header, options.csv));
+  }
+  return result;
+}
+
+}  // namespace
+
+void ScanOptions::Validate() const {
+  csv.Validate();
+  if (threads < 1) throw InputError("threads: expected an integer >= 1, found " + std::to_string(threads));
+  if (min_range_bytes < 1) throw InputError("min_range_bytes: expected an integer >= 1, found 0");
+}
+
+ScanResult ScanData(const std::filesystem::path& path, const ScanOptions& options) {
+  options.Validate();
+  Descriptor file(path);
+  const FileIdentity identity = IdentityOf(file.get(), path.string());
+  bool parallel = (options.threads > 1 || !options.range_cuts.empty()) && identity.regular;
+  if (parallel) {
+    char magic[4] = {};
+    const std::size_t got = PreadSome(file.get(), magic, sizeof magic, 0, path.string());
+    parallel = !StartsCompressed(magic, got);
+  }
+  return parallel ? ScanInRanges(path, file, identity, options) : ScanWhole(path, file, identity, options);
+}
+
+}  // namespace stepledger

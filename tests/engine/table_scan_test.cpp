@@ -1,0 +1,247 @@
+// The one scan of a data file: parallel reading in byte ranges gives exactly what one reader
+// gives (profile, fingerprint, rows and their lines, messages), wherever the cuts fall; the
+// typed spill holds every cell and is removed afterwards, also after an error.
+
+#include "stepledger/engine/table_scan.h"
+
+#include <algorithm>
+#include <cstring>
+#include <filesystem>
+#include <string>
+#include <vector>
+
+#include <gtest/gtest.h>
+
+#include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/design.h"
+#include "stepledger/engine/errors.h"
+#include "stepledger/engine/fingerprint.h"
+#include "support/input_error.h"
+#include "support/test_paths.h"
+
+namespace stepledger {
+namespace {
+
+using testing::InputErrorOf;
+using testing::TempDir;
+
+// Quoted fields with embedded delimiters, doubled quotes and line ends (LF and CRLF), a BOM, a
+// missing cell and no line end after the last record: every hazard for a cut.
+const std::string kHazards =
+    "\xEF\xBB\xBFprice,age,note\r\n"
+    "100,1,plain\r\n"
+    "200,2,\"a,b\"\n"
+    "300,3,\"line one\nline two\"\n"
+    "400,,\"say \"\"hi\"\"\"\n"
+    "500,5,\"\n\n\"\n"
+    "600,6,\"x\r\ny\"\r\n"
+    "700,7,last";
+
+// Everything a scan produced that must not depend on how the file was cut.
+struct ScanDigest {
+  std::string sha256;
+  std::uint64_t rows = 0;
+  std::vector<std::string> columns;  // one line per column: kind, counts, range, levels
+  std::vector<std::string> cells;    // one line per row: index, line, offset, cells
+  bool operator==(const ScanDigest&) const = default;
+};
+
+std::string Describe(const ColumnProfile& column) {
+  std::string text = column.name + " " + ToString(column.kind) + " present=" + std::to_string(column.present) +
+                     " missing=" + std::to_string(column.missing) + " numeric=" + std::to_string(column.numeric_cells);
+  if (column.kind == ColumnKind::kNumeric) {
+    text += " min=" + std::to_string(column.min) + " max=" + std::to_string(column.max) +
+            " mean=" + std::to_string(column.mean);
+  }
+  for (const LevelCount& level : column.levels) text += " [" + level.level + "]x" + std::to_string(level.count);
+  if (column.first_text) {
+    text += " first_text@" + std::to_string(column.first_text->line) + ":" + std::to_string(column.first_text->column);
+  }
+  return text;
+}
+
+ScanDigest Digest(const ScanResult& scan) {
+  ScanDigest digest;
+  digest.sha256 = scan.sha256;
+  digest.rows = scan.profile.rows;
+  for (const ColumnProfile& column : scan.profile.columns) digest.columns.push_back(Describe(column));
+  SpillReader reader(*scan.spill);
+  SpillChunk chunk;
+  while (reader.Next(chunk)) {
+    const SpillRange& range = scan.spill->ranges()[chunk.range];
+    for (std::size_t r = 0; r < chunk.rows; ++r) {
+      std::string row = std::to_string(range.rows_before + chunk.first_row + r) + " line " +
+                        std::to_string(range.lines_before + chunk.lines[r]) + " at " + std::to_string(chunk.offsets[r]);
+      for (std::size_t c = 0; c < chunk.columns; ++c) {
+        const double value = chunk.values(c)[r];
+        row += " | ";
+        if (IsSpillMissing(value)) {
+          row += "missing";
+        } else if (IsSpillText(value)) {
+          row += "text";
+        } else {
+          row += std::to_string(value);
+        }
+        if (chunk.codes[c] != nullptr && chunk.codes[c][r] != kSpillNoCode) {
+          row += " '" + range.levels[c].at(chunk.codes[c][r]) + "'";
+        }
+      }
+      digest.cells.push_back(row);
+    }
+  }
+  return digest;
+}
+
+ScanOptions WithCuts(std::vector<std::uint64_t> cuts) {
+  ScanOptions options;
+  options.threads = static_cast<int>(cuts.size()) + 1;
+  options.range_cuts = std::move(cuts);
+  return options;
+}
+
+TEST(TableScanTest, OneReaderSeesEveryRowWithItsLineAndOffset) {
+  TempDir dir;
+  const auto path = dir.Write("hazards.csv", kHazards);
+  const ScanResult scan = ScanData(path, ScanOptions{});
+  EXPECT_EQ(scan.profile.rows, 7u);
+  EXPECT_EQ(scan.header, (std::vector<std::string>{"price", "age", "note"}));
+  EXPECT_EQ(scan.sha256, FingerprintFile(path));
+  const ScanDigest digest = Digest(scan);
+  ASSERT_EQ(digest.cells.size(), 7u);
+  EXPECT_EQ(digest.cells[0], "0 line 2 at 20 | 100.000000 '100' | 1.000000 '1' | text 'plain'");
+  EXPECT_EQ(digest.cells[2], "2 line 4 at 46 | 300.000000 '300' | 3.000000 '3' | text 'line one\nline two'");
+  EXPECT_EQ(digest.cells[3].substr(0, 14), "3 line 6 at 72");
+  EXPECT_NE(digest.cells[3].find("missing"), std::string::npos);
+  EXPECT_EQ(digest.cells[6].substr(0, 15), "6 line 13 at 12");
+}
+
+// Every single cut and many pairs of cuts, wherever they fall (inside quoted fields, between a
+// CR and its LF, inside the BOM or the header), give exactly the one-reader scan.
+TEST(TableScanTest, EveryCutGivesTheSameScanAsOneReader) {
+  TempDir dir;
+  const auto path = dir.Write("hazards.csv", kHazards);
+  const ScanDigest expected = Digest(ScanData(path, ScanOptions{}));
+  for (std::uint64_t cut = 0; cut <= kHazards.size(); ++cut) {
+    EXPECT_EQ(Digest(ScanData(path, WithCuts({cut}))), expected) << "cut at byte " << cut;
+  }
+  for (std::uint64_t first = 0; first <= kHazards.size(); first += 3) {
+    for (std::uint64_t second = first; second <= kHazards.size(); second += 5) {
+      EXPECT_EQ(Digest(ScanData(path, WithCuts({first, second}))), expected)
+          << "cuts at bytes " << first << " and " << second;
+    }
+  }
+}
+
+TEST(TableScanTest, AFileSmallerThanTheThreadsAndAFileOfOnlyAHeader) {
+  TempDir dir;
+  const auto tiny = dir.Write("tiny.csv", "a,b\n1,2\n");
+  const ScanDigest expected = Digest(ScanData(tiny, ScanOptions{}));
+  ScanOptions many;
+  many.threads = 8;
+  many.min_range_bytes = 1;
+  EXPECT_EQ(Digest(ScanData(tiny, many)), expected);
+
+  const auto header_only = dir.Write("header.csv", "a,b\n");
+  const ScanResult scan = ScanData(header_only, many);
+  EXPECT_EQ(scan.profile.rows, 0u);
+  EXPECT_EQ(scan.spill->rows(), 0u);
+}
+
+// A bad cell near the end of the last range and a broken quote: the same message, with the line
+// and column counted from the file's start, for one reader and for any cut.
+TEST(TableScanTest, ErrorsNameTheSamePlaceForEveryCut) {
+  TempDir dir;
+  std::string text = "price,age\n";
+  for (int row = 0; row < 40; ++row) text += std::to_string(100 + row) + "," + std::to_string(row) + "\n";
+  const auto non_finite = dir.Write("nan.csv", text + "990,inf\n991,2\n");
+  const auto broken = dir.Write("broken.csv", text + "992,\"3\n993,4\n");
+  for (const auto& path : {non_finite, broken}) {
+    const std::string expected = InputErrorOf([&] { ScanData(path, ScanOptions{}); });
+    ASSERT_FALSE(expected.empty());
+    for (std::uint64_t cut = 0; cut < std::filesystem::file_size(path); cut += 7) {
+      EXPECT_EQ(InputErrorOf([&] { ScanData(path, WithCuts({cut})); }), expected) << "cut at " << cut;
+      EXPECT_EQ(InputErrorOf([&] { ScanData(path, WithCuts({cut / 2, cut})); }), expected) << "cuts at " << cut;
+    }
+  }
+  EXPECT_NE(InputErrorOf([&] { ScanData(non_finite, ScanOptions{}); }).find("nan.csv:42:5:"), std::string::npos);
+  EXPECT_NE(InputErrorOf([&] { ScanData(broken, ScanOptions{}); }).find("broken.csv:42:5:"), std::string::npos);
+}
+
+bool FolderIsEmpty(const std::filesystem::path& folder) {
+  return std::filesystem::is_empty(folder);
+}
+
+TEST(TableScanTest, TheSpillLivesInTheWorkingFolderAndIsRemovedAfterUseAndAfterAnError) {
+  TempDir dir;
+  const auto work = dir.path() / "work";
+  std::filesystem::create_directory(work);
+  const auto path = dir.Write("hazards.csv", kHazards);
+  {
+    ScanOptions options = WithCuts({30, 60});
+    options.work_dir = work;
+    const ScanResult scan = ScanData(path, options);
+    EXPECT_EQ(scan.spill->folder().parent_path(), work);
+    EXPECT_FALSE(FolderIsEmpty(work));
+    EXPECT_GT(scan.spill->bytes(), 0u);
+  }
+  EXPECT_TRUE(FolderIsEmpty(work));
+
+  std::string text = "price,age\n";
+  for (int row = 0; row < 10000; ++row) text += std::to_string(row) + ",1\n";
+  const auto bad = dir.Write("bad.csv", text + "1,nan\n");
+  for (int threads : {1, 2}) {
+    ScanOptions options;
+    options.threads = threads;
+    options.min_range_bytes = 1;
+    options.work_dir = work;
+    EXPECT_NE(InputErrorOf([&] { ScanData(bad, options); }).find("bad.csv:10002:3:"), std::string::npos);
+    EXPECT_TRUE(FolderIsEmpty(work)) << threads << " threads";
+  }
+}
+
+TEST(TableScanTest, AnUnwritableWorkingFolderIsAClearError) {
+  TempDir dir;
+  const auto path = dir.Write("hazards.csv", kHazards);
+  ScanOptions options;
+  options.work_dir = dir.path() / "no" / "such" / "folder";
+  const std::string message = InputErrorOf([&] { ScanData(path, options); });
+  EXPECT_NE(message.find((dir.path() / "no" / "such" / "folder").string()), std::string::npos) << message;
+  EXPECT_NE(message.find("--work-dir"), std::string::npos) << message;
+}
+
+TEST(TableScanTest, ProfileOnlyWritesNoSpill) {
+  TempDir dir;
+  const auto path = dir.Write("hazards.csv", kHazards);
+  ScanOptions options;
+  options.spill = false;
+  const ScanResult scan = ScanData(path, options);
+  EXPECT_EQ(scan.spill, nullptr);
+  EXPECT_EQ(scan.profile.rows, 7u);
+}
+
+// A cell error found in a later pass (a negative weight) names the cell's line and byte column,
+// read again from the file, for every thread count.
+TEST(TableScanTest, ALaterPassNamesTheCellAsTheTextHasIt) {
+  TempDir dir;
+  std::string text = "price,age,units\n";
+  for (int row = 0; row < 50; ++row) text += std::to_string(100 + row) + "," + std::to_string(row) + ",1\n";
+  text += "7,\"8\",-2.50\n";
+  const auto path = dir.Write("weights.csv", text);
+  DesignSpec spec;
+  spec.response = "price";
+  spec.weights = "units";
+  TermSpec age;
+  age.name = "age";
+  age.column = "age";
+  age.key_path = "terms[0]";
+  spec.terms = {age};
+  for (const auto& cuts : std::vector<std::vector<std::uint64_t>>{{}, {200}, {100, 300}}) {
+    const ScanResult scan = ScanData(path, WithCuts(cuts));
+    const Design design = BuildDesign(spec, scan.profile);
+    EXPECT_EQ(InputErrorOf([&] { RunFactorPass(*scan.spill, design, PassOptions{}); }),
+              path.string() + ":52:7: weight '-2.50' in column 'units' is negative; precision weights must be >= 0");
+  }
+}
+
+}  // namespace
+}  // namespace stepledger
