@@ -293,6 +293,12 @@ RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& desig
   };
 }
 
+void ForEachUsedRow(const std::filesystem::path& path, const Design& design, const CsvOptions& csv,
+                    const std::function<void(const UsedRow&)>& visit) {
+  const ScanResult scan = ScanForPass(path, csv, 1);
+  ForEachUsedRow(*scan.spill, design, visit);
+}
+
 RowReplay FileRowReplay(const std::filesystem::path& path, const Design& design, const CsvOptions& csv) {
   return SpillRowReplay(ScanForPass(path, csv, 1).spill, design);
 }

@@ -92,6 +92,10 @@ using RowReplay = std::function<void(const std::function<void(const UsedRow&)>&)
 /// A RowReplay over a spill (kept alive by the replay).
 RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design);
 
+/// The same from a file (one scan into a spill removed afterwards; for tests and small tools).
+void ForEachUsedRow(const std::filesystem::path& path, const Design& design, const CsvOptions& csv,
+                    const std::function<void(const UsedRow&)>& visit);
+
 /// A RowReplay over a file: scans it once into a spill that the replay keeps (for tests and
 /// small tools; a run replays the spill of its own scan).
 RowReplay FileRowReplay(const std::filesystem::path& path, const Design& design, const CsvOptions& csv);
