@@ -19,8 +19,8 @@
 #   BUILD=0           do not build the stepledger and scale_gen targets first
 #   BUILD_JOBS        parallel jobs of that build                   (default 1)
 #
-# Each command runs REPEAT times per size and thread count, under /usr/bin/time for the peak resident
-# memory. Every data file is read once (into the page cache) before its size is measured, so
+# Each command runs REPEAT times per size and thread count, under /usr/bin/time for the peak
+# resident memory. Every data file is read once (into the page cache) before its size is measured, so
 # no command pays the disk for the others. `--threads N` is passed only to the commands whose
 # `--help` lists it; for the others the threads-1 row runs with the command's default and the
 # threads-2 row says n/a. MB are 10^6 bytes; MB/s is the data file's size over the wall time.
@@ -301,7 +301,7 @@ PY
       notes+=("$label rows: \`fit\` and numpy ${check:-could not be compared}")
     fi
   fi
-  rm -f "$data"
+  if [[ "${KEEP:-0}" != 1 ]]; then rm -f "$data"; fi   # the next size needs the disk space
 done
 
 # --- the table ----------------------------------------------------------------------------
