@@ -250,6 +250,8 @@ class PredictSink {
       file_->Write(buffer_);
     } else {
       context_.out.write(buffer_.data(), static_cast<std::streamsize>(buffer_.size()));
+      // A full disk or a closed reader: stop at once rather than price rows no one receives.
+      if (!context_.out) throw InputError("stdout: cannot write the prices (output closed or disk full)");
     }
     buffer_.clear();
   }
@@ -266,7 +268,11 @@ struct PredictCounts {
   std::uint64_t rows = 0;
   std::uint64_t priced = 0;
   std::array<std::uint64_t, kAllPredictionFlags.size()> flags{};
-  std::uint64_t& Flag(PredictionFlag flag) { return flags[static_cast<std::size_t>(flag)]; }
+  std::uint64_t& Flag(PredictionFlag flag) {
+    std::size_t index = 0;
+    while (kAllPredictionFlags[index] != flag) ++index;
+    return flags[index];
+  }
 };
 
 // The JSON document is written as nlohmann::json would dump it whole (keys sorted, indent 2):
