@@ -19,7 +19,7 @@ packages=(
   cmake g++ make pkg-config
   libarmadillo-dev libopenblas-dev liblapack-dev
   nlohmann-json3-dev libspdlog-dev libgtest-dev libgmock-dev libcli11-dev
-  libboost-math-dev libssl-dev
+  libboost-math-dev libssl-dev zlib1g-dev libzstd-dev
   python3 python3-numpy python3-scipy python3-statsmodels python3-jsonschema
 )
 if [[ $with_chromium -eq 1 ]]; then

@@ -1,17 +1,18 @@
 // `stepledger predict AUDIT ROWS [--out FILE] [--level P] [--id COL]`: prices new rows with the
 // final model of an audit (rebuilt from the audit alone, audit/fitted_model.h), one output row
 // per input row in input order, with intervals and extrapolation flags (engine/prediction.h).
+// It streams: each row is read, priced and written before the next is read, so memory stays
+// flat in the rows (the output goes through one buffer to stdout, or to a temporary file
+// beside --out that takes the name at the end), and the summary counts come last.
 
-#include <algorithm>
+#include <array>
+#include <charconv>
 #include <cmath>
-#include <cstdio>
-#include <map>
+#include <cstdint>
 #include <memory>
 #include <optional>
-#include <set>
-#include <sstream>
 #include <string>
-#include <vector>
+#include <string_view>
 
 #include <nlohmann/json.hpp>
 
@@ -23,6 +24,7 @@
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/prediction.h"
 #include "stepledger/cli/run_cli.h"
+#include "stepledger/io/atomic_file.h"
 
 namespace stepledger::cli {
 namespace {
@@ -42,23 +44,34 @@ constexpr const char* kBackTransformMethod =
     "mean = exp(prediction) x smearing factor (Duan's smearing estimate: the mean over the "
     "fitted rows of exp(sqrt(w_i) e_i))";
 
-// Full round-trip precision: what scripts read must be the numbers computed.
-std::string Number(double value) {
-  char buffer[40];
-  std::snprintf(buffer, sizeof buffer, "%.17g", value);
-  return buffer;
+// The shortest text that reads back to the same double (std::to_chars without a precision):
+// what scripts read is exactly the number computed, in as few digits as that takes.
+void AppendNumber(std::string& text, double value) {
+  std::array<char, 32> buffer;  // the longest shortest form, "-2.2250738585072014e-308", is 24
+  const auto result = std::to_chars(buffer.data(), buffer.data() + buffer.size(), value);
+  text.append(buffer.data(), result.ptr);
 }
-std::string Number(const std::optional<double>& value) { return value ? Number(*value) : std::string(); }
+void AppendNumber(std::string& text, const std::optional<double>& value) {
+  if (value) AppendNumber(text, *value);
+}
+std::string Number(const std::optional<double>& value) {
+  std::string text;
+  AppendNumber(text, value);
+  return text;
+}
 
 // RFC 4180 quoting, only when needed.
-std::string CsvText(std::string_view text) {
-  if (text.find_first_of(",\"\r\n") == std::string_view::npos) return std::string(text);
-  std::string quoted = "\"";
-  for (const char c : text) {
-    if (c == '"') quoted += '"';
-    quoted += c;
+void AppendCsvText(std::string& out, std::string_view text) {
+  if (text.find_first_of(",\"\r\n") == std::string_view::npos) {
+    out += text;
+    return;
   }
-  return quoted + "\"";
+  out += '"';
+  for (const char c : text) {
+    if (c == '"') out += '"';
+    out += c;
+  }
+  out += '"';
 }
 
 nlohmann::json Json(const std::optional<double>& value) {
@@ -71,40 +84,60 @@ struct Priced {
   std::string id;
 };
 
-std::string FlagsText(const PredictedRow& row) {
-  std::string text;
-  for (const PredictionFlag flag : row.flags) text += (text.empty() ? "" : ";") + std::string(ToString(flag));
-  return text;
-}
-
 // With a logged response the price on the response's own scale comes first (what a reader
 // wants), then the numbers on the log scale the model was fitted on.
-std::string RenderCsv(const std::vector<Priced>& rows, bool with_id, bool logged) {
-  std::ostringstream out;
-  out << "row,line";
-  if (with_id) out << ",id";
-  if (logged) out << ",exp_prediction,exp_ci_low,exp_ci_high,exp_pi_low,exp_pi_high,mean_smearing";
-  out << ",prediction,se_mean,ci_low,ci_high,pi_low,pi_high";
-  out << ",leverage,flags,detail\n";
-  for (const Priced& priced : rows) {
-    const PredictedRow& row = priced.row;
-    out << row.row_index + 1 << "," << row.line;
-    if (with_id) out << "," << CsvText(priced.id);
-    if (logged) {
-      const auto& back = row.back;
-      out << "," << (back ? Number(back->median) : "") << ","
-          << (back && back->ci ? Number(back->ci->low) : "") << ","
-          << (back && back->ci ? Number(back->ci->high) : "") << ","
-          << (back && back->pi ? Number(back->pi->low) : "") << ","
-          << (back && back->pi ? Number(back->pi->high) : "") << ","
-          << (back ? Number(back->mean) : "");
-    }
-    out << "," << Number(row.prediction) << "," << Number(row.se_mean) << ","
-        << (row.ci ? Number(row.ci->low) : "") << "," << (row.ci ? Number(row.ci->high) : "") << ","
-        << (row.pi ? Number(row.pi->low) : "") << "," << (row.pi ? Number(row.pi->high) : "");
-    out << "," << Number(row.leverage) << "," << FlagsText(row) << "," << CsvText(row.Detail()) << "\n";
+std::string CsvHeader(bool with_id, bool logged) {
+  std::string header = "row,line";
+  if (with_id) header += ",id";
+  if (logged) header += ",exp_prediction,exp_ci_low,exp_ci_high,exp_pi_low,exp_pi_high,mean_smearing";
+  header += ",prediction,se_mean,ci_low,ci_high,pi_low,pi_high";
+  header += ",leverage,flags,detail\n";
+  return header;
+}
+
+// One CSV line, appended to out.
+void AppendCsvRow(std::string& out, const Priced& priced, bool with_id, bool logged) {
+  const PredictedRow& row = priced.row;
+  auto number = [&](const std::optional<double>& value) {
+    out += ',';
+    AppendNumber(out, value);
+  };
+  auto bound = [&](const std::optional<PredictionInterval>& interval, bool low) {
+    number(interval ? std::optional<double>(low ? interval->low : interval->high) : std::nullopt);
+  };
+  out += std::to_string(row.row_index + 1);
+  out += ',';
+  out += std::to_string(row.line);
+  if (with_id) {
+    out += ',';
+    AppendCsvText(out, priced.id);
   }
-  return out.str();
+  if (logged) {
+    const auto& back = row.back;
+    number(back ? std::optional<double>(back->median) : std::nullopt);
+    bound(back ? back->ci : std::nullopt, true);
+    bound(back ? back->ci : std::nullopt, false);
+    bound(back ? back->pi : std::nullopt, true);
+    bound(back ? back->pi : std::nullopt, false);
+    number(back ? back->mean : std::nullopt);
+  }
+  number(row.prediction);
+  number(row.se_mean);
+  bound(row.ci, true);
+  bound(row.ci, false);
+  bound(row.pi, true);
+  bound(row.pi, false);
+  number(row.leverage);
+  out += ',';
+  bool first = true;
+  for (const PredictionFlag flag : row.flags) {
+    if (!first) out += ';';
+    out += ToString(flag);
+    first = false;
+  }
+  out += ',';
+  AppendCsvText(out, row.Detail());
+  out += '\n';
 }
 
 nlohmann::json IntervalJson(const std::optional<PredictionInterval>& interval, bool low) {
@@ -182,17 +215,90 @@ std::optional<std::string> CheckAuditForPricing(const nlohmann::json& document, 
   return unverified_warning;
 }
 
-// The rows priced in input order, with the counts the summary reports.
-struct PricedRows {
-  std::vector<Priced> rows;
-  bool with_id = false;       ///< --id named a column; each row carries its text
-  bool weights_read = false;  ///< the rows file's weight column was read
-  std::size_t priced_count = 0;
-  std::map<PredictionFlag, std::size_t> flag_counts;
+// Where the output goes, as it is produced: stdout, or a temporary file beside --out that
+// takes its name only in Finish() (an exception before that removes it). Text is collected in
+// one buffer of kFlushBytes, so memory does not grow with the rows.
+class PredictSink {
+ public:
+  static constexpr std::size_t kFlushBytes = std::size_t{1} << 16;
+
+  PredictSink(CommandContext& context, const std::string& path) : context_(context) {
+    if (path != "-") {
+      file_ = std::make_unique<AtomicFileWriter>(path, AtomicWriteOptions{.overwrite = context.common.force});
+      path_ = path;
+    }
+    buffer_.reserve(kFlushBytes * 2);
+  }
+  /// The buffer to append to; call MaybeFlush() after appending.
+  std::string& buffer() { return buffer_; }
+  void MaybeFlush() {
+    if (buffer_.size() >= kFlushBytes) Flush();
+  }
+  void Finish() {
+    Flush();
+    if (file_) {
+      file_->Commit();
+      if (context_.log) context_.log->info("wrote {}", path_);
+    } else {
+      context_.out.flush();
+    }
+  }
+
+ private:
+  void Flush() {
+    if (file_) {
+      file_->Write(buffer_);
+    } else {
+      context_.out.write(buffer_.data(), static_cast<std::streamsize>(buffer_.size()));
+      // A full disk or a closed reader: stop at once rather than price rows no one receives.
+      if (!context_.out) throw InputError("stdout: cannot write the prices (output closed or disk full)");
+    }
+    buffer_.clear();
+  }
+  CommandContext& context_;
+  std::unique_ptr<AtomicFileWriter> file_;
+  std::string path_;
+  std::string buffer_;
 };
 
-PricedRows PriceRows(const PredictArgs& args, CommandContext& context, const FittedModel& fitted,
-                     const Predictor& predictor) {
+// Counts for the summary, kept while the rows stream past.
+struct PredictCounts {
+  bool with_id = false;       ///< --id named a column; each row carries its text
+  bool weights_read = false;  ///< the rows file's weight column was read
+  std::uint64_t rows = 0;
+  std::uint64_t priced = 0;
+  std::array<std::uint64_t, kAllPredictionFlags.size()> flags{};
+  std::uint64_t& Flag(PredictionFlag flag) {
+    std::size_t index = 0;
+    while (kAllPredictionFlags[index] != flag) ++index;
+    return flags[index];
+  }
+};
+
+// The JSON document is written as nlohmann::json would dump it whole (keys sorted, indent 2):
+// the keys before "rows", each row as it is priced, then the keys after it with the summary.
+// `head` and `tail` are objects; their dumps are spliced around the rows.
+std::string JsonHead(const nlohmann::json& head) {
+  std::string text = head.dump(2);
+  text.resize(text.size() - 2);  // drop "\n}"
+  return text + ",\n  \"rows\": [";
+}
+void AppendJsonRow(std::string& out, const nlohmann::json& row, bool first) {
+  out += first ? "\n    " : ",\n    ";
+  // Indent the row's own lines by 4 more (JSON strings hold no raw line breaks).
+  for (const char c : row.dump(2)) {
+    out += c;
+    if (c == '\n') out += "    ";
+  }
+}
+std::string JsonTail(const nlohmann::json& tail, bool any_row) {
+  std::string text = tail.dump(2);
+  return std::string(any_row ? "\n  ]," : "],") + text.substr(1) + "\n";
+}
+
+// Reads, prices and writes the rows one at a time; returns the counts.
+PredictCounts StreamPredictions(const PredictArgs& args, CommandContext& context, const FittedModel& fitted,
+                                const Predictor& predictor, const std::string& unverified_warning) {
   CsvOptions csv = MakeCsvOptions(context.common);
   csv.missing_tokens = fitted.missing_tokens;
   CsvReader reader(args.rows, csv);
@@ -205,78 +311,79 @@ PricedRows PriceRows(const PredictArgs& args, CommandContext& context, const Fit
     }
   }
   const PredictionRowEvaluator evaluator(predictor.design(), reader);
-  PricedRows priced_rows;
-  priced_rows.with_id = id_index >= 0;
-  priced_rows.weights_read = evaluator.reads_weights();
+  PredictCounts counts;
+  counts.with_id = id_index >= 0;
+  counts.weights_read = evaluator.reads_weights();
+  const bool logged = predictor.design().response_transform == ResponseTransform::kLog;
+  const Design& design = predictor.design();
+
+  // Every check on the header is done: only now is the output (and --out's clash) opened.
+  PredictSink sink(context, args.out);
+  std::string& out = sink.buffer();
+  if (context.common.json) {
+    nlohmann::json head;
+    head["audit"] = args.audit;
+    head["back_transform_method"] = logged ? nlohmann::json(kBackTransformMethod) : nlohmann::json(nullptr);
+    head["df_residual"] = fitted.fit.df_residual;
+    head["level"] = args.level;
+    head["max_unit_leverage"] = Json(fitted.support.max_unit_leverage);
+    head["model_statement"] = ModelStatement(fitted.design, fitted.fit);
+    head["response"] = design.response;
+    head["response_transform"] = ToString(design.response_transform);
+    out += JsonHead(head);
+  } else {
+    if (!unverified_warning.empty()) out += "# " + unverified_warning + "\n";
+    out += CsvHeader(counts.with_id, logged);
+  }
 
   CsvRecord record;
+  Priced priced;
   while (reader.Next(record)) {
-    Priced priced{predictor.Predict(evaluator.Evaluate(record)), {}};
-    if (priced_rows.with_id) priced.id = std::string(record.fields[static_cast<std::size_t>(id_index)].text);
-    priced_rows.rows.push_back(std::move(priced));
+    priced.row = predictor.Predict(evaluator.Evaluate(record));
+    if (counts.with_id) priced.id.assign(record.fields[static_cast<std::size_t>(id_index)].text);
+    if (context.common.json) {
+      AppendJsonRow(out, RowJson(priced, counts.with_id), counts.rows == 0);
+    } else {
+      AppendCsvRow(out, priced, counts.with_id, logged);
+    }
+    ++counts.rows;
+    if (priced.row.priced()) ++counts.priced;
+    for (const PredictionFlag flag : priced.row.flags) ++counts.Flag(flag);
+    sink.MaybeFlush();
   }
 
-  for (const Priced& priced : priced_rows.rows) {
-    if (priced.row.priced()) ++priced_rows.priced_count;
-    for (const PredictionFlag flag : priced.row.flags) ++priced_rows.flag_counts[flag];
-  }
-  return priced_rows;
-}
-
-// The whole output (JSON document, or CSV with the warning as a leading comment line).
-std::string RenderPredictOutput(const PredictArgs& args, CommandContext& context, const FittedModel& fitted,
-                                const Predictor& predictor, PricedRows& priced_rows,
-                                const std::string& unverified_warning) {
-  const std::vector<Priced>& rows = priced_rows.rows;
-  const bool with_id = priced_rows.with_id;
-  const bool logged = predictor.design().response_transform == ResponseTransform::kLog;
-  std::string text;
   if (context.common.json) {
-    nlohmann::json result;
-    result["warning"] = unverified_warning.empty() ? nlohmann::json(nullptr) : nlohmann::json(unverified_warning);
-    result["audit"] = args.audit;
-    result["model_statement"] = ModelStatement(fitted.design, fitted.fit);
-    result["rows_file"] = args.rows;
-    result["level"] = args.level;
-    result["response"] = predictor.design().response;
-    result["response_transform"] = ToString(predictor.design().response_transform);
-    result["back_transform_method"] = logged ? nlohmann::json(kBackTransformMethod) : nlohmann::json(nullptr);
-    result["smearing_factor"] = Json(fitted.support.smearing_factor);
-    result["sigma"] = Json(fitted.fit.criteria.sigma);
-    result["df_residual"] = fitted.fit.df_residual;
-    result["t_quantile"] = Json(predictor.t_quantile());
-    result["max_unit_leverage"] = Json(fitted.support.max_unit_leverage);
-    result["weights"] = predictor.design().weights ? nlohmann::json(*predictor.design().weights) : nlohmann::json(nullptr);
-    result["weights_read"] = priced_rows.weights_read;
-    nlohmann::json json_rows = nlohmann::json::array();
-    for (const Priced& priced : rows) json_rows.push_back(RowJson(priced, with_id));
-    result["rows"] = std::move(json_rows);
+    nlohmann::json tail;
+    tail["rows_file"] = args.rows;
+    tail["sigma"] = Json(fitted.fit.criteria.sigma);
+    tail["smearing_factor"] = Json(fitted.support.smearing_factor);
     nlohmann::json flag_counts = nlohmann::json::object();
-    // operator[] on the map: a flag no row carries counts 0 (and is then present in the map).
-    for (const PredictionFlag flag : kAllPredictionFlags) flag_counts[ToString(flag)] = priced_rows.flag_counts[flag];
-    result["summary"] = {{"rows", rows.size()}, {"priced", priced_rows.priced_count}, {"flags", std::move(flag_counts)}};
-    text = result.dump(2) + "\n";
-  } else {
-    text = RenderCsv(rows, with_id, logged);
-    if (!unverified_warning.empty()) text = "# " + unverified_warning + "\n" + text;
+    for (const PredictionFlag flag : kAllPredictionFlags) flag_counts[ToString(flag)] = counts.Flag(flag);
+    tail["summary"] = {{"rows", counts.rows}, {"priced", counts.priced}, {"flags", std::move(flag_counts)}};
+    tail["t_quantile"] = Json(predictor.t_quantile());
+    tail["warning"] = unverified_warning.empty() ? nlohmann::json(nullptr) : nlohmann::json(unverified_warning);
+    tail["weights"] = design.weights ? nlohmann::json(*design.weights) : nlohmann::json(nullptr);
+    tail["weights_read"] = counts.weights_read;
+    out += JsonTail(tail, counts.rows > 0);
   }
-  return text;
+  sink.Finish();
+  return counts;
 }
 
 // The model and the counts on the error stream, unless --quiet.
 void ReportPredictSummary(CommandContext& context, const FittedModel& fitted, const Predictor& predictor,
-                          PricedRows& priced_rows) {
+                          PredictCounts& counts) {
   if (context.common.quiet) return;
   const bool logged = predictor.design().response_transform == ResponseTransform::kLog;
   context.err << "predict: model " << ModelStatement(fitted.design, fitted.fit) << "\n";
-  std::string summary = "predict: " + std::to_string(priced_rows.rows.size()) + " rows, " +
-                        std::to_string(priced_rows.priced_count) + " priced";
+  std::string summary = "predict: " + std::to_string(counts.rows) + " rows, " +
+                        std::to_string(counts.priced) + " priced";
   bool first = true;
   for (const PredictionFlag flag : {PredictionFlag::kOutsideRange, PredictionFlag::kHiddenExtrapolation,
                                     PredictionFlag::kUnknownLevel, PredictionFlag::kMissing,
                                     PredictionFlag::kInvalidValue}) {
     summary += (first ? "; " : ", ") + std::string(ToString(flag)) + " " +
-               std::to_string(priced_rows.flag_counts[flag]);
+               std::to_string(counts.Flag(flag));
     first = false;
   }
   context.err << summary << "\n";
@@ -302,13 +409,9 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
   options.level = args.level;
   const Predictor predictor(MakePricingModel(fitted), options);
 
-  PricedRows priced_rows = PriceRows(args, context, fitted, predictor);
-
-  const std::string text =
-      RenderPredictOutput(args, context, fitted, predictor, priced_rows, *unverified_warning);
   if (!unverified_warning->empty()) context.err << "stepledger: " << *unverified_warning << "\n";
-  WriteOutput(context, args.out, text);
-  ReportPredictSummary(context, fitted, predictor, priced_rows);
+  PredictCounts counts = StreamPredictions(args, context, fitted, predictor, *unverified_warning);
+  ReportPredictSummary(context, fitted, predictor, counts);
   return 0;
 }
 
@@ -369,7 +472,11 @@ void AddPredictCommand(CLI::App& app, CommandContext& context) {
       "  invalid-value         text or a non-finite number in a numeric column, a value <= 0\n"
       "                        under a log, a weight that is not positive (no prediction)\n"
       "A row with a problem is still written (without numbers); a summary line on stderr counts "
-      "the rows, the priced ones and each flag. Predictions outside the data are extrapolations; "
+      "the rows, the priced ones and each flag. Numbers are written in the shortest form that "
+      "reads back to the same double. Rows are read, priced and written one at a time, so memory "
+      "does not grow with ROWS; with --out the file takes its name only when complete (nothing "
+      "on an error), while on stdout an error in ROWS ends the output after the rows before it. "
+      "Predictions outside the data are extrapolations; "
       "intervals of a selected model ignore the selection and are optimistic.\n\n"
       "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n"
       "  " + ProgramWord() + " predict build/demo/audit.json build/demo/laptops_to_price.csv --id listing_id "

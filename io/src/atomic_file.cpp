@@ -4,9 +4,11 @@
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <cerrno>
 #include <cstring>
 #include <memory>
+#include <stdexcept>
 #include <utility>
 #include <string>
 #include <vector>
@@ -64,11 +66,22 @@ void SyncFolder(const std::filesystem::path& folder) {
   ::close(fd);
 }
 
-// Writes content to a new temporary file beside path (same folder, so that a rename is atomic),
-// flushed to disk and closed; the guard removes it unless released.
-std::unique_ptr<TempFileGuard> WriteTemporaryBeside(const std::filesystem::path& path,
-                                                    const std::filesystem::path& folder,
-                                                    std::string_view content, unsigned permissions) {
+void WriteAll(const std::filesystem::path& path, int fd, std::string_view content) {
+  std::size_t written = 0;
+  while (written < content.size()) {
+    const ssize_t result = ::write(fd, content.data() + written, content.size() - written);
+    if (result < 0) {
+      if (errno == EINTR) continue;
+      Fail(path, "cannot write", errno);
+    }
+    written += static_cast<std::size_t>(result);
+  }
+}
+
+// Creates a new, empty temporary file beside path (same folder, so that a rename is atomic);
+// the guard removes it unless released.
+std::unique_ptr<TempFileGuard> CreateTemporaryBeside(const std::filesystem::path& path,
+                                                     const std::filesystem::path& folder, unsigned permissions) {
   std::string pattern = (folder / ("." + path.filename().string() + ".tmp.XXXXXX")).string();
   std::vector<char> temp_name(pattern.begin(), pattern.end());
   temp_name.push_back('\0');
@@ -80,17 +93,23 @@ std::unique_ptr<TempFileGuard> WriteTemporaryBeside(const std::filesystem::path&
   if (::fchmod(fd, static_cast<mode_t>(permissions) & ~CurrentUmask()) != 0) {
     Fail(path, "cannot set permissions of the temporary file", errno);
   }
-  std::size_t written = 0;
-  while (written < content.size()) {
-    const ssize_t result = ::write(fd, content.data() + written, content.size() - written);
-    if (result < 0) {
-      if (errno == EINTR) continue;
-      Fail(path, "cannot write", errno);
-    }
-    written += static_cast<std::size_t>(result);
-  }
-  if (::fsync(fd) != 0) Fail(path, "cannot flush to disk", errno);
-  if (guard->Close() != 0) Fail(path, "cannot close", errno);
+  return guard;
+}
+
+// Flushes the temporary file to disk and closes it.
+void FinishTemporary(const std::filesystem::path& path, TempFileGuard& guard) {
+  if (::fsync(guard.fd()) != 0) Fail(path, "cannot flush to disk", errno);
+  if (guard.Close() != 0) Fail(path, "cannot close", errno);
+}
+
+// Writes content to a new temporary file beside path, flushed to disk and closed; the guard
+// removes it unless released.
+std::unique_ptr<TempFileGuard> WriteTemporaryBeside(const std::filesystem::path& path,
+                                                    const std::filesystem::path& folder,
+                                                    std::string_view content, unsigned permissions) {
+  auto guard = CreateTemporaryBeside(path, folder, permissions);
+  WriteAll(path, guard->fd(), content);
+  FinishTemporary(path, *guard);
   return guard;
 }
 
@@ -98,13 +117,11 @@ bool Exists(const std::filesystem::path& path) {
   return std::filesystem::exists(std::filesystem::symlink_status(path));
 }
 
-}  // namespace
-
-void WriteFileAtomically(const std::filesystem::path& path, std::string_view content,
-                         const AtomicWriteOptions& options) {
+// The folder of a single output file, after checking that it exists and that path may be
+// written (no clash without overwrite).
+std::filesystem::path CheckSingleTarget(const std::filesystem::path& path, const AtomicWriteOptions& options) {
   if (path.empty()) throw InputError("output path is empty");
-  const std::filesystem::path folder =
-      path.has_parent_path() ? path.parent_path() : std::filesystem::path(".");
+  std::filesystem::path folder = path.has_parent_path() ? path.parent_path() : std::filesystem::path(".");
   std::error_code status_error;
   if (!std::filesystem::is_directory(folder, status_error)) {
     throw InputError(path.string() + ": folder '" + folder.string() + "' does not exist");
@@ -112,18 +129,80 @@ void WriteFileAtomically(const std::filesystem::path& path, std::string_view con
   if (!options.overwrite && Exists(path)) {
     throw InputError(path.string() + ": file exists; use --force to overwrite");
   }
-  const auto guard = WriteTemporaryBeside(path, folder, content, options.permissions);
+  return folder;
+}
+
+// Gives the finished temporary file its final name.
+void MoveIntoPlace(const std::filesystem::path& path, const std::filesystem::path& folder, TempFileGuard& guard,
+                   const AtomicWriteOptions& options) {
   if (options.overwrite) {
-    if (::rename(guard->path().c_str(), path.c_str()) != 0) Fail(path, "cannot rename into place", errno);
-    guard->Release();
+    if (::rename(guard.path().c_str(), path.c_str()) != 0) Fail(path, "cannot rename into place", errno);
+    guard.Release();
   } else {
-    if (::link(guard->path().c_str(), path.c_str()) != 0) {
+    if (::link(guard.path().c_str(), path.c_str()) != 0) {
       if (errno == EEXIST) throw InputError(path.string() + ": file exists; use --force to overwrite");
       Fail(path, "cannot move into place", errno);
     }
     // The guard unlinks the temporary name; the content stays under the final name.
   }
   SyncFolder(folder);
+}
+
+}  // namespace
+
+void WriteFileAtomically(const std::filesystem::path& path, std::string_view content,
+                         const AtomicWriteOptions& options) {
+  const std::filesystem::path folder = CheckSingleTarget(path, options);
+  const auto guard = WriteTemporaryBeside(path, folder, content, options.permissions);
+  MoveIntoPlace(path, folder, *guard, options);
+}
+
+// ---- AtomicFileWriter -----------------------------------------------------------------------
+
+class AtomicFileWriter::Temporary {
+ public:
+  explicit Temporary(std::unique_ptr<TempFileGuard> guard) : guard(std::move(guard)) {}
+  std::unique_ptr<TempFileGuard> guard;
+};
+
+AtomicFileWriter::AtomicFileWriter(std::filesystem::path path, const AtomicWriteOptions& options,
+                                   std::size_t buffer_bytes)
+    : path_(std::move(path)), options_(options), buffer_bytes_(std::max<std::size_t>(buffer_bytes, 1)) {
+  folder_ = CheckSingleTarget(path_, options_);
+  temporary_ = std::make_unique<Temporary>(CreateTemporaryBeside(path_, folder_, options_.permissions));
+  buffer_.reserve(buffer_bytes_);
+}
+
+// The temporary's guard closes and removes it when the writer was not committed.
+AtomicFileWriter::~AtomicFileWriter() = default;
+
+void AtomicFileWriter::Write(std::string_view bytes) {
+  if (!temporary_) throw std::logic_error("AtomicFileWriter::Write after Commit: " + path_.string());
+  bytes_written_ += bytes.size();
+  if (buffer_.size() + bytes.size() > buffer_bytes_) {
+    Flush();
+    // A block larger than the buffer goes straight to the file, not through a copy.
+    if (bytes.size() >= buffer_bytes_) {
+      WriteAll(path_, temporary_->guard->fd(), bytes);
+      return;
+    }
+  }
+  buffer_.append(bytes);
+}
+
+void AtomicFileWriter::Flush() {
+  WriteAll(path_, temporary_->guard->fd(), buffer_);
+  buffer_.clear();
+}
+
+void AtomicFileWriter::Commit() {
+  if (!temporary_) throw std::logic_error("AtomicFileWriter::Commit called twice: " + path_.string());
+  // Released before anything can fail, so that a failure leaves no temporary and no second try.
+  const std::unique_ptr<Temporary> temporary = std::move(temporary_);
+  WriteAll(path_, temporary->guard->fd(), buffer_);
+  buffer_.clear();
+  FinishTemporary(path_, *temporary->guard);
+  MoveIntoPlace(path_, folder_, *temporary->guard, options_);
 }
 
 void WriteOutputFolder(const std::filesystem::path& folder, const std::vector<OutputFile>& files,

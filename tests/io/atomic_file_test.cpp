@@ -1,5 +1,5 @@
-// WriteFileAtomically: the whole content or nothing, never an overwrite without permission,
-// no temporary file left behind, and errors that name the path.
+// WriteFileAtomically and the streaming AtomicFileWriter: the whole content or nothing, never an
+// overwrite without permission, no temporary file left behind, and errors that name the path.
 
 #include <gtest/gtest.h>
 
@@ -8,6 +8,7 @@
 #include <filesystem>
 #include <fstream>
 #include <sstream>
+#include <stdexcept>
 #include <string>
 
 #include "stepledger/io/atomic_file.h"
@@ -107,6 +108,91 @@ TEST(AtomicFile, PermissionsFollowTheUmask) {
   struct stat status {};
   ASSERT_EQ(::stat(path.c_str(), &status), 0);
   EXPECT_EQ(status.st_mode & 0777, 0644u);  // not mkstemp's 0600
+}
+
+// --- a file written as it is produced ----------------------------------------------------
+
+TEST(AtomicFileWriter, PiecesOfAnySizeMakeTheWholeFileOnlyAtCommit) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "priced.csv";
+  std::string expected;
+  {
+    AtomicFileWriter writer(path, {}, /*buffer_bytes=*/64);
+    for (int i = 0; i < 2000; ++i) {
+      // Pieces smaller than, equal to and larger than the buffer.
+      const std::string piece = std::string(static_cast<std::size_t>(i % 150), static_cast<char>('a' + i % 26)) + "\n";
+      writer.Write(piece);
+      expected += piece;
+      if (i == 1000) {
+        // Halfway: the final name does not exist yet, only the hidden temporary.
+        EXPECT_FALSE(std::filesystem::exists(path));
+        EXPECT_EQ(FileCount(folder.path()), 1);
+      }
+    }
+    EXPECT_EQ(writer.bytes_written(), expected.size());
+    writer.Commit();
+  }
+  EXPECT_EQ(ReadText(path), expected);
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFileWriter, DestroyedWithoutCommitLeavesNothing) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "priced.csv";
+  {
+    AtomicFileWriter writer(path, {}, 16);
+    writer.Write(std::string(1000, 'x'));  // past the buffer: on disk in the temporary
+    EXPECT_EQ(FileCount(folder.path()), 1);
+  }
+  EXPECT_EQ(FileCount(folder.path()), 0);
+  // With overwrite, an existing file stays as it was.
+  const auto existing = folder.Write("old.csv", "previous");
+  {
+    AtomicFileWriter writer(existing, AtomicWriteOptions{.overwrite = true});
+    writer.Write("replacement");
+  }
+  EXPECT_EQ(ReadText(existing), "previous");
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFileWriter, RefusesAClashAtConstructionAndOverwritesWhenAllowed) {
+  testing::TempDir folder;
+  const auto path = folder.Write("priced.csv", "previous");
+  try {
+    AtomicFileWriter writer(path);
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_EQ(std::string(error.what()), path.string() + ": file exists; use --force to overwrite");
+  }
+  EXPECT_EQ(FileCount(folder.path()), 1);
+  AtomicFileWriter writer(path, AtomicWriteOptions{.overwrite = true});
+  writer.Write("new");
+  writer.Commit();
+  EXPECT_EQ(ReadText(path), "new");
+  EXPECT_THROW(writer.Write("more"), std::logic_error);
+  EXPECT_THROW(writer.Commit(), std::logic_error);
+}
+
+TEST(AtomicFileWriter, AFileMadeMeanwhileIsNotClobberedWithoutOverwrite) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "priced.csv";
+  AtomicFileWriter writer(path);
+  writer.Write("ours");
+  folder.Write("priced.csv", "theirs");  // another writer took the name first
+  EXPECT_THROW(writer.Commit(), InputError);
+  EXPECT_EQ(ReadText(path), "theirs");
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFileWriter, MissingFolderNamesThePath) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "no-such-folder" / "priced.csv";
+  try {
+    AtomicFileWriter writer(path);
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find(path.string()), std::string::npos) << error.what();
+  }
 }
 
 // --- an output folder written as one unit ------------------------------------------------
