@@ -6,6 +6,7 @@
 
 #include <cerrno>
 #include <cstring>
+#include <stdexcept>
 #include <memory>
 #include <utility>
 #include <string>
@@ -64,11 +65,10 @@ void SyncFolder(const std::filesystem::path& folder) {
   ::close(fd);
 }
 
-// Writes content to a new temporary file beside path (same folder, so that a rename is atomic),
-// flushed to disk and closed; the guard removes it unless released.
-std::unique_ptr<TempFileGuard> WriteTemporaryBeside(const std::filesystem::path& path,
-                                                    const std::filesystem::path& folder,
-                                                    std::string_view content, unsigned permissions) {
+// Creates a new, empty temporary file beside path (same folder, so that a rename is atomic),
+// open for writing; the guard removes it unless released.
+std::unique_ptr<TempFileGuard> CreateTemporaryBeside(const std::filesystem::path& path,
+                                                     const std::filesystem::path& folder, unsigned permissions) {
   std::string pattern = (folder / ("." + path.filename().string() + ".tmp.XXXXXX")).string();
   std::vector<char> temp_name(pattern.begin(), pattern.end());
   temp_name.push_back('\0');
@@ -80,6 +80,10 @@ std::unique_ptr<TempFileGuard> WriteTemporaryBeside(const std::filesystem::path&
   if (::fchmod(fd, static_cast<mode_t>(permissions) & ~CurrentUmask()) != 0) {
     Fail(path, "cannot set permissions of the temporary file", errno);
   }
+  return guard;
+}
+
+void WriteAll(const std::filesystem::path& path, int fd, std::string_view content) {
   std::size_t written = 0;
   while (written < content.size()) {
     const ssize_t result = ::write(fd, content.data() + written, content.size() - written);
@@ -89,8 +93,20 @@ std::unique_ptr<TempFileGuard> WriteTemporaryBeside(const std::filesystem::path&
     }
     written += static_cast<std::size_t>(result);
   }
-  if (::fsync(fd) != 0) Fail(path, "cannot flush to disk", errno);
-  if (guard->Close() != 0) Fail(path, "cannot close", errno);
+}
+
+void FlushAndClose(const std::filesystem::path& path, TempFileGuard& guard) {
+  if (::fsync(guard.fd()) != 0) Fail(path, "cannot flush to disk", errno);
+  if (guard.Close() != 0) Fail(path, "cannot close", errno);
+}
+
+// Writes content to a new temporary file beside path, flushed to disk and closed.
+std::unique_ptr<TempFileGuard> WriteTemporaryBeside(const std::filesystem::path& path,
+                                                    const std::filesystem::path& folder,
+                                                    std::string_view content, unsigned permissions) {
+  auto guard = CreateTemporaryBeside(path, folder, permissions);
+  WriteAll(path, guard->fd(), content);
+  FlushAndClose(path, *guard);
   return guard;
 }
 
@@ -100,8 +116,9 @@ bool Exists(const std::filesystem::path& path) {
 
 }  // namespace
 
-void WriteFileAtomically(const std::filesystem::path& path, std::string_view content,
-                         const AtomicWriteOptions& options) {
+namespace {
+
+std::filesystem::path CheckTarget(const std::filesystem::path& path, const AtomicWriteOptions& options) {
   if (path.empty()) throw InputError("output path is empty");
   const std::filesystem::path folder =
       path.has_parent_path() ? path.parent_path() : std::filesystem::path(".");
@@ -112,18 +129,67 @@ void WriteFileAtomically(const std::filesystem::path& path, std::string_view con
   if (!options.overwrite && Exists(path)) {
     throw InputError(path.string() + ": file exists; use --force to overwrite");
   }
-  const auto guard = WriteTemporaryBeside(path, folder, content, options.permissions);
+  return folder;
+}
+
+// Gives the flushed, closed temporary file the name path (see the top of atomic_file.h).
+void PlaceTemporary(const std::filesystem::path& path, const std::filesystem::path& folder, TempFileGuard& guard,
+                    const AtomicWriteOptions& options) {
   if (options.overwrite) {
-    if (::rename(guard->path().c_str(), path.c_str()) != 0) Fail(path, "cannot rename into place", errno);
-    guard->Release();
+    if (::rename(guard.path().c_str(), path.c_str()) != 0) Fail(path, "cannot rename into place", errno);
+    guard.Release();
   } else {
-    if (::link(guard->path().c_str(), path.c_str()) != 0) {
+    if (::link(guard.path().c_str(), path.c_str()) != 0) {
       if (errno == EEXIST) throw InputError(path.string() + ": file exists; use --force to overwrite");
       Fail(path, "cannot move into place", errno);
     }
     // The guard unlinks the temporary name; the content stays under the final name.
   }
   SyncFolder(folder);
+}
+
+}  // namespace
+
+void WriteFileAtomically(const std::filesystem::path& path, std::string_view content,
+                         const AtomicWriteOptions& options) {
+  const std::filesystem::path folder = CheckTarget(path, options);
+  const auto guard = WriteTemporaryBeside(path, folder, content, options.permissions);
+  PlaceTemporary(path, folder, *guard, options);
+}
+
+struct AtomicFileWriter::Temporary {
+  std::unique_ptr<TempFileGuard> guard;
+};
+
+AtomicFileWriter::AtomicFileWriter(std::filesystem::path path, const AtomicWriteOptions& options)
+    : path_(std::move(path)), options_(options), temporary_(std::make_unique<Temporary>()) {
+  folder_ = CheckTarget(path_, options_);
+  temporary_->guard = CreateTemporaryBeside(path_, folder_, options_.permissions);
+  buffer_.reserve(kBufferBytes);
+}
+
+AtomicFileWriter::~AtomicFileWriter() = default;
+
+void AtomicFileWriter::Write(std::string_view text) {
+  if (committed_) throw std::logic_error("AtomicFileWriter::Write after Commit");
+  if (buffer_.size() + text.size() > kBufferBytes) {
+    WriteAll(path_, temporary_->guard->fd(), buffer_);
+    buffer_.clear();
+    if (text.size() > kBufferBytes) {
+      WriteAll(path_, temporary_->guard->fd(), text);
+      return;
+    }
+  }
+  buffer_.append(text);
+}
+
+void AtomicFileWriter::Commit() {
+  if (committed_) throw std::logic_error("AtomicFileWriter::Commit called twice");
+  WriteAll(path_, temporary_->guard->fd(), buffer_);
+  buffer_.clear();
+  FlushAndClose(path_, *temporary_->guard);
+  PlaceTemporary(path_, folder_, *temporary_->guard, options_);
+  committed_ = true;
 }
 
 void WriteOutputFolder(const std::filesystem::path& folder, const std::vector<OutputFile>& files,

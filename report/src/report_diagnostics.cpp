@@ -9,7 +9,8 @@
 namespace stepledger {
 
 ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::filesystem::path& data,
-                                    std::string_view audit_name) {
+                                    std::string_view audit_name,
+                                    const std::function<void(std::string_view)>& stand_out_csv) {
   const std::string expected =
       audit.contains("data") && audit["data"].is_object() && audit["data"].contains("sha256") &&
               audit["data"]["sha256"].is_string()
@@ -28,8 +29,18 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::file
   CsvOptions csv = RunOptionsFromSettings(audit.contains("settings") ? audit["settings"] : nlohmann::json())
                        .csv;
   csv.missing_tokens = model.missing_tokens;
+  DiagnosticsOptions options;
+  if (stand_out_csv) {
+    // The thresholds depend on n and k alone, so the rows are written as the pass meets them.
+    const StandOutThresholds thresholds = StandOutThresholds::CommonPractice(model.fit.n, model.fit.k);
+    stand_out_csv(kStandOutCsvHeader);
+    options.row_observer = [&stand_out_csv, thresholds](const RowDiagnostic& row) {
+      if (thresholds.StandsOut(row)) stand_out_csv(StandOutRowCsv(row, thresholds));
+    };
+  }
   ReportDiagnostics diagnostics;
-  diagnostics.result = ComputeDiagnostics(model.fit, model.design, FileRowReplay(data, model.design, csv));
+  diagnostics.result =
+      ComputeDiagnostics(model.fit, model.design, FileRowReplay(data, model.design, csv), options);
   diagnostics.k = model.fit.k;
   diagnostics.sigma = model.fit.criteria.sigma;
   return diagnostics;

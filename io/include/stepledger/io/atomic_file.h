@@ -8,6 +8,7 @@
 // name already exists, so two writers racing for the same name cannot clobber each other.
 
 #include <filesystem>
+#include <memory>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -27,6 +28,32 @@ struct AtomicWriteOptions {
 /// temporary file is removed and path is untouched.
 void WriteFileAtomically(const std::filesystem::path& path, std::string_view content,
                          const AtomicWriteOptions& options = {});
+
+/// The same guarantee for content written piece by piece (a file that grows with the rows,
+/// written during a pass over them): the constructor checks the target as WriteFileAtomically
+/// does and creates the temporary file beside it; Write appends (buffered, 64 KiB); Commit
+/// flushes, fsyncs and gives it the final name. Destroyed without Commit (an exception during
+/// the pass), the temporary file is removed and path is untouched. Throws InputError naming the
+/// path.
+class AtomicFileWriter {
+ public:
+  AtomicFileWriter(std::filesystem::path path, const AtomicWriteOptions& options = {});
+  ~AtomicFileWriter();
+  AtomicFileWriter(const AtomicFileWriter&) = delete;
+  AtomicFileWriter& operator=(const AtomicFileWriter&) = delete;
+  void Write(std::string_view text);
+  void Commit();
+  const std::filesystem::path& path() const { return path_; }
+
+ private:
+  static constexpr std::size_t kBufferBytes = 1 << 16;
+  struct Temporary;
+  std::filesystem::path path_, folder_;
+  AtomicWriteOptions options_;
+  std::unique_ptr<Temporary> temporary_;
+  std::string buffer_;
+  bool committed_ = false;
+};
 
 /// One file of an output folder.
 struct OutputFile {
