@@ -40,26 +40,27 @@ struct DiagnosticsSummary {
   std::optional<double> max_leverage, max_cooks_distance, press;
   std::uint64_t max_leverage_line = 0, max_cooks_line = 0;
   std::uint64_t large_residuals = 0;  ///< rows with |standardized residual| > 3
-  std::vector<std::uint64_t> large_residual_lines;  ///< the first few
+  std::vector<std::uint64_t> large_residual_lines;  ///< the lines of the largest few
 };
 
 DiagnosticsSummary Summarize(const DiagnosticsResult& diagnostics) {
   DiagnosticsSummary summary;
   summary.press = diagnostics.press;
-  for (const RowDiagnostic& row : diagnostics.rows) {
-    if (!summary.max_leverage || row.leverage > *summary.max_leverage) {
-      summary.max_leverage = row.leverage;
-      summary.max_leverage_line = row.line;
-    }
-    if (row.cooks_distance &&
-        (!summary.max_cooks_distance || *row.cooks_distance > *summary.max_cooks_distance)) {
-      summary.max_cooks_distance = row.cooks_distance;
-      summary.max_cooks_line = row.line;
-    }
-    if (row.standardized_residual && std::fabs(*row.standardized_residual) > 3) {
-      ++summary.large_residuals;
-      if (summary.large_residual_lines.size() < 5) summary.large_residual_lines.push_back(row.line);
-    }
+  if (diagnostics.rows > 0) {
+    summary.max_leverage = diagnostics.max_leverage;
+    summary.max_leverage_line = diagnostics.max_leverage_line;
+  }
+  // The lists put undefined values (leverage 1) first: the first defined one is the largest.
+  for (const RowDiagnostic& row : diagnostics.largest_cooks_distance) {
+    if (!row.cooks_distance) continue;
+    summary.max_cooks_distance = row.cooks_distance;
+    summary.max_cooks_line = row.line;
+    break;
+  }
+  summary.large_residuals = diagnostics.standardized_residual_above;
+  for (const RowDiagnostic& row : diagnostics.largest_standardized_residual) {
+    if (summary.large_residual_lines.size() == 5) break;
+    if (diagnostics.thresholds.StandardizedResidualAbove(row)) summary.large_residual_lines.push_back(row.line);
   }
   return summary;
 }
@@ -99,7 +100,7 @@ std::string DiagnosticsText(const DiagnosticsSummary& summary, const FitResult& 
        << " (RSS " << FormatQuantity(fit.rss) << ")\n";
   text << "  |standardized residual| > 3: " << summary.large_residuals << " rows";
   if (!summary.large_residual_lines.empty()) {
-    text << " (lines ";
+    text << " (largest at lines ";
     for (std::size_t i = 0; i < summary.large_residual_lines.size(); ++i) {
       text << (i > 0 ? ", " : "") << summary.large_residual_lines[i];
     }

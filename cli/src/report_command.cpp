@@ -4,6 +4,7 @@
 // audited data, the diagnostics of the final model too. An audit whose digests do not hold is
 // refused (exit 1) unless --allow-unverified, which puts a warning first in every output.
 
+#include <functional>
 #include <memory>
 #include <optional>
 #include <string>
@@ -52,26 +53,34 @@ int RunReport(const ReportArgs& args, CommandContext& context) {
     options.integrity_problems = integrity.problems;
     if (context.log) context.log->warn("{}: the audit does not verify; rendering it with a warning", args.audit);
   }
-  std::optional<ReportDiagnostics> diagnostics;
-  if (!args.data.empty()) {
-    if (context.log) context.log->info("diagnosing the final model on {}", args.data);
-    diagnostics = DiagnoseAuditRows(audit, args.data, audit_name, MakeDataReadOptions(context.common));
-  }
-  const ReportDiagnostics* diagnostics_pointer = diagnostics ? &*diagnostics : nullptr;
   const bool write_text = args.text || (args.html.empty() && !context.common.json);
   const int stdout_users = (write_text ? 1 : 0) + (context.common.json ? 1 : 0) + (args.html == "-" ? 1 : 0);
   if (stdout_users > 1) {
     throw InputError("only one of --text, --json and --html - can use stdout; give --html a file name or drop "
                      "--text/--json");
   }
+  // --rows-out grows with the rows, so it is written during the pass into a temporary file
+  // beside the target; it takes its name only after everything else has rendered, and a
+  // failure before then removes it (no file half-written or left behind).
+  std::optional<AtomicFileWriter> rows_out;
+  if (!args.rows_out.empty()) {
+    rows_out.emplace(args.rows_out, AtomicWriteOptions{.overwrite = context.common.force});
+  }
+  std::optional<ReportDiagnostics> diagnostics;
+  if (!args.data.empty()) {
+    if (context.log) context.log->info("diagnosing the final model on {}", args.data);
+    std::function<void(std::string_view)> stand_out_csv;
+    if (rows_out) stand_out_csv = [&rows_out](std::string_view text) { rows_out->Write(text); };
+    diagnostics = DiagnoseAuditRows(audit, args.data, audit_name, stand_out_csv, MakeDataReadOptions(context.common));
+  }
+  const ReportDiagnostics* diagnostics_pointer = diagnostics ? &*diagnostics : nullptr;
   // Build once, render everything before writing anything: a failure leaves no file behind.
   const ReportModel model = BuildReportModel(audit, diagnostics_pointer, options);
   const std::string html = args.html.empty() ? "" : RenderHtmlReport(model, options.chart_width);
   const std::string text = write_text ? RenderTextReport(model) : "";
-  const std::string rows_csv = args.rows_out.empty() ? "" : RenderRowsThatStandOutCsv(*diagnostics);
   if (!args.html.empty()) WriteOutput(context, args.html, html);
-  if (!args.rows_out.empty()) {
-    WriteFileAtomically(args.rows_out, rows_csv, AtomicWriteOptions{.overwrite = context.common.force});
+  if (rows_out) {
+    rows_out->Commit();
     if (context.log) context.log->info("wrote {}", args.rows_out);
   }
   if (context.common.json) {
@@ -96,8 +105,9 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
       "ineligible ones greyed with their reason); for all-subsets, the best criterion by model "
       "size; the final model (coefficients, confidence intervals, the F test, ANOVA); diagnostics "
       "(Cook's distance by line number with the 4/n line, residuals against fitted values as a "
-      "density, a histogram of standardised residuals with the normal curve, and the rows that "
-      "stand out, largest Cook's distance first; needs --data); validation and stability when "
+      "density, a histogram of standardised residuals with the normal curve, their quantiles "
+      "against the normal's, and the rows that stand out, largest Cook's distance first; needs "
+      "--data); validation and stability when "
       "the audit has them; integrity (seal, signature, parent, tool). The text, HTML and JSON "
       "outputs render one report model, so they show the same text for the same number. "
       "Without --html or --json the text report goes to stdout; with --html FILE the HTML "
@@ -114,7 +124,7 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
       ->check(CLI::ExistingFile)
       ->type_name("DATA");
   command->add_option("--rows-out", args->rows_out,
-                      "With --data: write every row that stands out, largest Cook's distance first, "
+                      "With --data: write every row that stands out, in file order, "
                       "as CSV (line, fitted, residual, standardized_residual, leverage, "
                       "cooks_distance, reasons; full precision) to FILE, atomically")
       ->type_name("FILE");

@@ -508,6 +508,11 @@ double LinearPredictor(const FitResult& fit, std::span<const double> model_x) {
   return CompensatedLinearPredictor(fit, model_x).value();
 }
 
+FittedRow FitRow(const FitResult& fit, std::span<const double> model_x, double y) {
+  const DoubleDouble fitted = CompensatedLinearPredictor(fit, model_x);
+  return {fitted.value(), (DoubleDouble{y, 0} + (-fitted)).value()};
+}
+
 double UnitLeverage(const FitResult& fit, std::span<const double> model_x, std::span<double> scratch) {
   RequireModelFactor(fit, "UnitLeverage");
   const std::size_t k = fit.columns.size();
@@ -520,47 +525,6 @@ double UnitLeverage(const FitResult& fit, std::span<const double> model_x, std::
   if (info > 0) throw NumericalError("leverage: the model's triangular factor is singular");
   const arma::vec solved(scratch.data(), k, /*copy_aux_mem=*/false, /*strict=*/true);
   return arma::dot(solved, solved);
-}
-
-DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
-                                     const RowReplay& replay) {
-  RequireModelFactor(fit, "ComputeDiagnostics");
-  const std::size_t k = fit.columns.size();
-  (void)design;
-  DiagnosticsResult result;
-  const std::optional<double> sigma = fit.criteria.sigma;
-  double press = 0;
-  bool press_defined = true;
-  std::vector<double> model_x(k), scratch(k);
-  replay([&](const UsedRow& row) {
-    RowDiagnostic diagnostic;
-    diagnostic.row_index = row.row_index;
-    diagnostic.line = row.line;
-    for (std::size_t j = 0; j < k; ++j) model_x[j] = row.x[fit.columns[j]];
-    const DoubleDouble fitted = CompensatedLinearPredictor(fit, model_x);
-    diagnostic.fitted = fitted.value();
-    diagnostic.residual = (DoubleDouble{row.y, 0} + (-fitted)).value();
-    diagnostic.leverage = row.weight * UnitLeverage(fit, model_x, scratch);
-    const bool leverage_one = diagnostic.leverage >= 1 - kLeverageOneTolerance;
-    if (!leverage_one) {
-      const double root_w = std::sqrt(row.weight);
-      const double one_minus_h = 1 - diagnostic.leverage;
-      if (sigma && *sigma > 0 && k > 0) {
-        const double standardized = root_w * diagnostic.residual / (*sigma * std::sqrt(one_minus_h));
-        diagnostic.standardized_residual = standardized;
-        diagnostic.cooks_distance =
-            standardized * standardized * diagnostic.leverage / (static_cast<double>(k) * one_minus_h);
-      }
-      const double deleted = diagnostic.residual / one_minus_h;
-      press += row.weight * deleted * deleted;
-    } else {
-      press_defined = false;
-    }
-    result.max_leverage = std::max(result.max_leverage, diagnostic.leverage);
-    result.rows.push_back(diagnostic);
-  });
-  if (press_defined) result.press = press;
-  return result;
 }
 
 }  // namespace stepledger

@@ -32,7 +32,8 @@ std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResul
 }
 
 DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
-                                          const RowReplay& replay, PredictionSupport& support) {
+                                          const RowReplay& replay, PredictionSupport& support,
+                                          const DiagnosticsOptions& options) {
   support = PredictionSupport{};
   std::vector<std::size_t> ranged_terms;
   for (std::size_t term : TermsNeededByModel(design, fit)) {
@@ -40,9 +41,10 @@ DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& de
   }
   std::vector<double> low(ranged_terms.size(), std::numeric_limits<double>::infinity());
   std::vector<double> high(ranged_terms.size(), -std::numeric_limits<double>::infinity());
-  // Weights in visit order: ComputeDiagnostics keeps its rows in that order, so h_ii / w_i and
-  // the unit-weight residuals come from its results without repeating its arithmetic.
-  std::vector<double> weights;
+  // The replay hands ComputeDiagnostics one row at a time and the row observer sees that row's
+  // diagnostic straight after, so the weight of the row being diagnosed is all there is to keep.
+  double weight = 1;
+  std::uint64_t rows = 0;
   const RowReplay observing = [&](const std::function<void(const UsedRow&)>& visit) {
     replay([&](const UsedRow& row) {
       for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
@@ -50,22 +52,14 @@ DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& de
         low[i] = std::min(low[i], value);
         high[i] = std::max(high[i], value);
       }
-      weights.push_back(row.weight);
+      weight = row.weight;
+      ++rows;
       visit(row);
     });
   };
-  DiagnosticsResult diagnostics = ComputeDiagnostics(fit, design, observing);
-
-  if (!weights.empty()) {
-    for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
-      const DesignTerm& term = design.terms[ranged_terms[i]];
-      support.ranges.push_back({term.name, term.source_column, term.kind, low[i], high[i]});
-    }
-  }
   double smearing_sum = 0;
-  for (std::size_t r = 0; r < diagnostics.rows.size() && r < weights.size(); ++r) {
-    const RowDiagnostic& row = diagnostics.rows[r];
-    const double weight = weights[r];
+  DiagnosticsOptions learning;
+  learning.row_observer = [&](const RowDiagnostic& row) {
     if (weight > 0) {
       const double unit_leverage = row.leverage / weight;
       if (!support.max_unit_leverage || unit_leverage > *support.max_unit_leverage) {
@@ -74,9 +68,18 @@ DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& de
       }
     }
     smearing_sum += std::exp(std::sqrt(weight) * row.residual);
+    if (options.row_observer) options.row_observer(row);
+  };
+  DiagnosticsResult diagnostics = ComputeDiagnostics(fit, design, observing, learning);
+
+  if (rows > 0) {
+    for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
+      const DesignTerm& term = design.terms[ranged_terms[i]];
+      support.ranges.push_back({term.name, term.source_column, term.kind, low[i], high[i]});
+    }
   }
-  if (design.response_transform == ResponseTransform::kLog && !diagnostics.rows.empty()) {
-    support.smearing_factor = smearing_sum / static_cast<double>(diagnostics.rows.size());
+  if (design.response_transform == ResponseTransform::kLog && diagnostics.rows > 0) {
+    support.smearing_factor = smearing_sum / static_cast<double>(diagnostics.rows);
   }
   return diagnostics;
 }

@@ -346,66 +346,30 @@ std::vector<SubsetBest> BestSubsetBySize(const json& audit) {
   return out;
 }
 
-StandOutRules MakeStandOutRules(const ReportDiagnostics& diagnostics) {
-  // Common practice thresholds (no single source): Cook's distance above 4/n,
-  // |standardised residual| above 3, leverage above twice its mean k/n.
-  StandOutRules rules;
-  rules.n = diagnostics.result.rows.size();
-  const double n = std::max<double>(1, static_cast<double>(rules.n));
-  rules.cooks = 4.0 / n;
-  rules.leverage = 2.0 * static_cast<double>(diagnostics.k) / n;
-  rules.standardized_residual = 3;
-  return rules;
-}
-
-bool StandsOut(const RowDiagnostic& row, const StandOutRules& rules) {
-  return !row.standardized_residual || (row.cooks_distance && *row.cooks_distance > rules.cooks) ||
-         std::abs(*row.standardized_residual) > rules.standardized_residual || row.leverage > rules.leverage;
-}
-
-std::string StandOutReasons(const RowDiagnostic& row, const StandOutRules& rules) {
+std::string StandOutReasons(const RowDiagnostic& row, const StandOutThresholds& thresholds) {
   std::vector<std::string> reasons;
-  if (row.cooks_distance && *row.cooks_distance > rules.cooks) {
-    reasons.push_back("Cook's D > " + FormatQuantity(rules.cooks, 3));
+  if (thresholds.CooksAbove(row)) reasons.push_back("Cook's D > " + FormatQuantity(thresholds.cooks, 3));
+  if (thresholds.StandardizedResidualAbove(row)) {
+    reasons.push_back("|std. residual| > " + FormatQuantity(thresholds.standardized_residual, 3));
   }
-  if (row.standardized_residual && std::abs(*row.standardized_residual) > rules.standardized_residual) {
-    reasons.push_back("|std. residual| > " + FormatQuantity(rules.standardized_residual, 3));
-  }
-  if (row.leverage > rules.leverage) reasons.push_back("leverage > " + FormatQuantity(rules.leverage, 3));
+  if (thresholds.LeverageAbove(row)) reasons.push_back("leverage > " + FormatQuantity(thresholds.leverage, 3));
   if (!row.standardized_residual) reasons.push_back("leverage 1: fits itself exactly");
   return Join(reasons, "; ");
 }
 
-bool LargerCooksFirst(const RowDiagnostic* a, const RowDiagnostic* b) {
-  // An undefined distance (leverage 1: the row fits itself) ranks above every defined one.
-  const double da = a->cooks_distance.value_or(std::numeric_limits<double>::infinity());
-  const double db = b->cooks_distance.value_or(std::numeric_limits<double>::infinity());
-  if (da != db) return da > db;
-  return a->line < b->line;
-}
-
-std::vector<const RowDiagnostic*> TopRowsThatStandOut(const ReportDiagnostics& diagnostics,
-                                                      const StandOutRules& rules, std::size_t limit,
-                                                      std::size_t* total) {
-  // A heap whose top is the smallest kept row, so each new row costs O(log limit).
-  std::vector<const RowDiagnostic*> heap;
-  std::size_t count = 0;
-  for (const RowDiagnostic& row : diagnostics.result.rows) {
-    if (!StandsOut(row, rules)) continue;
-    ++count;
-    if (limit == 0) continue;
-    if (heap.size() < limit) {
-      heap.push_back(&row);
-      std::push_heap(heap.begin(), heap.end(), LargerCooksFirst);
-    } else if (LargerCooksFirst(&row, heap.front())) {
-      std::pop_heap(heap.begin(), heap.end(), LargerCooksFirst);
-      heap.back() = &row;
-      std::push_heap(heap.begin(), heap.end(), LargerCooksFirst);
+std::vector<RowDiagnostic> ListedRowsThatStandOut(const DiagnosticsResult& result) {
+  std::vector<RowDiagnostic> rows;
+  for (const auto* list : {&result.largest_cooks_distance, &result.largest_standardized_residual,
+                           &result.largest_leverage}) {
+    for (const RowDiagnostic& row : *list) {
+      if (result.thresholds.StandsOut(row)) rows.push_back(row);
     }
   }
-  std::sort_heap(heap.begin(), heap.end(), LargerCooksFirst);
-  if (total != nullptr) *total = count;
-  return heap;
+  std::sort(rows.begin(), rows.end(), LargerCooksDistanceFirst);
+  rows.erase(std::unique(rows.begin(), rows.end(),
+                         [](const RowDiagnostic& a, const RowDiagnostic& b) { return a.row_index == b.row_index; }),
+             rows.end());
+  return rows;
 }
 
 IntegrityFacts ReadIntegrity(const json& audit) {

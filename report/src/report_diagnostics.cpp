@@ -10,7 +10,9 @@
 namespace stepledger {
 
 ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::filesystem::path& data,
-                                    std::string_view audit_name, const DataReadOptions& options) {
+                                    std::string_view audit_name,
+                                    const std::function<void(std::string_view)>& stand_out_csv,
+                                    const DataReadOptions& read_options) {
   const std::string expected =
       audit.contains("data") && audit["data"].is_object() && audit["data"].contains("sha256") &&
               audit["data"]["sha256"].is_string()
@@ -26,8 +28,8 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::file
   ScanOptions scan_options;
   scan_options.csv = recorded.csv;
   scan_options.csv.missing_tokens = model.missing_tokens;
-  scan_options.threads = options.threads;
-  scan_options.work_dir = options.work_dir;
+  scan_options.threads = read_options.threads;
+  scan_options.work_dir = read_options.work_dir;
   const ScanResult scan = ScanData(data, scan_options);
   // The fingerprint before any row is used: diagnostics of other rows than the audited ones
   // would mislead.
@@ -35,8 +37,18 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::file
     throw InputError(data.string() + ": not the data of " + std::string(audit_name) + ": its SHA-256 is " +
                      scan.sha256 + ", the audit's data.sha256 is " + expected);
   }
+  DiagnosticsOptions options;
+  if (stand_out_csv) {
+    // The thresholds depend on n and k alone, so the rows are written as the pass meets them.
+    const StandOutThresholds thresholds = StandOutThresholds::CommonPractice(model.fit.n, model.fit.k);
+    stand_out_csv(kStandOutCsvHeader);
+    options.row_observer = [&stand_out_csv, thresholds](const RowDiagnostic& row) {
+      if (thresholds.StandsOut(row)) stand_out_csv(StandOutRowCsv(row, thresholds));
+    };
+  }
   ReportDiagnostics diagnostics;
-  diagnostics.result = ComputeDiagnostics(model.fit, model.design, SpillRowReplay(scan.spill, model.design));
+  diagnostics.result =
+      ComputeDiagnostics(model.fit, model.design, SpillRowReplay(scan.spill, model.design), options);
   diagnostics.k = model.fit.k;
   diagnostics.sigma = model.fit.criteria.sigma;
   return diagnostics;

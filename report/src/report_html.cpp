@@ -82,7 +82,7 @@ svg .row-track { stroke: #d9dce0; stroke-width: 6; stroke-linecap: round; }
 svg .zero { stroke: var(--ink); stroke-width: 1.5; }
 svg .ci { stroke: var(--blue); stroke-width: 4; stroke-linecap: round; }
 svg .coef { fill: var(--orange); }
-svg .cooks-bin { fill: var(--sky); stroke: #1f4e6e; stroke-width: .4; }
+svg .cooks-bin, svg .qq-point { fill: var(--sky); stroke: #1f4e6e; stroke-width: .4; }
 svg .cooks-flagged, svg .resid-flagged { fill: var(--vermillion); stroke-width: .9; }
 svg .density-cell { fill: var(--blue); stroke: none; }
 svg .hist-bar { fill: var(--sky); stroke: #1f4e6e; stroke-width: .6; }

@@ -92,27 +92,13 @@ std::string DiagnosticsHowTo(const json& audit);
 
 // ---- rows that stand out -----------------------------------------------------------------
 
-/// Thresholds for rows that stand out (common practice: Cook's distance above 4/n,
-/// |standardised residual| above 3, leverage above 2k/n).
-struct StandOutRules {
-  double cooks = 0;
-  double standardized_residual = 3;
-  double leverage = 0;
-  std::size_t n = 0;
-};
-StandOutRules MakeStandOutRules(const ReportDiagnostics& diagnostics);
-/// True when the row crosses a threshold (or has leverage 1).
-bool StandsOut(const RowDiagnostic& row, const StandOutRules& rules);
-/// Why, in words: "Cook's D > 0.02; leverage > 0.1".
-std::string StandOutReasons(const RowDiagnostic& row, const StandOutRules& rules);
-/// Orders rows by Cook's distance, largest first; undefined distances (leverage 1) first of
-/// all; ties by line number.
-bool LargerCooksFirst(const RowDiagnostic* a, const RowDiagnostic* b);
-/// The `limit` rows that stand out with the largest Cook's distance, sorted (a bounded heap:
-/// O(n log limit) time, O(limit) memory); *total receives how many rows stand out.
-std::vector<const RowDiagnostic*> TopRowsThatStandOut(const ReportDiagnostics& diagnostics,
-                                                      const StandOutRules& rules, std::size_t limit,
-                                                      std::size_t* total);
+/// Why a row stands out, in words: "Cook's D > 0.02; leverage > 0.1" (thresholds from
+/// engine/diagnostics.h, common practice).
+std::string StandOutReasons(const RowDiagnostic& row, const StandOutThresholds& thresholds);
+/// The rows that stand out among the diagnostics' three largest-first lists (leverage,
+/// |Cook's distance|, |standardised residual|), each once, largest Cook's distance first
+/// (undefined, leverage 1, before all; ties by row index). At most 3 x kDiagnosticsTopRows.
+std::vector<RowDiagnostic> ListedRowsThatStandOut(const DiagnosticsResult& result);
 
 /// Criteria and estimates keep six significant digits: successive steps of a route often differ
 /// in the fifth.

@@ -75,11 +75,9 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
   if (options.diagnostics && run.fit.n > 0) {
     run.diagnostics = DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
-    for (const RowDiagnostic& row : run.diagnostics->rows) {
-      if (!run.max_leverage || row.leverage > *run.max_leverage) {
-        run.max_leverage = row.leverage;
-        run.max_leverage_line = row.line;
-      }
+    if (run.diagnostics->rows > 0) {
+      run.max_leverage = run.diagnostics->max_leverage;
+      run.max_leverage_line = run.diagnostics->max_leverage_line;
     }
   }
   run.duration_seconds =

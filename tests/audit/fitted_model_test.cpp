@@ -15,6 +15,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/io/plan_file.h"
 #include "stepledger/engine/errors.h"
+#include "support/row_diagnostics.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -146,15 +147,15 @@ TEST(FittedModel, RebuildsTheFinalModelExactly) {
   // The rebuilt model diagnoses the rows exactly as the run did.
   CsvOptions csv;
   csv.missing_tokens = model.missing_tokens;
-  const DiagnosticsResult original =
-      ComputeDiagnostics(fit, recorded.run.design, FileRowReplay(recorded.data, recorded.run.design, csv));
-  const DiagnosticsResult rebuilt =
-      ComputeDiagnostics(model.fit, model.design, FileRowReplay(recorded.data, model.design, csv));
-  ASSERT_EQ(rebuilt.rows.size(), original.rows.size());
-  for (std::size_t r = 0; r < original.rows.size(); ++r) {
-    EXPECT_EQ(rebuilt.rows[r].line, original.rows[r].line);
-    EXPECT_EQ(rebuilt.rows[r].leverage, original.rows[r].leverage) << r;
-    EXPECT_EQ(rebuilt.rows[r].residual, original.rows[r].residual) << r;
+  const std::vector<RowDiagnostic> original = testing::DiagnoseEveryRow(
+      fit, recorded.run.design, FileRowReplay(recorded.data, recorded.run.design, csv));
+  const std::vector<RowDiagnostic> rebuilt =
+      testing::DiagnoseEveryRow(model.fit, model.design, FileRowReplay(recorded.data, model.design, csv));
+  ASSERT_EQ(rebuilt.size(), original.size());
+  for (std::size_t r = 0; r < original.size(); ++r) {
+    EXPECT_EQ(rebuilt[r].line, original[r].line);
+    EXPECT_EQ(rebuilt[r].leverage, original[r].leverage) << r;
+    EXPECT_EQ(rebuilt[r].residual, original[r].residual) << r;
   }
 }
 
@@ -205,22 +206,22 @@ TEST(FittedModel, RangesLeverageAndSmearingComeFromTheRowsUsed) {
   // Largest unit leverage and the smearing factor, recomputed from the diagnostics and weights.
   CsvOptions csv;
   csv.missing_tokens = model.missing_tokens;
-  const DiagnosticsResult diagnostics = ComputeDiagnostics(
+  const std::vector<RowDiagnostic> rows = testing::DiagnoseEveryRow(
       recorded.run.fit, recorded.run.design, FileRowReplay(recorded.data, recorded.run.design, csv));
   std::vector<double> weights;
   for (const Listing& l : listings) {
     if (!l.storage_missing) weights.push_back(l.weight);
   }
-  ASSERT_EQ(weights.size(), diagnostics.rows.size());
+  ASSERT_EQ(weights.size(), rows.size());
   double max_unit = 0, smearing = 0;
   std::uint64_t max_line = 0;
   for (std::size_t r = 0; r < weights.size(); ++r) {
-    const double unit = diagnostics.rows[r].leverage / weights[r];
+    const double unit = rows[r].leverage / weights[r];
     if (unit > max_unit) {
       max_unit = unit;
-      max_line = diagnostics.rows[r].line;
+      max_line = rows[r].line;
     }
-    smearing += std::exp(std::sqrt(weights[r]) * diagnostics.rows[r].residual);
+    smearing += std::exp(std::sqrt(weights[r]) * rows[r].residual);
   }
   smearing /= static_cast<double>(weights.size());
   ASSERT_TRUE(model.support.max_unit_leverage.has_value());

@@ -52,9 +52,10 @@ TEST_F(ReportCommand, SelectOutWritesTheReportWithDiagnosticsBesideTheAudit) {
   ASSERT_TRUE(check.ran) << check.error;
   EXPECT_TRUE(check.problems.empty()) << check.problems.front();
   EXPECT_EQ(check.Count("route-point"), static_cast<int>(audit["steps"].size()));
-  // The diagnostics are in: one Cook's distance bin per line range (120 by default; 200 rows
-  // fill them all), and a histogram.
-  EXPECT_EQ(check.Count("cooks-bin"), 120);
+  // The diagnostics are in: at most 120 Cook's distance line ranges (the default; 200 rows
+  // fill most of them), and a histogram.
+  EXPECT_LE(check.Count("cooks-bin"), 120);
+  EXPECT_GE(check.Count("cooks-bin"), 60);
   EXPECT_GT(check.Count("hist-bar"), 0);
   // verify still holds for the audit written beside the report.
   EXPECT_EQ(RunStepledger({"verify", (std::filesystem::path(out_) / "audit.json").string()}).status, 0);
@@ -186,7 +187,7 @@ TEST_F(ReportCommand, AnAuditThatDoesNotVerifyIsRefusedUnlessAllowedAndThenWarne
   EXPECT_EQ(clean.out.find("WARNING"), std::string::npos);
 }
 
-TEST_F(ReportCommand, RowsOutWritesEveryRowThatStandsOutLargestCooksDistanceFirst) {
+TEST_F(ReportCommand, RowsOutWritesEveryRowThatStandsOutInFileOrder) {
   ASSERT_EQ(Select().status, 0);
   const std::string audit = (std::filesystem::path(out_) / "audit.json").string();
   const std::string rows = (folder_.path() / "rows.csv").string();
@@ -196,11 +197,11 @@ TEST_F(ReportCommand, RowsOutWritesEveryRowThatStandsOutLargestCooksDistanceFirs
   ASSERT_GE(csv.size(), 2u);
   EXPECT_EQ(csv[0], (std::vector<std::string>{"line", "fitted", "residual", "standardized_residual", "leverage",
                                               "cooks_distance", "reasons"}));
-  // As many rows as the text says stand out, sorted by Cook's distance, largest first.
+  // As many rows as the text says stand out, in file order (written during the pass).
   const std::string count_line = "Rows that stand out: " + std::to_string(csv.size() - 1) + "\n";
   EXPECT_NE(run.out.find(count_line), std::string::npos) << run.out;
   for (std::size_t index = 2; index < csv.size(); ++index) {
-    EXPECT_GE(std::stod(csv[index - 1][5]), std::stod(csv[index][5])) << index;
+    EXPECT_LT(std::stoull(csv[index - 1][0]), std::stoull(csv[index][0])) << index;
   }
   // Written atomically: refused without --force, replaced with it.
   const CliRun again = RunStepledger({"report", audit, "--data", data_, "--rows-out", rows});
@@ -212,6 +213,39 @@ TEST_F(ReportCommand, RowsOutWritesEveryRowThatStandsOutLargestCooksDistanceFirs
   EXPECT_EQ(no_data.status, 2);
   EXPECT_NE(no_data.err.find("--rows-out"), std::string::npos) << no_data.err;
   EXPECT_FALSE(std::filesystem::exists(folder_.path() / "x.csv"));
+  // A failure after the pass (the HTML target exists, no --force) leaves no rows file and no
+  // temporary file behind.
+  const std::string html = folder_.Write("taken.html", "x").string();
+  const std::string late = (folder_.path() / "late.csv").string();
+  const CliRun failed = RunStepledger({"report", audit, "--data", data_, "--rows-out", late, "--html", html});
+  EXPECT_EQ(failed.status, 2) << failed.err;
+  EXPECT_FALSE(std::filesystem::exists(late));
+  for (const auto& entry : std::filesystem::directory_iterator(folder_.path())) {
+    EXPECT_EQ(entry.path().filename().string().find(".tmp."), std::string::npos) << entry.path();
+  }
+}
+
+TEST(ReportCommandScale, ReportOfTwoHundredThousandRowsStaysSmallAndParses) {
+  testing::TempDir folder;
+  testing::LaptopDataOptions options;
+  options.rows = 200000;
+  const std::string data = folder.Write("laptops.csv", testing::LaptopCsv(options)).string();
+  const std::string plan = folder.Write("plan.json", testing::HierarchyLaptopPlan()).string();
+  const std::string out = (folder.path() / "run").string();
+  const CliRun run = RunStepledger({"select", data, "--plan", plan, "--out", out});
+  ASSERT_EQ(run.status, 0) << run.err;
+  const auto report = std::filesystem::path(out) / "report.html";
+  const auto bytes = std::filesystem::file_size(report);
+  RecordProperty("report_html_bytes_200000_rows", static_cast<int>(bytes));
+  EXPECT_LT(bytes, 3u * 1000 * 1000);
+  if (!testing::PythonHasModules("html.parser")) GTEST_SKIP() << "Debian's python3 is not available";
+  const auto check = testing::CheckHtmlReport(report);
+  ASSERT_TRUE(check.ran) << check.error;
+  EXPECT_TRUE(check.problems.empty()) << check.problems.front();
+  // Every diagnostics chart is there.
+  for (const char* kind : {"cooks-bin", "cooks-flagged", "density-cell", "hist-bar", "qq-point"}) {
+    EXPECT_GT(check.Count(kind), 0) << kind;
+  }
 }
 
 TEST(ReportCommandHelp, TeachesTheSectionsAndGivesExamples) {

@@ -11,6 +11,7 @@
 
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fit.h"
+#include "support/row_diagnostics.h"
 #include "support/dense_design.h"
 #include "support/test_paths.h"
 
@@ -239,12 +240,14 @@ TEST(Diagnostics, LeveragePressAndCooksDistanceAgainstLeaveOneOut) {
   const arma::vec y = 1 + x * arma::vec{0.05, 1} + 0.3 * arma::randn(15);
   const Dense dense = MakeDense(x, y, {}, true);
   const FitResult fit = Fit(dense);
-  const DiagnosticsResult diagnostics = ComputeDiagnostics(fit, dense.design, dense.replay);
-  ASSERT_EQ(diagnostics.rows.size(), 15u);
+  DiagnosticsResult diagnostics;
+  const std::vector<RowDiagnostic> rows = testing::DiagnoseEveryRow(fit, dense.design, dense.replay, &diagnostics);
+  ASSERT_EQ(rows.size(), 15u);
+  EXPECT_EQ(diagnostics.rows, 15u);
   double leverage_sum = 0, press = 0;
   const double sigma2 = fit.rss / fit.df_residual;
   for (arma::uword i = 0; i < 15; ++i) {
-    const RowDiagnostic& row = diagnostics.rows[i];
+    const RowDiagnostic& row = rows[i];
     leverage_sum += row.leverage;
     EXPECT_EQ(row.row_index, i);
     // Direct leave-one-out refit (common practice: PRESS and Cook's distance by definition).
@@ -266,8 +269,10 @@ TEST(Diagnostics, LeveragePressAndCooksDistanceAgainstLeaveOneOut) {
   ASSERT_TRUE(diagnostics.press);
   EXPECT_LT(Relative(*diagnostics.press, press), 1e-10);
   double max_leverage = 0;
-  for (const auto& row : diagnostics.rows) max_leverage = std::max(max_leverage, row.leverage);
+  for (const auto& row : rows) max_leverage = std::max(max_leverage, row.leverage);
   EXPECT_EQ(diagnostics.max_leverage, max_leverage);
+  // sum w e^2 over the rows is the fit's RSS (to rounding).
+  EXPECT_LT(Relative(diagnostics.weighted_residual_sum_of_squares, fit.rss), 1e-10);
 }
 
 TEST(Diagnostics, RowFittedExactlyHasUndefinedPress) {
@@ -278,12 +283,19 @@ TEST(Diagnostics, RowFittedExactlyHasUndefinedPress) {
   const arma::vec y = {1.0, 2.5, 2.9, 7.0, 5.2, 5.8, 7.1, 8.3};
   const Dense dense = MakeDense(x, y, {}, true);
   const FitResult fit = Fit(dense);
-  const DiagnosticsResult diagnostics = ComputeDiagnostics(fit, dense.design, dense.replay);
-  EXPECT_NEAR(diagnostics.rows[3].leverage, 1.0, 1e-12);
-  EXPECT_FALSE(diagnostics.rows[3].standardized_residual);
-  EXPECT_FALSE(diagnostics.rows[3].cooks_distance);
+  DiagnosticsResult diagnostics;
+  const std::vector<RowDiagnostic> rows = testing::DiagnoseEveryRow(fit, dense.design, dense.replay, &diagnostics);
+  EXPECT_NEAR(rows[3].leverage, 1.0, 1e-12);
+  EXPECT_FALSE(rows[3].standardized_residual);
+  EXPECT_FALSE(rows[3].cooks_distance);
   EXPECT_FALSE(diagnostics.press);
-  EXPECT_TRUE(diagnostics.rows[0].cooks_distance);
+  EXPECT_TRUE(rows[0].cooks_distance);
+  EXPECT_EQ(diagnostics.leverage_one_rows, 1u);
+  // The row that fits itself stands out and ranks first where its values are undefined.
+  EXPECT_EQ(diagnostics.largest_cooks_distance.front().row_index, 3u);
+  EXPECT_EQ(diagnostics.largest_standardized_residual.front().row_index, 3u);
+  EXPECT_EQ(diagnostics.largest_leverage.front().row_index, 3u);
+  EXPECT_GE(diagnostics.stand_out, 1u);
 }
 
 }  // namespace

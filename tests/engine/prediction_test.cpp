@@ -21,6 +21,7 @@
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/prediction.h"
 #include "stepledger/engine/profile.h"
+#include "support/row_diagnostics.h"
 #include "support/test_paths.h"
 #include "support/test_random.h"
 #include "support/term_specs.h"
@@ -49,7 +50,7 @@ struct Fitted {
   DataProfile profile;
   Design design;
   FitResult fit;
-  DiagnosticsResult diagnostics;
+  std::vector<RowDiagnostic> diagnostics;  ///< every row, file order
   PricingModel model;
 };
 
@@ -64,7 +65,7 @@ Fitted FitAll(const std::filesystem::path& data, const DesignSpec& spec) {
   std::iota(terms.begin(), terms.end(), std::size_t{0});
   const RowReplay replay = FileRowReplay(data, fitted.design, csv);
   fitted.fit = FitModel(pass.factor, fitted.design, terms, FitOptions{}, &replay);
-  fitted.diagnostics = ComputeDiagnostics(fitted.fit, fitted.design, replay);
+  fitted.diagnostics = testing::DiagnoseEveryRow(fitted.fit, fitted.design, replay);
 
   PricingModel& model = fitted.model;
   model.design = fitted.design;
@@ -91,7 +92,7 @@ Fitted FitAll(const std::filesystem::path& data, const DesignSpec& spec) {
   double max_unit = 0;
   double smearing = 0;
   for (std::size_t i = 0; i < weights.size(); ++i) {
-    const RowDiagnostic& row = fitted.diagnostics.rows[i];
+    const RowDiagnostic& row = fitted.diagnostics[i];
     max_unit = std::max(max_unit, row.leverage / weights[i]);
     smearing += std::exp(std::sqrt(weights[i]) * row.residual);
   }
@@ -221,10 +222,10 @@ TEST(Prediction, FittedRowsReproduceTheDiagnostics) {
   const Fitted fitted = FitAll(data, RichSpec());
   const Predictor predictor(fitted.model);
   const std::vector<PredictedRow> priced = PriceFile(predictor, data);
-  ASSERT_EQ(priced.size(), fitted.diagnostics.rows.size());
+  ASSERT_EQ(priced.size(), fitted.diagnostics.size());
   for (std::size_t i = 0; i < priced.size(); ++i) {
     const PredictedRow& row = priced[i];
-    const RowDiagnostic& diagnostic = fitted.diagnostics.rows[i];
+    const RowDiagnostic& diagnostic = fitted.diagnostics[i];
     ASSERT_TRUE(row.priced()) << row.Detail();
     EXPECT_EQ(row.line, diagnostic.line);
     // Same code path (LinearPredictor, UnitLeverage): equal to the last bit.

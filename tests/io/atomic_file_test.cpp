@@ -197,6 +197,61 @@ TEST(AtomicFileWriter, MissingFolderNamesThePath) {
 
 // --- an output folder written as one unit ------------------------------------------------
 
+TEST(AtomicFileWriter, PiecesBecomeTheFileOnlyAtCommit) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "rows.csv";
+  std::string expected;
+  {
+    AtomicFileWriter writer(path);
+    for (int i = 0; i < 20000; ++i) {  // more than the 64 KiB buffer, in small and large pieces
+      const std::string piece = std::to_string(i) + (i % 1000 == 0 ? std::string(70000, 'y') : "") + "\n";
+      writer.Write(piece);
+      expected += piece;
+    }
+    EXPECT_FALSE(std::filesystem::exists(path));  // nothing under the name before Commit
+    EXPECT_EQ(FileCount(folder.path()), 1);        // the temporary file beside it
+    writer.Commit();
+    EXPECT_THROW(writer.Write("late"), std::logic_error);
+  }
+  EXPECT_EQ(ReadText(path), expected);
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFileWriter, DestroyedWithoutCommitLeavesNothingAndKeepsTheOldFile) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "rows.csv";
+  {
+    AtomicFileWriter writer(path);
+    writer.Write(std::string(200000, 'z'));
+  }  // an exception during the pass ends here
+  EXPECT_EQ(FileCount(folder.path()), 0);
+  WriteFileAtomically(path, "old\n");
+  {
+    AtomicFileWriter writer(path, AtomicWriteOptions{.overwrite = true});
+    writer.Write("new\n");
+  }
+  EXPECT_EQ(ReadText(path), "old\n");
+  EXPECT_EQ(FileCount(folder.path()), 1);
+}
+
+TEST(AtomicFileWriter, RefusesAnExistingFileOrMissingFolderBeforeWritingAnything) {
+  testing::TempDir folder;
+  const auto path = folder.path() / "rows.csv";
+  WriteFileAtomically(path, "old\n");
+  try {
+    AtomicFileWriter writer(path);
+    FAIL() << "expected a refusal";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("rows.csv: file exists; use --force"), std::string::npos) << error.what();
+  }
+  EXPECT_THROW(AtomicFileWriter(folder.path() / "missing" / "rows.csv"), InputError);
+  EXPECT_EQ(FileCount(folder.path()), 1);
+  AtomicFileWriter replacing(path, AtomicWriteOptions{.overwrite = true});
+  replacing.Write("new\n");
+  replacing.Commit();
+  EXPECT_EQ(ReadText(path), "new\n");
+}
+
 TEST(OutputFolder, WritesEveryFileAndCreatesTheFolder) {
   testing::TempDir parent;
   const auto folder = parent.path() / "out";

@@ -319,44 +319,60 @@ TEST_F(ReportModelTest, RowsThatStandOutAreSortedByCooksDistanceLargestFirst) {
   const ReportTable& table = *tables[0];
   ASSERT_EQ(table.columns[5].heading, "Cook's D");
   ASSERT_GE(table.rows.size(), 3u);
-  EXPECT_EQ(static_cast<int>(table.rows.size()), testing::CountDiagnostics(diagnostics, 1000).stand_out);
+  // The rows that stand out among the largest of each measure, counted by brute force; the
+  // count of all of them is stated, the rest are "not listed".
+  const testing::DiagnosticsCounts counts = testing::CountDiagnostics(stepwise_->rows, diagnostics.k, 1000);
+  EXPECT_EQ(static_cast<int>(table.rows.size()), counts.stand_out);
+  EXPECT_EQ(static_cast<int>(diagnostics.result.stand_out), counts.stand_out_total);
+  EXPECT_EQ(static_cast<int>(table.rows.size() + table.rows_not_listed), counts.stand_out_total);
   double largest = 0;
-  for (const RowDiagnostic& row : diagnostics.result.rows) largest = std::max(largest, row.cooks_distance.value_or(0));
+  for (const RowDiagnostic& row : stepwise_->rows) largest = std::max(largest, row.cooks_distance.value_or(0));
   EXPECT_EQ(*table.rows[0][5].number, largest);
   for (std::size_t index = 1; index < table.rows.size(); ++index) {
     EXPECT_GE(*table.rows[index - 1][5].number, *table.rows[index][5].number) << index;
   }
+}
 
-  // The CSV: every row that stands out, in the same order, numbers at full precision.
-  const std::string csv = RenderRowsThatStandOutCsv(diagnostics);
+TEST_F(ReportModelTest, StandOutCsvIsEveryRowThatStandsOutInFileOrderAtFullPrecision) {
+  std::string csv;
+  const ReportDiagnostics diagnostics = DiagnoseAuditRows(stepwise_->audit, stepwise_->data, "audit.json",
+                                                          [&csv](std::string_view text) { csv += text; });
+  const StandOutThresholds& thresholds = diagnostics.result.thresholds;
+  std::vector<const RowDiagnostic*> expected;
+  for (const RowDiagnostic& row : stepwise_->rows) {
+    if (thresholds.StandsOut(row)) expected.push_back(&row);
+  }
+  ASSERT_GE(expected.size(), 3u);
   std::istringstream lines(csv);
   std::string line;
   std::getline(lines, line);
-  EXPECT_EQ(line, "line,fitted,residual,standardized_residual,leverage,cooks_distance,reasons");
+  EXPECT_EQ(line + "\n", kStandOutCsvHeader);
   std::size_t index = 0;
   while (std::getline(lines, line)) {
-    ASSERT_LT(index, table.rows.size());
-    EXPECT_EQ(line.substr(0, line.find(',')), std::to_string(static_cast<long long>(*table.rows[index][0].number)));
-    const auto* row = &*std::find_if(diagnostics.result.rows.begin(), diagnostics.result.rows.end(),
-                                     [&](const RowDiagnostic& r) { return static_cast<double>(r.line) == *table.rows[index][0].number; });
+    ASSERT_LT(index, expected.size());
+    const RowDiagnostic& row = *expected[index];
+    EXPECT_EQ(line + "\n", StandOutRowCsv(row, thresholds));
     std::vector<std::string> fields;
     std::stringstream split(line);
     for (std::string field; std::getline(split, field, ',');) fields.push_back(field);
     ASSERT_GE(fields.size(), 7u);
-    EXPECT_EQ(std::stod(fields[5]), *row->cooks_distance);  // shortest round trip reads back exactly
+    EXPECT_EQ(fields[0], std::to_string(row.line));
+    EXPECT_EQ(std::stod(fields[5]), *row.cooks_distance);  // shortest round trip reads back exactly
     ++index;
   }
-  EXPECT_EQ(index, table.rows.size());
+  EXPECT_EQ(index, expected.size());
+  EXPECT_EQ(index, diagnostics.result.stand_out);
 }
 
 // Diagnostics of n invented rows (a simulation, not data): fitted uniform, residuals normal,
-// leverage near k/n with a few high ones, Cook's distance by its formula r^2 h / (k (1 - h)).
+// leverage near k/n with a few high ones, Cook's distance by its formula r^2 h / (k (1 - h)),
+// folded one by one as the diagnostics pass folds them.
 ReportDiagnostics InventedDiagnostics(std::size_t n, std::uint64_t seed) {
   testing::TestRandom random(seed);
   ReportDiagnostics diagnostics;
   diagnostics.k = 8;
   diagnostics.sigma = 30;
-  diagnostics.result.rows.reserve(n);
+  DiagnosticsAccumulator accumulator(StandOutThresholds::CommonPractice(n, 8));
   for (std::size_t index = 0; index < n; ++index) {
     RowDiagnostic row;
     row.row_index = index;
@@ -368,10 +384,9 @@ ReportDiagnostics InventedDiagnostics(std::size_t n, std::uint64_t seed) {
     row.standardized_residual = r;
     row.residual = r * 30 * std::sqrt(1 - h);
     row.cooks_distance = r * r * h / (8 * (1 - h));
-    diagnostics.result.max_leverage = std::max(diagnostics.result.max_leverage, h);
-    diagnostics.result.rows.push_back(row);
+    accumulator.Add(row);
   }
-  diagnostics.result.press = 1;
+  diagnostics.result = accumulator.Finish();
   return diagnostics;
 }
 
@@ -386,8 +401,8 @@ TEST_F(ReportModelTest, HtmlSizeDoesNotGrowWithTheRowsDiagnosed) {
   RecordProperty("html_bytes_200000_rows", static_cast<int>(large_html.size()));
   const double html_difference = std::abs(static_cast<double>(large_html.size()) - static_cast<double>(small_html.size()));
   // The bound: what fills in with more rows is at most the density grid's 48 x 28 cells (about
-  // 140 bytes each with its hover text) and the capped points, never a row per row. The
-  // previous report drew three points per row (about 150 bytes per row: 30 MB more here).
+  // 140 bytes each with its hover text) and the points of the bounded lists, never a row per
+  // row (three points per row would be about 150 bytes per row: 30 MB more here).
   EXPECT_LT(html_difference, 48 * 28 * 140.0) << small_html.size() << " vs " << large_html.size();
   EXPECT_LT(large_html.size(), 1200000u);
   EXPECT_LT(std::abs(static_cast<double>(large_text.size()) - static_cast<double>(small_text.size())), 2000.0);

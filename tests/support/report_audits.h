@@ -8,11 +8,16 @@
 #include <cmath>
 #include <filesystem>
 #include <memory>
+#include <set>
+#include <vector>
 #include <string>
 
 #include <nlohmann/json.hpp>
 
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/fitted_model.h"
+#include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/diagnostics.h"
 #include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
 #include "support/test_paths.h"
@@ -38,12 +43,27 @@ inline std::string HierarchyLaptopPlan(const std::string& method = "stepwise",
   return plan.dump(2) + "\n";
 }
 
-/// One audit on disk and parsed, with the diagnostics of its final model.
+/// Every row's diagnostic of an audit's final model on its data, in file order (tests only:
+/// the product keeps a bounded summary). The same pass as DiagnoseAuditRows.
+inline std::vector<RowDiagnostic> AllRowDiagnostics(const nlohmann::json& audit, const std::filesystem::path& data) {
+  const FittedModel model = FittedModelFromAudit(audit, "audit.json");
+  CsvOptions csv = RunOptionsFromSettings(audit.contains("settings") ? audit["settings"] : nlohmann::json()).csv;
+  csv.missing_tokens = model.missing_tokens;
+  std::vector<RowDiagnostic> rows;
+  DiagnosticsOptions options;
+  options.row_observer = [&rows](const RowDiagnostic& row) { rows.push_back(row); };
+  ComputeDiagnostics(model.fit, model.design, FileRowReplay(data, model.design, csv), options);
+  return rows;
+}
+
+/// One audit on disk and parsed, with the diagnostics of its final model (and, for checks,
+/// every row's diagnostic).
 struct ReportAudit {
   std::filesystem::path data;
   std::filesystem::path audit_path;
   nlohmann::json audit;
   ReportDiagnostics diagnostics;
+  std::vector<RowDiagnostic> rows;
 };
 
 /// Writes data and the audit of plan_text under folder/name and reads them back.
@@ -54,36 +74,55 @@ inline ReportAudit MakeReportAudit(const TempDir& folder, const std::string& nam
   made.audit_path = WriteAuditWithLibrary(made.data, plan_text, folder.path() / name);
   made.audit = ReadAuditFile(made.audit_path);
   made.diagnostics = DiagnoseAuditRows(made.audit, made.data, "audit.json");
+  made.rows = AllRowDiagnostics(made.audit, made.data);
   return made;
 }
 
-/// Rows of the diagnostics with a defined standardised residual (the points of each
-/// diagnostics chart).
-inline int RowsWithStandardizedResidual(const ReportDiagnostics& diagnostics) {
+/// Rows with a defined standardised residual.
+inline int RowsWithStandardizedResidual(const std::vector<RowDiagnostic>& rows) {
   int count = 0;
-  for (const RowDiagnostic& row : diagnostics.result.rows) count += row.standardized_residual ? 1 : 0;
+  for (const RowDiagnostic& row : rows) count += row.standardized_residual ? 1 : 0;
   return count;
 }
 
-/// What the diagnostics charts should draw, counted from the rows by the rules (common
-/// practice): rows above Cook's 4/n, and rows that stand out (4/n, |standardised residual| > 3,
-/// leverage > 2k/n, or leverage 1), each capped at the default 200 points.
+/// The first `count` rows under `before`, by sorting all of them (the brute-force check of the
+/// diagnostics' bounded lists).
+inline std::vector<RowDiagnostic> BruteForceTop(std::vector<RowDiagnostic> rows,
+                                                bool (*before)(const RowDiagnostic&, const RowDiagnostic&),
+                                                std::size_t count = kDiagnosticsTopRows) {
+  std::sort(rows.begin(), rows.end(), before);
+  if (rows.size() > count) rows.resize(count);
+  return rows;
+}
+
+/// What the diagnostics charts should draw, counted from every row by the rules (common
+/// practice: Cook's distance above 4/n; rows that stand out: 4/n, |standardised residual| > 3,
+/// leverage > 2k/n, or leverage 1): the rows above 4/n among the kDiagnosticsTopRows largest
+/// distances, and the rows that stand out among the largest of each measure, each capped at
+/// the default 200 points; and the totals.
 struct DiagnosticsCounts {
   int cooks_above = 0;
   int stand_out = 0;
+  int cooks_above_total = 0;
+  int stand_out_total = 0;
 };
-inline DiagnosticsCounts CountDiagnostics(const ReportDiagnostics& diagnostics, int cap = 200) {
-  const double n = static_cast<double>(diagnostics.result.rows.size());
-  const double cooks = 4 / n, leverage = 2 * static_cast<double>(diagnostics.k) / n;
+inline DiagnosticsCounts CountDiagnostics(const std::vector<RowDiagnostic>& rows, std::size_t k, int cap = 200) {
+  const StandOutThresholds thresholds = StandOutThresholds::CommonPractice(rows.size(), k);
   DiagnosticsCounts counts;
-  for (const RowDiagnostic& row : diagnostics.result.rows) {
-    const bool above = row.cooks_distance && *row.cooks_distance > cooks;
-    counts.cooks_above += above ? 1 : 0;
-    counts.stand_out += (above || !row.standardized_residual || std::abs(*row.standardized_residual) > 3 ||
-                         row.leverage > leverage)
-                            ? 1
-                            : 0;
+  for (const RowDiagnostic& row : rows) {
+    counts.cooks_above_total += thresholds.CooksAbove(row) ? 1 : 0;
+    counts.stand_out_total += thresholds.StandsOut(row) ? 1 : 0;
   }
+  for (const RowDiagnostic& row : BruteForceTop(rows, LargerCooksDistanceFirst)) {
+    counts.cooks_above += thresholds.CooksAbove(row) ? 1 : 0;
+  }
+  std::set<std::uint64_t> listed;
+  for (auto before : {LargerCooksDistanceFirst, LargerStandardizedResidualFirst, LargerLeverageFirst}) {
+    for (const RowDiagnostic& row : BruteForceTop(rows, before)) {
+      if (thresholds.StandsOut(row)) listed.insert(row.row_index);
+    }
+  }
+  counts.stand_out = static_cast<int>(listed.size());
   counts.cooks_above = std::min(counts.cooks_above, cap);
   counts.stand_out = std::min(counts.stand_out, cap);
   return counts;

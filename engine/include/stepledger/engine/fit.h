@@ -121,27 +121,19 @@ FitResult FitModel(const Factor& factor, const Design& design,
 /// its standardised residual, Cook's distance and PRESS are undefined.
 inline constexpr double kLeverageOneTolerance = 1e-10;
 
-struct RowDiagnostic {
-  std::uint64_t row_index = 0;
-  std::uint64_t line = 0;
-  double fitted = 0;
-  double residual = 0;        ///< y - fitted (unweighted)
-  double leverage = 0;        ///< h_ii = w_i x_i' (X'WX)^-1 x_i
-  std::optional<double> standardized_residual;  ///< sqrt(w) e / (sigma sqrt(1 - h)); undefined when h = 1 or sigma = 0
-  std::optional<double> cooks_distance;         ///< r^2 h / (k (1 - h))
-};
-
-struct DiagnosticsResult {
-  std::vector<RowDiagnostic> rows;  ///< file order
-  std::optional<double> press;      ///< sum w (e / (1 - h))^2; undefined when some h = 1
-  double max_leverage = 0;
-};
-
 /// x'b for one row of the model's values (model_x: the values of fit.columns, model order,
 /// unscaled; k = fit.columns.size() of them), summed in double-double (compensated) arithmetic
-/// so that the order of the columns does not matter to the last digits. ComputeDiagnostics's
-/// fitted values and the prediction evaluator (engine/prediction.h) share it.
+/// so that the order of the columns does not matter to the last digits. The diagnostics
+/// (engine/diagnostics.h) and the prediction evaluator (engine/prediction.h) share it.
 double LinearPredictor(const FitResult& fit, std::span<const double> model_x);
+
+/// The fitted value and the residual of one row (model_x as LinearPredictor, y its response):
+/// the residual y - x'b is taken from the double-double x'b, so it keeps x'b's low part.
+struct FittedRow {
+  double fitted = 0;
+  double residual = 0;
+};
+FittedRow FitRow(const FitResult& fit, std::span<const double> model_x, double y);
 
 /// x'(X'WX)^-1 x for one row of the model's values (as LinearPredictor): the leverage at unit
 /// weight, computed as ||R11^-T D x||^2 through fit.model_triangle and fit.model_scales (a sum
@@ -149,9 +141,5 @@ double LinearPredictor(const FitResult& fit, std::span<const double> model_x);
 /// pass over the rows allocates nothing). Throws std::invalid_argument when the fit carries no
 /// model factor and NumericalError when the factor is singular. Cost O(k^2).
 double UnitLeverage(const FitResult& fit, std::span<const double> model_x, std::span<double> scratch);
-
-/// One more pass over the rows for the per-row diagnostics of a fitted model.
-DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
-                                     const RowReplay& replay);
 
 }  // namespace stepledger

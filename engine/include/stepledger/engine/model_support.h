@@ -13,6 +13,7 @@
 
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
+#include "stepledger/engine/diagnostics.h"
 #include "stepledger/engine/fit.h"
 
 namespace stepledger {
@@ -40,9 +41,11 @@ std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResul
 
 /// The diagnostics pass of a run's final model (ComputeDiagnostics, one pass over the rows)
 /// that also learns the model's PredictionSupport: the term ranges, the largest unit leverage
-/// (h_ii / w_i) and, with a logged response, the smearing factor.
+/// (h_ii / w_i) and, with a logged response, the smearing factor, in the same pass (nothing kept
+/// per row). options.row_observer, when set, sees every row as ComputeDiagnostics gives it.
 DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
-                                          const RowReplay& replay, PredictionSupport& support);
+                                          const RowReplay& replay, PredictionSupport& support,
+                                          const DiagnosticsOptions& options = {});
 
 /// True for the term kinds whose design value has a range worth checking (numeric, log, power).
 bool IsRangedKind(TermKind kind);

@@ -14,13 +14,16 @@
 // (table and chart; for partial F each step's F and p and a −log10(p) chart), the candidates
 // scored at each step, all subsets (audits with `subsets` only), the final model
 // (coefficients, intervals, the APA F test, ANOVA), diagnostics (Cook's distance by line
-// number, residuals against fitted values as a density, a residual histogram with the normal
-// curve, the rows that stand out sorted by Cook's distance; or how to get them), validation
-// and stability (only when the audit has those keys, rendered generically) and integrity.
+// number, residuals against fitted values as a density, a histogram of standardised residuals
+// with the normal curve, their quantiles against the normal's, the rows that stand out; or how
+// to get them), validation and stability (only when the audit has those keys, rendered
+// generically) and integrity.
 //
-// Size: every chart and table is bounded by ReportOptions (bins, grid cells, caps), so the
-// report's size does not grow with the rows diagnosed. Cost: O(audit + rows diagnosed) time,
-// O(audit + options' bounds) memory beyond the diagnostics themselves.
+// Size: the diagnostics arrive as a bounded summary (engine/diagnostics.h: counts, binned
+// views, the kDiagnosticsTopRows largest rows by leverage, |Cook's distance| and |standardised
+// residual|), and every chart and table is bounded by ReportOptions (bins, grid cells, caps), so
+// neither the report nor the memory it takes grows with the rows diagnosed. Cost: O(audit)
+// beyond the pass over the rows.
 //
 // Failure modes: a document that is not a stepledger audit, or whose sections have the wrong
 // JSON types, throws InputError naming the JSON key; optional sections that are absent are
@@ -29,6 +32,7 @@
 #include <cstddef>
 #include <cstdint>
 #include <filesystem>
+#include <functional>
 #include <optional>
 #include <string>
 #include <string_view>
@@ -37,14 +41,15 @@
 
 #include <nlohmann/json.hpp>
 
+#include "stepledger/engine/diagnostics.h"
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/table_scan.h"
 
 namespace stepledger {
 
-/// Per-row diagnostics of an audit's final model, for the report's diagnostics section.
+/// The diagnostics of an audit's final model, for the report's diagnostics section.
 struct ReportDiagnostics {
-  /// ComputeDiagnostics of the final model over the rows it was fitted on (file order).
+  /// ComputeDiagnostics of the final model over the rows it was fitted on (a bounded summary).
   DiagnosticsResult result;
   /// Coefficients of the final model, intercept included (the 2k/n leverage threshold).
   std::size_t k = 0;
@@ -55,8 +60,9 @@ struct ReportDiagnostics {
 struct ReportOptions {
   /// Heading of the report. Default (empty): "Selection report: " and the data file's name.
   std::string title;
-  /// Most rows listed under "rows that stand out" (>= 0); the count of all of them is always
-  /// given, and `report --rows-out FILE` writes them all. Default 40.
+  /// Most rows listed under "rows that stand out" (>= 0; they are taken from the diagnostics'
+  /// largest-first lists); the count of all of them is always given, and `report --rows-out
+  /// FILE` writes them all. Default 40.
   std::size_t max_outlier_rows = 40;
   /// Most levels listed per categorical column in the data section; the count is always given.
   /// Default 8.
@@ -64,17 +70,20 @@ struct ReportOptions {
   /// Chart width in SVG user units (the charts scale to the page width anyway; this sets the
   /// aspect ratio and the text size relative to the chart). Default 720, range [320, 2000].
   double chart_width = 720;
-  /// Line-number bins of the Cook's distance chart (each shows its largest distance). Default
-  /// 120, range [10, 1000].
+  /// Most line-number ranges of the Cook's distance chart (each shows its largest distance; the
+  /// diagnostics' bins are merged in equal groups down to at most this many). Default 120,
+  /// range [10, 1000].
   std::size_t cooks_bins = 120;
-  /// Cells of the residual-against-fitted density grid, across and down. Defaults 48 x 28,
-  /// each in [4, 200].
+  /// Most cells of the residual-against-fitted density grid, across and down (the diagnostics'
+  /// bins merged in equal groups over the range the rows occupy). Defaults 48 x 28, each in
+  /// [4, 200].
   std::size_t density_columns = 48;
   std::size_t density_rows = 28;
-  /// Bins of the residual histogram. Default 30, range [5, 200].
-  std::size_t histogram_bins = 30;
-  /// Most individual rows drawn on top of a diagnostics chart (the largest Cook's distances
-  /// among the rows that stand out); the count of those not drawn is stated. Default 200.
+  /// Most bins of the standardised-residual histogram (the diagnostics' bins of width 1/16
+  /// merged in equal groups). Default 32, range [5, 200].
+  std::size_t histogram_bins = 32;
+  /// Most individual rows drawn on top of a diagnostics chart (from the diagnostics'
+  /// largest-first lists); the count of those not drawn is stated. Default 200.
   std::size_t max_flagged_points = 200;
   /// Problems CheckAuditIntegrity found (empty: the digests hold). When not empty the caller
   /// chose to render anyway (`report --allow-unverified`): the report opens with a warning
@@ -255,13 +264,14 @@ std::string RenderTextReport(const nlohmann::json& audit, const ReportDiagnostic
 std::string RenderHtmlReport(const nlohmann::json& audit, const ReportDiagnostics* diagnostics,
                              const ReportOptions& options = {});
 
-/// Every row that stands out (Cook's distance above 4/n, |standardised residual| above 3,
-/// leverage above 2k/n, or leverage 1), largest Cook's distance first (leverage-1 rows, whose
-/// distance is undefined, before all), as CSV with a header:
-/// line,fitted,residual,standardized_residual,leverage,cooks_distance,reasons. Numbers at
-/// full precision (shortest round trip), undefined ones empty. The one report output with a
-/// line per row: `report --rows-out FILE`.
-std::string RenderRowsThatStandOutCsv(const ReportDiagnostics& diagnostics);
+/// The CSV of the rows that stand out (`report --rows-out FILE`, the one report output with a
+/// line per row): this header, then StandOutRowCsv for each such row in file order, written
+/// while the rows are diagnosed (DiagnoseAuditRows).
+inline constexpr std::string_view kStandOutCsvHeader =
+    "line,fitted,residual,standardized_residual,leverage,cooks_distance,reasons\n";
+/// One record of that CSV (ending in a newline): numbers at full precision (shortest round
+/// trip), undefined ones empty, the reasons in words.
+std::string StandOutRowCsv(const RowDiagnostic& row, const StandOutThresholds& thresholds);
 
 /// The diagnostics of an audit's final model on its data file, for the report: checks that the
 /// file's fingerprint equals the audit's data.sha256 (else InputError naming both digests and
@@ -269,9 +279,13 @@ std::string RenderRowsThatStandOutCsv(const ReportDiagnostics& diagnostics);
 /// the audit's recorded reader settings. audit_name (the audit's file name) starts messages.
 /// The text is read once: the fingerprint and the typed spill come from the same scan, and no
 /// row is used before the fingerprint has been checked.
+/// stand_out_csv, when set, receives kStandOutCsvHeader and then, during the pass and in file
+/// order, StandOutRowCsv of every row that stands out (nothing is kept per row).
 ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit,
                                     const std::filesystem::path& data,
-                                    std::string_view audit_name, const DataReadOptions& options = {});
+                                    std::string_view audit_name,
+                                    const std::function<void(std::string_view)>& stand_out_csv = {},
+                                    const DataReadOptions& read_options = {});
 
 /// File name of the HTML report that `select --out DIR` writes beside the audit.
 inline constexpr std::string_view kReportFileName = "report.html";

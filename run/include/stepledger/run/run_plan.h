@@ -66,7 +66,7 @@ struct RunResult {
   /// What pricing new rows needs (ranges, largest unit leverage, smearing factor); filled by
   /// the diagnostics pass, empty without it.
   PredictionSupport prediction_support;
-  /// The per-row diagnostics of the final model, when the diagnostics pass ran.
+  /// The diagnostics of the final model (a bounded summary), when the diagnostics pass ran.
   std::optional<DiagnosticsResult> diagnostics;
   RunOptions options;
   double duration_seconds = 0;      ///< wall time of the run
