@@ -90,6 +90,7 @@ json DataJson(const RunResult& run) {
   return {{"file", run.data_file_name},
           {"sha256", run.data_sha256},
           {"bytes", run.data_bytes},
+          {"encoding", run.data_encoding},
           {"fingerprint_block_bytes", DataFingerprint::kBlockBytes},
           {"rows_read", run.accounting.rows_read},
           {"rows_used", run.accounting.rows_used},

@@ -474,6 +474,7 @@ void CompareReplayedSections(const json& recorded_document, const json& replayed
           part->erase("file");
           part->erase("sha256");
           part->erase("bytes");
+          part->erase("encoding");
         }
       }
     }

@@ -9,9 +9,11 @@
 #include <cmath>
 #include <cstdlib>
 #include <cstring>
+#include <memory>
 #include <stdexcept>
 #include <system_error>
 
+#include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger {
@@ -189,20 +191,6 @@ CsvReader::FileHandle::~FileHandle() {
   if (fd_ >= 0) ::close(fd_);
 }
 
-namespace {
-
-// read(2) on a descriptor the reader owns, retried on EINTR.
-std::size_t ReadDescriptor(int fd, char* buffer, std::size_t capacity, const std::string& name) {
-  for (;;) {
-    const ssize_t got = ::read(fd, buffer, capacity);
-    if (got >= 0) return static_cast<std::size_t>(got);
-    if (errno != EINTR) {
-      throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
-    }
-  }
-}
-
-}  // namespace
 
 CsvReader::CsvReader(std::filesystem::path path, CsvOptions options)
     : path_(std::move(path)), display_name_(path_.string()), options_(std::move(options)) {
@@ -212,9 +200,9 @@ CsvReader::CsvReader(std::filesystem::path path, CsvOptions options)
     throw InputError("cannot open data file '" + display_name_ + "': " + std::strerror(errno));
   }
   file_ = FileHandle(fd);
-  read_ = [fd, name = display_name_](char* buffer, std::size_t capacity) {
-    return ReadDescriptor(fd, buffer, capacity, name);
-  };
+  // Through a ByteSource, so that a gzip or zstd file reads as its text.
+  auto source = std::make_shared<ByteSource>(fd, path_);
+  read_ = [source](char* buffer, std::size_t capacity) { return source->Read(buffer, capacity); };
   ReadHeader();
 }
 

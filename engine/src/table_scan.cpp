@@ -14,6 +14,7 @@
 #include <thread>
 #include <unordered_map>
 
+#include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
 
@@ -374,14 +375,12 @@ ScanResult ScanWhole(const std::filesystem::path& path, Descriptor& file, const 
   DataFingerprint fingerprint;
   const int fd = file.get();
   const std::string name = path.string();
-  CsvReader reader(path, [fd, name](char* buffer, std::size_t capacity) {
-    for (;;) {
-      const ssize_t got = ::read(fd, buffer, capacity);
-      if (got >= 0) return static_cast<std::size_t>(got);
-      if (errno != EINTR) throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
-    }
-  }, options.csv);
-  reader.SetByteObserver([&fingerprint](std::string_view bytes) { fingerprint.Update(bytes); });
+  // A ByteSource reads gzip and zstd files as their text; the fingerprint is over the bytes as
+  // stored.
+  ByteSource source(fd, path);
+  source.SetStoredByteObserver([&fingerprint](std::string_view bytes) { fingerprint.Update(bytes); });
+  CsvReader reader(path, [&source](char* buffer, std::size_t capacity) { return source.Read(buffer, capacity); },
+                   options.csv);
   result.header = reader.header();
 
   std::unique_ptr<SpillFolder> folder;
@@ -396,12 +395,14 @@ ScanResult ScanWhole(const std::filesystem::path& path, Descriptor& file, const 
   CheckUnchanged(fd, identity, name);
   result.stored_bytes = fingerprint.total_bytes();
   result.sha256 = fingerprint.Finish();
+  result.encoding = std::string(source.encoding());
+  const bool plain = source.encoding_kind() == ByteEncoding::kPlain;
   const std::vector<std::uint64_t> lines_before = {0};  // a whole-file reader counts from line 1
   result.profile = MergeProfile(path, result.header, scans, lines_before, options);
   if (options.spill) {
     result.spill = std::make_shared<Spill>(std::move(folder), MakeSpillRanges(scans, lines_before),
                                            result.header.size(),
-                                           MakeSource(path, identity, true, result.header, options.csv));
+                                           MakeSource(path, identity, plain, result.header, options.csv));
   }
   return result;
 }
