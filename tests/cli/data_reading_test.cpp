@@ -15,9 +15,12 @@
 #include <random>
 #include <string>
 #include <thread>
+#include <utility>
 #include <vector>
 
 #include <gtest/gtest.h>
+#include <zlib.h>
+#include <zstd.h>
 #include <nlohmann/json.hpp>
 
 #include "support/cli_run.h"
@@ -212,6 +215,46 @@ TEST(DataReadingTest, AFullWorkingFolderIsAClearErrorAndLeavesNothing) {
   EXPECT_NE(err.find("--work-dir"), std::string::npos) << err;
   EXPECT_TRUE(EmptyFolder(work));
   EXPECT_FALSE(std::filesystem::exists(out_dir / "audit.json"));
+}
+
+// Compressed data read directly: the same model and row accounting as the plain file; the
+// fingerprint and byte count are of the file as stored, and the audit says how it was stored.
+TEST(DataReadingTest, GzipAndZstdFilesGiveTheSameModelAsThePlainFile) {
+  TempDir dir;
+  const std::string text = Listings(5000, 21);
+  const auto plain = dir.Write("listings.csv", text);
+  const auto plan = dir.Write("plan.json", kPlan);
+  const auto gz = dir.path() / "listings.csv.gz";
+  {
+    gzFile file = gzopen(gz.c_str(), "wb");
+    ASSERT_NE(file, nullptr);
+    ASSERT_EQ(gzwrite(file, text.data(), static_cast<unsigned>(text.size())), static_cast<int>(text.size()));
+    ASSERT_EQ(gzclose(file), Z_OK);
+  }
+  const auto zst = dir.path() / "listings.csv.zst";
+  {
+    std::string compressed(ZSTD_compressBound(text.size()), '\0');
+    const std::size_t size = ZSTD_compress(compressed.data(), compressed.size(), text.data(), text.size(), 3);
+    ASSERT_FALSE(ZSTD_isError(size));
+    std::ofstream(zst, std::ios::binary) << compressed.substr(0, size);
+  }
+  const nlohmann::json expected = SelectAudit({"--threads", "1"}, plain, plan, dir.path() / "plain_out");
+  EXPECT_EQ(expected["data"]["encoding"], "plain");
+  for (const auto& [path, encoding] : {std::pair{gz, "gzip"}, std::pair{zst, "zstd"}}) {
+    const nlohmann::json audit = SelectAudit({"--threads", "1"}, path, plan, dir.path() / (std::string(encoding) + "_out"));
+    EXPECT_EQ(audit["data"]["encoding"], encoding);
+    EXPECT_EQ(audit["data"]["bytes"], std::filesystem::file_size(path));
+    EXPECT_NE(audit["data"]["sha256"], expected["data"]["sha256"]);
+    for (const char* key : {"rows_read", "rows_used", "rows_dropped", "columns"}) {
+      EXPECT_EQ(audit["data"][key], expected["data"][key]) << encoding << " data." << key;
+    }
+    EXPECT_EQ(audit["model"]["coefficients"], expected["model"]["coefficients"]) << encoding;
+    EXPECT_EQ(audit["steps"].size(), expected["steps"].size()) << encoding;
+    // verify --data replays the compressed file to the same route.
+    const auto verify = RunStepledger({"verify", (dir.path() / (std::string(encoding) + "_out") / "audit.json").string(),
+                                       "--data", path.string()});
+    EXPECT_EQ(verify.status, 0) << verify.out << verify.err;
+  }
 }
 
 }  // namespace

@@ -4,17 +4,23 @@
 // tests/audit/golden.
 //
 // Masked: the temporary folder's path, and the refinement's last relative correction (a
-// rounding-level figure that depends on the BLAS build). Everything else must match exactly.
+// rounding-level figure that depends on the BLAS build). The text must match exactly (its
+// numbers are rounded for people); the JSON must have the same keys, texts and integers, and
+// doubles equal to 1e-12 relative: they are printed in full, and their last digits move with
+// the BLAS kernels the machine's CPU selects.
 //
 // To accept a deliberate change: STEPLEDGER_UPDATE_GOLDEN=1 build/tests/cli_output_golden_test
 // rewrites both files; review the diff before committing it.
 
+#include <algorithm>
+#include <cmath>
 #include <fstream>
 #include <regex>
 #include <sstream>
 #include <string>
 
 #include <gtest/gtest.h>
+#include <nlohmann/json.hpp>
 
 #include "support/cli_run.h"
 #include "support/golden_case.h"
@@ -36,6 +42,36 @@ std::string Masked(std::string text, const std::filesystem::path& folder) {
                             "last relative correction MASKED");
 }
 
+// The first place where two JSON values differ beyond 1e-12 relative in a double; empty when none.
+std::string JsonDifference(const nlohmann::json& golden, const nlohmann::json& actual, const std::string& path) {
+  if (golden.is_number_float() || actual.is_number_float()) {
+    if (!golden.is_number() || !actual.is_number()) return path + ": " + golden.dump() + " against " + actual.dump();
+    const double a = golden.get<double>(), b = actual.get<double>();
+    if (std::abs(a - b) <= 1e-12 * std::max(std::abs(a), std::abs(b))) return {};
+    return path + ": " + golden.dump() + " against " + actual.dump();
+  }
+  if (golden.type() != actual.type()) return path + ": " + golden.dump() + " against " + actual.dump();
+  if (golden.is_object()) {
+    if (golden.size() != actual.size()) return path + ": the keys differ";
+    for (const auto& [key, value] : golden.items()) {
+      if (!actual.contains(key)) return path + "." + key + ": missing";
+      if (auto difference = JsonDifference(value, actual[key], path + "." + key); !difference.empty()) return difference;
+    }
+    return {};
+  }
+  if (golden.is_array()) {
+    if (golden.size() != actual.size()) return path + ": " + std::to_string(golden.size()) + " against " +
+                                               std::to_string(actual.size()) + " items";
+    for (std::size_t i = 0; i < golden.size(); ++i) {
+      if (auto difference = JsonDifference(golden[i], actual[i], path + "[" + std::to_string(i) + "]"); !difference.empty()) {
+        return difference;
+      }
+    }
+    return {};
+  }
+  return golden == actual ? std::string() : path + ": " + golden.dump() + " against " + actual.dump();
+}
+
 void ExpectGolden(const std::string& name, const std::string& actual) {
   if (testing::UpdatingGoldenFiles()) {
     std::ofstream(GoldenPath(name), std::ios::binary) << actual;
@@ -45,6 +81,11 @@ void ExpectGolden(const std::string& name, const std::string& actual) {
   ASSERT_TRUE(in) << GoldenPath(name) << " is missing; run with STEPLEDGER_UPDATE_GOLDEN=1";
   std::stringstream golden;
   golden << in.rdbuf();
+  if (name.ends_with(".json")) {
+    EXPECT_EQ(JsonDifference(nlohmann::json::parse(golden.str()), nlohmann::json::parse(actual), "$"), "")
+        << "If the change is deliberate, rerun with STEPLEDGER_UPDATE_GOLDEN=1.";
+    return;
+  }
   EXPECT_EQ(golden.str(), actual) << "If the change is deliberate, rerun with STEPLEDGER_UPDATE_GOLDEN=1.";
 }
 
