@@ -58,6 +58,8 @@ inline void Product(const double* __restrict a, const double* __restrict ah, con
 }
 
 // Lanes of one sum: s[0..kLanes) then c[0..kLanes). Adds p[i] + e[i] for the block's rows.
+// (Copies of the lanes in locals and an unrolled lane loop: GCC then keeps them in registers
+// and vectorises across the lanes.)
 inline void Accumulate(double* __restrict lanes, const double* __restrict p, const double* __restrict e) {
   double s[kLanes], c[kLanes];
   for (std::size_t l = 0; l < kLanes; ++l) {
@@ -65,6 +67,7 @@ inline void Accumulate(double* __restrict lanes, const double* __restrict p, con
     c[l] = lanes[kLanes + l];
   }
   for (std::size_t g = 0; g < kBlockRows; g += kLanes) {
+#pragma GCC unroll 8
     for (std::size_t l = 0; l < kLanes; ++l) {
       const double t = p[g + l];
       const double sum = s[l] + t;
