@@ -129,7 +129,7 @@ TEST(Refine, TheStopReasonIsRecorded) {
 
 TEST(Refine, IllConditionedPolynomialsRefineAsFarAsNeeded) {
   // NIST StRD Filip: the factor's solution has about 7 digits; two passes reach the long double
-  // design's solution (11 digits against the certified values, the 2nd correction near 3e-14).
+  // design's solution (11 digits against the certified values, the 2nd correction near 2e-14).
   const FitResult filip = Fit(NistPolynomial("Filip"));
   EXPECT_GT(filip.refinement_passes, 1);
   EXPECT_EQ(filip.refinement_stop, RefinementStop::kConverged);

@@ -21,7 +21,7 @@
 // observed ratio of corrections. Refinement stops (kConverged) as soon as c or theta c is below
 // refinement_tolerance: a well-conditioned design (rho_hat near 1e-14, first correction near
 // 1e-14) stops after one pass, its next correction estimated near 1e-28; an ill-conditioned
-// one makes more (Filip: 2, the second correction 3e-14 times theta = 1.5e-5). A pass that
+// one makes more (Filip: 2, the second correction 2e-14 times theta = 1.5e-5). A pass that
 // corrects more than the one before is not applied (kNotShrinking: the rounding floor of an
 // ill-conditioned fit is reached, the previous estimate is the better one); kPassLimit after
 // max_refinement_passes.
