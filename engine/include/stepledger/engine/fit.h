@@ -19,8 +19,8 @@
 // largest |d_j| / max(|b_j|, |b_j + d_j|)) is the size of the error it removed, so what the
 // next pass could still change is about theta c, theta = the larger of rho_hat and the last
 // observed ratio of corrections. Refinement stops (kConverged) as soon as c or theta c is below
-// refinement_tolerance: a well-conditioned design (rho_hat near 1e-14, first correction near
-// 1e-14) stops after one pass, its next correction estimated near 1e-28; an ill-conditioned
+// refinement_tolerance: a well-conditioned design (rho_hat 1e-15 to 1e-13, first correction
+// near 1e-13) stops after one pass, its next correction estimated below 1e-25; an ill-conditioned
 // one makes more (Filip: 2, the second correction 2e-14 times theta = 1.5e-5). A pass that
 // corrects more than the one before is not applied (kNotShrinking: the rounding floor of an
 // ill-conditioned fit is reached, the previous estimate is the better one); kPassLimit after
