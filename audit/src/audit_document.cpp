@@ -163,6 +163,7 @@ json NumericsJson(const RunResult& run) {
           {"rcond", NumberOrNull(run.fit.rcond)},
           {"refinement_passes", run.fit.refinement_passes},
           {"refinement_correction", NumberOrNull(run.fit.refinement_correction)},
+          {"refinement_stop", ToString(run.fit.refinement_stop)},
           {"refinement_tolerance", run.options.fit.refinement_tolerance},
           {"tie_relative_tolerance", kTieRelativeTolerance},
           {"replay_relative_tolerance", 1e-9}};

@@ -354,6 +354,15 @@ VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::pa
   return report;
 }
 
+void WithoutRefinementRecord(json& document) {
+  for (const char* section : {"model", "numerics"}) {
+    if (!document.is_object() || !document.contains(section) || !document[section].is_object()) continue;
+    for (const char* key : {"refinement_passes", "refinement_correction", "refinement_stop"}) {
+      document[section].erase(key);
+    }
+  }
+}
+
 void WithoutWording(json& value) {
   static const char* const kWordingKeys[] = {"rule", "stop_rule", "message", "reason",
                                              "undefined_reason"};
@@ -515,6 +524,8 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
     WithoutWording(recorded_document);
     WithoutWording(replayed);
   }
+  WithoutRefinementRecord(recorded_document);
+  WithoutRefinementRecord(replayed);
   const double tolerance = options.relative_tolerance;
   const json recorded_steps = recorded_document.value("steps", json::array());
   CompareReplayedRoute(recorded_steps, replayed["steps"], tolerance, report);

@@ -280,6 +280,20 @@ std::map<std::string, double> ReadFinalModel(const AuditReader& reader, const js
   fit.alias_tolerance = reader.Number(model_json, "model", "alias_tolerance");
   fit.refinement_passes = model_json.value("refinement_passes", 0);
   fit.refinement_correction = reader.OptionalNumber(model_json, "model", "refinement_correction").value_or(kUndefined);
+  if (model_json.contains("refinement_stop")) {
+    const std::string stop = reader.String(model_json, "model", "refinement_stop");
+    const std::optional<RefinementStop> parsed = RefinementStopFromString(stop);
+    if (!parsed) {
+      reader.Fail("model.refinement_stop", "'" + stop +
+                                               "' is not one of not-refined, converged, not-shrinking, pass-limit");
+    }
+    fit.refinement_stop = *parsed;
+  } else {
+    // Written before the reason was recorded: the refinement then always ran until its
+    // correction was below the tolerance, short of a limit or a growing correction that the
+    // audit does not tell apart; it reads as converged when it made passes.
+    fit.refinement_stop = fit.refinement_passes > 0 ? RefinementStop::kConverged : RefinementStop::kNotRefined;
+  }
   fit.aliased_columns = reader.Strings(reader.Array(model_json, "model", "aliased_columns"), "model.aliased_columns");
   const json& coefficients = reader.Array(model_json, "model", "coefficients");
   std::map<std::string, double> estimates;

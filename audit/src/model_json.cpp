@@ -61,6 +61,7 @@ nlohmann::json ModelToJson(const FitResult& fit) {
   model["alias_tolerance"] = fit.alias_tolerance;
   model["refinement_passes"] = fit.refinement_passes;
   model["refinement_correction"] = NumberOrNull(fit.refinement_correction);
+  model["refinement_stop"] = ToString(fit.refinement_stop);
   model["aliased_columns"] = fit.aliased_columns;
   model["confidence_level"] = fit.confidence_level;
   model["weight_sum"] = NumberOrNull(fit.weight_sum);

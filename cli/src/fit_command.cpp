@@ -133,8 +133,8 @@ int RunFit(const FitArgs& args, CommandContext& context) {
   const RunResult run = RunPlan(args.data, loaded, options);
   for (const auto& [term, reason] : run.design.skipped) log.warn("term '{}' skipped: {}", term, reason);
   const FitResult& fit = run.fit;
-  log.info("fit: {} refinement passes, last correction {:.3g}", fit.refinement_passes,
-           fit.refinement_correction);
+  log.info("fit: {} refinement passes, last correction {:.3g}, stopped: {}", fit.refinement_passes,
+           fit.refinement_correction, ToString(fit.refinement_stop));
 
   const DiagnosticsSummary summary =
       run.diagnostics ? Summarize(*run.diagnostics) : DiagnosticsSummary{};

@@ -8,208 +8,16 @@
 #include <stdexcept>
 #include <string>
 
+#include "double_double.h"
 #include "lapack.h"
+#include "refine.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger {
 namespace {
 
-// ---- double-double arithmetic --------------------------------------------------------------
-// A value hi + lo with |lo| <= ulp(hi)/2: about 32 significant digits. Error-free
-// transformations: Knuth's TwoSum and the fused multiply-add product (Dekker/Ogita-Rump-Oishi).
-// Refinement needs them because the residuals of an ill-conditioned fit are the difference of
-// nearly equal numbers; a plain double (or long double) sum leaves digits to the row order.
-struct DoubleDouble {
-  double hi = 0;
-  double lo = 0;
-  double value() const { return hi + lo; }
-};
-
-DoubleDouble TwoSum(double a, double b) {
-  const double s = a + b;
-  const double bb = s - a;
-  return {s, (a - (s - bb)) + (b - bb)};
-}
-
-DoubleDouble QuickTwoSum(double a, double b) {  // requires |a| >= |b| or a = 0
-  const double s = a + b;
-  return {s, b - (s - a)};
-}
-
-DoubleDouble TwoProduct(double a, double b) {
-  const double p = a * b;
-  return {p, std::fma(a, b, -p)};
-}
-
-DoubleDouble operator+(DoubleDouble a, DoubleDouble b) {
-  DoubleDouble s = TwoSum(a.hi, b.hi);
-  const DoubleDouble t = TwoSum(a.lo, b.lo);
-  s.lo += t.hi;
-  s = QuickTwoSum(s.hi, s.lo);
-  s.lo += t.lo;
-  return QuickTwoSum(s.hi, s.lo);
-}
-
-DoubleDouble operator-(DoubleDouble a) { return {-a.hi, -a.lo}; }
-
-DoubleDouble operator*(DoubleDouble a, double b) {
-  DoubleDouble p = TwoProduct(a.hi, b);
-  p.lo += a.lo * b;
-  return QuickTwoSum(p.hi, p.lo);
-}
-
-DoubleDouble operator*(DoubleDouble a, DoubleDouble b) {
-  DoubleDouble p = TwoProduct(a.hi, b.hi);
-  p.lo += a.hi * b.lo + a.lo * b.hi;
-  return QuickTwoSum(p.hi, p.lo);
-}
-
-// ---- solves through the factor -------------------------------------------------------------
-
-// rhs := (R'R)^-1 rhs with two triangular solves (R' z = rhs, then R x = z): the factor stands in
-// for X'WX without ever forming it.
-void SolveThroughFactor(const arma::mat& triangle, arma::mat& rhs) {
-  const int n = static_cast<int>(triangle.n_rows);
-  const int columns = static_cast<int>(rhs.n_cols);
-  int info = lapack::SolveUpperTriangular(true, n, columns, triangle.memptr(), n, rhs.memptr(), n);
-  if (info == 0) info = lapack::SolveUpperTriangular(false, n, columns, triangle.memptr(), n, rhs.memptr(), n);
-  if (info > 0) throw NumericalError("fit: the model's triangular factor is singular at position " + std::to_string(info));
-}
-
-struct Refinement {
-  arma::vec beta;      // scaled units
-  arma::mat inverse;   // (X'WX)^-1 in scaled units
-  double rss = 0;      // scaled units, from the last pass's residuals
-  double tss = 0;      // scaled units
-  int passes = 0;
-  double correction = 0;
-};
-
-// The corrected semi-normal equations (Bjorck): each pass over the rows accumulates
-// r = y - X b and g = X'W r in double-double, then b += (R'R)^-1 g. The first pass also
-// accumulates A = X'WX in double-double (upper triangle into `gram`, for RefineInverse) and the
-// total sum of squares. Kept apart from the inverse's refinement because only this phase reads
-// the rows: it is the one whose cost grows with the data.
-void RefineEstimates(const arma::mat& triangle, const std::vector<std::size_t>& columns,
-                     const std::vector<double>& column_scales, double y_scale, bool intercept,
-                     double y_shift, arma::vec beta, std::uint64_t factor_rows,
-                     const FitOptions& options, const RowReplay& replay,
-                     std::vector<DoubleDouble>& gram, Refinement& out) {
-  const std::size_t k = columns.size();
-  gram.assign(k * k, DoubleDouble{});
-  DoubleDouble weight_sum, shifted_sum, shifted_squares;
-  std::vector<DoubleDouble> x(k);
-  double previous_correction = std::numeric_limits<double>::infinity();
-  for (int pass = 1; pass <= options.max_refinement_passes; ++pass) {
-    const bool first = pass == 1;
-    std::vector<DoubleDouble> gradient(k);
-    DoubleDouble rss;
-    std::uint64_t rows = 0;
-    replay([&](const UsedRow& row) {
-      ++rows;
-      // The design value is x + x_low (x_low empty: exact in double); scaling by 2^e is exact.
-      const bool has_low = !row.x_low.empty();
-      for (std::size_t j = 0; j < k; ++j) {
-        x[j] = {row.x[columns[j]] * column_scales[j], has_low ? row.x_low[columns[j]] * column_scales[j] : 0.0};
-      }
-      const double y = row.y * y_scale;
-      DoubleDouble fitted;
-      for (std::size_t j = 0; j < k; ++j) fitted = fitted + x[j] * beta(j);
-      const DoubleDouble residual = DoubleDouble{y, 0} + (-fitted);
-      const DoubleDouble weighted_residual = residual * row.weight;
-      rss = rss + weighted_residual * residual;
-      for (std::size_t j = 0; j < k; ++j) gradient[j] = gradient[j] + weighted_residual * x[j];
-      if (first) {
-        for (std::size_t i = 0; i < k; ++i) {
-          const DoubleDouble weighted_x = x[i] * row.weight;
-          for (std::size_t j = i; j < k; ++j) gram[i * k + j] = gram[i * k + j] + weighted_x * x[j];
-        }
-        const DoubleDouble centred = TwoSum(y, -y_shift);
-        const DoubleDouble weighted_centred = centred * row.weight;
-        weight_sum = weight_sum + DoubleDouble{row.weight, 0};
-        shifted_sum = shifted_sum + weighted_centred;
-        shifted_squares = shifted_squares + weighted_centred * centred;
-      }
-    });
-    if (rows != factor_rows) {
-      throw NumericalError("fit: the rows replayed for refinement (" + std::to_string(rows) +
-                           ") are not the rows of the factor (" + std::to_string(factor_rows) + ")");
-    }
-    out.rss = rss.value();
-    if (first) {
-      // Sum of squares about the weighted mean, shifted by an estimate of the mean so that the
-      // subtraction below cancels little; about zero without an intercept (shift 0).
-      const DoubleDouble correction_term =
-          intercept && weight_sum.hi > 0
-              ? shifted_sum * shifted_sum * (1.0 / weight_sum.value())
-              : DoubleDouble{};
-      out.tss = std::max(0.0, (shifted_squares + (-correction_term)).value());
-    }
-    arma::mat delta(k, 1);
-    for (std::size_t j = 0; j < k; ++j) delta(j, 0) = gradient[j].value();
-    SolveThroughFactor(triangle, delta);
-    double correction = 0;
-    for (std::size_t j = 0; j < k; ++j) {
-      const double size = std::max(std::abs(beta(j)), std::abs(beta(j) + delta(j, 0)));
-      if (size > 0) correction = std::max(correction, std::abs(delta(j, 0)) / size);
-    }
-    out.passes = pass;
-    if (pass > 1 && correction > previous_correction) {
-      // Diverging (the factor is too ill-conditioned for this data): keep the better estimate.
-      out.correction = previous_correction;
-      break;
-    }
-    beta += delta.col(0);
-    out.correction = correction;
-    previous_correction = correction;
-    if (correction < options.refinement_tolerance) break;
-  }
-  out.beta = beta;
-}
-
-// (X'WX)^-1 refined in memory against the double-double Gram matrix by C += (R'R)^-1 (I - A C):
-// no pass over the rows, so it is separate from RefineEstimates. `gram` holds the upper
-// triangle on entry; it is mirrored here.
-arma::mat RefineInverse(const arma::mat& triangle, std::vector<DoubleDouble>& gram, arma::mat inverse,
-                        const FitOptions& options) {
-  const std::size_t k = inverse.n_rows;
-  for (std::size_t i = 0; i < k; ++i)
-    for (std::size_t j = 0; j < i; ++j) gram[i * k + j] = gram[j * k + i];
-  for (int iteration = 0; iteration < options.max_refinement_passes; ++iteration) {
-    arma::mat residual(k, k);
-    for (std::size_t j = 0; j < k; ++j) {
-      for (std::size_t i = 0; i < k; ++i) {
-        DoubleDouble sum{i == j ? 1.0 : 0.0, 0};
-        for (std::size_t l = 0; l < k; ++l) sum = sum + (-(gram[i * k + l] * inverse(l, j)));
-        residual(i, j) = sum.value();
-      }
-    }
-    SolveThroughFactor(triangle, residual);
-    double correction = 0;
-    for (std::size_t j = 0; j < k; ++j) {
-      for (std::size_t i = 0; i < k; ++i) {
-        const double size = std::sqrt(std::abs(inverse(i, i) * inverse(j, j)));
-        if (size > 0) correction = std::max(correction, std::abs(residual(i, j)) / size);
-      }
-    }
-    inverse += residual;
-    if (correction < options.refinement_tolerance) break;
-  }
-  return 0.5 * (inverse + inverse.t());
-}
-
-// Both refinements, in the factor's scaled units (exact powers of two).
-Refinement Refine(const arma::mat& triangle, const std::vector<std::size_t>& columns,
-                  const std::vector<double>& column_scales, double y_scale, bool intercept,
-                  double y_shift, arma::vec beta, arma::mat inverse, std::uint64_t factor_rows,
-                  const FitOptions& options, const RowReplay& replay) {
-  Refinement out;
-  std::vector<DoubleDouble> gram;
-  RefineEstimates(triangle, columns, column_scales, y_scale, intercept, y_shift, std::move(beta),
-                  factor_rows, options, replay, gram, out);
-  out.inverse = RefineInverse(triangle, gram, std::move(inverse), options);
-  return out;
-}
+using dd::DoubleDouble;
+using dd::TwoProduct;
 
 std::optional<double> Defined(double value) {
   if (std::isnan(value)) return std::nullopt;
@@ -218,6 +26,24 @@ std::optional<double> Defined(double value) {
 
 
 }  // namespace
+
+const char* ToString(RefinementStop stop) {
+  switch (stop) {
+    case RefinementStop::kNotRefined: return "not-refined";
+    case RefinementStop::kConverged: return "converged";
+    case RefinementStop::kNotShrinking: return "not-shrinking";
+    case RefinementStop::kPassLimit: return "pass-limit";
+  }
+  return "unknown";
+}
+
+std::optional<RefinementStop> RefinementStopFromString(std::string_view text) {
+  for (RefinementStop stop : {RefinementStop::kNotRefined, RefinementStop::kConverged,
+                              RefinementStop::kNotShrinking, RefinementStop::kPassLimit}) {
+    if (text == ToString(stop)) return stop;
+  }
+  return std::nullopt;
+}
 
 const char* ToString(FitStatus status) {
   switch (status) {
@@ -331,10 +157,17 @@ void RefineAgainstRows(const Factor& factor, const Design& design, const FitOpti
   const double y_shift = design.intercept && !factor.column_stats.empty()
                              ? factor.column_stats.back().mean * y_scale
                              : 0.0;
-  const std::vector<double> column_scales(fit.model_scales.begin(), fit.model_scales.end() - 1);
-  const Refinement refined =
-      Refine(fit.model_triangle, fit.columns, column_scales, y_scale, design.intercept, y_shift,
-             beta_scaled, inverse_scaled, factor.rows, options, replay);
+  detail::RefineProblem problem;
+  problem.triangle = fit.model_triangle;
+  problem.columns = fit.columns;
+  problem.column_scales.assign(fit.model_scales.begin(), fit.model_scales.end() - 1);
+  problem.y_scale = y_scale;
+  problem.intercept = design.intercept;
+  problem.y_shift = y_shift;
+  problem.rcond = fit.rcond;
+  problem.factor_rows = factor.rows;
+  const detail::Refinement refined =
+      detail::Refine(problem, std::move(beta_scaled), std::move(inverse_scaled), options, replay);
   for (std::size_t i = 0; i < k; ++i) {
     fit.beta(i) = refined.beta(i) * fit.model_scales[i] / y_scale;
     for (std::size_t j = 0; j < k; ++j) {
@@ -345,6 +178,7 @@ void RefineAgainstRows(const Factor& factor, const Design& design, const FitOpti
   fit.tss = refined.tss / (y_scale * y_scale);
   fit.refinement_passes = refined.passes;
   fit.refinement_correction = refined.correction;
+  fit.refinement_stop = refined.stop;
 }
 
 // Status, residual df, SSR and the selection criteria: they need the final RSS and TSS only,

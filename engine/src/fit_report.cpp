@@ -114,8 +114,8 @@ std::string FitResult::FullReport() const {
       {"Mallows' Cp", Number(criteria.cp, 8)},
       {"reciprocal condition of R11", Number(rcond, 3)},
       {"refinement", std::to_string(refinement_passes) + (refinement_passes == 1 ? " pass" : " passes") +
-                         ", last relative correction " +
-                         Number(refinement_correction, 3)}};
+                         ", last relative correction " + Number(refinement_correction, 3) +
+                         ", stopped: " + ToString(refinement_stop)}};
   text << Layout(statistics, 2);
   return text.str();
 }

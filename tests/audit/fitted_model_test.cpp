@@ -266,6 +266,23 @@ TEST(FittedModel, AProductNeedsItsPartsEvenWhenTheyAreNotInTheModel) {
   EXPECT_TRUE(age_range);
 }
 
+TEST(FittedModel, ReadsWhyRefinementStoppedAndAuditsWrittenBeforeItWasRecorded) {
+  TempDir dir;
+  const Recorded recorded = RunAndRecord(dir, LogPricePlan(false), MakeListings(100, 16));
+  const FitResult& fit = recorded.run.fit;
+  EXPECT_EQ(recorded.audit["model"]["refinement_stop"], ToString(fit.refinement_stop));
+  EXPECT_EQ(recorded.audit["numerics"]["refinement_stop"], ToString(fit.refinement_stop));
+  EXPECT_EQ(FittedModelFromAudit(recorded.audit, "audit.json").fit.refinement_stop, fit.refinement_stop);
+  // A format_version 2 audit from before the field: passes made read as converged.
+  json older = recorded.audit;
+  older["model"].erase("refinement_stop");
+  older["numerics"].erase("refinement_stop");
+  const FittedModel model = FittedModelFromAudit(older, "audit.json");
+  EXPECT_EQ(model.fit.refinement_passes, fit.refinement_passes);
+  EXPECT_EQ(model.fit.refinement_stop,
+            fit.refinement_passes > 0 ? RefinementStop::kConverged : RefinementStop::kNotRefined);
+}
+
 void ExpectFailureNaming(const json& audit, const std::string& expected) {
   try {
     (void)FittedModelFromAudit(audit, "old/audit.json");
@@ -295,6 +312,10 @@ TEST(FittedModel, ErrorsNameTheKey) {
   json renamed = recorded.audit;
   renamed["design"]["columns"][1]["name"] = "elsewhere";
   ExpectFailureNaming(renamed, "key 'design.columns'");
+
+  json unknown_stop = recorded.audit;
+  unknown_stop["model"]["refinement_stop"] = "finished";
+  ExpectFailureNaming(unknown_stop, "key 'model.refinement_stop': 'finished' is not one of");
 
   json unknown_column = recorded.audit;
   unknown_column["prediction"]["columns"][1] = "no_such_column";

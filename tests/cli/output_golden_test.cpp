@@ -38,7 +38,7 @@ std::string Masked(std::string text, const std::filesystem::path& folder) {
        at = text.find(folder.string(), at)) {
     text.replace(at, folder.string().size(), "TMP");
   }
-  return std::regex_replace(text, std::regex("last relative correction [^\\n\"]*"),
+  return std::regex_replace(text, std::regex("last relative correction [^,\\n\"]*"),
                             "last relative correction MASKED");
 }
 

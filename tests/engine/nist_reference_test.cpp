@@ -147,7 +147,9 @@ TEST_P(NistReference, CertifiedValuesInFileOrder) {
   std::ostringstream table;
   table << std::fixed << std::setprecision(1);
   table << "NIST StRD " << expected.name << " (LRE = digits of agreement with the certified values, cap 15; "
-        << fit.refinement_passes << " refinement passes)\n";
+        << fit.refinement_passes << " refinement passes, last correction " << std::scientific
+        << std::setprecision(1) << fit.refinement_correction << std::fixed << ", stopped: "
+        << ToString(fit.refinement_stop) << ")\n";
   table << "  parameter   estimate   std deviation\n";
   for (std::size_t j = 0; j < digits.coefficients.size(); ++j) {
     const int label = static_cast<int>(j) + (data.first_parameter_is_b0 ? 0 : 1);

@@ -93,6 +93,12 @@ std::optional<std::string> FirstJsonDifference(const nlohmann::json& recorded,
 /// while every number and name they quote is compared in the fields that hold it.
 void WithoutWording(nlohmann::json& document);
 
+/// Removes refinement_passes, refinement_correction and refinement_stop from the model and
+/// numerics sections. A replay compares without them: they record how the build reached the
+/// result (a later build may refine in fewer passes, its last correction a different rounding-
+/// level figure), while the result itself (estimates, SEs, RSS) is compared.
+void WithoutRefinementRecord(nlohmann::json& document);
+
 /// Numbers a and b agree to relative_tolerance (|a - b| <= tol * max(|a|, |b|)).
 bool NumbersAgree(double a, double b, double relative_tolerance);
 

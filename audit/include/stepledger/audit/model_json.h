@@ -6,7 +6,8 @@
 //              total: {...} } }
 // plus additive keys: cp, df_residual, ss_regression (SST - SSE; format_version 1 called it
 // ssr), status, intercept, rcond, alias_tolerance,
-// refinement_passes, refinement_correction, aliased_columns, confidence_level,
+// refinement_passes, refinement_correction, refinement_stop (why refinement stopped:
+// "not-refined", "converged", "not-shrinking" or "pass-limit"), aliased_columns, confidence_level,
 // weight_sum, log_weight_sum.
 // Undefined values (std::nullopt, and any non-finite number) are JSON null.
 

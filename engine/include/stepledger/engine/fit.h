@@ -2,21 +2,44 @@
 // The fit of one model: coefficients, SE, t, p, intervals, covariance, VIF, ANOVA and the
 // criteria, all from the factor, then refined against the rows.
 //
-// Refinement (the final model of every command): starting from the factor's solution,
-// each pass over the rows accumulates r = y - X b and X'W r in double-double (compensated)
-// arithmetic, then solves R'R d = X'W r through the factor and sets b += d (the corrected
-// semi-normal equations). The same pass refines (X'WX)^-1 for the standard errors, and the
-// residual SD and R^2 are taken from the refined residuals. Stops when the largest relative
-// correction is below refinement_tolerance or after max_refinement_passes (or when a pass
-// corrects more than the one before, which keeps the better estimate). The rows' design values
-// are x + x_low (UsedRow::x_low): with the low parts of long double powers the refinement fits
-// the long double design (NIST StRD Filip: 11 digits instead of the 7.6 that x^k rounded to
-// double allows whatever the solver). Without a replay the fit comes from the factor alone.
-
+// Refinement (the final model of every command): starting from the factor's solution, each
+// pass over the rows accumulates r = y - X b, X'W r and sum w r^2 in compensated
+// (double-double) arithmetic, then solves R'R d = X'W r through the factor and sets b += d
+// (the corrected semi-normal equations); the RSS of b + d is the pass's sum less g'd. The
+// rows' design values are x + x_low (UsedRow::x_low): with the low parts of long double powers
+// the refinement fits the long double design (NIST StRD Filip: 11 digits instead of the 7.6
+// that x^k rounded to double allows whatever the solver). Without a replay the fit comes from
+// the factor alone (RefinementStop::kNotRefined).
+//
+// When to stop. R is the exact factor of a design within E of the rows' (the QR's backward
+// error and the rounding of x + x_low to x, both of the order of the unit roundoff u = 2^-53
+// relative), so each pass shrinks the error of b by a factor rho of about ||E|| / sigma_min,
+// estimated before the first pass as rho_hat = k u / rcond (k coefficients, rcond of R11;
+// NIST StRD Filip contracts by 8.6e-7 against rho_hat = 1.5e-5). A pass's correction c (the
+// largest |d_j| / max(|b_j|, |b_j + d_j|)) is the size of the error it removed, so what the
+// next pass could still change is about theta c, theta = the larger of rho_hat and the last
+// observed ratio of corrections. Refinement stops (kConverged) as soon as c or theta c is below
+// refinement_tolerance: a well-conditioned design (rho_hat 1e-15 to 1e-13, first correction
+// near 1e-13) stops after one pass, its next correction estimated below 1e-25; an ill-conditioned
+// one makes more (Filip: 2, the second correction 2e-14 times theta = 1.5e-5). A pass that
+// corrects more than the one before is not applied (kNotShrinking: the rounding floor of an
+// ill-conditioned fit is reached, the previous estimate is the better one); kPassLimit after
+// max_refinement_passes.
+//
+// (X'WX)^-1 for the standard errors. The factor's inverse has a relative error of about
+// rho_hat too (NIST StRD: 0.5 rho_hat for Norris, 0.025 for Wampler1-5, 0.006 for Filip).
+// When rho_hat is at most kInverseFromFactorLimit (2^-40, about 1e-12: the standard errors then
+// have at least 12 correct digits) it is kept as it is, and the passes cost O(k) per row.
+// Otherwise the first pass also accumulates the Gram matrix X'WX in compensated arithmetic,
+// O(k^2) per row, and the inverse is refined against it in memory by C += (R'R)^-1 (I - A C)
+// until its correction is below refinement_tolerance. The per-row sums run in blocks of rows
+// laid out by column with eight accumulator lanes (engine/src/refine.cpp), in the same order
+// whatever the instruction set, so a given row order gives the same bits on any x86-64.
 #include <cstdint>
 #include <optional>
 #include <span>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include <armadillo>
@@ -36,7 +59,9 @@ struct FitOptions {
   std::optional<double> cp_sigma2;
   /// Passes over the rows to refine the final fit (0: factor only). Default 10.
   int max_refinement_passes = 10;
-  /// Stop refining when max_j |d_j| / |b_j| (and the same for the inverse) is below this.
+  /// Stop refining when the largest relative correction of a pass, or the estimate of what the
+  /// next pass could still change (see the top of this file), is below this; the inverse is
+  /// refined until its correction is below it. Default 1e-15.
   double refinement_tolerance = 1e-15;
   KernelOptions kernel;
   /// Throws InputError naming the field when out of range.
@@ -75,6 +100,21 @@ enum class FitStatus {
 };
 const char* ToString(FitStatus status);
 
+/// Why refinement stopped (see the top of this file).
+enum class RefinementStop {
+  kNotRefined,    ///< no replay, max_refinement_passes = 0 or an empty model: factor only
+  kConverged,     ///< the last correction, or what the next pass could change, is below the tolerance
+  kNotShrinking,  ///< a pass corrected more than the one before; it was not applied
+  kPassLimit,     ///< max_refinement_passes made without converging
+};
+/// "not-refined", "converged", "not-shrinking", "pass-limit".
+const char* ToString(RefinementStop stop);
+/// The inverse of ToString; nullopt for any other text.
+std::optional<RefinementStop> RefinementStopFromString(std::string_view text);
+
+/// The factor's (X'WX)^-1 is kept without a Gram pass when k u / rcond is at most this.
+inline constexpr double kInverseFromFactorLimit = 0x1p-40;
+
 struct FitResult {
   FitStatus status = FitStatus::kCompleted;
   std::vector<std::string> terms;        ///< term names in model order (no intercept)
@@ -102,8 +142,9 @@ struct FitResult {
   double confidence_level = 0.95;
   double rcond = 0;                      ///< reciprocal condition number of R11
   double alias_tolerance = 0;
-  int refinement_passes = 0;             ///< passes made
-  double refinement_correction = 0;      ///< last largest relative correction
+  int refinement_passes = 0;             ///< passes over the rows made
+  double refinement_correction = 0;      ///< last applied largest relative correction
+  RefinementStop refinement_stop = RefinementStop::kNotRefined;  ///< why refinement stopped
 
   /// A few lines: terms, n, R^2, sigma, AIC, BIC.
   std::string BriefReport() const;
