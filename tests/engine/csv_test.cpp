@@ -327,7 +327,7 @@ TEST_F(CsvReaderTest, UnreadableFileNamesThePathAndTheReason) {
             "cannot open data file '" + missing.string() + "': No such file or directory");
   // A folder opens but cannot be read.
   EXPECT_EQ(InputErrorOf([&] { CsvReader reader(folder_.path()); }),
-            "cannot read data file '" + folder_.path().string() + "': Is a directory");
+            folder_.path().string() + ": cannot read at stored byte 0: Is a directory");
 }
 
 TEST_F(CsvReaderTest, OptionsAreValidated) {

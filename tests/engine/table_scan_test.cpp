@@ -110,11 +110,11 @@ TEST(TableScanTest, OneReaderSeesEveryRowWithItsLineAndOffset) {
   EXPECT_EQ(scan.sha256, whole.Finish());
   const ScanDigest digest = Digest(scan);
   ASSERT_EQ(digest.cells.size(), 7u);
-  EXPECT_EQ(digest.cells[0], "0 line 2 at 20 | 100.000000 '100' | 1.000000 '1' | text 'plain'");
-  EXPECT_EQ(digest.cells[2], "2 line 4 at 46 | 300.000000 '300' | 3.000000 '3' | text 'line one\nline two'");
-  EXPECT_EQ(digest.cells[3].substr(0, 14), "3 line 6 at 72");
+  EXPECT_EQ(digest.cells[0], "0 line 2 at 19 | 100.000000 '100' | 1.000000 '1' | text 'plain'");
+  EXPECT_EQ(digest.cells[2], "2 line 4 at 44 | 300.000000 '300' | 3.000000 '3' | text 'line one\nline two'");
+  EXPECT_EQ(digest.cells[3].substr(0, 14), "3 line 6 at 70");
   EXPECT_NE(digest.cells[3].find("missing"), std::string::npos);
-  EXPECT_EQ(digest.cells[6].substr(0, 15), "6 line 13 at 12");
+  EXPECT_EQ(digest.cells[6].substr(0, 17), "6 line 12 at 113 ");
 }
 
 // Every single cut and many pairs of cuts, wherever they fall (inside quoted fields, between a
