@@ -1,20 +1,16 @@
 #include "stepledger/engine/data_pass.h"
 
-#include <algorithm>
-#include <condition_variable>
-#include <deque>
-#include <exception>
-#include <mutex>
-#include <optional>
-#include <thread>
-#include <utility>
-#include <vector>
-
 #include <fcntl.h>
 #include <sys/stat.h>
 #include <unistd.h>
 
+#include <algorithm>
 #include <charconv>
+#include <exception>
+#include <optional>
+#include <thread>
+#include <utility>
+#include <vector>
 
 #include "design_expand.h"
 #include "lapack.h"
