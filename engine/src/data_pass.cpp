@@ -1,7 +1,6 @@
 #include "stepledger/engine/data_pass.h"
 
 #include <fcntl.h>
-#include <sys/stat.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -13,6 +12,7 @@
 #include <vector>
 
 #include "design_expand.h"
+#include "file_identity.h"
 #include "lapack.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/table_scan.h"
@@ -80,14 +80,12 @@ std::optional<RereadCell> Reread(const SpillSource& source, std::uint64_t offset
       int fd;
       ~FdCloser() { ::close(fd); }
     } closer{fd};
-    struct stat status {};
-    if (::fstat(fd, &status) != 0) return std::nullopt;
-    const std::int64_t modified =
-        static_cast<std::int64_t>(status.st_mtim.tv_sec) * 1000000000 + status.st_mtim.tv_nsec;
-    if (status.st_dev != source.device || status.st_ino != source.inode ||
-        static_cast<std::uint64_t>(status.st_size) != source.size || modified != source.modified_ns) {
-      return std::nullopt;
-    }
+    FileIdentity scanned;
+    scanned.device = source.device;
+    scanned.inode = source.inode;
+    scanned.size = source.size;
+    scanned.modified_ns = source.modified_ns;
+    if (!(IdentityOf(fd, source.display_name) == scanned)) return std::nullopt;
     CsvOptions csv;
     csv.delimiter = source.delimiter;
     csv.block_bytes = 1 << 16;

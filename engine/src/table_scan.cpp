@@ -1,7 +1,6 @@
 #include "stepledger/engine/table_scan.h"
 
 #include <fcntl.h>
-#include <sys/stat.h>
 #include <unistd.h>
 
 #include <algorithm>
@@ -14,6 +13,7 @@
 #include <thread>
 #include <unordered_map>
 
+#include "file_identity.h"
 #include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
@@ -64,32 +64,6 @@ struct RangeScan {
   std::vector<SpillChunkEntry> chunks;
   std::exception_ptr error;
 };
-
-struct FileIdentity {
-  dev_t device = 0;
-  ino_t inode = 0;
-  std::uint64_t size = 0;
-  std::int64_t modified_ns = 0;
-  bool regular = false;
-  bool operator==(const FileIdentity& other) const {
-    return device == other.device && inode == other.inode && size == other.size &&
-           modified_ns == other.modified_ns;
-  }
-};
-
-FileIdentity IdentityOf(int fd, const std::string& name) {
-  struct stat status {};
-  if (::fstat(fd, &status) != 0) {
-    throw InputError("cannot read data file '" + name + "': " + std::strerror(errno));
-  }
-  FileIdentity identity;
-  identity.device = status.st_dev;
-  identity.inode = status.st_ino;
-  identity.size = static_cast<std::uint64_t>(status.st_size);
-  identity.modified_ns = static_cast<std::int64_t>(status.st_mtim.tv_sec) * 1000000000 + status.st_mtim.tv_nsec;
-  identity.regular = S_ISREG(status.st_mode);
-  return identity;
-}
 
 class Descriptor {
  public:
