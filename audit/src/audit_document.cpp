@@ -316,6 +316,13 @@ void SealAuditDocument(json& document, const Ed25519Signer* signer) {
 std::string SerializeAudit(const json& document) { return document.dump(2) + "\n"; }
 
 json ReadAuditFile(const std::filesystem::path& path) {
+  std::error_code error;
+  if (std::filesystem::is_directory(path, error)) {
+    // `select --out DIR` writes DIR/audit.json; a reviewer often passes DIR.
+    const std::filesystem::path inside = path / "audit.json";
+    throw InputError("cannot open audit file '" + path.string() + "': it is a folder" +
+                     (std::filesystem::is_regular_file(inside, error) ? "; its audit is '" + inside.string() + "'" : ""));
+  }
   const json document = ParseStrictJson(ReadWholeFile(path, "audit file"), path.string());
   if (!document.is_object() || !document.contains("format") ||
       document["format"] != std::string(kAuditFormat)) {

@@ -59,6 +59,9 @@ struct CommandContext {
   std::shared_ptr<spdlog::logger> log;
   /// Set by the chosen subcommand's parse callback; run by RunCli inside its error mapping.
   std::function<int()> action;
+  /// stderr without the escaping of err: only for the progress line, whose cursor controls are
+  /// meant for the terminal (it escapes the names it shows itself).
+  std::ostream* terminal_err = nullptr;
 };
 
 /// The common options a command can take; a command offers only those it uses.

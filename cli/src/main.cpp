@@ -4,7 +4,9 @@
 #include <vector>
 
 #include <signal.h>
+#include <unistd.h>
 
+#include "stepledger/cli/printable_text.h"
 #include "stepledger/cli/run_cli.h"
 #include "stepledger/engine/spill.h"
 
@@ -35,5 +37,11 @@ void RemoveSpillOnSignals() {
 int main(int argc, char** argv) {
   RemoveSpillOnSignals();
   std::vector<std::string> args(argv + (argc > 0 ? 1 : 0), argv + argc);
+  // On a terminal, tables and reports are escaped like the messages (printable_text.h); into a
+  // file or a pipe, stdout carries the bytes as they are (a CSV of prices keeps its fields).
+  if (::isatty(STDOUT_FILENO)) {
+    stepledger::PrintableTextStream out(std::cout);
+    return stepledger::RunCli(args, out, std::cerr);
+  }
   return stepledger::RunCli(args, std::cout, std::cerr);
 }

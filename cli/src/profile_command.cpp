@@ -61,26 +61,10 @@ std::optional<std::string> MissingTokenHint(const DataProfile& profile, const Co
          "\"NA\", " + nlohmann::json(cell.text).dump() + "]) so that the column is read as numeric";
 }
 
-// A header read as one column whose name holds another likely separator: the file is most
-// likely not separated by the delimiter in use.
-std::optional<std::string> DelimiterHint(const DataProfile& profile, const CommonOptions& common) {
-  if (profile.columns.size() != 1) return std::nullopt;
-  const std::string& name = profile.columns.front().name;
-  const char in_use = MakeCsvOptions(common).delimiter;
-  for (const char separator : {';', '\t', '|'}) {
-    if (separator == in_use || name.find(separator) == std::string::npos) continue;
-    const std::string option =
-        separator == '\t' ? std::string("--delimiter tab") : std::string("--delimiter '") + separator + "'";
-    return "the header was read as a single column '" + QuoteForMessage(name) +
-           "'; if the fields are separated by " +
-           (separator == '\t' ? std::string("tabs") : "'" + std::string(1, separator) + "'") + ", add " + option;
-  }
-  return std::nullopt;
-}
-
 StarterPlan MakeStarterPlan(const DataProfile& profile, const ProfileArgs& args, const CommonOptions& common) {
   StarterPlan starter;
-  const std::optional<std::string> delimiter_hint = DelimiterHint(profile, common);
+  const std::optional<std::string> delimiter_hint =
+      SeparatorHint(profile.columns.size(), profile.columns.empty() ? "" : profile.columns.front().name);
   for (const ColumnProfile& column : profile.columns) {
     if (auto hint = MissingTokenHint(profile, column)) starter.notes.push_back(*hint);
   }

@@ -4,6 +4,7 @@
 
 #include <string>
 
+#include "stepledger/cli/printable_text.h"
 #include "stepledger/engine/number_format.h"
 
 namespace stepledger::cli {
@@ -20,7 +21,7 @@ void ProgressPrinter::OnCandidate(const CandidateScore& /*candidate*/) {
 
 void ProgressPrinter::OnDecision(const DecisionEvent& event) {
   ++steps_;
-  last_move_ = std::string(event.action == MoveAction::kAdd ? "add " : "remove ") + event.term;
+  last_move_ = std::string(event.action == MoveAction::kAdd ? "add " : "remove ") + PrintableText(event.term);
   Show(false);
 }
 

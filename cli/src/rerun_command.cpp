@@ -54,7 +54,7 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   overrides.work_dir = context.common.work_dir;
   if (context.log) context.log->info("running the plan of {} on {}", args.audit, args.data);
   const std::unique_ptr<ProgressPrinter> progress =
-      MakeProgressPrinter(context.err, context.common.quiet, "rerun");
+      MakeProgressPrinter(*context.terminal_err, context.common.quiet, "rerun");
   const RunResult run = ReplayRecordedPlan(parent, args.data, args.audit, overrides, progress.get());
 
   const nlohmann::json unsealed = BuildAuditDocument(run);

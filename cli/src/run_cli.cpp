@@ -2,6 +2,7 @@
 // every outcome to the exit statuses of CONTRACT.md.
 
 #include "stepledger/cli/run_cli.h"
+#include "stepledger/cli/printable_text.h"
 
 #include <sched.h>
 
@@ -208,9 +209,12 @@ std::shared_ptr<spdlog::logger> MakeLogger(std::ostream& err, const CommonOption
 }  // namespace
 }  // namespace cli
 
-int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream& err) {
+int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream& raw_err) {
   using cli::CommandContext;
-  CommandContext context{out, err, {}, nullptr, {}};
+  // Messages quote file names, column names, levels and JSON values: escape what a terminal
+  // would act on (printable_text.h).
+  PrintableTextStream err(raw_err);
+  CommandContext context{out, err, {}, nullptr, {}, &raw_err};
 
   CLI::App app{
       "stepledger chooses the terms of a linear pricing or valuation model and records every "
@@ -234,6 +238,21 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
   cli::AddPredictCommand(app, context);
   cli::AddDemoCommand(app, context);
 
+  // A first word that is no command would otherwise be reported as "a subcommand is required".
+  if (args.empty()) {
+    err << "stepledger: no command given (see 'stepledger --help')\n";
+    return static_cast<int>(ExitStatus::kBadInput);
+  }
+  const std::vector<CLI::App*> commands_known = app.get_subcommands([](CLI::App*) { return true; });
+  const bool first_is_command = !args.empty() && std::any_of(commands_known.begin(), commands_known.end(),
+                                                              [&](CLI::App* command) { return command->check_name(args[0]); });
+  if (!args.empty() && !args[0].empty() && args[0][0] != '-' && !first_is_command) {
+    std::string commands;
+    for (const CLI::App* command : commands_known) commands += (commands.empty() ? "" : ", ") + command->get_name();
+    err << "stepledger: '" << cli::OneLineText(args[0]) << "' is not a command; the commands are " << commands
+        << " (see 'stepledger --help')\n";
+    return static_cast<int>(ExitStatus::kBadInput);
+  }
   // CLI11 takes the arguments in reverse order.
   std::vector<std::string> reversed(args.rbegin(), args.rend());
   try {

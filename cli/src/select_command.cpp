@@ -87,7 +87,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   run_options.fit.max_refinement_passes = args.refinement_passes;
   run_options.diagnostics = !args.out_dir.empty();  // the audit's extrapolation caution needs it
   const std::unique_ptr<ProgressPrinter> progress =
-      MakeProgressPrinter(context.err, context.common.quiet, "select");
+      MakeProgressPrinter(*context.terminal_err, context.common.quiet, "select");
   log.info("running the plan on {}", args.data);
   const RunResult run = RunPlan(args.data, loaded, run_options, progress.get());
   log.info("search: {} ({} steps)", ToString(run.search.outcome), run.search.steps.size());

@@ -450,6 +450,16 @@ void CsvReader::ReadHeader() {
   if (fields.size() == 1 && !fields[0].quoted && fields[0].text.empty()) {
     Fail(1, 1, "the header line is empty; expected a row of column names");
   }
+  // Lines ended by a carriage return alone make the whole file one line, whose fields would be
+  // reported later as duplicate or missing columns: say what is wrong instead.
+  for (const CsvField& field : fields) {
+    const std::size_t carriage_return = field.quoted ? std::string_view::npos : field.text.find('\r');
+    if (carriage_return != std::string_view::npos) {
+      Fail(field.line, field.column + carriage_return,
+           "the header holds a carriage return that is not followed by a line feed: lines must end in "
+           "LF or CR LF (a file whose lines end in CR alone needs converting first)");
+    }
+  }
   header_.reserve(fields.size());
   for (std::size_t index = 0; index < fields.size(); ++index) {
     const CsvField& field = fields[index];
@@ -540,6 +550,22 @@ bool CsvReader::Next(CsvRecord& record) {
 
 std::string CsvReader::Where(const CsvField& field) const {
   return FormatLocation(display_name_, field.line, field.column);
+}
+
+}  // namespace stepledger
+
+namespace stepledger {
+
+std::optional<std::string> SeparatorHint(std::size_t column_count, std::string_view first_name) {
+  if (column_count != 1) return std::nullopt;
+  for (const char separator : {'\t', ';', '|'}) {
+    if (first_name.find(separator) == std::string_view::npos) continue;
+    const bool tab = separator == '\t';
+    return "the header was read as a single column '" + QuoteForMessage(first_name) +
+           "'; if the fields are separated by " + (tab ? std::string("tabs") : "'" + std::string(1, separator) + "'") +
+           ", add " + (tab ? std::string("--delimiter tab") : "--delimiter '" + std::string(1, separator) + "'");
+  }
+  return std::nullopt;
 }
 
 }  // namespace stepledger

@@ -10,6 +10,7 @@
 #include <utility>
 
 #include "design_quote.h"
+#include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger {
@@ -107,8 +108,10 @@ const ColumnProfile& RequireColumn(const DataProfile& profile, const std::string
                                    const std::string& key) {
   const ColumnProfile* column = profile.Find(name);
   if (column == nullptr) {
-    throw PlanError(key, "no column named " + Quote(name) + " in " +
-                             QuotePath(profile.path) + CloseNames(name, profile));
+    const std::optional<std::string> separator_hint =
+        SeparatorHint(profile.columns.size(), profile.columns.empty() ? "" : profile.columns.front().name);
+    throw PlanError(key, "no column named " + Quote(name) + " in " + QuotePath(profile.path) +
+                             (separator_hint ? "; " + *separator_hint : CloseNames(name, profile)));
   }
   return *column;
 }

@@ -112,9 +112,11 @@ PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const CsvRe
     cell_term_[c] = design.terms[t].name;
     const std::ptrdiff_t header_index = reader.ColumnIndex(cells[c].column_name);
     if (header_index < 0) {
+      const std::optional<std::string> separator_hint =
+          SeparatorHint(reader.header().size(), reader.header().empty() ? "" : reader.header().front());
       throw InputError(reader.path().string() + ": no column " + Quote(cells[c].column_name) +
-                       " in the header; term " + Quote(design.terms[t].name) +
-                       " of the model needs it");
+                       " in the header; term " + Quote(design.terms[t].name) + " of the model needs it" +
+                       (separator_hint ? "; " + *separator_hint : std::string()));
     }
     cell_header_[c] = header_index;
   }

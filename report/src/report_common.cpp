@@ -126,6 +126,13 @@ std::string Text(const json& value) {
 }
 
 std::optional<std::int64_t> Count(const json& value) {
+  // An unsigned value beyond int64 (a hostile audit's 2^64 - 1) is no count we can show: it
+  // must not wrap to a negative one.
+  if (value.is_number_unsigned()) {
+    const auto count = value.get<std::uint64_t>();
+    if (count > static_cast<std::uint64_t>(std::numeric_limits<std::int64_t>::max())) return std::nullopt;
+    return static_cast<std::int64_t>(count);
+  }
   if (value.is_number_integer()) return value.get<std::int64_t>();
   const std::optional<double> number = Number(value);
   if (!number || std::floor(*number) != *number || std::abs(*number) > 9e15) return std::nullopt;

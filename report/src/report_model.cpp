@@ -268,7 +268,7 @@ void Flatten(const json& value, const std::string& path, ReportTable& table) {
       Flatten(value[index], path + "[" + std::to_string(index) + "]", table);
     }
   } else if (value.is_number_integer()) {
-    table.rows.push_back({V::Text(path), V::Count(value.get<std::int64_t>())});
+    table.rows.push_back({V::Text(path), V::Count(Count(value))});
   } else if (value.is_number()) {
     table.rows.push_back({V::Text(path), V::Quantity(Number(value), kCriterionDigits)});
   } else if (value.is_array()) {

@@ -79,7 +79,17 @@ std::string Content(const json& spec) {
     if (piece.contains("text")) one = piece["text"].get<std::string>();
     else if (piece.contains("hex")) one = FromHex(piece["hex"].get<std::string>());
     else if (piece.contains("json")) one = piece["json"].dump();
-    else if (piece.contains("source")) one = ReadWhole(testing::SourceDir() / piece["source"].get<std::string>());
+    else if (piece.contains("source")) {
+      one = ReadWhole(testing::SourceDir() / piece["source"].get<std::string>());
+      if (piece.contains("lines")) {  // only the first lines of the file
+        std::size_t end = 0;
+        for (std::size_t line = 0; line < piece["lines"].get<std::size_t>() && end != std::string::npos; ++line) {
+          end = one.find('\n', end);
+          if (end != std::string::npos) ++end;
+        }
+        if (end != std::string::npos) one.resize(end);
+      }
+    }
     else throw std::runtime_error("a piece needs text, hex, json or source");
     const std::size_t times = piece.value("times", std::size_t{1});
     text.reserve(text.size() + one.size() * times);
@@ -109,8 +119,9 @@ struct Outcome {
   std::string out, err;
 };
 
-// Runs the executable with args in folder, stdin from stdin_path (or /dev/null), optional limits.
-Outcome RunChild(const std::vector<std::string>& args, const fs::path& folder, const fs::path& stdin_path,
+// Runs the executable with args in folder, with the limits of spec, capturing both streams.
+// stdin_text, when given, arrives through a pipe (so /dev/stdin is a pipe, as in `cat x | stepledger`).
+Outcome RunChild(const std::vector<std::string>& args, const fs::path& folder, const std::string* stdin_text,
                  const fs::path& out_path, const fs::path& err_path, const json& spec) {
   const long file_size_limit_kb = spec.value("file_size_limit_kb", 0L);
   const long address_space_mb = spec.value("address_space_mb", 0L);
@@ -128,11 +139,14 @@ Outcome RunChild(const std::vector<std::string>& args, const fs::path& folder, c
     nobody_gid = nobody->pw_gid;
   }
 
+  int pipe_ends[2] = {-1, -1};
+  if (stdin_text && pipe(pipe_ends) != 0) throw std::runtime_error("pipe failed");
   const pid_t child = fork();
   if (child == 0) {
     setpgid(0, 0);
     if (chdir(folder.c_str()) != 0) _exit(120);
-    const int in = open(stdin_path.c_str(), O_RDONLY);
+    if (stdin_text) close(pipe_ends[1]);
+    const int in = stdin_text ? pipe_ends[0] : open("/dev/null", O_RDONLY);
     const int out = open(out_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0666);
     const int err = open(err_path.c_str(), O_WRONLY | O_CREAT | O_TRUNC, 0666);
     if (in < 0 || out < 0 || err < 0) _exit(121);
@@ -154,6 +168,20 @@ Outcome RunChild(const std::vector<std::string>& args, const fs::path& folder, c
     execv(argv[0], argv.data());
     _exit(123);
   }
+  std::thread feeder;
+  if (stdin_text) {
+    close(pipe_ends[0]);
+    feeder = std::thread([write_end = pipe_ends[1], stdin_text] {
+      signal(SIGPIPE, SIG_IGN);  // the program may stop reading early
+      std::size_t done = 0;
+      while (done < stdin_text->size()) {
+        const ssize_t wrote = write(write_end, stdin_text->data() + done, stdin_text->size() - done);
+        if (wrote <= 0) break;
+        done += static_cast<std::size_t>(wrote);
+      }
+      close(write_end);
+    });
+  }
   Outcome outcome;
   const auto deadline = std::chrono::steady_clock::now() + std::chrono::duration<double>(timeout_seconds);
   int wait_status = 0;
@@ -168,6 +196,7 @@ Outcome RunChild(const std::vector<std::string>& args, const fs::path& folder, c
     }
     std::this_thread::sleep_for(std::chrono::milliseconds(10));
   }
+  if (feeder.joinable()) feeder.join();
   if (WIFEXITED(wait_status)) outcome.status = WEXITSTATUS(wait_status);
   if (WIFSIGNALED(wait_status)) outcome.signal = WTERMSIG(wait_status);
   outcome.out = ReadWhole(out_path);
@@ -213,26 +242,23 @@ TEST_P(BadInputCorpus, EndsWithTheStatedExitAndMessageAndLeavesFilesAlone) {
   const fs::path folder = scratch.path() / "work";
   fs::create_directories(folder);
   for (const auto& name : spec.value("folders", json::array())) fs::create_directories(folder / name.get<std::string>());
-  for (const auto& [name, content] : spec.value("files", json::object()).items()) {
+  const json files = spec.value("files", json::object());
+  const json copies = spec.value("copy", json::object());
+  for (const auto& [name, content] : files.items()) {
     fs::create_directories((folder / name).parent_path());
     std::ofstream(folder / name, std::ios::binary) << Content(content);
   }
-  for (const auto& [name, source] : spec.value("copy", json::object()).items()) {
+  for (const auto& [name, source] : copies.items()) {
     fs::create_directories((folder / name).parent_path());
     fs::copy_file(testing::SourceDir() / source.get<std::string>(), folder / name, fs::copy_options::overwrite_existing);
   }
-  const fs::path stdin_path = scratch.path() / "stdin";
-  std::ofstream(stdin_path, std::ios::binary) << (spec.contains("stdin") ? Content(spec["stdin"]) : std::string());
+  const std::string stdin_text = spec.contains("stdin") ? Content(spec["stdin"]) : std::string();
   const fs::path out_path = scratch.path() / "stdout";
   const fs::path err_path = scratch.path() / "stderr";
   // Earlier successful runs, e.g. the audit a failed --force must leave as it was.
   for (const auto& before : spec.value("before", json::array())) {
-    const Outcome setup = RunChild(before.get<std::vector<std::string>>(), folder, "/dev/null", out_path, err_path, json::object());
+    const Outcome setup = RunChild(before.get<std::vector<std::string>>(), folder, nullptr, out_path, err_path, json::object());
     ASSERT_EQ(setup.status, 0) << "set-up run failed: " << before.dump() << "\n" << setup.err;
-  }
-  for (const auto& name : spec.value("read_only", json::array())) {
-    fs::permissions(folder / name.get<std::string>(), fs::perms::owner_write | fs::perms::group_write | fs::perms::others_write,
-                    fs::perm_options::remove);
   }
   if (spec.value("run_as_nobody", false)) {
     // The unprivileged user must reach the folder and read its inputs.
@@ -242,11 +268,18 @@ TEST_P(BadInputCorpus, EndsWithTheStatedExitAndMessageAndLeavesFilesAlone) {
                       fs::perm_options::add);
     }
     fs::permissions(folder, fs::perms::others_exec | fs::perms::others_read, fs::perm_options::add);
-    fs::permissions(stdin_path, fs::perms::others_read, fs::perm_options::add);
+  }
+  for (const auto& name : spec.value("read_only", json::array())) {
+    fs::permissions(folder / name.get<std::string>(), fs::perms::owner_write | fs::perms::group_write | fs::perms::others_write,
+                    fs::perm_options::remove);
+  }
+  for (const auto& name : spec.value("unreadable", json::array())) {
+    fs::permissions(folder / name.get<std::string>(), fs::perms::none, fs::perm_options::replace);
   }
   const auto before = Snapshot(folder);
 
-  const Outcome outcome = RunChild(spec["args"].get<std::vector<std::string>>(), folder, stdin_path, out_path, err_path, spec);
+  const Outcome outcome = RunChild(spec["args"].get<std::vector<std::string>>(), folder, spec.contains("stdin") ? &stdin_text : nullptr,
+                                   out_path, err_path, spec);
   const std::string shown = "\n--- case " + GetParam() + ": " + spec["about"].get<std::string>() + "\n--- stderr:\n" +
                             outcome.err.substr(0, 4000) + "\n--- stdout:\n" + outcome.out.substr(0, 2000);
 
@@ -270,7 +303,7 @@ TEST_P(BadInputCorpus, EndsWithTheStatedExitAndMessageAndLeavesFilesAlone) {
   }
   EXPECT_EQ(PrintableProblem(outcome.err), "") << "stderr is not printable text" << shown;
 
-  if (spec.value("run_as_nobody", false) || !spec.value("read_only", json::array()).empty()) {
+  if (spec.value("run_as_nobody", false) || spec.contains("read_only") || spec.contains("unreadable")) {
     for (const auto& entry : fs::recursive_directory_iterator(folder)) {
       fs::permissions(entry.path(), fs::perms::owner_all, fs::perm_options::add);
     }
@@ -302,7 +335,7 @@ INSTANTIATE_TEST_SUITE_P(Corpus, BadInputCorpus, ::testing::ValuesIn(CaseNames()
 TEST(BadInputCorpusFormat, EveryCaseFileIsAValidCase) {
   // A case with a misspelt key would silently check less: only the documented keys are allowed.
   const std::vector<std::string> keys = {"about", "args", "exit", "files", "copy", "folders", "stdin", "before",
-                                         "read_only", "run_as_nobody", "file_size_limit_kb", "address_space_mb",
+                                         "read_only", "unreadable", "run_as_nobody", "file_size_limit_kb", "address_space_mb",
                                          "timeout_seconds", "stderr", "stderr_lacks", "stdout", "stderr_lines",
                                          "may_write", "item"};
   const auto names = CaseNames();

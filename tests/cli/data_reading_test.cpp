@@ -3,6 +3,7 @@
 // spill in --work-dir is gone after a run, after an error, after SIGTERM, and a full working
 // folder is a clear error that leaves no output behind.
 
+#include <fcntl.h>
 #include <signal.h>
 #include <sys/stat.h>
 #include <sys/wait.h>
@@ -193,6 +194,63 @@ TEST(DataReadingTest, SigtermRemovesTheSpill) {
   ASSERT_EQ(::waitpid(child, &status, 0), child);
   EXPECT_TRUE(WIFSIGNALED(status) && WTERMSIG(status) == SIGTERM) << "status " << status;
   EXPECT_TRUE(EmptyFolder(work)) << "the spill outlived SIGTERM";
+}
+
+// The data file is changed while `select` runs — appended to in place, or replaced by another
+// file renamed over its name — once its spill exists. Whatever the moment, the result is never a
+// mix: either exit 2 naming the change, or the audit of the original file (its fingerprint and
+// its model, as a run on an untouched copy gives), because later passes read the spill only.
+TEST(DataReadingTest, AFileChangedOrReplacedDuringTheRunNeverGivesAMixedAudit) {
+  TempDir dir;
+  const std::string original = Listings(120000, 21);
+  const auto pristine = dir.Write("pristine.csv", original);
+  const auto plan = dir.Write("plan.json", kPlan);
+  const nlohmann::json expected = SelectAudit({"--threads", "1"}, pristine, plan, dir.path() / "expected");
+  const auto other = dir.Write("other.csv", Listings(120000, 22));
+  for (const bool replace : {false, true}) {
+    const auto data = dir.Write("listings.csv", original);
+    const auto work = dir.path() / (replace ? "work_replace" : "work_append");
+    const auto out_dir = dir.path() / (replace ? "out_replace" : "out_append");
+    std::filesystem::create_directory(work);
+    const pid_t child = ::fork();
+    ASSERT_GE(child, 0);
+    if (child == 0) {
+      const int devnull = ::open("/dev/null", O_WRONLY);
+      ::dup2(devnull, 1);
+      const std::string binary = StepledgerBinary().string();
+      ::execl(binary.c_str(), binary.c_str(), "select", data.c_str(), "--plan", plan.c_str(), "--quiet", "--threads",
+              "1", "--work-dir", work.c_str(), "--out", out_dir.c_str(), static_cast<char*>(nullptr));
+      ::_exit(127);
+    }
+    bool seen = false;
+    for (int wait = 0; wait < 20000 && !seen; ++wait) {
+      std::this_thread::sleep_for(std::chrono::microseconds(200));
+      std::error_code error;
+      seen = !std::filesystem::is_empty(work, error) && !error;
+    }
+    if (replace) {
+      std::filesystem::copy_file(other, dir.path() / "incoming.csv", std::filesystem::copy_options::overwrite_existing);
+      std::filesystem::rename(dir.path() / "incoming.csv", data);
+    } else {
+      std::ofstream(data, std::ios::app) << "999,1,8,A,0.5,0.5,late\n";
+    }
+    int status = 0;
+    ASSERT_EQ(::waitpid(child, &status, 0), child);
+    ASSERT_TRUE(WIFEXITED(status)) << "status " << status;
+    const int code = WEXITSTATUS(status);
+    EXPECT_TRUE(code == 0 || code == 2) << "exit " << code;
+    EXPECT_TRUE(EmptyFolder(work));
+    if (code == 2) {
+      EXPECT_FALSE(std::filesystem::exists(out_dir)) << "a refused run wrote output";
+      continue;
+    }
+    std::ifstream in(out_dir / "audit.json");
+    const nlohmann::json audit = nlohmann::json::parse(in);
+    EXPECT_EQ(audit["data"]["sha256"], expected["data"]["sha256"]) << (replace ? "replaced" : "appended");
+    EXPECT_EQ(audit["data"]["rows_read"], expected["data"]["rows_read"]);
+    EXPECT_EQ(audit["model"]["terms"], expected["model"]["terms"]);
+    EXPECT_EQ(audit["model"]["coefficients"], expected["model"]["coefficients"]);
+  }
 }
 
 // A working folder that runs out of room (a file size limit stands in for a full disk: writes

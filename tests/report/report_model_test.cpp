@@ -10,6 +10,7 @@
 #include <algorithm>
 #include <cmath>
 #include <sstream>
+#include <limits>
 #include <string>
 
 #include "stepledger/engine/number_format.h"
@@ -207,6 +208,25 @@ TEST_F(ReportModelTest, WeightsAndLogResponseAreStatedWithTheModel) {
   ASSERT_NE(statement, nullptr);
   EXPECT_EQ(statement->value.text.rfind("log(price) explained by ", 0), 0u) << statement->value.text;
   EXPECT_NE(statement->value.text.find(", weighted by units"), std::string::npos) << statement->value.text;
+}
+
+// A count beyond int64 (a hostile audit's 2^64 - 1) must not wrap to a negative count: it is
+// shown as not available. Negative counts are no counts either.
+TEST_F(ReportModelTest, CountsBeyondInt64AreNotShownAsNegative) {
+  json audit = stepwise_->audit;
+  audit["data"]["rows_used"] = std::numeric_limits<std::uint64_t>::max();
+  audit["data"]["rows_read"] = std::uint64_t{1} << 63;
+  audit["model"]["n"] = std::numeric_limits<std::uint64_t>::max();
+  const ReportModel model = BuildReportModel(audit, nullptr);
+  const std::string text = RenderTextReport(model);
+  EXPECT_EQ(text.find("-9,223"), std::string::npos) << text;
+  EXPECT_EQ(text.find("used -"), std::string::npos) << text;
+  const ReportFact* used = FindFact(model, "data", "Rows used");
+  ASSERT_NE(used, nullptr);
+  EXPECT_EQ(used->value.text, "n/a");
+  const ReportFact* read = FindFact(model, "data", "Rows read");
+  ASSERT_NE(read, nullptr);
+  EXPECT_EQ(read->value.text, "n/a");
 }
 
 TEST_F(ReportModelTest, RegressionSumOfSquaresReadsTheNewKeyAndFallsBackToTheOld) {

@@ -8,6 +8,7 @@
 #include <filesystem>
 #include <fstream>
 #include <functional>
+#include <optional>
 #include <string>
 #include <string_view>
 #include <vector>
@@ -176,5 +177,11 @@ class CsvReader {
   std::string header_bytes_;             // raw bytes read before an observer was set
   std::function<void(std::string_view)> observer_;
 };
+
+/// When a header was read as a single column whose name holds a tab, ';' or '|', the file is most
+/// likely separated by that character rather than the delimiter in use: the hint to add to a
+/// message ("the header was read as a single column '...'; if the fields are separated by tabs,
+/// add --delimiter tab"). nullopt otherwise.
+std::optional<std::string> SeparatorHint(std::size_t column_count, std::string_view first_name);
 
 }  // namespace stepledger
