@@ -26,10 +26,16 @@ const char* FindByte(const char* begin, const char* end, char byte) {
   return static_cast<const char*>(std::memchr(begin, byte, static_cast<std::size_t>(end - begin)));
 }
 
-// The unquoted field that contains position: from begin to the next delimiter or LF.
-std::string_view FieldAround(const char* begin, const char* end, char delimiter) {
+// Where the unquoted text from begin ends: at the next delimiter or LF, or at end.
+const char* FieldStop(const char* begin, const char* end, char delimiter) {
   const char* stop = begin;
   while (stop < end && *stop != delimiter && *stop != '\n') ++stop;
+  return stop;
+}
+
+// The unquoted field that contains position: from begin to the next delimiter or LF.
+std::string_view FieldAround(const char* begin, const char* end, char delimiter) {
+  const char* stop = FieldStop(begin, end, delimiter);
   if (stop > begin && stop[-1] == '\r') --stop;
   return {begin, static_cast<std::size_t>(stop - begin)};
 }
@@ -360,6 +366,9 @@ bool CsvReader::TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& sta
         case FieldScan::kFound: break;
         case FieldScan::kNeedMoreInput: return false;
         case FieldScan::kBroken:
+          // The message quotes the field to its end: read on until that end is in the buffer,
+          // so that the message does not depend on where a block happened to end.
+          if (FieldStop(position, end, delimiter) == end && !eof_) return false;
           Fail(lines.line, ColumnAt(position, lines.line_start),
                "unexpected text after the closing quote of field " +
                    Quoted(std::string_view(opening, static_cast<std::size_t>(
@@ -381,6 +390,7 @@ bool CsvReader::TryParseQuoted(std::vector<CsvField>& fields, std::uint64_t& sta
         case FieldScan::kFound: break;
         case FieldScan::kNeedMoreInput: return false;
         case FieldScan::kBroken:
+          if (FieldStop(position, end, delimiter) == end && !eof_) return false;  // as above
           Fail(lines.line, ColumnAt(after_field, lines.line_start),
                "quote character inside unquoted field " + Quoted(FieldAround(position, end, delimiter)) +
                    "; quote the whole field and double each quote inside it");

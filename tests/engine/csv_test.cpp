@@ -382,9 +382,15 @@ TEST_F(CsvReaderTest, AnyBlockSizeGivesTheSameRecords) {
   }
 }
 
+// The messages quote the offending field to its end, however little of it the buffer held when
+// the broken quote was seen (found by fuzz/csv_reader_fuzz.cpp: text after a closing quote was
+// quoted only up to the end of the block; fuzz/regressions/csv_reader/).
 TEST_F(CsvReaderTest, AnyBlockSizeGivesTheSameErrors) {
   const auto unterminated = folder_.Write("late-unterminated.csv", "a,b\r\n1,2\r\n\"x\r\n,3\r\n");
   const auto stray = folder_.Write("late-stray.csv", "a,b\n\"1\n\",2\n3,4\"\n");
+  // A line end inside quotes lets the reader parse the record before its last line is read.
+  const auto after_closing = folder_.Write("late-after-closing.csv", "a,b\n1,2\n3,\"4\n\"5678\r9,\n");
+  const auto inside = folder_.Write("late-inside.csv", "a,b\n1,2\n\"x\ny\",4\"5678\r9\r\n");
   for (std::size_t block_bytes : {1, 2, 3, 4, 5, 7, 11, 64, 1 << 20}) {
     CsvOptions options;
     options.block_bytes = block_bytes;
@@ -395,6 +401,16 @@ TEST_F(CsvReaderTest, AnyBlockSizeGivesTheSameErrors) {
     EXPECT_EQ(ErrorReadingAll(stray, options),
               stray.string() +
                   ":4:4: quote character inside unquoted field '4\"'; quote the whole field and "
+                  "double each quote inside it")
+        << "block_bytes " << block_bytes;
+    EXPECT_EQ(ErrorReadingAll(after_closing, options),
+              after_closing.string() +
+                  ":4:2: unexpected text after the closing quote of field '\"4\\n\"5678\\r9'; a quoted "
+                  "field ends at its closing quote")
+        << "block_bytes " << block_bytes;
+    EXPECT_EQ(ErrorReadingAll(inside, options),
+              inside.string() +
+                  ":4:5: quote character inside unquoted field '4\"5678\\r9'; quote the whole field and "
                   "double each quote inside it")
         << "block_bytes " << block_bytes;
   }

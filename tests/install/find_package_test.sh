@@ -13,13 +13,23 @@ work="$(mktemp -d)"
 trap 'rm -rf "$work"' EXIT
 cmake --install "$build_dir" --prefix "$work/prefix" >/dev/null
 
+# The consumers are built as the libraries were: same compiler and, for a sanitizer build
+# (scripts/sanitize.sh, STEPLEDGER_SANITIZE), the same sanitizers, whose runtime every program
+# that links instrumented libraries needs.
+cache_value() { sed -n "s/^$1:[A-Z]*=//p" "$build_dir/CMakeCache.txt"; }
+consumer_flags=(-DCMAKE_CXX_COMPILER="$(cache_value CMAKE_CXX_COMPILER)" -DCMAKE_BUILD_TYPE=Release)
+if [[ "$(cache_value STEPLEDGER_SANITIZE)" == ON ]]; then
+  consumer_flags+=(-DCMAKE_CXX_FLAGS="-fsanitize=address,undefined -fno-sanitize-recover=undefined -fno-omit-frame-pointer"
+                   -DCMAKE_EXE_LINKER_FLAGS="-fsanitize=address,undefined")
+fi
+
 cmake -S "$source_dir/consumer" -B "$work/build" -DCMAKE_PREFIX_PATH="$work/prefix" \
-  -DCMAKE_BUILD_TYPE=Release >/dev/null
+  "${consumer_flags[@]}" >/dev/null
 cmake --build "$work/build" >/dev/null
 "$work/build/consumer"
 
 cmake -S "$repo_dir/examples/api" -B "$work/build-api" -DCMAKE_PREFIX_PATH="$work/prefix" \
-  -DCMAKE_BUILD_TYPE=Release >/dev/null
+  "${consumer_flags[@]}" >/dev/null
 cmake --build "$work/build-api" >/dev/null
 output="$(OPENBLAS_NUM_THREADS=1 "$work/build-api/select_with_library" \
   "$repo_dir/examples/data/laptops.csv" "$repo_dir/examples/plans/stepwise_bic.json")"
