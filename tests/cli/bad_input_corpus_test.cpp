@@ -213,11 +213,14 @@ TEST_P(BadInputCorpus, EndsWithTheStatedExitAndMessageAndLeavesFilesAlone) {
   const fs::path folder = scratch.path() / "work";
   fs::create_directories(folder);
   for (const auto& name : spec.value("folders", json::array())) fs::create_directories(folder / name.get<std::string>());
-  for (const auto& [name, content] : spec.value("files", json::object()).items()) {
+  // Named copies: items() of a temporary would dangle.
+  const json files = spec.value("files", json::object());
+  const json copies = spec.value("copy", json::object());
+  for (const auto& [name, content] : files.items()) {
     fs::create_directories((folder / name).parent_path());
     std::ofstream(folder / name, std::ios::binary) << Content(content);
   }
-  for (const auto& [name, source] : spec.value("copy", json::object()).items()) {
+  for (const auto& [name, source] : copies.items()) {
     fs::create_directories((folder / name).parent_path());
     fs::copy_file(testing::SourceDir() / source.get<std::string>(), folder / name, fs::copy_options::overwrite_existing);
   }
