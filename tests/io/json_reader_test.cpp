@@ -1,6 +1,7 @@
 // The one strict JSON reader (io/json_reader.h). Expected messages are the reader's contract.
 #include "stepledger/io/json_reader.h"
 
+#include <chrono>
 #include <string>
 
 #include <gtest/gtest.h>
@@ -78,6 +79,12 @@ TEST(StrictJson, DeepNestingIsRefusedWithAClearMessage) {
   const std::string deep_object = "{\"a\":\n" + std::string(70, '[') + std::string(70, ']') + "}";
   EXPECT_NE(MessageOf(deep_object).find("doc.json:2:64: nested deeper"), std::string::npos) << MessageOf(deep_object);
   EXPECT_NE(MessageOf(deep_object).find("(at a[0]"), std::string::npos) << MessageOf(deep_object);
+  // The index named is the element's own: the third element of the outer array.
+  const std::string third = "[1, 2, " + std::string(70, '[') + std::string(70, ']') + "]";
+  EXPECT_NE(MessageOf(third).find("(at [2][0][0]"), std::string::npos) << MessageOf(third);
+  // Keys of an object inside an array element name that element.
+  EXPECT_NE(MessageOf(R"([{}, {"x": 1, "x": 2}])").find("key '[1].x'"), std::string::npos)
+      << MessageOf(R"([{}, {"x": 1, "x": 2}])");
   // Exactly at the limit is accepted.
   EXPECT_EQ(MessageOf(std::string(64, '[') + std::string(64, ']')), "");
   EXPECT_NE(MessageOf(std::string(65, '[') + std::string(65, ']')), "");
@@ -110,6 +117,25 @@ TEST(StrictJson, APlanNestedDeeplyIsAPlanError) {
   } catch (const PlanError& error) {
     EXPECT_EQ(std::string(error.what()), "plan: plan.json:1:46: number 1e400 is beyond the range of a double (about 1.8e308)");
   }
+}
+
+// The parser builds the document from SAX events; nlohmann's callback parser scanned the whole
+// enclosing container after every object, so 400,000 objects in an array took 100 s (n^2).
+TEST(StrictJson, ManySmallObjectsInAnArrayReadInLinearTime) {
+  std::string text = "{\"rows\": [";
+  for (int i = 0; i < 400000; ++i) text += (i > 0 ? ",{\"a\":" : "{\"a\":") + std::to_string(i) + ",\"b\":[1,2]}";
+  text += "]}";
+  const auto started = std::chrono::steady_clock::now();
+  const nlohmann::json document = ParseStrictJson(text, "doc.json");
+  const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
+  ASSERT_EQ(document["rows"].size(), 400000u);
+  EXPECT_EQ(document["rows"][399999]["a"], 399999);
+  EXPECT_EQ(document["rows"][7]["b"], nlohmann::json::array({1, 2}));
+  // Linear takes well under a second here; quadratic took 100 s (common practice: a bound far
+  // from both, so that a loaded machine does not fail it).
+  EXPECT_LT(seconds, 20.0);
+  // The same document as nlohmann's own parser gives.
+  EXPECT_EQ(document, nlohmann::json::parse(text));
 }
 
 TEST(StrictJson, ReadWholeFileNamesWhatItCannotOpen) {
