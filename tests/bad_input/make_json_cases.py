@@ -510,6 +510,14 @@ def main():
             "files": {"audit.json": '{"format": "stepledger-audit",\n  "format_version": 2,\n  "duration_seconds": 1e400}'},
             "stderr": ["audit.json:3:23: number 1e400 is beyond the range of a double"], "stderr_lines": 1},
     }
+    json_cases["audit_400000_objects_in_an_array"] = {
+        "about": "an audit whose steps are 400,000 small objects: read in linear time, then refused for what it lacks "
+                 "(nlohmann's callback parser took about 100 s: n^2 in the objects of an array)",
+        "item": "11.5 hangs", "args": ["predict", "audit.json", "rows.csv"], "exit": 2, "timeout_seconds": 30,
+        "files": {"audit.json": [{"text": '{"format": "stepledger-audit", "format_version": 2, "steps": ['},
+                                 {"text": '{"a": 1}, ', "times": 399999}, {"text": '{"a": 1}]}'}],
+                  "rows.csv": TO_PRICE},
+        "stderr": ["audit.json: key 'prediction': missing"], "stderr_lines": 1}
     for command, args in [("report", ["report", "audit.json"]), ("compare", ["compare", "audit.json", "audit.json"])]:
         case = copy_of(json_cases["audit_nested_100000_deep_verify"])
         case["about"] = case["about"].replace("verify refuses", command + " refuses")
