@@ -1,6 +1,7 @@
 #include "stepledger/audit/audit_compare.h"
 
 #include "audit_compare_internal.h"
+#include "audit_reader.h"
 
 #include <algorithm>
 #include <cmath>
@@ -36,27 +37,82 @@ namespace {
 
 using json = nlohmann::json;
 
-const json& Section(const json& audit, const char* key, const char* which) {
-  if (!audit.is_object() || !audit.contains(key)) {
-    throw InputError(std::string(which) + " audit: key '" + key + "' is missing");
+using audit_detail::AuditReader;
+
+// What the comparison reads of one audit, read once with its types checked: a wrong type is bad
+// input naming the audit and the key ("new.json: key 'model.terms': expected an array, found
+// string"), never a JSON library exception.
+struct ColumnView {
+  std::string name;
+  std::string type;
+  std::optional<double> mean, sd, min, max;
+  nlohmann::json summary;  // {min, max, mean, sd} as recorded
+};
+
+struct CoefficientView {
+  std::string name;
+  std::optional<double> estimate, se;
+};
+
+struct AuditView {
+  std::optional<std::string> seal;
+  std::optional<std::string> data_sha256;
+  std::vector<ColumnView> columns;
+  std::optional<std::int64_t> rows_used;
+  std::optional<json> normalised_plan;  // absent: not compared
+  std::vector<RouteMove> steps;
+  std::vector<std::string> terms;
+  std::vector<CoefficientView> coefficients;
+  std::optional<double> rss, weight_sum;
+};
+
+AuditView ReadForComparison(const json& audit, const AuditReader& reader) {
+  AuditView view;
+  if (!audit.is_object()) reader.Fail("", "expected the audit to be a JSON object");
+  view.seal = reader.OptionalString(audit, "", "seal");
+  const json& data = reader.Object(audit, "", "data");
+  view.data_sha256 = reader.OptionalString(data, "data", "sha256");
+  if (const auto rows = reader.OptionalCount(data, "data", "rows_used")) view.rows_used = static_cast<std::int64_t>(*rows);
+  const json& columns = reader.OptionalArray(data, "data", "columns");
+  for (std::size_t i = 0; i < columns.size(); ++i) {
+    const std::string path = AuditReader::Index("data.columns", i);
+    const json& column = reader.ObjectAt(columns, "data.columns", i);
+    ColumnView entry;
+    entry.name = reader.String(column, path, "name");
+    entry.type = reader.String(column, path, "type");
+    entry.mean = reader.OptionalNumber(column, path, "mean");
+    entry.sd = reader.OptionalNumber(column, path, "sd");
+    entry.min = reader.OptionalNumber(column, path, "min");
+    entry.max = reader.OptionalNumber(column, path, "max");
+    entry.summary = json::object();
+    for (const char* key : {"min", "max", "mean", "sd"}) {
+      const json* value = AuditReader::Find(column, key);
+      entry.summary[key] = value != nullptr ? *value : json(nullptr);
+    }
+    view.columns.push_back(std::move(entry));
   }
-  return audit[key];
-}
-
-
-
-std::optional<double> Number(const json& object, const char* key) {
-  if (!object.is_object() || !object.contains(key) || !object[key].is_number()) return std::nullopt;
-  return object[key].get<double>();
-}
-
-std::vector<std::string> Strings(const json& array) {
-  std::vector<std::string> out;
-  if (!array.is_array()) return out;
-  for (const json& item : array) {
-    if (item.is_string()) out.push_back(item.get<std::string>());
+  if (const json* plan = AuditReader::Find(audit, "plan")) {
+    if (!plan->is_object()) reader.Fail("plan", "expected an object, found " + AuditReader::TypeOf(*plan));
+    if (AuditReader::Find(*plan, "normalised") != nullptr) view.normalised_plan = reader.Object(*plan, "plan", "normalised");
   }
-  return out;
+  const json& steps = reader.OptionalArray(audit, "", "steps");
+  for (std::size_t i = 0; i < steps.size(); ++i) {
+    const std::string path = AuditReader::Index("steps", i);
+    const json& step = reader.ObjectAt(steps, "steps", i);
+    view.steps.push_back({reader.OptionalString(step, path, "action"), reader.OptionalString(step, path, "term")});
+  }
+  const json& model = reader.Object(audit, "", "model");
+  view.terms = reader.Strings(reader.OptionalArray(model, "model", "terms"), "model.terms");
+  const json& coefficients = reader.OptionalArray(model, "model", "coefficients");
+  for (std::size_t i = 0; i < coefficients.size(); ++i) {
+    const std::string path = AuditReader::Index("model.coefficients", i);
+    const json& coefficient = reader.ObjectAt(coefficients, "model.coefficients", i);
+    view.coefficients.push_back({reader.String(coefficient, path, "name"), reader.OptionalNumber(coefficient, path, "estimate"),
+                                 reader.OptionalNumber(coefficient, path, "se")});
+  }
+  view.rss = reader.OptionalNumber(model, "model", "rss");
+  view.weight_sum = reader.OptionalNumber(model, "model", "weight_sum");
+  return view;
 }
 
 bool Contains(const std::vector<std::string>& names, const std::string& name) {
@@ -69,11 +125,11 @@ bool Contains(const std::vector<std::string>& names, const std::string& name) {
 // not count: the model's ranges only matter where new rows lie outside them). Infinity when
 // the old SD is 0 or undefined and something moved, or when a value is recorded on one side
 // only.
-double ShiftInOldSd(const json& before, const json& after, double tolerance) {
-  const auto old_sd = Number(before, "sd");
-  const auto old_mean = Number(before, "mean"), new_mean = Number(after, "mean");
-  const auto old_min = Number(before, "min"), new_min = Number(after, "min");
-  const auto old_max = Number(before, "max"), new_max = Number(after, "max");
+double ShiftInOldSd(const ColumnView& before, const ColumnView& after, double tolerance) {
+  const auto& old_sd = before.sd;
+  const auto &old_mean = before.mean, &new_mean = after.mean;
+  const auto &old_min = before.min, &new_min = after.min;
+  const auto &old_max = before.max, &new_max = after.max;
   if (old_mean.has_value() != new_mean.has_value() || old_min.has_value() != new_min.has_value() ||
       old_max.has_value() != new_max.has_value()) {
     return std::numeric_limits<double>::infinity();
@@ -87,16 +143,6 @@ double ShiftInOldSd(const json& before, const json& after, double tolerance) {
   return (old_sd && *old_sd > 0) ? largest / *old_sd : std::numeric_limits<double>::infinity();
 }
 
-std::optional<std::string> StringOrEmpty(const json& object, const char* key) {
-  if (!object.is_object() || !object.contains(key) || !object[key].is_string()) return std::nullopt;
-  return object[key].get<std::string>();
-}
-
-std::optional<std::int64_t> CountOrEmpty(const json& object, const char* key) {
-  if (!object.is_object() || !object.contains(key) || !object[key].is_number_integer()) return std::nullopt;
-  return object[key].get<std::int64_t>();
-}
-
 json StringOrNull(const std::optional<std::string>& value) { return value ? json(*value) : json(nullptr); }
 
 json StringsJson(const std::vector<std::string>& names) {
@@ -105,51 +151,39 @@ json StringsJson(const std::vector<std::string>& names) {
   return array;
 }
 
-ColumnsComparisonPart ColumnsComparison(const json& old_data, const json& new_data, const CompareOptions& options) {
-  std::map<std::string, json> old_columns, new_columns;
-  std::vector<std::string> old_order, new_order;
-  for (const json& column : old_data.value("columns", json::array())) {
-    old_columns[column.value("name", "")] = column;
-    old_order.push_back(column.value("name", ""));
-  }
-  for (const json& column : new_data.value("columns", json::array())) {
-    new_columns[column.value("name", "")] = column;
-    new_order.push_back(column.value("name", ""));
-  }
+ColumnsComparisonPart ColumnsComparison(const AuditView& old_view, const AuditView& new_view, const CompareOptions& options) {
+  std::map<std::string, const ColumnView*> old_columns, new_columns;
+  for (const ColumnView& column : old_view.columns) old_columns.emplace(column.name, &column);
+  for (const ColumnView& column : new_view.columns) new_columns.emplace(column.name, &column);
   ColumnsComparisonPart columns;
   columns.moved_threshold_in_old_sd = options.column_shift_in_old_sd;
-  for (const std::string& name : new_order) {
-    if (!old_columns.count(name)) columns.added.push_back(name);
+  for (const ColumnView& column : new_view.columns) {
+    if (!old_columns.count(column.name)) columns.added.push_back(column.name);
   }
-  for (const std::string& name : old_order) {
-    if (!new_columns.count(name)) {
+  for (const ColumnView& column : old_view.columns) {
+    const std::string& name = column.name;
+    const auto found = new_columns.find(name);
+    if (found == new_columns.end()) {
       columns.lost.push_back(name);
       continue;
     }
-    const json& before = old_columns[name];
-    const json& after = new_columns[name];
-    if (before.value("type", "") != after.value("type", "")) {
-      columns.type_changed.push_back({name, before.value("type", ""), after.value("type", "")});
+    const ColumnView& before = *old_columns.at(name);
+    const ColumnView& after = *found->second;
+    if (before.type != after.type) {
+      columns.type_changed.push_back({name, before.type, after.type});
       continue;
     }
-    if (before.value("type", "") != "numeric") continue;
+    if (before.type != "numeric") continue;
     ++columns.numeric_compared;
     const double shift = ShiftInOldSd(before, after, options.relative_tolerance);
     if (shift <= options.column_shift_in_old_sd) continue;
     MovedColumn entry;
     entry.column = name;
-    const auto summary = [](const json& source) {
-      return json{{"min", source.value("min", json(nullptr))},
-                  {"max", source.value("max", json(nullptr))},
-                  {"mean", source.value("mean", json(nullptr))},
-                  {"sd", source.value("sd", json(nullptr))}};
-    };
-    entry.old_summary = summary(before);
-    entry.new_summary = summary(after);
-    const auto old_mean = Number(before, "mean");
-    const auto new_mean = Number(after, "mean");
-    const auto old_sd = Number(before, "sd");
-    if (old_mean && new_mean && old_sd && *old_sd > 0) entry.mean_shift_in_old_sd = (*new_mean - *old_mean) / *old_sd;
+    entry.old_summary = before.summary;
+    entry.new_summary = after.summary;
+    if (before.mean && after.mean && before.sd && *before.sd > 0) {
+      entry.mean_shift_in_old_sd = (*after.mean - *before.mean) / *before.sd;
+    }
     if (std::isfinite(shift)) entry.shift_in_old_sd = shift;
     columns.moved.push_back(std::move(entry));
   }
@@ -158,43 +192,30 @@ ColumnsComparisonPart ColumnsComparison(const json& old_data, const json& new_da
 
 // Keys of the two normalised plans whose values differ, in the new plan's key order. A key
 // only one side records (an audit of an older format) is not compared.
-PlanComparisonPart PlanComparison(const json& old_audit, const json& new_audit) {
+PlanComparisonPart PlanComparison(const AuditView& old_view, const AuditView& new_view) {
   PlanComparisonPart part;
-  const json* old_plan = nullptr;
-  const json* new_plan = nullptr;
-  if (old_audit.contains("plan") && old_audit["plan"].is_object()) {
-    const json& plan = old_audit["plan"];
-    if (plan.contains("normalised") && plan["normalised"].is_object()) old_plan = &plan["normalised"];
-  }
-  if (new_audit.contains("plan") && new_audit["plan"].is_object()) {
-    const json& plan = new_audit["plan"];
-    if (plan.contains("normalised") && plan["normalised"].is_object()) new_plan = &plan["normalised"];
-  }
-  if (old_plan == nullptr || new_plan == nullptr) return part;
+  if (!old_view.normalised_plan || !new_view.normalised_plan) return part;
+  const json& old_plan = *old_view.normalised_plan;
   part.compared = true;
-  for (const auto& [key, new_value] : new_plan->items()) {
-    if (!old_plan->contains(key)) continue;
-    const json& old_value = (*old_plan)[key];
-    if (old_value != new_value) part.differences.push_back({key, old_value, new_value});
+  for (const auto& [key, new_value] : new_view.normalised_plan->items()) {
+    const auto old_value = old_plan.find(key);
+    if (old_value == old_plan.end()) continue;
+    if (*old_value != new_value) part.differences.push_back({key, *old_value, new_value});
   }
   return part;
 }
 
-RouteMove StepMove(const json& step) { return {StringOrEmpty(step, "action"), StringOrEmpty(step, "term")}; }
-
-RouteComparisonPart RouteComparison(const json& old_steps, const json& new_steps) {
+RouteComparisonPart RouteComparison(const std::vector<RouteMove>& old_steps, const std::vector<RouteMove>& new_steps) {
   RouteComparisonPart route;
   const std::size_t common = std::min(old_steps.size(), new_steps.size());
   for (std::size_t index = 0; index < common; ++index) {
-    const RouteMove a = StepMove(old_steps[index]);
-    const RouteMove b = StepMove(new_steps[index]);
-    if (a != b) return {false, index, a, b};
+    if (old_steps[index] != new_steps[index]) return {false, index, old_steps[index], new_steps[index]};
   }
   if (old_steps.size() != new_steps.size()) {
     route.same = false;
     route.first_difference_step = common;
-    if (common < old_steps.size()) route.old_move = StepMove(old_steps[common]);
-    if (common < new_steps.size()) route.new_move = StepMove(new_steps[common]);
+    if (common < old_steps.size()) route.old_move = old_steps[common];
+    if (common < new_steps.size()) route.new_move = new_steps[common];
   }
   return route;
 }
@@ -222,30 +243,31 @@ struct CoefficientChanges {
   bool estimates_differ = false;
 };
 
-CoefficientChanges CompareCoefficients(const json& old_model, const json& new_model, const CompareOptions& options) {
+CoefficientChanges CompareCoefficients(const AuditView& old_view, const AuditView& new_view, const CompareOptions& options) {
   const double tolerance = options.relative_tolerance;
   CoefficientChanges changes;
-  std::map<std::string, json> new_coefficients;
+  std::map<std::string, const CoefficientView*> new_coefficients;
   std::vector<std::string> new_names;
-  for (const json& coefficient : new_model.value("coefficients", json::array())) {
-    new_coefficients[coefficient.value("name", "")] = coefficient;
-    new_names.push_back(coefficient.value("name", ""));
+  for (const CoefficientView& coefficient : new_view.coefficients) {
+    new_coefficients.emplace(coefficient.name, &coefficient);
+    new_names.push_back(coefficient.name);
   }
   std::vector<std::string> old_names;
-  for (const json& before : old_model.value("coefficients", json::array())) {
-    const std::string name = before.value("name", "");
+  for (const CoefficientView& before : old_view.coefficients) {
+    const std::string& name = before.name;
     old_names.push_back(name);
-    if (!new_coefficients.count(name)) {
+    const auto found = new_coefficients.find(name);
+    if (found == new_coefficients.end()) {
       changes.only_old.push_back(name);
       continue;
     }
-    const json& after = new_coefficients[name];
+    const CoefficientView& after = *found->second;
     CoefficientChange entry;
     entry.name = name;
-    entry.old_estimate = Number(before, "estimate");
-    entry.new_estimate = Number(after, "estimate");
-    entry.old_se = Number(before, "se");
-    entry.new_se = Number(after, "se");
+    entry.old_estimate = before.estimate;
+    entry.new_estimate = after.estimate;
+    entry.old_se = before.se;
+    entry.new_se = after.se;
     const auto& old_se = entry.old_se;
     const auto& new_se = entry.new_se;
     if (entry.old_estimate && entry.new_estimate) {
@@ -266,14 +288,38 @@ CoefficientChanges CompareCoefficients(const json& old_model, const json& new_mo
   return changes;
 }
 
+// A recorded `comparison.prediction` (PredictionComparison's shape), checked before it is shown.
+json CheckedRecordedPrediction(const json& prediction, const AuditReader& reader) {
+  const std::string path = "comparison.prediction";
+  if (!prediction.is_object()) reader.Fail(path, "expected an object, found " + AuditReader::TypeOf(prediction));
+  const bool available = reader.Bool(prediction, path, "available");
+  reader.OptionalString(prediction, path, "reason");
+  for (const char* key : {"rows_read", "rows", "response_unusable", "unseen_level_rows"}) {
+    reader.OptionalCount(prediction, path, key);
+  }
+  for (const char* key : {"old_model_rmse", "old_model_mean_error", "new_model_rmse"}) {
+    reader.OptionalNumber(prediction, path, key);
+  }
+  if (const json* not_priced = AuditReader::Find(prediction, "not_priced")) {
+    if (!not_priced->is_object()) reader.Fail(path + ".not_priced", "expected an object, found " + AuditReader::TypeOf(*not_priced));
+    for (const auto& [flag, rows] : not_priced->items()) reader.Integer(rows, path + ".not_priced." + flag, 0);
+  }
+  if (available) reader.Count(prediction, path, "rows");
+  return prediction;
+}
+
 // The prediction error needs the new rows; a rerun records it in the new audit.
-json RecordedPrediction(const json& old_audit, const json& new_audit) {
+json RecordedPrediction(const json& old_audit, const json& new_audit, const AuditReader& new_reader) {
   json prediction = {{"available", false},
                      {"reason", "needs the new rows: run 'stepledger rerun' or give compare --data"}};
-  if (new_audit.contains("comparison") && new_audit["comparison"].is_object() &&
-      new_audit["comparison"].value("old_seal", json(nullptr)) == old_audit.value("seal", json(nullptr)) &&
-      new_audit["comparison"].contains("prediction")) {
-    prediction = new_audit["comparison"]["prediction"];
+  const json* comparison = AuditReader::Find(new_audit, "comparison");
+  if (comparison == nullptr) return prediction;
+  if (!comparison->is_object()) new_reader.Fail("comparison", "expected an object, found " + AuditReader::TypeOf(*comparison));
+  const json* old_seal = AuditReader::Find(*comparison, "old_seal");
+  const json* seal = AuditReader::Find(old_audit, "seal");
+  const json* recorded = AuditReader::Find(*comparison, "prediction");
+  if (old_seal != nullptr && seal != nullptr && *old_seal == *seal && recorded != nullptr) {
+    prediction = CheckedRecordedPrediction(*recorded, new_reader);
   }
   return prediction;
 }
@@ -297,32 +343,28 @@ AuditComparison CompareAudits(const json& old_as_read, const json& new_as_read, 
   // Both in today's names, so that an audit of an older format_version compares like with like.
   const json old_audit = AuditInCurrentShape(old_as_read);
   const json new_audit = AuditInCurrentShape(new_as_read);
-  const json& old_data = Section(old_audit, "data", "old");
-  const json& new_data = Section(new_audit, "data", "new");
-  const json& old_model = Section(old_audit, "model", "old");
-  const json& new_model = Section(new_audit, "model", "new");
+  const AuditReader old_reader(options.old_name), new_reader(options.new_name);
+  const AuditView old_view = ReadForComparison(old_audit, old_reader);
+  const AuditView new_view = ReadForComparison(new_audit, new_reader);
 
   AuditComparison comparison;
-  comparison.old_seal = StringOrEmpty(old_audit, "seal");
-  comparison.old_data_sha256 = StringOrEmpty(old_data, "sha256");
-  comparison.new_data_sha256 = StringOrEmpty(new_data, "sha256");
-  comparison.same_data = old_data.value("sha256", json(nullptr)) == new_data.value("sha256", json(nullptr));
-  comparison.plan = PlanComparison(old_audit, new_audit);
-  comparison.columns = ColumnsComparison(old_data, new_data, options);
-  comparison.rows = {CountOrEmpty(old_data, "rows_used"), CountOrEmpty(new_data, "rows_used")};
-  comparison.route = RouteComparison(old_audit.value("steps", json::array()), new_audit.value("steps", json::array()));
+  comparison.old_seal = old_view.seal;
+  comparison.old_data_sha256 = old_view.data_sha256;
+  comparison.new_data_sha256 = new_view.data_sha256;
+  comparison.same_data = old_view.data_sha256 == new_view.data_sha256;
+  comparison.plan = PlanComparison(old_view, new_view);
+  comparison.columns = ColumnsComparison(old_view, new_view, options);
+  comparison.rows = {old_view.rows_used, new_view.rows_used};
+  comparison.route = RouteComparison(old_view.steps, new_view.steps);
+  comparison.final_terms = FinalTermsComparison(old_view.terms, new_view.terms);
 
-  const std::vector<std::string> old_terms = Strings(old_model.value("terms", json::array()));
-  const std::vector<std::string> new_terms = Strings(new_model.value("terms", json::array()));
-  comparison.final_terms = FinalTermsComparison(old_terms, new_terms);
-
-  CoefficientChanges changes = CompareCoefficients(old_model, new_model, options);
-  comparison.verdict = VerdictFromParts(old_terms, new_terms, changes);
+  CoefficientChanges changes = CompareCoefficients(old_view, new_view, options);
+  comparison.verdict = VerdictFromParts(old_view.terms, new_view.terms, changes);
   comparison.coefficients = std::move(changes.shared);
   comparison.coefficient_mark_in_se = options.coefficient_mark_in_se;
   comparison.coefficients_only_old = std::move(changes.only_old);
   comparison.coefficients_only_new = std::move(changes.only_new);
-  comparison.prediction = RecordedPrediction(old_audit, new_audit);
+  comparison.prediction = RecordedPrediction(old_audit, new_audit, new_reader);
   return comparison;
 }
 
@@ -458,9 +500,10 @@ json PredictionComparison(const json& old_as_read, const json& new_as_read,
               {"response_unusable", response_unusable},
               {"reason", "no row of the new data could be priced by the old model with a usable response"}};
     }
-    const json& new_model = Section(new_audit, "model", "new");
-    const auto new_rss = Number(new_model, "rss");
-    const auto new_weight_sum = Number(new_model, "weight_sum");
+    const AuditReader new_reader("new audit");
+    const json& new_model = new_reader.Object(new_audit, "", "model");
+    const auto new_rss = new_reader.OptionalNumber(new_model, "model", "rss");
+    const auto new_weight_sum = new_reader.OptionalNumber(new_model, "model", "weight_sum");
     std::optional<double> new_rmse;
     if (new_rss && new_weight_sum && *new_weight_sum > 0) new_rmse = std::sqrt(*new_rss / *new_weight_sum);
     return {{"available", true},

@@ -1,5 +1,6 @@
 // The comparison of two audits as text for the terminal (AuditComparison::BriefReport and
 // FullReport): one renderer per part, in the order a reviewer reads them.
+#include <cstdint>
 #include <optional>
 #include <sstream>
 #include <string>
@@ -48,7 +49,19 @@ std::string NamesText(const std::vector<std::string>& names) {
 }
 
 std::string CountText(const json& value) {
-  return value.is_number() ? FormatCount(value.get<std::int64_t>()) : std::string("n/a");
+  if (value.is_number_unsigned() && value.get<std::uint64_t>() <= static_cast<std::uint64_t>(INT64_MAX)) {
+    return FormatCount(static_cast<std::int64_t>(value.get<std::uint64_t>()));
+  }
+  if (value.is_number_integer() && !value.is_number_unsigned()) return FormatCount(value.get<std::int64_t>());
+  return "n/a";
+}
+
+// A member of a JSON object, or null when it is absent (or the value is not an object).
+const json& MemberOrNull(const json& object, const char* key) {
+  static const json kNull;
+  if (!object.is_object()) return kNull;
+  const auto found = object.find(key);
+  return found == object.end() ? kNull : *found;
 }
 
 std::string CountText(const std::optional<std::int64_t>& value) {
@@ -146,24 +159,29 @@ void RenderCoefficients(const AuditComparison& comparison, std::ostringstream& t
 }
 
 void RenderPrediction(const json& prediction, std::ostringstream& text) {
-  if (!prediction.value("available", false)) {
-    text << "  old model on the new rows: not available (" << prediction.value("reason", "") << ")\n";
+  const json& available = MemberOrNull(prediction, "available");
+  if (!available.is_boolean() || !available.get<bool>()) {
+    const json& reason = MemberOrNull(prediction, "reason");
+    text << "  old model on the new rows: not available (" << (reason.is_string() ? reason.get<std::string>() : "")
+         << ")\n";
     return;
   }
-  text << "  old model on the new rows: RMSE " << FormatJsonNumber(prediction["old_model_rmse"])
-       << " (mean error " << FormatJsonNumber(prediction["old_model_mean_error"])
-       << "), beside the new model's RMSE " << FormatJsonNumber(prediction["new_model_rmse"]) << " over "
-       << CountText(prediction["rows"]) << " rows";
-  if (prediction.contains("not_priced") && prediction["not_priced"].is_object()) {
+  text << "  old model on the new rows: RMSE " << FormatJsonNumber(MemberOrNull(prediction, "old_model_rmse"))
+       << " (mean error " << FormatJsonNumber(MemberOrNull(prediction, "old_model_mean_error"))
+       << "), beside the new model's RMSE " << FormatJsonNumber(MemberOrNull(prediction, "new_model_rmse"))
+       << " over " << CountText(MemberOrNull(prediction, "rows")) << " rows";
+  const json& not_priced = MemberOrNull(prediction, "not_priced");
+  const json& unseen = MemberOrNull(prediction, "unseen_level_rows");
+  if (not_priced.is_object()) {
     std::string skipped;
-    for (const auto& [flag, rows] : prediction["not_priced"].items()) {
-      if (rows.is_number() && rows.get<std::int64_t>() > 0) {
+    for (const auto& [flag, rows] : not_priced.items()) {
+      if (rows.is_number_integer() && CountText(rows) != "n/a" && CountText(rows) != "0") {
         skipped += (skipped.empty() ? "" : ", ") + CountText(rows) + " " + flag;
       }
     }
     if (!skipped.empty()) text << "; not priced: " << skipped;
-  } else if (prediction.value("unseen_level_rows", 0) > 0) {
-    text << "; " << CountText(prediction["unseen_level_rows"]) << " rows have levels the old model never saw";
+  } else if (unseen.is_number_integer() && CountText(unseen) != "n/a" && CountText(unseen) != "0") {
+    text << "; " << CountText(unseen) << " rows have levels the old model never saw";
   }
   text << "\n";
 }

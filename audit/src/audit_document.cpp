@@ -1,5 +1,7 @@
 #include "stepledger/audit/audit_document.h"
 
+#include "audit_reader.h"
+
 #include <algorithm>
 #include <chrono>
 #include <cmath>
@@ -17,6 +19,7 @@
 #include "stepledger/audit/route_json.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
+#include "stepledger/engine/utf8.h"
 #include "stepledger/selection/criterion.h"
 
 #ifndef STEPLEDGER_TOOL_VERSION
@@ -87,7 +90,9 @@ json ColumnJson(const ColumnProfile& column) {
 json DataJson(const RunResult& run) {
   json columns = json::array();
   for (const ColumnProfile& column : run.profile.columns) columns.push_back(ColumnJson(column));
-  return {{"file", run.data_file_name},
+  // The file's name is for people (the fingerprint identifies the data): a name that is not
+  // UTF-8 is recorded with U+FFFD in place of its bad bytes, before the seal covers it.
+  return {{"file", Utf8Replaced(run.data_file_name)},
           {"sha256", run.data_sha256},
           {"bytes", run.data_bytes},
           {"encoding", run.data_encoding},
@@ -332,7 +337,12 @@ json ReadAuditFile(const std::filesystem::path& path) {
   if (!document.contains("format_version") || !document["format_version"].is_number_integer()) {
     throw InputError(path.string() + ": key 'format_version': expected an integer");
   }
-  if (document["format_version"].get<std::int64_t>() > kAuditFormatVersion) {
+  // Compared without conversion first: an unsigned 2^64 - 1 must not read as -1.
+  const json& version = document["format_version"];
+  const bool newer = version.is_number_unsigned()
+                         ? version.get<std::uint64_t>() > static_cast<std::uint64_t>(kAuditFormatVersion)
+                         : version.get<std::int64_t>() > kAuditFormatVersion;
+  if (newer) {
     throw InputError(path.string() + ": key 'format_version': " +
                      document["format_version"].dump() + " is newer than this tool reads (" +
                      std::to_string(kAuditFormatVersion) + ")");
@@ -345,11 +355,43 @@ json ReadAuditFile(const std::filesystem::path& path) {
   return document;
 }
 
+std::optional<std::string> FirstNonUtf8Text(const json& document) {
+  struct Pending {
+    const json* value;
+    std::string path;
+  };
+  std::vector<Pending> pending = {{&document, ""}};
+  while (!pending.empty()) {
+    const Pending item = std::move(pending.back());
+    pending.pop_back();
+    if (item.value->is_object()) {
+      for (auto it = item.value->begin(); it != item.value->end(); ++it) {
+        const std::string path = item.path.empty() ? it.key() : item.path + "." + it.key();
+        if (FirstInvalidUtf8(it.key())) return path;
+        pending.push_back({&it.value(), path});
+      }
+    } else if (item.value->is_array()) {
+      for (std::size_t i = item.value->size(); i-- > 0;) {
+        pending.push_back({&(*item.value)[i], item.path + "[" + std::to_string(i) + "]"});
+      }
+    } else if (item.value->is_string() && FirstInvalidUtf8(item.value->get_ref<const std::string&>())) {
+      return item.path;
+    }
+  }
+  return std::nullopt;
+}
+
 json BuildSealedAudit(const RunResult& run, const AuditDocumentOptions& document_options,
                       const std::filesystem::path& sign_key) {
   std::optional<Ed25519Signer> signer;
   if (!sign_key.empty()) signer.emplace(Ed25519Signer::FromPemFile(sign_key));
   json document = BuildAuditDocument(run, document_options);
+  // JSON holds Unicode text only. The data's text is refused where it is read (engine/utf8.h);
+  // anything else is refused here, before anything is sealed or written, naming the key.
+  if (const std::optional<std::string> key = FirstNonUtf8Text(document)) {
+    throw InputError("the audit cannot record key '" + *key +
+                     "': its text is not UTF-8, and JSON holds Unicode text only");
+  }
   SealAuditDocument(document, signer ? &*signer : nullptr);
   return document;
 }
@@ -370,34 +412,49 @@ json WriteAuditDocument(const RunResult& run, const AuditDocumentOptions& docume
   return document;
 }
 
-RunOptions RunOptionsFromSettings(const json& settings) {
+RunOptions RunOptionsFromSettings(const json& settings, std::string_view source_name) {
+  // Every value is range-checked: a replay honours them, so a (re-sealed) audit must not be able
+  // to ask for 100,000 threads or a confidence level of 2. The ranges are those the command line
+  // and RunOptions::Validate accept; a key an older audit lacks keeps its default.
+  const audit_detail::AuditReader reader(source_name);
   RunOptions options;
-  if (!settings.is_object()) return options;
-  if (settings.contains("delimiter") && settings["delimiter"].is_string()) {
-    const std::string delimiter = settings["delimiter"].get<std::string>();
-    if (delimiter.size() == 1) options.csv.delimiter = delimiter[0];
+  if (settings.is_null()) return options;
+  if (!settings.is_object()) reader.Fail("settings", "expected an object, found " + std::string(settings.type_name()));
+  using audit_detail::AuditReader;
+  const auto has = [&settings](const char* key) { return AuditReader::Find(settings, key) != nullptr; };
+  if (has("delimiter")) {
+    const std::string delimiter = reader.String(settings, "settings", "delimiter");
+    if (delimiter.size() != 1 || delimiter[0] == '"' || delimiter[0] == '\r' || delimiter[0] == '\n') {
+      reader.Fail("settings.delimiter", "expected one character other than a double quote, CR or LF, found \"" +
+                                            QuoteForMessage(delimiter) + "\"");
+    }
+    options.csv.delimiter = delimiter[0];
   }
-  if (settings.contains("threads") && settings["threads"].is_number_integer()) {
-    options.threads = settings["threads"].get<int>();
+  if (has("threads")) {
+    options.threads = static_cast<int>(reader.Integer(settings, "settings", "threads", 1, kMaxRecordedThreads));
   }
-  if (settings.contains("confidence_level") && settings["confidence_level"].is_number()) {
-    options.fit.confidence_level = settings["confidence_level"].get<double>();
+  const auto in_open_unit_interval = [&](const char* key) {
+    const double value = reader.Number(settings, "settings", key);
+    if (!(value > 0 && value < 1)) {
+      reader.Fail(std::string("settings.") + key, "expected a number between 0 and 1 (exclusive), found " +
+                                                        CanonicalNumber(value));
+    }
+    return value;
+  };
+  if (has("confidence_level")) options.fit.confidence_level = in_open_unit_interval("confidence_level");
+  if (has("max_refinement_passes")) {
+    options.fit.max_refinement_passes =
+        static_cast<int>(reader.Integer(settings, "settings", "max_refinement_passes", 0, kMaxRefinementPasses));
   }
-  if (settings.contains("max_refinement_passes") && settings["max_refinement_passes"].is_number_integer()) {
-    options.fit.max_refinement_passes = settings["max_refinement_passes"].get<int>();
+  if (has("refinement_tolerance")) options.fit.refinement_tolerance = in_open_unit_interval("refinement_tolerance");
+  if (has("alias_tolerance")) options.fit.kernel.alias_tolerance = in_open_unit_interval("alias_tolerance");
+  if (has("vif_caution")) {
+    options.vif_caution = reader.Number(settings, "settings", "vif_caution");
+    if (!(options.vif_caution > 0)) {
+      reader.Fail("settings.vif_caution", "expected a number above 0, found " + CanonicalNumber(options.vif_caution));
+    }
   }
-  if (settings.contains("refinement_tolerance") && settings["refinement_tolerance"].is_number()) {
-    options.fit.refinement_tolerance = settings["refinement_tolerance"].get<double>();
-  }
-  if (settings.contains("alias_tolerance") && settings["alias_tolerance"].is_number()) {
-    options.fit.kernel.alias_tolerance = settings["alias_tolerance"].get<double>();
-  }
-  if (settings.contains("vif_caution") && settings["vif_caution"].is_number()) {
-    options.vif_caution = settings["vif_caution"].get<double>();
-  }
-  if (settings.contains("diagnostics") && settings["diagnostics"].is_boolean()) {
-    options.diagnostics = settings["diagnostics"].get<bool>();
-  }
+  if (has("diagnostics")) options.diagnostics = reader.Bool(settings, "settings", "diagnostics");
   return options;
 }
 

@@ -51,7 +51,11 @@ class V1ColumnNamer {
     }
   }
 
-  bool NewNames(const std::string& term_name, ColumnNames& names) {
+  bool NewNames(const std::string& term_name, ColumnNames& names, std::size_t depth = 0) {
+    // Products of products are followed at most kMaxDepth deep (a plan nests far less): a
+    // malformed section cannot make the walk exhaust the stack.
+    constexpr std::size_t kMaxDepth = 64;
+    if (depth > kMaxDepth) return false;
     if (const auto done = new_names_.find(term_name); done != new_names_.end()) {
       names = done->second;
       return true;
@@ -69,7 +73,7 @@ class V1ColumnNamer {
     } else if (kind_text == "product") {
       const std::vector<std::string> parts = StringsOf(Member(term, "parts"));
       ColumnNames first, second;
-      known = parts.size() == 2 && NewNames(parts[0], first) && NewNames(parts[1], second);
+      known = parts.size() == 2 && NewNames(parts[0], first, depth + 1) && NewNames(parts[1], second, depth + 1);
       for (const std::string& a : first) {
         for (const std::string& b : second) names.push_back(a + ":" + b);
       }
@@ -115,14 +119,26 @@ std::vector<std::pair<std::string, std::string>> V1ColumnRenames(const json& doc
 // Renames column names in every string of value: whole strings ("grade[A]" in a list of
 // columns) and names inside texts (a caution's "age:grade[B] (12.53)"). Version 1 names all
 // hold '[', so strings without one are left alone at the cost of one scan.
-void RenameColumnsInStrings(json& value, const std::vector<std::pair<std::string, std::string>>& renames,
+void RenameColumnsInString(std::string& text, const std::vector<std::pair<std::string, std::string>>& renames,
+                           const std::unordered_map<std::string, std::string>& whole);
+
+void RenameColumnsInStrings(json& root, const std::vector<std::pair<std::string, std::string>>& renames,
                             const std::unordered_map<std::string, std::string>& whole) {
-  if (value.is_object() || value.is_array()) {
-    for (json& child : value) RenameColumnsInStrings(child, renames, whole);
-    return;
+  // An explicit stack: no nesting can exhaust the call stack.
+  std::vector<json*> pending = {&root};
+  while (!pending.empty()) {
+    json& value = *pending.back();
+    pending.pop_back();
+    if (value.is_object() || value.is_array()) {
+      for (json& child : value) pending.push_back(&child);
+    } else if (value.is_string()) {
+      RenameColumnsInString(value.get_ref<std::string&>(), renames, whole);
+    }
   }
-  if (!value.is_string()) return;
-  std::string& text = value.get_ref<std::string&>();
+}
+
+void RenameColumnsInString(std::string& text, const std::vector<std::pair<std::string, std::string>>& renames,
+                           const std::unordered_map<std::string, std::string>& whole) {
   if (text.find('[') == std::string::npos) return;
   if (const auto found = whole.find(text); found != whole.end()) {
     text = found->second;

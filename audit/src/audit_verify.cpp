@@ -1,12 +1,14 @@
 #include "stepledger/audit/audit_verify.h"
 
 #include <algorithm>
+#include <cctype>
 #include <cmath>
 #include <set>
 #include <sstream>
 
 #include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/audit/canonical_json.h"
+#include "stepledger/audit/fitted_model.h"
 #include "stepledger/audit/replay.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/engine/errors.h"
@@ -39,6 +41,11 @@ std::string StepLabel(const json& step, std::size_t position) {
 }
 
 std::string Hex(const std::string& text) { return ToHex(Sha256(text)); }
+
+std::string LowerCase(std::string text) {
+  for (char& c : text) c = static_cast<char>(std::tolower(static_cast<unsigned char>(c)));
+  return text;
+}
 
 void CheckSections(const json& document, VerifyReport& report) {
   report.sections = Check::kHolds;
@@ -188,9 +195,16 @@ void CheckSignature(const json& document, const std::filesystem::path& public_ke
   const std::string seal = document.contains("seal") && document["seal"].is_string()
                                ? document["seal"].get<std::string>()
                                : std::string();
+  if (signature.contains("signed") && signature["signed"] != json("seal")) {
+    report.signature = Check::kFails;
+    report.problems.push_back("key 'signature.signed' is " + Shown(signature["signed"]) +
+                              ": this tool signs the seal (\"seal\")");
+    return;
+  }
   const std::string value = signature["value"].get<std::string>();
   bool holds = false;
   if (!public_key.empty()) {
+    const std::string given = Ed25519PublicKeyHexFromPemFile(public_key);
     try {
       holds = VerifyEd25519WithPemFile(public_key, seal, value);
     } catch (const InputError& error) {
@@ -198,6 +212,17 @@ void CheckSignature(const json& document, const std::filesystem::path& public_ke
       // A key file that cannot be used is bad input; a malformed signature is a difference.
       if (text.find(public_key.string()) != std::string::npos) throw;
       holds = false;
+    }
+    // The recorded key must be the given one: else the audit (and its report) could name
+    // another signer than the one who signed it. The seal does not cover the signature, so the
+    // key in it is checked here.
+    const json recorded = signature.value("public_key", json(nullptr));
+    if (holds && (!recorded.is_string() || LowerCase(recorded.get<std::string>()) != given)) {
+      report.signature = Check::kFails;
+      report.problems.push_back("key 'signature.public_key' is " + Shown(recorded) + ", not the public key in " +
+                                public_key.string() + " (" + given.substr(0, 16) +
+                                "...) that made the signature: the audit names another signer");
+      return;
     }
     if (holds) {
       report.notes.push_back("signature verified against the public key " + public_key.string() +
@@ -224,6 +249,31 @@ void CheckSignature(const json& document, const std::filesystem::path& public_ke
                                   : "signature does not verify against the public key " +
                                         public_key.string());
   }
+}
+
+// plan.normalised, read as predict reads it, against what plan.verbatim gives on the recorded
+// columns. Both sides go through the plan reader, so keys an older audit leaves out compare at
+// their defaults, and numbers compare exactly.
+void CheckNormalisedPlan(const json& document, VerifyReport& report) {
+  report.plan = Check::kHolds;
+  json as_read, derived;
+  try {
+    as_read = NormalisedPlanAsRead(document, "audit");
+    derived = NormalisedPlanFromVerbatim(document, "audit");
+  } catch (const InputError& error) {
+    report.plan = Check::kFails;
+    std::string reason = error.what();
+    if (reason.rfind("audit: ", 0) == 0) reason.erase(0, 7);
+    report.problems.push_back(reason + " (so the normalised plan cannot be checked against plan.verbatim)");
+    return;
+  }
+  if (CanonicalJson(as_read) == CanonicalJson(derived)) return;
+  report.plan = Check::kFails;
+  const std::optional<std::string> difference =
+      FirstJsonDifference(as_read, derived, "plan.normalised", 0.0, "in the audit", "from plan.verbatim");
+  report.problems.push_back((difference ? *difference : std::string("key 'plan.normalised' differs")) +
+                            ": plan.normalised is not what plan.verbatim gives on the recorded columns "
+                            "(predict reads the one, a replay runs the other): it was edited");
 }
 
 std::string DataFileForMessage(const std::filesystem::path& path) { return path.string(); }
@@ -254,6 +304,7 @@ std::string VerifyReport::FullReport() const {
   line("section digests", sections);
   line("seal", seal);
   line("signature", signature);
+  line("normalised plan", plan);
   line("fingerprint", fingerprint);
   line("replay", replay);
   if (!DataChecked()) text << "  data fingerprint and replay: NOT CHECKED (" << kHowToCheckData << ")\n";
@@ -275,6 +326,7 @@ nlohmann::json VerifyReport::ToJson() const {
             {"sections", ToString(sections)},
             {"seal", ToString(seal)},
             {"signature", ToString(signature)},
+            {"normalised_plan", ToString(plan)},
             {"fingerprint", ToString(fingerprint)},
             {"replay", ToString(replay)}}},
           {"problems", problems},
@@ -289,9 +341,18 @@ bool NumbersAgree(double a, double b, double relative_tolerance) {
   return std::fabs(a - b) <= relative_tolerance * std::max(std::fabs(a), std::fabs(b));
 }
 
-std::optional<std::string> FirstJsonDifference(const json& recorded, const json& replayed,
-                                               const std::string& path, double relative_tolerance,
-                                               const char* recorded_name, const char* replayed_name) {
+namespace {
+
+// Deeper than any audit (7 levels) or any document the JSON reader accepts (64); a value built in
+// memory deeper than this is reported as a difference rather than walked.
+constexpr std::size_t kMaxCompareDepth = 256;
+
+std::optional<std::string> FirstDifference(const json& recorded, const json& replayed, const std::string& path,
+                                           double relative_tolerance, const char* recorded_name,
+                                           const char* replayed_name, std::size_t depth) {
+  if (depth > kMaxCompareDepth) {
+    return "key '" + path + "' is nested deeper than " + std::to_string(kMaxCompareDepth) + " levels: not compared";
+  }
   auto differs = [&](const std::string& what) -> std::optional<std::string> {
     return "key '" + path + "' " + what;
   };
@@ -312,8 +373,8 @@ std::optional<std::string> FirstJsonDifference(const json& recorded, const json&
       const std::string child = path.empty() ? key : path + "." + key;
       if (!recorded.contains(key)) return "key '" + child + "' is missing " + recorded_name;
       if (!replayed.contains(key)) return "key '" + child + "' is missing " + replayed_name;
-      if (auto difference = FirstJsonDifference(recorded[key], replayed[key], child, relative_tolerance,
-                                                recorded_name, replayed_name)) {
+      if (auto difference = FirstDifference(recorded[key], replayed[key], child, relative_tolerance, recorded_name,
+                                            replayed_name, depth + 1)) {
         return difference;
       }
     }
@@ -322,8 +383,8 @@ std::optional<std::string> FirstJsonDifference(const json& recorded, const json&
   if (recorded.is_array()) {
     const std::size_t common = std::min(recorded.size(), replayed.size());
     for (std::size_t i = 0; i < common; ++i) {
-      if (auto difference = FirstJsonDifference(recorded[i], replayed[i], path + "[" + std::to_string(i) + "]",
-                                                relative_tolerance, recorded_name, replayed_name)) {
+      if (auto difference = FirstDifference(recorded[i], replayed[i], path + "[" + std::to_string(i) + "]",
+                                            relative_tolerance, recorded_name, replayed_name, depth + 1)) {
         return difference;
       }
     }
@@ -340,6 +401,14 @@ std::optional<std::string> FirstJsonDifference(const json& recorded, const json&
   return std::nullopt;
 }
 
+}  // namespace
+
+std::optional<std::string> FirstJsonDifference(const json& recorded, const json& replayed, const std::string& path,
+                                               double relative_tolerance, const char* recorded_name,
+                                               const char* replayed_name) {
+  return FirstDifference(recorded, replayed, path, relative_tolerance, recorded_name, replayed_name, 0);
+}
+
 VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::path& public_key) {
   VerifyReport report;
   if (!document.is_object()) {
@@ -351,6 +420,7 @@ VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::pa
   CheckChain(document, report);
   CheckSeal(document, report);
   CheckSignature(document, public_key, report);
+  CheckNormalisedPlan(document, report);
   return report;
 }
 
@@ -366,11 +436,17 @@ void WithoutRefinementRecord(json& document) {
 void WithoutWording(json& value) {
   static const char* const kWordingKeys[] = {"rule", "stop_rule", "message", "reason",
                                              "undefined_reason"};
-  if (value.is_object()) {
-    for (const char* key : kWordingKeys) value.erase(key);
-    for (auto& [key, child] : value.items()) WithoutWording(child);
-  } else if (value.is_array()) {
-    for (json& child : value) WithoutWording(child);
+  // An explicit stack: no nesting can exhaust the call stack.
+  std::vector<json*> pending = {&value};
+  while (!pending.empty()) {
+    json& current = *pending.back();
+    pending.pop_back();
+    if (current.is_object()) {
+      for (const char* key : kWordingKeys) current.erase(key);
+      for (auto& [key, child] : current.items()) pending.push_back(&child);
+    } else if (current.is_array()) {
+      for (json& child : current) pending.push_back(&child);
+    }
   }
 }
 
@@ -398,6 +474,13 @@ void CheckFingerprint(const json& document, const std::filesystem::path& data_fi
 std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& options,
                                      VerifyReport& report) {
   report.replay = Check::kHolds;
+  try {
+    RunOptionsFromSettings(document.value("settings", json::object()), "audit");
+  } catch (const InputError& error) {
+    report.replay = Check::kFails;
+    report.problems.push_back(std::string("replay impossible: the recorded settings are unusable: ") + error.what());
+    return std::nullopt;
+  }
   try {
     ReplayOverrides overrides;
     if (options.threads > 0) overrides.threads = options.threads;
@@ -495,6 +578,23 @@ void CompareReplayedSections(const json& recorded_document, const json& replayed
   }
 }
 
+// plan.normalised as predict reads it against the replay's normalisation of plan.verbatim on
+// the data, exactly (the check without data compares it with the recorded columns).
+void CompareReplayedPlan(const json& document, const json& replayed, VerifyReport& report) {
+  json as_read;
+  try {
+    as_read = NormalisedPlanAsRead(document, "audit");
+  } catch (const InputError&) {
+    return;  // named by the normalised plan check
+  }
+  const json* plan = replayed.contains("plan") ? &replayed["plan"] : nullptr;
+  if (plan == nullptr || !plan->contains("normalised")) return;
+  if (auto difference = FirstJsonDifference(as_read, (*plan)["normalised"], "plan.normalised", 0.0)) {
+    report.replay = Check::kFails;
+    report.problems.push_back("replay differs: " + *difference);
+  }
+}
+
 }  // namespace
 
 VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
@@ -530,6 +630,7 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   const json recorded_steps = recorded_document.value("steps", json::array());
   CompareReplayedRoute(recorded_steps, replayed["steps"], tolerance, report);
   CompareReplayedSections(recorded_document, replayed, tolerance, report);
+  CompareReplayedPlan(document, replayed, report);
   return report;
 }
 

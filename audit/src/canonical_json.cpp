@@ -72,8 +72,19 @@ void AppendString(std::string& out, std::string_view text) {
   out.push_back('"');
 }
 
-void Append(std::string& out, const nlohmann::json& value) {
-  using Type = nlohmann::json::value_t;
+using json = nlohmann::json;
+
+// A container being written: its value, the next element, and an object's members in RFC 8785
+// order.
+struct OpenContainer {
+  const json* value = nullptr;
+  std::size_t next = 0;
+  std::vector<std::pair<std::u16string, json::const_iterator>> members;
+};
+
+// Writes a scalar, or opens a container (its bracket written, pushed on the stack).
+void Open(std::string& out, const json& value, std::vector<OpenContainer>& stack) {
+  using Type = json::value_t;
   switch (value.type()) {
     case Type::null: out += "null"; return;
     case Type::boolean: out += value.get<bool>() ? "true" : "false"; return;
@@ -81,40 +92,55 @@ void Append(std::string& out, const nlohmann::json& value) {
     case Type::number_unsigned: out += std::to_string(value.get<std::uint64_t>()); return;
     case Type::number_float: out += CanonicalNumber(value.get<double>()); return;
     case Type::string: AppendString(out, value.get_ref<const std::string&>()); return;
-    case Type::array: {
+    case Type::array:
       out.push_back('[');
-      bool first = true;
-      for (const auto& element : value) {
-        if (!first) out.push_back(',');
-        first = false;
-        Append(out, element);
-      }
-      out.push_back(']');
+      stack.push_back({&value, 0, {}});
       return;
-    }
     case Type::object: {
-      std::vector<std::pair<std::u16string, nlohmann::json::const_iterator>> members;
-      members.reserve(value.size());
-      for (auto it = value.begin(); it != value.end(); ++it) {
-        members.emplace_back(ToUtf16(it.key()), it);
-      }
-      std::sort(members.begin(), members.end(),
-                [](const auto& a, const auto& b) { return a.first < b.first; });
       out.push_back('{');
-      bool first = true;
-      for (const auto& [unused, it] : members) {
-        if (!first) out.push_back(',');
-        first = false;
-        AppendString(out, it.key());
-        out.push_back(':');
-        Append(out, it.value());
-      }
-      out.push_back('}');
+      OpenContainer container{&value, 0, {}};
+      container.members.reserve(value.size());
+      for (auto it = value.begin(); it != value.end(); ++it) container.members.emplace_back(ToUtf16(it.key()), it);
+      std::sort(container.members.begin(), container.members.end(),
+                [](const auto& a, const auto& b) { return a.first < b.first; });
+      stack.push_back(std::move(container));
       return;
     }
     case Type::binary:
     case Type::discarded:
       throw InputError("canonical JSON: a binary or discarded value has no JSON form");
+  }
+}
+
+// Depth-first with an explicit stack, so that no nesting, however deep, can exhaust the call
+// stack (documents read from files are limited to 64 levels by the JSON reader; a value built
+// in memory is not).
+void Append(std::string& out, const json& root) {
+  std::vector<OpenContainer> stack;
+  Open(out, root, stack);
+  while (!stack.empty()) {
+    OpenContainer& top = stack.back();
+    if (top.value->is_array()) {
+      if (top.next == top.value->size()) {
+        out.push_back(']');
+        stack.pop_back();
+        continue;
+      }
+      if (top.next > 0) out.push_back(',');
+      const json& element = (*top.value)[top.next++];
+      Open(out, element, stack);  // may push: `top` is not used after this
+    } else {
+      if (top.next == top.members.size()) {
+        out.push_back('}');
+        stack.pop_back();
+        continue;
+      }
+      if (top.next > 0) out.push_back(',');
+      const json::const_iterator member = top.members[top.next++].second;
+      AppendString(out, member.key());
+      out.push_back(':');
+      Open(out, member.value(), stack);
+    }
   }
 }
 

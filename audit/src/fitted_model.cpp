@@ -1,5 +1,7 @@
 #include "stepledger/audit/fitted_model.h"
 
+#include "audit_reader.h"
+
 #include <algorithm>
 #include <cmath>
 #include <limits>
@@ -18,86 +20,7 @@ using json = nlohmann::json;
 
 constexpr double kUndefined = std::numeric_limits<double>::quiet_NaN();
 
-/// Reads keys of the audit with messages that name the key path ("prediction.triangle[2]").
-class AuditReader {
- public:
-  explicit AuditReader(std::string_view source) : source_(source) {}
-
-  [[noreturn]] void Fail(const std::string& path, const std::string& message) const {
-    throw InputError(source_ + ": key '" + path + "': " + message);
-  }
-
-  const json& Object(const json& parent, const std::string& parent_path, const std::string& key) const {
-    const std::string path = Join(parent_path, key);
-    if (!parent.is_object() || !parent.contains(key)) Fail(path, "missing");
-    const json& value = parent.at(key);
-    if (!value.is_object()) Fail(path, "expected an object, found " + std::string(value.type_name()));
-    return value;
-  }
-  const json& Array(const json& parent, const std::string& parent_path, const std::string& key) const {
-    const std::string path = Join(parent_path, key);
-    if (!parent.is_object() || !parent.contains(key)) Fail(path, "missing");
-    const json& value = parent.at(key);
-    if (!value.is_array()) Fail(path, "expected an array, found " + std::string(value.type_name()));
-    return value;
-  }
-  std::string String(const json& parent, const std::string& parent_path, const std::string& key) const {
-    const std::string path = Join(parent_path, key);
-    if (!parent.is_object() || !parent.contains(key) || !parent.at(key).is_string()) {
-      Fail(path, "expected a string");
-    }
-    return parent.at(key).get<std::string>();
-  }
-  double Number(const json& parent, const std::string& parent_path, const std::string& key) const {
-    const std::string path = Join(parent_path, key);
-    if (!parent.is_object() || !parent.contains(key) || !parent.at(key).is_number()) {
-      Fail(path, "expected a number");
-    }
-    return parent.at(key).get<double>();
-  }
-  /// A number, or nullopt for null or an absent key (what NumberOrNull writes for undefined).
-  std::optional<double> OptionalNumber(const json& parent, const std::string& parent_path,
-                                       const std::string& key) const {
-    if (!parent.is_object() || !parent.contains(key) || parent.at(key).is_null()) return std::nullopt;
-    if (!parent.at(key).is_number()) Fail(Join(parent_path, key), "expected a number or null");
-    return parent.at(key).get<double>();
-  }
-  std::uint64_t Count(const json& parent, const std::string& parent_path, const std::string& key) const {
-    const std::string path = Join(parent_path, key);
-    if (!parent.is_object() || !parent.contains(key) || !parent.at(key).is_number_unsigned()) {
-      Fail(path, "expected a non-negative integer");
-    }
-    return parent.at(key).get<std::uint64_t>();
-  }
-  std::vector<double> Numbers(const json& array, const std::string& path) const {
-    if (!array.is_array()) Fail(path, "expected an array of numbers");
-    std::vector<double> values;
-    for (std::size_t i = 0; i < array.size(); ++i) {
-      if (!array[i].is_number()) Fail(path + "[" + std::to_string(i) + "]", "expected a number");
-      values.push_back(array[i].get<double>());
-    }
-    return values;
-  }
-  std::vector<std::string> Strings(const json& array, const std::string& path) const {
-    if (!array.is_array()) Fail(path, "expected an array of strings");
-    std::vector<std::string> values;
-    for (std::size_t i = 0; i < array.size(); ++i) {
-      if (!array[i].is_string()) Fail(path + "[" + std::to_string(i) + "]", "expected a string");
-      values.push_back(array[i].get<std::string>());
-    }
-    return values;
-  }
-
-  static std::string Join(const std::string& parent_path, const std::string& key) {
-    return parent_path.empty() ? key : parent_path + "." + key;
-  }
-  static std::string Index(const std::string& path, std::size_t index) {
-    return path + "[" + std::to_string(index) + "]";
-  }
-
- private:
-  std::string source_;
-};
+using audit_detail::AuditReader;
 
 ColumnKind ColumnKindFromText(const AuditReader& reader, const std::string& text, const std::string& path) {
   for (ColumnKind kind : {ColumnKind::kNumeric, ColumnKind::kCategorical, ColumnKind::kEmpty}) {
@@ -128,7 +51,7 @@ DataProfile ProfileFromAudit(const AuditReader& reader, const json& data) {
   const json& columns = reader.Array(data, "data", "columns");
   for (std::size_t i = 0; i < columns.size(); ++i) {
     const std::string path = AuditReader::Index("data.columns", i);
-    const json& entry = columns[i];
+    const json& entry = reader.ObjectAt(columns, "data.columns", i);
     ColumnProfile column;
     column.name = reader.String(entry, path, "name");
     column.index = i;
@@ -142,10 +65,10 @@ DataProfile ProfileFromAudit(const AuditReader& reader, const json& data) {
     const json& levels = reader.Array(entry, path, "levels");
     for (std::size_t l = 0; l < levels.size(); ++l) {
       const std::string level_path = AuditReader::Index(path + ".levels", l);
-      column.levels.push_back({reader.String(levels[l], level_path, "level"),
-                               reader.Count(levels[l], level_path, "count")});
+      const json& level = reader.ObjectAt(levels, path + ".levels", l);
+      column.levels.push_back({reader.String(level, level_path, "level"), reader.Count(level, level_path, "count")});
     }
-    column.too_many_levels = entry.value("too_many_levels", false);
+    column.too_many_levels = reader.OptionalBool(entry, path, "too_many_levels", false);
     profile.columns.push_back(std::move(column));
   }
   return profile;
@@ -210,6 +133,16 @@ json PredictionSectionJson(const FitResult& fit, const Design& design, const Pre
 
 namespace {
 
+// A plan error's message without its "plan key 'PATH': " or "plan: " start (the caller names
+// the key in the audit).
+std::string PlanErrorDetail(const PlanError& error) {
+  const std::string text = error.what();
+  const std::string keyed = "plan key '" + error.key_path() + "': ";
+  if (!error.key_path().empty() && text.rfind(keyed, 0) == 0) return text.substr(keyed.size());
+  if (text.rfind("plan: ", 0) == 0) return text.substr(6);
+  return text;
+}
+
 // The plan as normalised when the audit was written (terms explicit, baselines chosen).
 Plan PlanFromAudit(const AuditReader& reader, const json& audit) {
   const json& plan = reader.Object(audit, "", "plan");
@@ -217,7 +150,7 @@ Plan PlanFromAudit(const AuditReader& reader, const json& audit) {
   try {
     return PlanFromJson(normalised);
   } catch (const PlanError& error) {
-    reader.Fail("plan.normalised" + (error.key_path().empty() ? "" : "." + error.key_path()), error.what());
+    reader.Fail("plan.normalised" + (error.key_path().empty() ? "" : "." + error.key_path()), PlanErrorDetail(error));
   }
 }
 
@@ -236,7 +169,7 @@ void CheckRecordedDesign(const AuditReader& reader, const json& audit, const Des
   const json& design_columns = reader.Array(design, "design", "columns");
   std::vector<std::string> recorded;
   for (std::size_t i = 0; i < design_columns.size(); ++i) {
-    recorded.push_back(reader.String(design_columns[i], AuditReader::Index("design.columns", i), "name"));
+    recorded.push_back(reader.String(reader.ObjectAt(design_columns, "design.columns", i), AuditReader::Index("design.columns", i), "name"));
   }
   if (recorded != DesignColumnNames(rebuilt)) {
     reader.Fail("design.columns", "the plan rebuilds into other design columns than the audit records; "
@@ -256,7 +189,7 @@ std::map<std::string, double> ReadFinalModel(const AuditReader& reader, const js
     fit.term_indices.push_back(term);
   }
   fit.status = FitStatusFromText(reader, reader.String(model_json, "model", "status"), "model.status");
-  fit.intercept = model_json.value("intercept", design.intercept);
+  fit.intercept = reader.OptionalBool(model_json, "model", "intercept", design.intercept);
   fit.n = reader.Count(model_json, "model", "n");
   fit.k = reader.Count(model_json, "model", "k");
   fit.df_residual = reader.Number(model_json, "model", "df_residual");
@@ -278,7 +211,9 @@ std::map<std::string, double> ReadFinalModel(const AuditReader& reader, const js
   fit.confidence_level = reader.Number(model_json, "model", "confidence_level");
   fit.rcond = reader.OptionalNumber(model_json, "model", "rcond").value_or(kUndefined);
   fit.alias_tolerance = reader.Number(model_json, "model", "alias_tolerance");
-  fit.refinement_passes = model_json.value("refinement_passes", 0);
+  fit.refinement_passes = AuditReader::Find(model_json, "refinement_passes") == nullptr
+                              ? 0
+                              : static_cast<int>(reader.Integer(model_json, "model", "refinement_passes", 0, 1000));
   fit.refinement_correction = reader.OptionalNumber(model_json, "model", "refinement_correction").value_or(kUndefined);
   if (model_json.contains("refinement_stop")) {
     const std::string stop = reader.String(model_json, "model", "refinement_stop");
@@ -298,7 +233,8 @@ std::map<std::string, double> ReadFinalModel(const AuditReader& reader, const js
   const json& coefficients = reader.Array(model_json, "model", "coefficients");
   std::map<std::string, double> estimates;
   for (std::size_t i = 0; i < coefficients.size(); ++i) {
-    fit.coefficients.push_back(CoefficientFromJson(reader, coefficients[i], AuditReader::Index("model.coefficients", i)));
+    fit.coefficients.push_back(CoefficientFromJson(reader, reader.ObjectAt(coefficients, "model.coefficients", i),
+                                                    AuditReader::Index("model.coefficients", i)));
     estimates[fit.coefficients.back().name] = fit.coefficients.back().estimate;
   }
   return estimates;
@@ -345,21 +281,47 @@ PredictionSupport SupportFromAudit(const AuditReader& reader, const json& predic
   const json& ranges = reader.Array(prediction, "prediction", "ranges");
   for (std::size_t i = 0; i < ranges.size(); ++i) {
     const std::string path = AuditReader::Index("prediction.ranges", i);
+    const json& entry = reader.ObjectAt(ranges, "prediction.ranges", i);
     TermRange range;
-    range.term = reader.String(ranges[i], path, "term");
-    range.column = reader.String(ranges[i], path, "column");
-    range.kind = TermKindFromText(reader, reader.String(ranges[i], path, "kind"), path + ".kind");
-    range.min = reader.Number(ranges[i], path, "min");
-    range.max = reader.Number(ranges[i], path, "max");
+    range.term = reader.String(entry, path, "term");
+    range.column = reader.String(entry, path, "column");
+    range.kind = TermKindFromText(reader, reader.String(entry, path, "kind"), path + ".kind");
+    range.min = reader.Number(entry, path, "min");
+    range.max = reader.Number(entry, path, "max");
     support.ranges.push_back(std::move(range));
   }
   support.max_unit_leverage = reader.OptionalNumber(prediction, "prediction", "max_unit_leverage");
-  support.max_unit_leverage_line = prediction.value("max_unit_leverage_line", std::uint64_t{0});
+  support.max_unit_leverage_line = reader.OptionalCount(prediction, "prediction", "max_unit_leverage_line").value_or(0);
   support.smearing_factor = reader.OptionalNumber(prediction, "prediction", "smearing_factor");
   return support;
 }
 
 }  // namespace
+
+json NormalisedPlanFromVerbatim(const json& audit_as_read, std::string_view source_name) {
+  const AuditReader reader(source_name);
+  const json audit = AuditInCurrentShape(audit_as_read);
+  const json& plan = reader.Object(audit, "", "plan");
+  const std::string verbatim = reader.String(plan, "plan", "verbatim");
+  LoadedPlan loaded;
+  try {
+    loaded = ParsePlanText(verbatim, std::string(source_name) + " plan.verbatim");
+  } catch (const PlanError& error) {
+    reader.Fail("plan.verbatim" + (error.key_path().empty() ? "" : "." + error.key_path()), PlanErrorDetail(error));
+  }
+  const DataProfile profile = ProfileFromAudit(reader, reader.Object(audit, "", "data"));
+  try {
+    const Design design = BuildDesign(loaded.plan.design, profile);
+    return PlanToJson(loaded.plan, &design);
+  } catch (const InputError& error) {
+    reader.Fail("plan.verbatim", std::string("does not build on the recorded columns: ") + error.what());
+  }
+}
+
+json NormalisedPlanAsRead(const json& audit_as_read, std::string_view source_name) {
+  const AuditReader reader(source_name);
+  return PlanToJson(PlanFromAudit(reader, AuditInCurrentShape(audit_as_read)));
+}
 
 FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name) {
   const AuditReader reader(source_name);

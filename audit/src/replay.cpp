@@ -1,12 +1,25 @@
 #include "stepledger/audit/replay.h"
 
+#include <sched.h>
+
+#include <algorithm>
 #include <string>
+#include <thread>
 
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/io/plan_file.h"
 
 namespace stepledger {
+
+int CoresAvailable() {
+  cpu_set_t set;
+  CPU_ZERO(&set);
+  int cores = 0;
+  if (sched_getaffinity(0, sizeof set, &set) == 0) cores = CPU_COUNT(&set);
+  if (cores < 1) cores = static_cast<int>(std::thread::hardware_concurrency());
+  return std::clamp(cores, 1, kMaxRecordedThreads);
+}
 
 RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem::path& data,
                              std::string_view audit_name, const ReplayOverrides& overrides,
@@ -18,8 +31,10 @@ RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem:
   }
   const LoadedPlan loaded =
       ParsePlanText(audit["plan"]["verbatim"].get<std::string>(), name + " plan.verbatim");
-  RunOptions options = RunOptionsFromSettings(audit.value("settings", nlohmann::json::object()));
-  if (overrides.threads) options.threads = *overrides.threads;
+  RunOptions options = RunOptionsFromSettings(audit.value("settings", nlohmann::json::object()), name);
+  // The recorded count is the recording machine's; more threads than cores here would only
+  // cost memory (the count changes the numbers to rounding only).
+  options.threads = overrides.threads ? *overrides.threads : std::min(options.threads, CoresAvailable());
   if (overrides.delimiter) options.csv.delimiter = *overrides.delimiter;
   options.work_dir = overrides.work_dir;
   return RunPlan(data, loaded, options, observer);

@@ -151,6 +151,16 @@ std::string Ed25519Signer::PublicKeyHex() const {
   return ToHexBytes(raw, length);
 }
 
+std::string Ed25519PublicKeyHexFromPemFile(const std::filesystem::path& path) {
+  KeyPointer key = ReadPemKey(path, false);
+  unsigned char raw[32];
+  std::size_t length = sizeof raw;
+  if (EVP_PKEY_get_raw_public_key(key.get(), raw, &length) != 1) {
+    throw InputError("key file '" + path.string() + "': cannot read its Ed25519 public key (" + OpenSslError() + ")");
+  }
+  return ToHexBytes(raw, length);
+}
+
 bool VerifyEd25519WithPemFile(const std::filesystem::path& public_key_path,
                               std::string_view message, std::string_view signature_hex) {
   KeyPointer key = ReadPemKey(public_key_path, false);

@@ -101,6 +101,14 @@ std::string ProgramWord();
 /// text on one line (line breaks become spaces): what stderr messages must be.
 std::string OneLineText(std::string text);
 
+/// A command's --json output: two-space indentation, keys sorted. Text that is not UTF-8 (a
+/// file name given on the command line) is shown with U+FFFD in place of its bad bytes, which
+/// JSON cannot hold: data text is refused where it is read (engine/utf8.h), so only names for
+/// people reach this.
+inline std::string JsonText(const nlohmann::json& value) {
+  return value.dump(2, ' ', false, nlohmann::json::error_handler_t::replace);
+}
+
 /// Writes DIR/audit.json (the sealed document) and DIR/report.html, rendered from that very
 /// document with the run's own diagnostics (no second pass), as one unit (WriteAuditFolder):
 /// what `select --out` and `rerun --out` write.

@@ -24,11 +24,13 @@ struct CompareArgs {
 int RunCompare(const CompareArgs& args, CommandContext& context) {
   const nlohmann::json old_audit = ReadAuditFile(args.old_audit);
   const nlohmann::json new_audit = ReadAuditFile(args.new_audit);
-  AuditComparison comparison = CompareAudits(old_audit, new_audit);
+  CompareOptions compare_options;
+  compare_options.old_name = args.old_audit;
+  compare_options.new_name = args.new_audit;
+  AuditComparison comparison = CompareAudits(old_audit, new_audit, compare_options);
   if (!args.data.empty()) {
     // B's data are read the way B's run read them (its recorded delimiter).
-    const CsvOptions csv =
-        RunOptionsFromSettings(new_audit.value("settings", nlohmann::json::object())).csv;
+    const CsvOptions csv = RunOptionsFromSettings(new_audit.value("settings", nlohmann::json::object()), args.new_audit).csv;
     comparison.prediction = PredictionComparison(old_audit, new_audit, args.data, csv);
   }
   // A comparison of edited files would mislead: say so first (verify gives the details).
@@ -38,12 +40,11 @@ int RunCompare(const CompareArgs& args, CommandContext& context) {
     if (!integrity.Holds()) warnings.push_back(name + " does not verify: " + integrity.problems.front());
   }
   if (context.common.json) {
-    context.out << nlohmann::json{{"old", args.old_audit},
+    context.out << JsonText(nlohmann::json{{"old", args.old_audit},
                                   {"new", args.new_audit},
                                   {"verdict", ToString(comparison.verdict)},
                                   {"comparison", comparison.ToJson()},
-                                  {"warnings", warnings}}
-                       .dump(2)
+                                  {"warnings", warnings}})
                 << "\n";
   } else {
     for (const auto& warning : warnings) context.out << "Warning: " << warning.get<std::string>() << "\n";

@@ -162,7 +162,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
         {"large_standardized_residuals", summary.large_residuals}};
     result["cautions"] = CautionsToJson(cautions);
     result["model_statement"] = ModelStatement(run.design, fit);
-    context.out << result.dump(2) << "\n";
+    context.out << JsonText(result) << "\n";
     return 0;
   }
 

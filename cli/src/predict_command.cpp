@@ -23,6 +23,7 @@
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/prediction.h"
+#include "stepledger/engine/utf8.h"
 #include "stepledger/cli/run_cli.h"
 #include "stepledger/io/atomic_file.h"
 
@@ -279,20 +280,20 @@ struct PredictCounts {
 // the keys before "rows", each row as it is priced, then the keys after it with the summary.
 // `head` and `tail` are objects; their dumps are spliced around the rows.
 std::string JsonHead(const nlohmann::json& head) {
-  std::string text = head.dump(2);
+  std::string text = JsonText(head);
   text.resize(text.size() - 2);  // drop "\n}"
   return text + ",\n  \"rows\": [";
 }
 void AppendJsonRow(std::string& out, const nlohmann::json& row, bool first) {
   out += first ? "\n    " : ",\n    ";
   // Indent the row's own lines by 4 more (JSON strings hold no raw line breaks).
-  for (const char c : row.dump(2)) {
+  for (const char c : JsonText(row)) {
     out += c;
     if (c == '\n') out += "    ";
   }
 }
 std::string JsonTail(const nlohmann::json& tail, bool any_row) {
-  std::string text = tail.dump(2);
+  std::string text = JsonText(tail);
   return std::string(any_row ? "\n  ]," : "],") + text.substr(1) + "\n";
 }
 
@@ -340,7 +341,17 @@ PredictCounts StreamPredictions(const PredictArgs& args, CommandContext& context
   Priced priced;
   while (reader.Next(record)) {
     priced.row = predictor.Predict(evaluator.Evaluate(record));
-    if (counts.with_id) priced.id.assign(record.fields[static_cast<std::size_t>(id_index)].text);
+    if (counts.with_id) {
+      const CsvField& id = record.fields[static_cast<std::size_t>(id_index)];
+      // An id is a key to join the prices on: JSON cannot carry one that is not UTF-8, and a
+      // replaced one would no longer match its row.
+      if (context.common.json && FirstInvalidUtf8(id.text)) {
+        throw InputError(reader.Where(id) + ": the --id column '" + QuoteForMessage(args.id_column) +
+                         "' holds text that is not UTF-8 (" + DescribeInvalidUtf8(id.text) +
+                         " of the cell), which JSON cannot carry; convert the file to UTF-8, or write CSV");
+      }
+      priced.id.assign(id.text);
+    }
     if (context.common.json) {
       AppendJsonRow(out, RowJson(priced, counts.with_id), counts.rows == 0);
     } else {
@@ -402,9 +413,11 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
     throw InputError("--level: expected a number strictly between 0 and 1, found " + Number(args.level));
   }
   const nlohmann::json document = ReadAuditFile(args.audit);
+  // An audit that cannot be read (a key missing or of the wrong type) is bad input, exit 2,
+  // whether or not its digests hold; one that reads but does not verify is refused, exit 1.
+  const FittedModel fitted = FittedModelFromAudit(document, args.audit);
   const std::optional<std::string> unverified_warning = CheckAuditForPricing(document, args, context);
   if (!unverified_warning) return static_cast<int>(ExitStatus::kDifferenceFound);
-  const FittedModel fitted = FittedModelFromAudit(document, args.audit);
   PredictionOptions options;
   options.level = args.level;
   const Predictor predictor(MakePricingModel(fitted), options);

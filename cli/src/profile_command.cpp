@@ -221,7 +221,7 @@ int RunProfile(const ProfileArgs& args, CommandContext& context) {
     result["columns"] = std::move(columns);
     result["starter_plan"] = starter.plan;
     result["notes"] = starter.notes;
-    context.out << result.dump(2) << "\n";
+    context.out << JsonText(result) << "\n";
     return 0;
   }
 

@@ -84,7 +84,7 @@ int RunReport(const ReportArgs& args, CommandContext& context) {
     if (context.log) context.log->info("wrote {}", args.rows_out);
   }
   if (context.common.json) {
-    context.out << RenderJsonReport(model).dump(2) << "\n";
+    context.out << JsonText(RenderJsonReport(model)) << "\n";
   } else if (write_text) {
     context.out << text;
   }

@@ -58,7 +58,10 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   const RunResult run = ReplayRecordedPlan(parent, args.data, args.audit, overrides, progress.get());
 
   const nlohmann::json unsealed = BuildAuditDocument(run);
-  AuditComparison comparison = CompareAudits(parent, unsealed);
+  CompareOptions compare_options;
+  compare_options.old_name = args.audit;
+  compare_options.new_name = "the new audit";
+  AuditComparison comparison = CompareAudits(parent, unsealed, compare_options);
   comparison.prediction = PredictionComparison(parent, unsealed, args.data, run.options.csv);
 
   AuditDocumentOptions document_options;
@@ -73,12 +76,11 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   WriteAuditWithReport(folder, written, run, context.common.force);
 
   if (context.common.json) {
-    context.out << nlohmann::json{{"audit", audit_path.string()},
+    context.out << JsonText(nlohmann::json{{"audit", audit_path.string()},
                                   {"report", report_path.string()},
                                   {"verdict", ToString(comparison.verdict)},
                                   {"model_statement", ModelStatement(run.design, run.fit)},
-                                  {"comparison", comparison.ToJson()}}
-                       .dump(2)
+                                  {"comparison", comparison.ToJson()}})
                 << "\n";
   } else {
     context.out << comparison.FullReport() << "\n"

@@ -114,7 +114,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   if (!written.empty()) document["written"] = written;
 
   if (context.common.json) {
-    context.out << document.dump(2) << "\n";
+    context.out << JsonText(document) << "\n";
     return 0;
   }
   if (!run.design.skipped.empty() && !context.common.quiet) {

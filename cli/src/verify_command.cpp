@@ -31,7 +31,7 @@ int RunVerify(const VerifyArgs& args, CommandContext& context) {
   if (context.common.json) {
     nlohmann::json result = report.ToJson();
     result["audit"] = args.audit;
-    context.out << result.dump(2) << "\n";
+    context.out << JsonText(result) << "\n";
   } else {
     context.out << args.audit << ":\n" << report.FullReport();
   }

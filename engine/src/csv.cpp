@@ -15,6 +15,7 @@
 
 #include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/utf8.h"
 
 namespace stepledger {
 namespace {
@@ -476,6 +477,14 @@ void CsvReader::ReadHeader() {
     if (field.text.empty()) {
       Fail(field.line, field.column,
            "header field " + std::to_string(index + 1) + " has an empty name; every column needs one");
+    }
+    if (FirstInvalidUtf8(field.text)) {
+      // Column names go into every JSON the tool writes, which holds Unicode text only.
+      Fail(field.line, field.column,
+           "the name in header field " + std::to_string(index + 1) + " is not UTF-8 text (" +
+               DescribeInvalidUtf8(field.text) +
+               " of the name); stepledger reads data files as UTF-8: convert the file first (for example from "
+               "Latin-1)");
     }
     for (std::size_t earlier = 0; earlier < index; ++earlier) {
       if (header_[earlier] == field.text) {

@@ -16,6 +16,7 @@
 #include "file_identity.h"
 #include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/utf8.h"
 #include "stepledger/engine/fingerprint.h"
 
 namespace stepledger {
@@ -90,6 +91,16 @@ std::size_t PreadSome(int fd, char* buffer, std::size_t capacity, std::uint64_t 
   }
 }
 
+// Text the scan keeps (a level, the first text of a column) ends up in JSON (the audit, --json),
+// which holds Unicode only: text that is not UTF-8 is refused where it is read.
+[[noreturn]] void FailNotUtf8(const CsvReader& reader, const CsvField& field, std::size_t column) {
+  reader.Fail(field.line, field.column,
+              "column '" + QuoteForMessage(reader.header()[column]) + "' holds text that is not UTF-8 (" +
+                  DescribeInvalidUtf8(field.text) +
+                  " of the cell); stepledger reads data files as UTF-8: convert the file first (for example "
+                  "from Latin-1)");
+}
+
 // Counts one cell into the tally and returns what the spill stores for it.
 inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_t column,
                       const std::vector<std::string>& missing_tokens, std::size_t max_levels,
@@ -116,7 +127,10 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
       break;
     }
     case CellKind::kText:
-      if (!tally.first_text) tally.first_text = CellLocation{field.line, field.column, std::string(field.text)};
+      if (!tally.first_text) {
+        if (FirstInvalidUtf8(field.text)) FailNotUtf8(reader, field, column);
+        tally.first_text = CellLocation{field.line, field.column, std::string(field.text)};
+      }
       bits = kSpillTextBits;
       break;
   }
@@ -127,6 +141,7 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
     ++found->second.count;
     code = found->second.code;
   } else if (tally.levels.size() < max_levels) {
+    if (FirstInvalidUtf8(field.text)) FailNotUtf8(reader, field, column);
     code = static_cast<std::uint32_t>(tally.level_texts.size());
     tally.levels.emplace(std::string(field.text), LevelEntry{code, 1});
     tally.level_texts.emplace_back(field.text);

@@ -1,7 +1,11 @@
 #include "stepledger/audit/audit_compare.h"
 
+#include <functional>
+
 #include <gtest/gtest.h>
 #include <nlohmann/json.hpp>
+
+#include "stepledger/engine/errors.h"
 
 namespace stepledger {
 namespace {
@@ -102,6 +106,69 @@ TEST(AuditComparison, AnAuditComparedWithItselfIsTheSameModel) {
   EXPECT_EQ(comparison.final_terms.kept, (std::vector<std::string>{"age", "ram"}));
   EXPECT_TRUE(comparison.columns.moved.empty());
   EXPECT_EQ(comparison.ToJson()["route"]["old"], nullptr);
+}
+
+// A section of the wrong type is bad input naming the audit and the key (each of these was a
+// JSON library exception: exit 3, "internal error").
+TEST(AuditComparison, WrongTypesNameTheAuditAndTheKey) {
+  const json audit = SmallAudit("ram", 10.0, 100.0, 100);
+  CompareOptions options;
+  options.old_name = "a.json";
+  options.new_name = "b.json";
+  auto message_of = [&](const json& edited) {
+    try {
+      CompareAudits(audit, edited, options);
+    } catch (const InputError& error) {
+      return std::string(error.what());
+    }
+    return std::string("(no error)");
+  };
+  auto edited = [&](const std::function<void(json&)>& edit) {
+    json copy = audit;
+    edit(copy);
+    return copy;
+  };
+  EXPECT_EQ(message_of(edited([](json& a) { a["model"] = json::array(); })),
+            "b.json: key 'model': expected an object, found array");
+  EXPECT_EQ(message_of(edited([](json& a) { a["data"]["columns"] = {{"a", 1}}; })),
+            "b.json: key 'data.columns': expected an array, found object");
+  EXPECT_EQ(message_of(edited([](json& a) { a["steps"] = {{"a", 1}}; })), "b.json: key 'steps': expected an array, found object");
+  EXPECT_EQ(message_of(edited([](json& a) { a["model"]["coefficients"][0]["name"] = 5; })),
+            "b.json: key 'model.coefficients[0].name': expected a string, found number");
+  EXPECT_EQ(message_of(edited([](json& a) { a["model"]["coefficients"][1]["se"] = "small"; })),
+            "b.json: key 'model.coefficients[1].se': expected a number or null, found string");
+  EXPECT_EQ(message_of(edited([](json& a) { a["model"]["terms"] = "age"; })),
+            "b.json: key 'model.terms': expected an array, found string");
+  EXPECT_EQ(message_of(edited([](json& a) { a["data"]["columns"][0]["mean"] = "high"; })),
+            "b.json: key 'data.columns[0].mean': expected a number or null, found string");
+  EXPECT_EQ(message_of(edited([](json& a) { a["data"]["rows_used"] = -3; })),
+            "b.json: key 'data.rows_used': expected an integer >= 0, found -3");
+  EXPECT_EQ(message_of(edited([](json& a) { a["plan"]["normalised"] = "x"; })),
+            "b.json: key 'plan.normalised': expected an object, found string");
+  EXPECT_EQ(message_of(edited([](json& a) { a["steps"][1]["term"] = 3; })),
+            "b.json: key 'steps[1].term': expected a string or null, found number");
+  // A recorded comparison with the old audit: its prediction part is checked before it is shown.
+  EXPECT_EQ(message_of(edited([&](json& a) { a["comparison"] = {{"old_seal", audit["seal"]}, {"prediction", 3}}; })),
+            "b.json: key 'comparison.prediction': expected an object, found number");
+  EXPECT_EQ(message_of(edited([&](json& a) {
+              a["comparison"] = {{"old_seal", audit["seal"]}, {"prediction", {{"available", true}, {"rows", "many"}}}};
+            })),
+            "b.json: key 'comparison.prediction.rows': expected an integer >= 0, found \"many\"");
+  // The old audit is named as the old one.
+  try {
+    CompareAudits(edited([](json& a) { a["data"] = 1; }), audit, options);
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_EQ(std::string(error.what()), "a.json: key 'data': expected an object, found number");
+  }
+  // Control: a well-formed recorded prediction is shown.
+  const json rerun = edited([&](json& a) {
+    a["comparison"] = {{"old_seal", audit["seal"]},
+                       {"prediction", {{"available", true}, {"rows", 12}, {"old_model_rmse", 2.5},
+                                       {"old_model_mean_error", 0.5}, {"new_model_rmse", nullptr}}}};
+  });
+  EXPECT_NE(CompareAudits(audit, rerun, options).FullReport().find("RMSE 2.5"), std::string::npos)
+      << CompareAudits(audit, rerun, options).FullReport();
 }
 
 }  // namespace

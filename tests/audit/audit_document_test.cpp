@@ -301,6 +301,15 @@ TEST(AuditReading, NamesTheProblemOfAnUnreadableAudit) {
     EXPECT_NE(std::string(error.what()).find("'format_version': 0 is not a version this tool reads (1 to 2)"),
               std::string::npos) << error.what();
   }
+  // 2^64 - 1 is newer than any version, not -1 (the unsigned value is compared as it is).
+  const auto huge = dir.Write("huge.json", "{\"format\": \"stepledger-audit\", \"format_version\": 18446744073709551615}");
+  try {
+    ReadAuditFile(huge);
+    FAIL();
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("'format_version': 18446744073709551615 is newer than this tool reads (2)"),
+              std::string::npos) << error.what();
+  }
   EXPECT_THROW(ReadAuditFile(dir.path() / "absent.json"), InputError);
 }
 

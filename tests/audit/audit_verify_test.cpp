@@ -4,12 +4,16 @@
 #include "stepledger/audit/audit_verify.h"
 
 #include <algorithm>
+#include <cctype>
 
 #include <gtest/gtest.h>
 
 #include "stepledger/audit/audit_compare.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/canonical_json.h"
+#include "stepledger/audit/replay.h"
+#include "stepledger/audit/signature.h"
+#include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
 #include "support/audit_test_data.h"
 #include "support/test_paths.h"
@@ -90,6 +94,148 @@ TEST_F(AuditVerify, AnEditedPlanIsNamed) {
   // The chain starts from the plan: the genesis no longer matches either.
   const VerifyReport report = CheckAuditIntegrity(tampered);
   EXPECT_EQ(report.chain, Check::kFails);
+}
+
+// predict reads plan.normalised, a replay runs plan.verbatim: an edit of the normalised plan,
+// re-sealed with the documented (unkeyed) algorithm as anyone can, must not verify, with or
+// without the data (it did: predict then priced "age" from another column).
+TEST_F(AuditVerify, AnEditedNormalisedPlanResealedIsNamedWithAndWithoutData) {
+  EXPECT_EQ(CheckAuditIntegrity(*sealed_).plan, Check::kHolds) << "control: the untampered audit";
+  json tampered = *sealed_;
+  tampered["plan"]["normalised"]["terms"][0]["column"] = "battery_cycles";
+  SealAuditDocument(tampered);
+  const VerifyReport report = CheckAuditIntegrity(tampered);
+  EXPECT_EQ(report.chain, Check::kHolds) << "the test re-sealed it correctly";
+  EXPECT_EQ(report.sections, Check::kHolds);
+  EXPECT_EQ(report.seal, Check::kHolds);
+  EXPECT_EQ(report.plan, Check::kFails);
+  ASSERT_FALSE(report.Holds());
+  EXPECT_EQ(report.problems.front().rfind("key 'plan.normalised.terms[0].column' is \"battery_cycles\" in the audit, "
+                                          "\"age_months\" from plan.verbatim: ", 0),
+            0u)
+      << report.problems.front();
+
+  VerifyOptions options;
+  options.data = data_;
+  const VerifyReport replayed = VerifyAudit(tampered, options);
+  EXPECT_EQ(replayed.replay, Check::kFails) << replayed.FullReport();
+  EXPECT_NE(std::find_if(replayed.problems.begin(), replayed.problems.end(),
+                         [](const std::string& problem) {
+                           return problem.rfind("replay differs: key 'plan.normalised.terms[0].column'", 0) == 0;
+                         }),
+            replayed.problems.end())
+      << replayed.FullReport();
+
+  // A number edited by a rounding-level amount is caught too: the plans compare exactly.
+  json nudged = *sealed_;
+  nudged["plan"]["normalised"]["entry_p"] = 0.05000000000000001;
+  SealAuditDocument(nudged);
+  EXPECT_EQ(CheckAuditIntegrity(nudged).plan, Check::kFails);
+}
+
+// An older audit's normalised plan may lack a key added since (max_levels): it reads at its
+// default, and that is what the verbatim plan gives, so it holds; a value other than the
+// verbatim one does not.
+TEST_F(AuditVerify, AKeyTheNormalisedPlanLacksComparesAtItsDefault) {
+  json older = *sealed_;
+  older["plan"]["normalised"].erase("max_levels");
+  SealAuditDocument(older);
+  EXPECT_EQ(CheckAuditIntegrity(older).plan, Check::kHolds) << CheckAuditIntegrity(older).FullReport();
+  json other = *sealed_;
+  other["plan"]["normalised"]["max_levels"] = 50;
+  SealAuditDocument(other);
+  EXPECT_EQ(FirstProblem(other).rfind("key 'plan.normalised.max_levels' is 50 in the audit, 100 from plan.verbatim", 0), 0u)
+      << FirstProblem(other);
+  // A normalised plan the plan reader refuses is named with its key.
+  json unknown = *sealed_;
+  unknown["plan"]["normalised"]["colour"] = "red";
+  SealAuditDocument(unknown);
+  EXPECT_NE(FirstProblem(unknown).find("key 'plan.normalised.colour': unknown key"), std::string::npos)
+      << FirstProblem(unknown);
+}
+
+// The seal does not cover the signature: with --public-key the key recorded in the audit must
+// be the one given (a swapped key passed before), and the signature must sign the seal.
+TEST_F(AuditVerify, ASwappedPublicKeyDoesNotPassTheKeyCheck) {
+  const auto key = folder_->path() / "signer.pem";
+  if (testing::RunCommand("openssl genpkey -algorithm ed25519 -out '" + key.string() + "' 2>/dev/null") != 0) {
+    GTEST_SKIP() << "openssl cannot make an Ed25519 key here";
+  }
+  const Ed25519Signer signer = Ed25519Signer::FromPemFile(key);
+  json signed_audit = *sealed_;
+  SealAuditDocument(signed_audit, &signer);
+  EXPECT_TRUE(CheckAuditIntegrity(signed_audit, key).Holds()) << "control: the signed audit holds";
+
+  // RFC 8032 section 7.1, test 1's public key: a valid key of someone else.
+  const std::string other_key = "d75a980182b10ab7d54bfed3c964073a0ee172f3daa62325af021a68f707511a";
+  json swapped = signed_audit;
+  swapped["signature"]["public_key"] = other_key;
+  const VerifyReport with_key = CheckAuditIntegrity(swapped, key);
+  EXPECT_EQ(with_key.signature, Check::kFails);
+  ASSERT_FALSE(with_key.Holds());
+  EXPECT_EQ(with_key.problems.front().rfind("key 'signature.public_key' is \"d75a9801", 0), 0u) << with_key.problems.front();
+  // Without a key the signature is checked against the recorded one, which did not sign it.
+  EXPECT_EQ(FirstProblem(swapped), "signature does not verify against the key recorded in the audit");
+  // Upper-case hex of the right key is the same key.
+  json upper = signed_audit;
+  std::string text = upper["signature"]["public_key"].get<std::string>();
+  for (char& c : text) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  upper["signature"]["public_key"] = text;
+  EXPECT_EQ(CheckAuditIntegrity(upper, key).signature, Check::kHolds);
+
+  json other_message = signed_audit;
+  other_message["signature"]["signed"] = "plan";
+  EXPECT_EQ(FirstProblem(other_message).rfind("key 'signature.signed' is \"plan\"", 0), 0u) << FirstProblem(other_message);
+}
+
+// The recorded settings are honoured on replay: each is type- and range-checked, and the thread
+// count is bounded by the cores here unless the caller says how many (100,000 recorded threads
+// were started as asked).
+TEST_F(AuditVerify, RecordedSettingsAreRangeCheckedAndThreadsBounded) {
+  auto message_of = [](const json& settings) {
+    try {
+      RunOptionsFromSettings(settings, "a.json");
+    } catch (const InputError& error) {
+      return std::string(error.what());
+    }
+    return std::string();
+  };
+  EXPECT_EQ(message_of({{"threads", 100000}}), "a.json: key 'settings.threads': expected an integer from 1 to 256, found 100000");
+  EXPECT_EQ(message_of({{"threads", 18446744073709551615u}}),
+            "a.json: key 'settings.threads': expected an integer from 1 to 256, found 18446744073709551615");
+  EXPECT_EQ(message_of({{"threads", 0}}), "a.json: key 'settings.threads': expected an integer from 1 to 256, found 0");
+  EXPECT_EQ(message_of({{"threads", 2.0}}), "a.json: key 'settings.threads': expected an integer from 1 to 256, found 2.0");
+  EXPECT_EQ(message_of({{"confidence_level", 2}}),
+            "a.json: key 'settings.confidence_level': expected a number between 0 and 1 (exclusive), found 2");
+  EXPECT_EQ(message_of({{"max_refinement_passes", 1000000}}),
+            "a.json: key 'settings.max_refinement_passes': expected an integer from 0 to 100, found 1000000");
+  EXPECT_EQ(message_of({{"delimiter", 5}}), "a.json: key 'settings.delimiter': expected a string, found number");
+  EXPECT_EQ(message_of({{"delimiter", "\""}}).rfind("a.json: key 'settings.delimiter': expected one character", 0), 0u);
+  EXPECT_EQ(message_of({{"diagnostics", "yes"}}), "a.json: key 'settings.diagnostics': expected true or false, found string");
+  EXPECT_EQ(message_of({{"vif_caution", -1}}), "a.json: key 'settings.vif_caution': expected a number above 0, found -1");
+  EXPECT_EQ(message_of(json::array()), "a.json: key 'settings': expected an object, found array");
+  EXPECT_EQ(message_of((*sealed_)["settings"]), "") << "control: the recorded settings";
+  EXPECT_EQ(RunOptionsFromSettings({{"threads", 3}, {"delimiter", ";"}}).threads, 3);
+
+  json many = *sealed_;
+  many["settings"]["threads"] = 256;
+  EXPECT_EQ(ReplayRecordedPlan(many, data_, "audit").options.threads, std::min(256, CoresAvailable()));
+  ReplayOverrides one;
+  one.threads = 1;
+  EXPECT_EQ(ReplayRecordedPlan(many, data_, "audit", one).options.threads, 1);
+  // verify --data names an unusable setting as the reason the replay could not run.
+  many["settings"]["threads"] = 100000;
+  VerifyOptions options;
+  options.data = data_;
+  const VerifyReport report = VerifyAudit(many, options);
+  EXPECT_EQ(report.replay, Check::kFails);
+  EXPECT_NE(std::find_if(report.problems.begin(), report.problems.end(),
+                         [](const std::string& problem) {
+                           return problem.find("replay impossible: the recorded settings are unusable: audit: key "
+                                               "'settings.threads'") == 0;
+                         }),
+            report.problems.end())
+      << report.FullReport();
 }
 
 TEST_F(AuditVerify, AChangedFinalModelIsNamed) {
@@ -225,6 +371,28 @@ TEST(JsonDifference, NamesTheKeyPathAndUsesTheRelativeTolerance) {
   b = a;
   b["model"]["coefficients"][0]["name"] = "x";
   EXPECT_EQ(*FirstJsonDifference(a, b, "", 1e-9), "key 'model.coefficients[0].name' is missing in the audit");
+}
+
+// Comparing and stripping walk without the call stack's help past a fixed depth: a value built
+// in memory 200,000 levels deep is reported, not crashed on.
+TEST(JsonDifference, DeepValuesAreReportedNotCrashedOn) {
+  json deep = json::array();
+  for (int i = 0; i < 200000; ++i) {
+    json outer = json::array();
+    outer.push_back(std::move(deep));
+    deep = std::move(outer);
+  }
+  const auto difference = FirstJsonDifference(deep, deep, "x", 0.0);
+  ASSERT_TRUE(difference.has_value());
+  EXPECT_NE(difference->find("nested deeper than 256 levels"), std::string::npos) << *difference;
+  json with_wording = json::object();
+  with_wording["message"] = "m";
+  with_wording["a"] = std::move(deep);  // moved: nlohmann's copy recurses
+  WithoutWording(with_wording);
+  EXPECT_FALSE(with_wording.contains("message"));
+  // Within the limit, equal values are equal.
+  json shallow = json::array({json::array({1, {{"k", 2.0}}})});
+  EXPECT_FALSE(FirstJsonDifference(shallow, shallow, "x", 0.0).has_value());
 }
 
 }  // namespace

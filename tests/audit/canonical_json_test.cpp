@@ -100,5 +100,23 @@ TEST(CanonicalJson, PythonReserialisationKeepsTheCanonicalForm) {
   EXPECT_EQ(CanonicalJson(nlohmann::json::parse(output)), CanonicalJson(value));
 }
 
+// A value built in memory can nest far deeper than a file may (the reader stops at 64): the
+// writer keeps its own stack, so 200,000 levels canonicalise instead of exhausting the call
+// stack (the recursive writer crashed here).
+TEST(CanonicalJson, DeepNestingBuiltInMemoryDoesNotExhaustTheStack) {
+  constexpr std::size_t kDepth = 200000;
+  nlohmann::json value = nlohmann::json::object({{"b", 1}, {"a", nullptr}});
+  for (std::size_t i = 0; i < kDepth; ++i) {
+    nlohmann::json outer = nlohmann::json::array();
+    outer.push_back(std::move(value));
+    value = std::move(outer);
+  }
+  const std::string text = CanonicalJson(value);
+  EXPECT_EQ(text, std::string(kDepth, '[') + "{\"a\":null,\"b\":1}" + std::string(kDepth, ']'));
+  // Objects in arrays in objects keep their order rules at every level.
+  EXPECT_EQ(CanonicalJson(nlohmann::json::parse(R"({"z": [{"y": 1, "x": [2, {"w": 3, "v": 4}]}], "a": {}})")),
+            R"({"a":{},"z":[{"x":[2,{"v":4,"w":3}],"y":1}]})");
+}
+
 }  // namespace
 }  // namespace stepledger

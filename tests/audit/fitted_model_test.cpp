@@ -330,5 +330,40 @@ TEST(FittedModel, ErrorsNameTheKey) {
   ExpectFailureNaming(no_sigma_type, "key 'model.sigma': expected a number or null");
 }
 
+// Wrong types and out-of-range integers in a (re-sealed) audit are bad input naming the key;
+// each of these ended in a JSON library exception (exit 3, "internal error"), and 2^64 - 1
+// was read as -1.
+TEST(FittedModel, WrongTypesAndOutOfRangeIntegersNameTheKey) {
+  TempDir dir;
+  const Recorded recorded = RunAndRecord(dir, LogPricePlan(false), MakeListings(60, 15));
+  struct Edit {
+    const char* section;
+    const char* key;
+    json value;
+    const char* expected;
+  };
+  const std::vector<Edit> edits = {
+      {"model", "intercept", "yes", "key 'model.intercept': expected true or false, found string"},
+      {"model", "refinement_passes", "x", "key 'model.refinement_passes': expected an integer from 0 to 1000, found \"x\""},
+      {"model", "n", -1, "key 'model.n': expected an integer >= 0, found -1"},
+      {"model", "k", 18446744073709551615u, "key 'model.k': expected an integer >= 0, found 18446744073709551615"},
+      {"prediction", "max_unit_leverage_line", "x",
+       "key 'prediction.max_unit_leverage_line': expected an integer >= 0, found \"x\""},
+      {"prediction", "ranges", json::array({5}), "key 'prediction.ranges[0]': expected an object, found number"},
+      {"model", "coefficients", json::array({"c"}), "key 'model.coefficients[0]': expected an object, found string"},
+  };
+  for (const Edit& edit : edits) {
+    json edited = recorded.audit;
+    edited[edit.section][edit.key] = edit.value;
+    ExpectFailureNaming(edited, edit.expected);
+  }
+  json levels = recorded.audit;
+  levels["data"]["columns"][0]["too_many_levels"] = "x";
+  ExpectFailureNaming(levels, "key 'data.columns[0].too_many_levels': expected true or false, found string");
+  json column = recorded.audit;
+  column["data"]["columns"][1] = 7;
+  ExpectFailureNaming(column, "key 'data.columns[1]': expected an object, found number");
+}
+
 }  // namespace
 }  // namespace stepledger

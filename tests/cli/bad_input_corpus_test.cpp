@@ -261,6 +261,7 @@ TEST_P(BadInputCorpus, EndsWithTheStatedExitAndMessageAndLeavesFilesAlone) {
   const fs::path folder = scratch.path() / "work";
   fs::create_directories(folder);
   for (const auto& name : spec.value("folders", json::array())) fs::create_directories(folder / name.get<std::string>());
+  // Named copies: items() of a temporary would dangle.
   const json files = spec.value("files", json::object());
   const json copies = spec.value("copy", json::object());
   for (const auto& [name, content] : files.items()) {

@@ -90,6 +90,18 @@ TEST_F(CsvReaderTest, ReadsHeaderAndRecordsWithPositions) {
   EXPECT_EQ(reader.bytes_read(), std::filesystem::file_size(path));
 }
 
+// Column names go into every JSON the tool writes, which holds Unicode only: a name that is not
+// UTF-8 is refused at its place in the header (a Latin-1 name ended in exit 3 at the JSON writer).
+TEST_F(CsvReaderTest, AHeaderNameThatIsNotUtf8IsRefusedAtItsPlace) {
+  const auto path = folder_.Write("latin1.csv", "price,age,gr\xE9" "de\n1,2,A\n");
+  EXPECT_EQ(ErrorReadingAll(path), path.string() + ":1:11: the name in header field 3 is not UTF-8 text (byte 0xE9 "
+                                   "at byte 3 of the name); stepledger reads data files as UTF-8: convert the file "
+                                   "first (for example from Latin-1)");
+  // Control: the same name in UTF-8 is read; a cell that is not UTF-8 is the scan's to judge.
+  const auto utf8 = folder_.Write("utf8.csv", "price,age,gr\xC3\xA9" "de\n1,2,\xE9\n");
+  EXPECT_NO_THROW(ReadAll(utf8));
+}
+
 TEST_F(CsvReaderTest, WhereNamesFileLineAndColumn) {
   const auto path = folder_.Write("where.csv", "a,b\n1,22\n");
   CsvReader reader(path);

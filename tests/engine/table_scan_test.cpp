@@ -134,6 +134,28 @@ TEST(TableScanTest, EveryCutGivesTheSameScanAsOneReader) {
   }
 }
 
+// Levels and the first text of a column go into the audit and every --json: text that is not
+// UTF-8 is refused where it is read, naming the cell, wherever the file is cut (a Latin-1 level
+// ended in exit 3 at the JSON writer).
+TEST(TableScanTest, TextThatIsNotUtf8IsRefusedAtItsCell) {
+  TempDir dir;
+  const auto path = dir.Write("levels.csv", "price,grade\n100,A\n90,B\n80,caf\xE9\n70,A\n");
+  const std::string expected = path.string() + ":4:4: column 'grade' holds text that is not UTF-8 (byte 0xE9 at byte 4 "
+                                               "of the cell); stepledger reads data files as UTF-8: convert the file "
+                                               "first (for example from Latin-1)";
+  EXPECT_EQ(InputErrorOf([&] { ScanData(path, ScanOptions{}); }), expected);
+  for (std::uint64_t cut = 13; cut < 30; ++cut) {
+    EXPECT_EQ(InputErrorOf([&] { ScanData(path, WithCuts({cut})); }), expected) << "cut at byte " << cut;
+  }
+  // In a numeric column too: its first text is kept for the profile's hint.
+  const auto numeric = dir.Write("numeric.csv", "price,age\n100,1\n90,\xFF\n");
+  EXPECT_NE(InputErrorOf([&] { ScanData(numeric, ScanOptions{}); }).find(":3:4: column 'age' holds text that is not UTF-8"),
+            std::string::npos);
+  // Control: the same level in UTF-8 is read.
+  const auto utf8 = dir.Write("utf8.csv", "price,grade\n100,A\n90,caf\xC3\xA9\n");
+  EXPECT_NO_THROW(ScanData(utf8, ScanOptions{}));
+}
+
 TEST(TableScanTest, AFileSmallerThanTheThreadsAndAFileOfOnlyAHeader) {
   TempDir dir;
   const auto tiny = dir.Write("tiny.csv", "a,b\n1,2\n");

@@ -60,6 +60,9 @@ struct CompareOptions {
   /// A coefficient change larger than this many old standard errors is marked. Default 2
   /// (common practice: about a 95% two-sided band).
   double coefficient_mark_in_se = 2;
+  /// Names of the two audits in messages ("old.json: key 'model.terms': expected an array").
+  std::string old_name = "old audit";
+  std::string new_name = "new audit";
 };
 
 /// One key of the normalised plans whose values differ. The values are kept as the audits
@@ -191,8 +194,9 @@ struct AuditComparison {
   nlohmann::json ToJson() const;
 };
 
-/// The comparison of an old and a new audit (parsed). Throws InputError naming the key when an
-/// audit lacks a section the comparison needs.
+/// The comparison of an old and a new audit (parsed). Throws InputError naming the audit and the
+/// key when an audit lacks a section the comparison needs or holds a value of the wrong type
+/// there (a recorded comparison.prediction included).
 AuditComparison CompareAudits(const nlohmann::json& old_audit, const nlohmann::json& new_audit,
                               const CompareOptions& options = {});
 

@@ -116,9 +116,13 @@ struct AuditOutputOptions {
   std::filesystem::path sign_key;
 };
 
+/// The key path of the first key or string of a document that is not UTF-8, or nullopt.
+std::optional<std::string> FirstNonUtf8Text(const nlohmann::json& document);
+
 /// Builds the document of a run, seals it and, with a sign_key (Ed25519 private key, PEM),
 /// signs it: the one document that the audit file and the report are both made from.
-/// Throws InputError when the key cannot be used.
+/// Throws InputError when the key cannot be used, or naming the key of a text that is not UTF-8
+/// (JSON cannot hold it; the data file's name is recorded with U+FFFD in place of bad bytes).
 nlohmann::json BuildSealedAudit(const RunResult& run, const AuditDocumentOptions& document_options,
                                 const std::filesystem::path& sign_key = {});
 
@@ -132,9 +136,17 @@ void WriteAuditFolder(const std::filesystem::path& folder, const nlohmann::json&
 nlohmann::json WriteAuditDocument(const RunResult& run, const AuditDocumentOptions& document_options,
                                   const AuditOutputOptions& output);
 
-/// The run options recorded under a document's `settings` (defaults for missing keys), so
-/// that a replay runs the way the original did.
-RunOptions RunOptionsFromSettings(const nlohmann::json& settings);
+/// Most threads an audit's `settings.threads` may record (the command line's --threads range).
+/// A replay runs with no more threads than the machine has cores (ReplayRecordedPlan).
+inline constexpr int kMaxRecordedThreads = 256;
+/// Most refinement passes `settings.max_refinement_passes` may record (select --refine's range).
+inline constexpr int kMaxRefinementPasses = 100;
+
+/// The run options recorded under a document's `settings` (defaults for missing keys; null: all
+/// defaults), so that a replay runs the way the original did. Every value is type- and
+/// range-checked: throws InputError "SOURCE: key 'settings.threads': expected an integer from 1
+/// to 256, found 100000".
+RunOptions RunOptionsFromSettings(const nlohmann::json& settings, std::string_view source_name = "audit");
 
 /// Current UTC time as ISO 8601 with seconds ("2026-12-01T09:30:00Z").
 std::string UtcTimestamp();

@@ -3,6 +3,11 @@
 // the signature; and, given the data, the fingerprint and a replay of the recorded plan whose
 // route is compared step by step with the recorded one.
 //
+// The normalised plan is checked against the verbatim one, with or without data: predict,
+// report and compare read plan.normalised, a replay runs plan.verbatim, so an edit of the one
+// that the seal was recomputed over would otherwise make predict price from a plan nothing
+// replays. With data, the replay's own normalisation is compared with it too.
+//
 // Every check names the first place that does not hold: "step 3 digest does not match",
 // "key 'model' does not match its digest", "fingerprint mismatch: the data are not the bytes the
 // audit was made from", "route diverges at step 2: key 'steps[2].term' ...".
@@ -51,6 +56,9 @@ struct VerifyReport {
   Check sections = Check::kNotRun;     ///< per-section digests
   Check seal = Check::kNotRun;
   Check signature = Check::kNotRun;    ///< not run when the audit has none and no key was given
+  /// plan.normalised (what predict, report and compare read) is what plan.verbatim (what a
+  /// replay runs) gives on the recorded columns
+  Check plan = Check::kNotRun;
   Check fingerprint = Check::kNotRun;  ///< with data
   Check replay = Check::kNotRun;       ///< with data
   /// Problems, each naming its place; the first one is the first place that differs.
@@ -69,8 +77,10 @@ struct VerifyReport {
 };
 const char* ToString(VerifyReport::Check check);
 
-/// Chain, section digests, seal and signature of a parsed audit. Never throws for content
-/// problems (they are reported); throws InputError when the public key file cannot be used.
+/// Chain, section digests, seal, signature and the normalised plan of a parsed audit. Never
+/// throws for content problems (they are reported); throws InputError when the public key file
+/// cannot be used. With a public key, the signature must verify against it and the audit's
+/// signature.public_key must be that key.
 VerifyReport CheckAuditIntegrity(const nlohmann::json& document,
                                  const std::filesystem::path& public_key = {});
 

@@ -5,6 +5,9 @@
 // ECMAScript writes numbers (1e+30, 0.002, 4.5, 1e-27). So a digest covers content, not
 // bytes: the same document re-serialised by another JSON library verifies.
 //
+// The writer keeps its own stack: a value of any depth is written without recursion (a document
+// read from a file has at most 64 levels, io/json_reader.h; one built in memory may have more).
+//
 // One deliberate departure: integers that nlohmann-json holds as integers are written
 // exactly, even beyond 2^53 (seeds). Integral doubles below 2^53 print the same either way.
 

@@ -64,6 +64,15 @@ struct FittedModel {
 /// gets a message saying to rerun it with this version.
 FittedModel FittedModelFromAudit(const nlohmann::json& audit, std::string_view source_name);
 
+/// The normalised plan that the audit's plan.verbatim gives on its recorded columns
+/// (data.columns): what the run wrote as plan.normalised, derived from what a replay runs.
+/// Throws InputError naming the key when the plan or the columns cannot be read.
+nlohmann::json NormalisedPlanFromVerbatim(const nlohmann::json& audit, std::string_view source_name);
+
+/// plan.normalised as FittedModelFromAudit reads it (PlanToJson of the plan it reads: keys
+/// an older audit leaves out at their defaults). Throws InputError naming the key.
+nlohmann::json NormalisedPlanAsRead(const nlohmann::json& audit, std::string_view source_name);
+
 /// The model for pricing new rows (engine/prediction.h): the design restricted to the terms
 /// the model needs (TermsNeededByModel), so that the rows need neither the response nor the
 /// columns of candidates the selection left out; the fit, the ranges, the largest unit leverage

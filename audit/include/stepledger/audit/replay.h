@@ -16,7 +16,7 @@ namespace stepledger {
 /// What a replay may run differently from the recording (neither changes the numbers beyond
 /// rounding: the thread count changes the order of merges, the delimiter only the reading).
 struct ReplayOverrides {
-  /// Threads of the data pass; nullopt: as recorded in `settings`.
+  /// Threads of the data pass (--threads); nullopt: as recorded in `settings`, at most the cores.
   std::optional<int> threads;
   /// Field delimiter of the data; nullopt: as recorded.
   std::optional<char> delimiter;
@@ -24,8 +24,12 @@ struct ReplayOverrides {
   std::filesystem::path work_dir;
 };
 
+/// The cores this process may run on (sched_getaffinity), from 1 to kMaxRecordedThreads.
+int CoresAvailable();
+
 /// Runs the audit's recorded plan (plan.verbatim, read as a plan file is read) with its recorded
-/// settings on data. audit_name (the audit's file name) starts messages. Throws InputError when
+/// settings (RunOptionsFromSettings: type- and range-checked) on data, with no more threads than
+/// CoresAvailable() unless overrides.threads says how many. audit_name (the audit's file name) starts messages. Throws InputError when
 /// the recorded plan is missing or unusable (naming the key) or the data cannot be read.
 /// observer (optional) sees the search's events (progress).
 RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem::path& data,

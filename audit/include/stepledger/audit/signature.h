@@ -34,6 +34,10 @@ class Ed25519Signer {
   void* key_ = nullptr;  // EVP_PKEY*
 };
 
+/// The raw 32-byte public key, lower-case hexadecimal, of a PEM public key file (or of the
+/// public half of a PEM private key file). Throws InputError naming the file.
+std::string Ed25519PublicKeyHexFromPemFile(const std::filesystem::path& path);
+
 /// Checks an Ed25519 signature (hex) of message against a PEM public key file
 /// (`openssl pkey -pubout`) — or a PEM private key file, whose public half is used.
 /// Throws InputError when the key file cannot be used; returns false for a wrong signature.

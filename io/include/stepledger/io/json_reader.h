@@ -1,15 +1,21 @@
 #pragma once
 // One strict JSON reader for every JSON file the tool reads: plans, audits and public models.
 //
-// Strict means:
-//   - malformed JSON is an error naming the source, line and column ("plan.json:3:14: malformed
-//     JSON: unexpected '}'");
-//   - a key repeated within one object is an error naming its key path (nlohmann would keep
-//     the last silently, so an edited file could say two things at once);
-//   - nesting deeper than JsonReadOptions::max_depth is refused while parsing, before anything
-//     deep is built, so no later recursive walk (canonical JSON, quoting a value in a message)
-//     can exhaust the stack.
-// Cost: one pass over the text; memory O(size of the document).
+// Strict means (every message starts with the source, line and column):
+//   - malformed JSON ("plan.json:3:14: malformed JSON: unexpected '}'"), and text that is not
+//     UTF-8 inside a string (nlohmann's lexer refuses it), are errors;
+//   - a key repeated within one object is an error naming its key path and where the second
+//     one starts ("audit.json:12:3: key 'model': duplicate key ..."): nlohmann would keep the
+//     last silently, so an edited file could say two things at once;
+//   - nesting deeper than JsonReadOptions::max_depth (64) is refused while parsing, before
+//     anything deep is built, so no later recursive walk (nlohmann's dump, copy and ==,
+//     quoting a value in a message) can exhaust the stack;
+//   - a number beyond the range of a double (1e400) is an error naming where it starts (JSON
+//     allows it; no double holds it).
+// Cost: one pass over the text, linear in its size (the document is built from SAX events, not
+// by nlohmann's callback parser, which is quadratic in the objects of an array); memory
+// O(size of the document). The line and column of an
+// error are counted from the start of the text, once, when it is thrown.
 
 #include <cstddef>
 #include <filesystem>
@@ -29,8 +35,9 @@ struct JsonReadOptions {
 };
 
 /// A JSON text that cannot be read. key_path() is the path of the offending key for a duplicate
-/// key ("terms[2].name"), empty for syntax and depth errors; detail() is the message without the
-/// source name, so that callers with their own error type (PlanError) can rethrow it.
+/// key ("terms[2].name"), empty for syntax, depth and number errors; detail() is the message
+/// without the key path (it keeps "file:line:column"), so that callers with their own error type
+/// (PlanError, which names the key itself) can rethrow it.
 class JsonReadError : public InputError {
  public:
   JsonReadError(const std::string& message, std::string key_path, std::string detail)
