@@ -220,6 +220,59 @@ TEST(DataPassTest, ThreadCountsGiveTheSameFactorAndAccounting) {
   EXPECT_TRUE(arma::approx_equal(again.factor.r, results[2].factor.r, "absdiff", 0.0));
 }
 
+// RequireSomethingToFit on passes made by hand: every branch, including a pass that read no row
+// (RunPlan never gets there: a header alone leaves the response empty, a PlanError).
+TEST(DataPassTest, NothingToFitIsRefusedNamingWhy) {
+  Design design;
+  design.response = "price";
+  design.intercept = true;
+  auto message = [&](const PassResult& pass) {
+    try {
+      RequireSomethingToFit(pass, design, "d.csv");
+    } catch (const InputError& error) {
+      return std::string(error.what());
+    }
+    return std::string("(nothing thrown)");
+  };
+  PassResult pass;
+  EXPECT_EQ(message(pass), "d.csv: the file has no data rows (a header alone): nothing to fit");
+  pass.accounting.rows_read = 3;
+  pass.accounting.CountDropped(DropReason::kZeroWeight, "w", 2);
+  pass.accounting.CountDropped(DropReason::kMissing, "age", 1);
+  EXPECT_EQ(message(pass).substr(0, 109),
+            "d.csv: no row can be used: all 3 rows read were dropped (1 with a missing cell in column 'age', 2 with "
+            "weight");
+  // Used rows: the response's spread decides.
+  pass.accounting.rows_used = 2;
+  pass.factor.column_stats.resize(2);
+  RunningStats& y = pass.factor.column_stats.back();
+  y.Add(7);
+  y.Add(7);
+  EXPECT_NE(message(pass).find("d.csv: response 'price' is 7 in the 2 rows used: with an intercept"), std::string::npos)
+      << message(pass);
+  EXPECT_NE(message(pass).find("check the response column and the rows dropped (3 rows)"), std::string::npos)
+      << message(pass);
+  y = RunningStats{};
+  y.Add(7);
+  y.Add(std::nextafter(7.0, 8.0));  // the next double: rounding, not data
+  EXPECT_NE(message(pass).find("only varies from 7 to 7.000000000000001 in the 2 rows used"), std::string::npos)
+      << message(pass);
+  y = RunningStats{};
+  y.Add(7);
+  y.Add(7 + 7 * 0x1p-39);  // beyond 2^-40 of the size: data
+  EXPECT_EQ(message(pass), "(nothing thrown)");
+  design.intercept = false;
+  y = RunningStats{};
+  y.Add(7);
+  y.Add(7);
+  EXPECT_EQ(message(pass), "(nothing thrown)");  // a model through the origin
+  y = RunningStats{};
+  y.Add(0);
+  y.Add(0);
+  EXPECT_NE(message(pass).find("response 'price' is 0 in the 2 rows used: there is nothing to fit"), std::string::npos)
+      << message(pass);
+}
+
 TEST(DataPassTest, ForEachUsedRowSeesUsedRowsInOrder) {
   TempDir folder;
   const auto path = folder.Write("laptops.csv", kLaptops);
