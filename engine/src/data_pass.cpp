@@ -8,13 +8,13 @@
 #include <cmath>
 #include <exception>
 #include <optional>
-#include <thread>
 #include <utility>
 #include <vector>
 
 #include "design_expand.h"
 #include "file_identity.h"
 #include "lapack.h"
+#include "thread_start.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/number_format.h"
 #include "stepledger/engine/table_scan.h"
@@ -230,12 +230,22 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
       errors[t] = std::current_exception();
     }
   };
+  // Each thread inside LAPACK needs a work buffer of OpenBLAS's (engine/src/lapack.h): under an
+  // address-space limit, fewer shares run at once (the same shares: the same bits).
+  const std::size_t at_once = lapack::LapackCallersAllowed(workers);
+  if (at_once == 0) {
+    throw ResourceError("not enough address space for the factor pass: the limit (ulimit -v) leaves less than "
+                        "the " + std::to_string((lapack::kLapackCallerBytes + lapack::kRunReserveBytes) >> 20) +
+                        " MB that one thread inside LAPACK needs (OpenBLAS's work buffer); raise the limit");
+  }
   if (workers == 1) {
     fold_share(0);
   } else {
-    std::vector<std::thread> threads;
-    for (std::size_t t = 0; t < workers; ++t) threads.emplace_back(fold_share, t);
-    for (auto& thread : threads) thread.join();
+    detail::RunTasks(workers, fold_share, "the factor pass", at_once,
+                     "the address-space limit (ulimit -v) leaves room for the linear algebra of " +
+                         std::to_string(at_once) + (at_once == 1 ? " thread" : " threads") +
+                         " (OpenBLAS's work buffer: about " + std::to_string(lapack::kLapackCallerBytes >> 20) +
+                         " MB each)");
   }
   // The first error in file order: the shares are contiguous and in order.
   for (const auto& error : errors) {

@@ -11,10 +11,10 @@
 #include <exception>
 #include <limits>
 #include <optional>
-#include <thread>
 #include <unordered_map>
 
 #include "file_identity.h"
+#include "thread_start.h"
 #include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
@@ -470,20 +470,21 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
       scan.error = std::current_exception();
     }
   };
-  {
-    std::vector<std::thread> threads;
-    for (std::size_t r = 0; r < range_count; ++r) {
-      threads.emplace_back([&, r] {
-        scan_range(r, starts[r], "range-" + std::to_string(r) + ".bin");
+  detail::RunTasks(
+      range_count,
+      [&](std::size_t r) {
+        try {
+          scan_range(r, starts[r], "range-" + std::to_string(r) + ".bin");
+        } catch (...) {
+          scans[r].error = std::current_exception();  // the file name could not be made
+        }
         try {
           HashBlocks(fd, size, blocks * r / range_count, blocks * (r + 1) / range_count, digests, name);
         } catch (...) {
           hash_errors[r] = std::current_exception();
         }
-      });
-    }
-    for (auto& thread : threads) thread.join();
-  }
+      },
+      "reading the data");
   // Check the guessed cuts in file order; read a range again from the true boundary when the
   // range before ends elsewhere (a quoted field held the guessed line end).
   std::vector<std::uint64_t> lines_before(range_count);
