@@ -14,6 +14,7 @@
 #include <string_view>
 #include <exception>
 #include <functional>
+#include <new>
 #include <stdexcept>
 #include <sstream>
 
@@ -26,6 +27,7 @@
 #include "stepledger/report/report.h"
 #include "stepledger/io/atomic_file.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/notice.h"
 
 #ifndef STEPLEDGER_VERSION
 #define STEPLEDGER_VERSION "unknown"
@@ -285,6 +287,11 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
   return RunCommandAction(
       [&context, &err] {
         context.log = cli::MakeLogger(err, context.common);
+        // The engine's notes (a pass on fewer threads than asked) are warnings of this command.
+        struct NoticesToLog {
+          NoticeSink previous;
+          ~NoticesToLog() { SetNoticeSink(std::move(previous)); }
+        } notices{SetNoticeSink([log = context.log](std::string_view line) { log->warn("{}", line); })};
         return context.action();
       },
       err);
@@ -298,6 +305,14 @@ int RunCommandAction(const std::function<int()>& action, std::ostream& err) {
     return static_cast<int>(ExitStatus::kBadInput);
   } catch (const NumericalError& error) {
     err << "stepledger: numerical failure: " << cli::OneLineText(error.what()) << "\n";
+    return static_cast<int>(ExitStatus::kFailure);
+  } catch (const ResourceError& error) {
+    err << "stepledger: " << cli::OneLineText(error.what()) << "\n";
+    return static_cast<int>(ExitStatus::kFailure);
+  } catch (const std::bad_alloc&) {
+    // Memory ran out (a limit such as `ulimit -v`, or more than the machine has): not a bug.
+    err << "stepledger: out of memory: a memory limit (such as ulimit -v) or the machine's memory was "
+           "reached; raise the limit, or use fewer --threads\n";
     return static_cast<int>(ExitStatus::kFailure);
   } catch (const std::logic_error& error) {
     // A broken internal rule (std::invalid_argument and friends too): a bug, never the

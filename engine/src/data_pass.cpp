@@ -5,16 +5,18 @@
 
 #include <algorithm>
 #include <charconv>
+#include <cmath>
 #include <exception>
 #include <optional>
-#include <thread>
 #include <utility>
 #include <vector>
 
 #include "design_expand.h"
 #include "file_identity.h"
 #include "lapack.h"
+#include "thread_start.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 #include "stepledger/engine/table_scan.h"
 
 namespace stepledger {
@@ -228,12 +230,22 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
       errors[t] = std::current_exception();
     }
   };
+  // Each thread inside LAPACK needs a work buffer of OpenBLAS's (engine/src/lapack.h): under an
+  // address-space limit, fewer shares run at once (the same shares: the same bits).
+  const std::size_t at_once = lapack::LapackCallersAllowed(workers);
+  if (at_once == 0) {
+    throw ResourceError("not enough address space for the factor pass: the limit (ulimit -v) leaves less than "
+                        "the " + std::to_string((lapack::kLapackCallerBytes + lapack::kRunReserveBytes) >> 20) +
+                        " MB that one thread inside LAPACK needs (OpenBLAS's work buffer); raise the limit");
+  }
   if (workers == 1) {
     fold_share(0);
   } else {
-    std::vector<std::thread> threads;
-    for (std::size_t t = 0; t < workers; ++t) threads.emplace_back(fold_share, t);
-    for (auto& thread : threads) thread.join();
+    detail::RunTasks(workers, fold_share, "the factor pass", at_once,
+                     "the address-space limit (ulimit -v) leaves room for the linear algebra of " +
+                         std::to_string(at_once) + (at_once == 1 ? " thread" : " threads") +
+                         " (OpenBLAS's work buffer: about " + std::to_string(lapack::kLapackCallerBytes >> 20) +
+                         " MB each)");
   }
   // The first error in file order: the shares are contiguous and in order.
   for (const auto& error : errors) {
@@ -244,6 +256,68 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
   for (std::size_t t = 1; t < workers; ++t) builders[0].Merge(std::move(builders[t]));
   result.factor = builders[0].Finish();
   return result;
+}
+
+namespace {
+
+std::string ShortestText(double value) {
+  char text[32];
+  const auto written = std::to_chars(text, text + sizeof text, value);
+  return std::string(text, static_cast<std::size_t>(written.ptr - text));
+}
+
+std::string Rows(std::uint64_t count) { return FormatCount(static_cast<std::int64_t>(count)) + (count == 1 ? " row" : " rows"); }
+
+}  // namespace
+
+void RequireSomethingToFit(const PassResult& pass, const Design& design, const std::string& data_name) {
+  const RowAccounting& rows = pass.accounting;
+  if (rows.rows_used == 0) {
+    if (rows.rows_read == 0) {
+      throw InputError(data_name + ": the file has no data rows (a header alone): nothing to fit");
+    }
+    std::string reasons;
+    for (const RowDrop& drop : rows.rows_dropped) {
+      reasons += (reasons.empty() ? "" : ", ") + FormatCount(static_cast<std::int64_t>(drop.rows)) +
+                 (drop.reason == DropReason::kZeroWeight ? " with weight 0 in column '"
+                                                         : " with a missing cell in column '") +
+                 QuoteForMessage(drop.column) + "'";
+    }
+    throw InputError(data_name + ": no row can be used: all " + Rows(rows.rows_read) +
+                     " read were dropped (" + reasons +
+                     "); a row is left out when its weight is 0 or a column the plan reads is "
+                     "empty or a missing token there");
+  }
+  if (pass.factor.column_stats.empty()) return;
+  const RunningStats& response = pass.factor.column_stats.back();
+  const bool logged = design.response_transform == ResponseTransform::kLog;
+  // On the response's own scale (the factor holds the log under "log"; exp of it to 12 digits).
+  auto shown = [&](double value) {
+    if (!logged) return ShortestText(value);
+    char text[32];
+    const auto written = std::to_chars(text, text + sizeof text, std::exp(value), std::chars_format::general, 12);
+    return std::string(text, static_cast<std::size_t>(written.ptr - text));
+  };
+  const std::string subject = "response '" + QuoteForMessage(design.response) + "'";
+  const std::string used = "in the " + Rows(rows.rows_used) + " used";
+  if (response.min == 0 && response.max == 0) {
+    throw InputError(data_name + ": " + subject + " is " + shown(0) + " " + used +
+                     ": there is nothing to fit; check the response column" +
+                     (rows.RowsDroppedTotal() > 0 ? " and the rows dropped" : ""));
+  }
+  if (!design.intercept) return;
+  const double magnitude = std::max(std::fabs(response.min), std::fabs(response.max));
+  if (response.max - response.min > kConstantResponseSpread * magnitude) return;
+  const std::string values = response.min == response.max
+                                 ? "is " + shown(response.min) + " " + used
+                                 : "only varies from " + shown(response.min) + " to " + shown(response.max) + " " +
+                                       used + " (by less than 1e-12 of its size: rounding, not data)";
+  throw InputError(data_name + ": " + subject + " " + values +
+                   ": with an intercept there is nothing left to explain, and any search would follow "
+                   "rounding errors; check the response column" +
+                   (rows.RowsDroppedTotal() > 0 ? " and the rows dropped (" +
+                                                      Rows(rows.RowsDroppedTotal()) + ")"
+                                                : std::string()));
 }
 
 namespace {

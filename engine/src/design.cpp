@@ -9,6 +9,7 @@
 #include <string_view>
 #include <utility>
 
+#include "design_magnitude.h"
 #include "design_quote.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
@@ -526,7 +527,7 @@ void LayOutColumns(const DesignSpec& spec, const std::vector<TermSpec>& specs,
                                                      Quote(term.name) +
                                                      " has the same name as a column of " + other);
       }
-      design.columns.push_back({name, i, ScaleForBound(pending[i].bounds[c])});
+      design.columns.push_back({name, i, ScaleForBound(pending[i].bounds[c]), pending[i].bounds[c]});
     }
   }
 }
@@ -590,6 +591,7 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
   LinkPowerHierarchy(specs, pending);
   LayOutColumns(spec, specs, pending, design);
   RecordSourceCells(specs, order, columns, pending, design);
+  design_detail::CheckMagnitudes(design, profile);
   return design;
 }
 

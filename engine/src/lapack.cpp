@@ -1,6 +1,11 @@
 #include "lapack.h"
 
+#include <sys/resource.h>
+#include <unistd.h>
+
 #include <algorithm>
+#include <atomic>
+#include <fstream>
 #include <string>
 #include <vector>
 
@@ -43,6 +48,62 @@ void UseOneBlasThread() {
 
 namespace {
 
+// ---- room for OpenBLAS's work buffers --------------------------------------------------------
+// OpenBLAS keeps a table of work buffers: a caller takes a free one or allocates a new one (and
+// never gives it back), retrying forever when the allocation fails. in_flight counts the callers
+// inside a wrapper now; buffers, the most that have ever been inside at once (each had a buffer).
+
+std::atomic<std::size_t> in_flight{0};
+std::atomic<std::size_t> buffers{0};
+
+struct AddressSpace {
+  bool limited = false;
+  std::uint64_t limit = 0;
+  std::uint64_t used = 0;
+};
+
+AddressSpace CurrentAddressSpace() {
+  AddressSpace space;
+  rlimit limit{};
+  if (openblas_set_num_threads == nullptr || getrlimit(RLIMIT_AS, &limit) != 0 || limit.rlim_cur == RLIM_INFINITY) {
+    return space;
+  }
+  std::uint64_t pages = 0;
+  std::ifstream("/proc/self/statm") >> pages;  // the first field: the whole address space, in pages
+  if (pages == 0) return space;  // cannot tell: trust the limit to be wide enough
+  space.limited = true;
+  space.limit = limit.rlim_cur;
+  space.used = pages * static_cast<std::uint64_t>(sysconf(_SC_PAGESIZE));
+  return space;
+}
+
+std::string Megabytes(std::uint64_t bytes) { return std::to_string(bytes >> 20) + " MB"; }
+
+std::uint64_t Room(const AddressSpace& space) { return space.used < space.limit ? space.limit - space.used : 0; }
+
+// One caller inside a wrapper: checks that a new buffer, when this caller needs one, has room.
+class CallerGuard {
+ public:
+  CallerGuard() {
+    const std::size_t inside = in_flight.fetch_add(1) + 1;
+    if (inside <= buffers.load()) return;  // a buffer is free for this caller
+    const AddressSpace space = CurrentAddressSpace();
+    if (space.limited && Room(space) < kLapackCallerBytes) {
+      in_flight.fetch_sub(1);
+      throw ResourceError("not enough address space for the linear algebra: the limit (ulimit -v) is " +
+                          Megabytes(space.limit) + " and " + Megabytes(space.used) +
+                          " are in use, but a thread inside LAPACK needs about " + Megabytes(kLapackCallerBytes) +
+                          " more (OpenBLAS's work buffer); raise the limit, or use fewer --threads");
+    }
+    std::size_t known = buffers.load();
+    while (known < inside && !buffers.compare_exchange_weak(known, inside)) {
+    }
+  }
+  ~CallerGuard() { in_flight.fetch_sub(1); }
+  CallerGuard(const CallerGuard&) = delete;
+  CallerGuard& operator=(const CallerGuard&) = delete;
+};
+
 // info < 0 means we passed an illegal argument: a bug in this file or its caller.
 void CheckArguments(const char* routine, int info) {
   if (info < 0) {
@@ -55,6 +116,7 @@ void CheckArguments(const char* routine, int info) {
 
 void FoldPentagonal(int m, int n, int l, double* a, int lda, double* b, int ldb) {
   if (m <= 0 || n <= 0) return;
+  const CallerGuard guard;
   // Block size of the compact WY representation: 32 columns balances BLAS-3 speed and the
   // size of T; LAPACK requires 1 <= nb <= n.
   const int nb = std::min(n, 32);
@@ -63,6 +125,15 @@ void FoldPentagonal(int m, int n, int l, double* a, int lda, double* b, int ldb)
   int info = 0;
   dtpqrt_(&m, &n, &l, &nb, a, &lda, b, &ldb, t.data(), &nb, work.data(), &info);
   CheckArguments("dtpqrt", info);
+}
+
+std::size_t LapackCallersAllowed(std::size_t wanted) {
+  const AddressSpace space = CurrentAddressSpace();
+  if (!space.limited) return wanted;
+  const std::uint64_t room = Room(space);
+  const std::uint64_t spare = room > kRunReserveBytes ? room - kRunReserveBytes : 0;
+  const std::uint64_t allowed = buffers.load() + spare / kLapackCallerBytes;
+  return static_cast<std::size_t>(std::min<std::uint64_t>(wanted, allowed));
 }
 
 void GenerateRotation(double f, double g, double& c, double& s, double& r) {
@@ -77,6 +148,7 @@ void ApplyRotation(int n, double* x, int incx, double* y, int incy, double c, do
 int SolveUpperTriangular(bool transpose, int n, int nrhs, const double* a, int lda, double* b,
                          int ldb) {
   if (n == 0 || nrhs == 0) return 0;
+  const CallerGuard guard;
   int info = 0;
   const char uplo = 'U', trans = transpose ? 'T' : 'N', diag = 'N';
   dtrtrs_(&uplo, &trans, &diag, &n, &nrhs, a, &lda, b, &ldb, &info, 1, 1, 1);
@@ -86,6 +158,7 @@ int SolveUpperTriangular(bool transpose, int n, int nrhs, const double* a, int l
 
 int InverseFromUpperFactor(int n, double* a, int lda) {
   if (n == 0) return 0;
+  const CallerGuard guard;
   int info = 0;
   const char uplo = 'U';
   dpotri_(&uplo, &n, a, &lda, &info, 1);
@@ -95,6 +168,7 @@ int InverseFromUpperFactor(int n, double* a, int lda) {
 
 double UpperTriangularRcond(int n, const double* a, int lda) {
   if (n == 0) return 1.0;
+  const CallerGuard guard;
   double rcond = 0;
   std::vector<double> work(3 * static_cast<std::size_t>(n));
   std::vector<int> iwork(static_cast<std::size_t>(n));
@@ -107,6 +181,7 @@ double UpperTriangularRcond(int n, const double* a, int lda) {
 
 void HouseholderQr(int m, int n, double* a, int lda) {
   if (m == 0 || n == 0) return;
+  const CallerGuard guard;
   std::vector<double> tau(static_cast<std::size_t>(std::min(m, n)));
   int info = 0;
   int lwork = -1;

@@ -4,15 +4,36 @@
 // workspace query first where LAPACK has one, treats info < 0 as a bug (NumericalError naming
 // the routine and argument) and returns info > 0 to the caller as an outcome to report.
 //
+// Every wrapper that can reach OpenBLAS's work buffer (all but the rotations) first makes sure
+// the buffer can exist: a call that would need a new one when the address space has no room for
+// it throws ResourceError (engine/errors.h) instead of letting OpenBLAS spin forever.
+//
 // Nothing outside engine/src includes this file.
 
 #include <cstddef>
+#include <cstdint>
 
 namespace stepledger::lapack {
 
 /// Asks OpenBLAS (when it is the BLAS in use) for one thread: the engine's passes bring their own
 /// threads, and idle OpenBLAS threads spin in sched_yield. Idempotent and cheap.
 void UseOneBlasThread();
+
+/// Address space a thread needs the first time it is inside a LAPACK call while the threads
+/// already inside hold every work buffer: OpenBLAS gives each concurrent caller a buffer of its
+/// own (BUFFER_SIZE, 128 MiB on its x86-64 builds; kept for reuse once allocated), plus a thread
+/// stack and slack. OpenBLAS retries such an allocation forever when a limit such as `ulimit -v`
+/// refuses it, so the wrappers below check first (see LapackCallersAllowed).
+inline constexpr std::uint64_t kLapackCallerBytes = std::uint64_t{144} << 20;
+/// Room kept for the rest of a run when the concurrent callers are counted.
+inline constexpr std::uint64_t kRunReserveBytes = std::uint64_t{32} << 20;
+
+/// How many threads may be inside LAPACK at once, at most `wanted`: `wanted` when the BLAS is not
+/// OpenBLAS or the address space has no limit (RLIMIT_AS); else the work buffers OpenBLAS already
+/// holds (as far as these wrappers have seen) plus as many new callers as fit, each
+/// kLapackCallerBytes, in what the limit leaves beyond kRunReserveBytes. 0 when not even one can
+/// call. For a pass that spreads LAPACK calls over threads.
+std::size_t LapackCallersAllowed(std::size_t wanted);
 
 /// Triangular-pentagonal QR (dtpqrt): on entry a is the n x n upper triangle R, b is m x n
 /// and pentagonal (its first m - l rows dense, its last l rows upper trapezoidal; l = 0 for

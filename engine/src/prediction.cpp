@@ -1,6 +1,7 @@
 #include "stepledger/engine/prediction.h"
 
 #include <algorithm>
+#include <charconv>
 #include <cmath>
 #include <map>
 #include <stdexcept>
@@ -131,6 +132,8 @@ EvaluatedRow PredictionRowEvaluator::Evaluate(const CsvRecord& record) const {
   row.row_index = record.row_index;
   row.line = record.line;
   row.cell_values.assign(cells.size(), 0.0);
+  row.cell_places.assign(cells.size(), CellPlace{});
+  row.file = reader_->display_name();
   std::vector<std::size_t> cell_levels(cells.size(), kNoTerm);
 
   auto problem = [&](PredictionFlag flag, const std::string& column, const std::string& term,
@@ -170,6 +173,7 @@ EvaluatedRow PredictionRowEvaluator::Evaluate(const CsvRecord& record) const {
       continue;
     }
     row.cell_values[c] = value;
+    row.cell_places[c] = CellPlace{field.line, field.column};
   }
 
   if (weights_header_ >= 0) {
@@ -321,6 +325,65 @@ PredictedRow Predictor::Predict(const EvaluatedRow& row) const {
     if (model_.smearing_factor) back.mean = back.median * *model_.smearing_factor;
     result.back = back;
   }
+  if (!AllFinite(result)) return TooFarOut(row, std::move(result));
+  return result;
+}
+
+// Every number of a priced row is a finite double (values far outside the fitted data can
+// overflow x'b, the leverage's sum of squares, the intervals or exp of them).
+bool Predictor::AllFinite(const PredictedRow& row) {
+  auto finite = [](const std::optional<double>& value) { return !value || std::isfinite(*value); };
+  auto finite_interval = [](const std::optional<PredictionInterval>& interval) {
+    return !interval || (std::isfinite(interval->low) && std::isfinite(interval->high));
+  };
+  if (!finite(row.prediction) || !finite(row.leverage) || !finite(row.se_mean) || !finite_interval(row.ci) ||
+      !finite_interval(row.pi)) {
+    return false;
+  }
+  if (row.back) {
+    const BackTransformed& back = *row.back;
+    if (!std::isfinite(back.median) || !finite_interval(back.ci) || !finite_interval(back.pi) || !finite(back.mean)) {
+      return false;
+    }
+  }
+  return true;
+}
+
+// The row unpriced: an invalid-value problem for each column outside its fitted range (each
+// numeric column of the model when none is), its numbers dropped.
+PredictedRow Predictor::TooFarOut(const EvaluatedRow& row, PredictedRow priced) const {
+  PredictedRow result;
+  result.row_index = priced.row_index;
+  result.line = priced.line;
+  result.weight = priced.weight;
+  const auto& cells = model_.design.source.cells;
+  auto add_problem = [&](std::size_t cell, const std::string& term) {
+    const std::string& column = cells[cell].column_name;
+    const bool listed = std::any_of(result.problems.begin(), result.problems.end(),
+                                    [&](const RowProblem& problem) { return problem.column == column; });
+    if (listed) return;
+    char text[32];
+    const auto written = std::to_chars(text, text + sizeof text, row.cell_values[cell]);
+    const CellPlace place = cell < row.cell_places.size() ? row.cell_places[cell] : CellPlace{row.line, 0};
+    result.problems.push_back({PredictionFlag::kInvalidValue, column, term,
+                               std::string(text, static_cast<std::size_t>(written.ptr - text)),
+                               FormatLocation(row.file, place.line, place.column),
+                               "is too far outside the fitted data to price: the prediction or its interval "
+                               "would pass the largest double (about 1.8e308)"});
+  };
+  for (const OutsideRange& outside : priced.outside_range) {
+    const std::size_t term = model_.design.FindTerm(outside.term);
+    if (term == kNoTerm || model_.design.source.term_cell[term] < 0) continue;
+    add_problem(static_cast<std::size_t>(model_.design.source.term_cell[term]), outside.term);
+  }
+  if (result.problems.empty()) {
+    for (std::size_t t = 0; t < model_.design.terms.size(); ++t) {
+      const std::ptrdiff_t cell = model_.design.source.term_cell[t];
+      if (cell < 0 || cells[static_cast<std::size_t>(cell)].categorical) continue;
+      add_problem(static_cast<std::size_t>(cell), model_.design.terms[t].name);
+    }
+  }
+  result.flags.push_back(PredictionFlag::kInvalidValue);
   return result;
 }
 

@@ -5,15 +5,16 @@
 
 #include <algorithm>
 #include <cerrno>
+#include <charconv>
 #include <cmath>
 #include <cstring>
 #include <exception>
 #include <limits>
 #include <optional>
-#include <thread>
 #include <unordered_map>
 
 #include "file_identity.h"
+#include "thread_start.h"
 #include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/utf8.h"
@@ -49,6 +50,8 @@ struct ColumnTally {
   double squared_deviations = 0;
   double min = std::numeric_limits<double>::infinity();
   double max = -std::numeric_limits<double>::infinity();
+  // Where min and max are: their first cell in file order (line, column).
+  std::uint64_t min_line = 0, min_column = 0, max_line = 0, max_column = 0;
   bool levels_overflowed = false;
   std::unordered_map<std::string, LevelEntry, TextHash, std::equal_to<>> levels;
   std::vector<std::string> level_texts;  // by code
@@ -121,8 +124,16 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
       const double delta = value - tally.mean;
       tally.mean += delta / static_cast<double>(tally.numeric_cells);
       tally.squared_deviations += delta * (value - tally.mean);
-      tally.min = std::min(tally.min, value);
-      tally.max = std::max(tally.max, value);
+      if (value < tally.min) {
+        tally.min = value;
+        tally.min_line = field.line;
+        tally.min_column = field.column;
+      }
+      if (value > tally.max) {
+        tally.max = value;
+        tally.max_line = field.line;
+        tally.max_column = field.column;
+      }
       bits = SpillBits(value);
       break;
     }
@@ -195,8 +206,17 @@ void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_befor
       into.mean += delta * (nb / n);
       into.squared_deviations += from.squared_deviations + delta * delta * (na * nb / n);
     }
-    into.min = std::min(into.min, from.min);
-    into.max = std::max(into.max, from.max);
+    // Strictly smaller or larger only: on a tie the earlier range's cell stays (first in file order).
+    if (from.min < into.min) {
+      into.min = from.min;
+      into.min_line = from.min_line + lines_before;
+      into.min_column = from.min_column;
+    }
+    if (from.max > into.max) {
+      into.max = from.max;
+      into.max_line = from.max_line + lines_before;
+      into.max_column = from.max_column;
+    }
   }
   into.present += from.present;
   into.missing += from.missing;
@@ -220,6 +240,13 @@ void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_befor
   }
 }
 
+// The shortest text that reads back as the same double.
+std::string ShortestText(double value) {
+  char text[32];
+  const auto written = std::to_chars(text, text + sizeof text, value);
+  return std::string(text, static_cast<std::size_t>(written.ptr - text));
+}
+
 ColumnProfile FinishColumn(const std::string& name, std::size_t index, ColumnTally& tally,
                            std::size_t max_levels) {
   ColumnProfile column;
@@ -241,6 +268,8 @@ ColumnProfile FinishColumn(const std::string& name, std::size_t index, ColumnTal
     const double n = static_cast<double>(tally.numeric_cells);
     column.min = tally.min;
     column.max = tally.max;
+    column.min_at = CellLocation{tally.min_line, tally.min_column, ShortestText(tally.min)};
+    column.max_at = CellLocation{tally.max_line, tally.max_column, ShortestText(tally.max)};
     column.mean = tally.mean;
     column.sd = tally.numeric_cells > 1 ? std::sqrt(tally.squared_deviations / (n - 1)) : kUndefined;
   } else {
@@ -456,20 +485,21 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
       scan.error = std::current_exception();
     }
   };
-  {
-    std::vector<std::thread> threads;
-    for (std::size_t r = 0; r < range_count; ++r) {
-      threads.emplace_back([&, r] {
-        scan_range(r, starts[r], "range-" + std::to_string(r) + ".bin");
+  detail::RunTasks(
+      range_count,
+      [&](std::size_t r) {
+        try {
+          scan_range(r, starts[r], "range-" + std::to_string(r) + ".bin");
+        } catch (...) {
+          scans[r].error = std::current_exception();  // the file name could not be made
+        }
         try {
           HashBlocks(fd, size, blocks * r / range_count, blocks * (r + 1) / range_count, digests, name);
         } catch (...) {
           hash_errors[r] = std::current_exception();
         }
-      });
-    }
-    for (auto& thread : threads) thread.join();
-  }
+      },
+      "reading the data");
   // Check the guessed cuts in file order; read a range again from the true boundary when the
   // range before ends elsewhere (a quoted field held the guessed line end).
   std::vector<std::uint64_t> lines_before(range_count);

@@ -63,6 +63,7 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   PassOptions pass_options;
   pass_options.threads = options.threads;
   PassResult pass = RunFactorPass(*scan.spill, run.design, pass_options);
+  RequireSomethingToFit(pass, run.design, data.string());
   run.accounting = pass.accounting;
 
   SearchRunOptions search_run;

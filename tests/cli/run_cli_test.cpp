@@ -5,6 +5,7 @@
 
 #include <gtest/gtest.h>
 
+#include <new>
 #include <sstream>
 #include <stdexcept>
 #include <string>
@@ -65,6 +66,21 @@ TEST(RunCommandAction, NumericalAndOtherFailuresExit3) {
   outcome = RunThrowing([] { throw 42; });
   EXPECT_EQ(outcome.status, static_cast<int>(ExitStatus::kFailure));
   EXPECT_NE(outcome.err.find("internal error"), std::string::npos) << outcome.err;
+}
+
+// Memory running out under a limit is neither bad input nor a bug: exit 3 saying what to change.
+TEST(RunCommandAction, OutOfMemoryExits3SayingWhatToChange) {
+  const Outcome outcome = RunThrowing([] { throw std::bad_alloc(); });
+  EXPECT_EQ(outcome.status, static_cast<int>(ExitStatus::kFailure));
+  EXPECT_EQ(outcome.err.rfind("stepledger: out of memory: ", 0), 0u) << outcome.err;
+  EXPECT_NE(outcome.err.find("fewer --threads"), std::string::npos) << outcome.err;
+  EXPECT_EQ(outcome.err.find("internal error"), std::string::npos) << outcome.err;
+}
+
+TEST(RunCommandAction, AResourceErrorExits3WithItsMessage) {
+  const Outcome outcome = RunThrowing([] { throw ResourceError("not enough address space: raise the limit"); });
+  EXPECT_EQ(outcome.status, static_cast<int>(ExitStatus::kFailure));
+  EXPECT_EQ(outcome.err, "stepledger: not enough address space: raise the limit\n");
 }
 
 TEST(RunCommandAction, ReturnsTheActionsStatusWhenNothingIsThrown) {

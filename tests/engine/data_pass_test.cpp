@@ -3,18 +3,27 @@
 
 #include "stepledger/engine/data_pass.h"
 
+#include <pwd.h>
+#include <signal.h>
+#include <sys/resource.h>
+#include <sys/wait.h>
+#include <unistd.h>
+
+#include <chrono>
 #include <cmath>
 #include <cstdio>
 #include <filesystem>
 #include <limits>
 #include <random>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include <gtest/gtest.h>
 
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
+#include "stepledger/engine/notice.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/engine/table_scan.h"
 #include "support/test_paths.h"
@@ -218,6 +227,131 @@ TEST(DataPassTest, ThreadCountsGiveTheSameFactorAndAccounting) {
   options.threads = 3;
   const PassResult again = RunFactorPass(path, design, options);
   EXPECT_TRUE(arma::approx_equal(again.factor.r, results[2].factor.r, "absdiff", 0.0));
+}
+
+// When the system refuses to start a thread (here: a limit of one process for the user, so that
+// every std::thread fails with EAGAIN, as under a tight `ulimit -v` or `ulimit -u`), the scan and
+// the factor pass run the parts that got no thread on the calling thread, say so in a notice,
+// and give the very bits of the same thread count with threads (shares and merges are the
+// same). Before, std::thread's exception ended the process through std::terminate (exit 134).
+// The work runs in a child process (root ignores the limit, so the child becomes `nobody`).
+TEST(DataPassTest, ARefusedThreadRunsItsShareOnTheCallingThread) {
+  TempDir folder;
+  const Generated data = Generate(20000);  // 5 spill chunks, about 1 MB
+  const auto path = folder.Write("generated.csv", data.text);
+  const auto spill_dir = folder.path() / "spill";
+  std::filesystem::create_directory(spill_dir);
+  std::filesystem::permissions(folder.path(), std::filesystem::perms::owner_all | std::filesystem::perms::group_read |
+                                                  std::filesystem::perms::group_exec | std::filesystem::perms::others_read |
+                                                  std::filesystem::perms::others_exec);
+  std::filesystem::permissions(path, std::filesystem::perms::owner_read | std::filesystem::perms::owner_write |
+                                         std::filesystem::perms::group_read | std::filesystem::perms::others_read);
+  std::filesystem::permissions(spill_dir, std::filesystem::perms::all);
+
+  ScanOptions scan_options;
+  scan_options.threads = 3;
+  scan_options.min_range_bytes = 1;
+  scan_options.work_dir = spill_dir;
+  const ScanResult expected_scan = ScanData(path, scan_options);
+  ASSERT_EQ(expected_scan.ranges, 3);
+  const Design design = BuildDesign(GeneratedSpec(), expected_scan.profile);
+  PassOptions pass_options;
+  pass_options.threads = 3;
+  const PassResult expected = RunFactorPass(*expected_scan.spill, design, pass_options);
+
+  const passwd* nobody = getpwnam("nobody");
+  const pid_t child = fork();
+  ASSERT_GE(child, 0);
+  if (child == 0) {
+    // Exit codes say which check failed: 10 setup, 11 scan, 12 pass, 13 notices, 14 exception.
+    if (geteuid() == 0 && (nobody == nullptr || setgid(nobody->pw_gid) != 0 || setuid(nobody->pw_uid) != 0)) _exit(10);
+    const rlimit one{1, 1};
+    if (setrlimit(RLIMIT_NPROC, &one) != 0) _exit(10);
+    std::vector<std::string> notices;
+    SetNoticeSink([&notices](std::string_view line) { notices.emplace_back(line); });
+    try {
+      const ScanResult scan = ScanData(path, scan_options);
+      if (scan.ranges != 3 || scan.sha256 != expected_scan.sha256 || scan.profile.rows != expected_scan.profile.rows) {
+        _exit(11);
+      }
+      const PassResult pass = RunFactorPass(*scan.spill, design, pass_options);
+      if (!arma::approx_equal(pass.factor.r, expected.factor.r, "absdiff", 0.0) ||
+          pass.accounting.rows_used != expected.accounting.rows_used) {
+        _exit(12);
+      }
+    } catch (...) {
+      _exit(14);
+    }
+    const bool said = notices.size() == 2 && notices[0].find("reading the data runs 3 of its 3 parts on the calling thread") != std::string::npos &&
+                      notices[1].find("the factor pass runs 3 of its 3 parts on the calling thread") != std::string::npos &&
+                      notices[0].find("the system refused to start a thread (") == 0;
+    _exit(said ? 0 : 13);
+  }
+  int status = 0;
+  const auto deadline = std::chrono::steady_clock::now() + std::chrono::seconds(120);
+  while (waitpid(child, &status, WNOHANG) == 0) {
+    if (std::chrono::steady_clock::now() > deadline) {
+      kill(child, SIGKILL);
+      waitpid(child, &status, 0);
+      FAIL() << "the child did not finish within 120 s";
+    }
+    std::this_thread::sleep_for(std::chrono::milliseconds(20));
+  }
+  ASSERT_TRUE(WIFEXITED(status)) << "ended by signal " << (WIFSIGNALED(status) ? WTERMSIG(status) : 0);
+  EXPECT_EQ(WEXITSTATUS(status), 0) << "10 setup, 11 scan, 12 factor pass, 13 notices, 14 exception";
+}
+
+// RequireSomethingToFit on passes made by hand: every branch, including a pass that read no row
+// (RunPlan never gets there: a header alone leaves the response empty, a PlanError).
+TEST(DataPassTest, NothingToFitIsRefusedNamingWhy) {
+  Design design;
+  design.response = "price";
+  design.intercept = true;
+  auto message = [&](const PassResult& pass) {
+    try {
+      RequireSomethingToFit(pass, design, "d.csv");
+    } catch (const InputError& error) {
+      return std::string(error.what());
+    }
+    return std::string("(nothing thrown)");
+  };
+  PassResult pass;
+  EXPECT_EQ(message(pass), "d.csv: the file has no data rows (a header alone): nothing to fit");
+  pass.accounting.rows_read = 3;
+  pass.accounting.CountDropped(DropReason::kZeroWeight, "w", 2);
+  pass.accounting.CountDropped(DropReason::kMissing, "age", 1);
+  EXPECT_EQ(message(pass).substr(0, 109),
+            "d.csv: no row can be used: all 3 rows read were dropped (1 with a missing cell in column 'age', 2 with "
+            "weight");
+  // Used rows: the response's spread decides.
+  pass.accounting.rows_used = 2;
+  pass.factor.column_stats.resize(2);
+  RunningStats& y = pass.factor.column_stats.back();
+  y.Add(7);
+  y.Add(7);
+  EXPECT_NE(message(pass).find("d.csv: response 'price' is 7 in the 2 rows used: with an intercept"), std::string::npos)
+      << message(pass);
+  EXPECT_NE(message(pass).find("check the response column and the rows dropped (3 rows)"), std::string::npos)
+      << message(pass);
+  y = RunningStats{};
+  y.Add(7);
+  y.Add(std::nextafter(7.0, 8.0));  // the next double: rounding, not data
+  EXPECT_NE(message(pass).find("only varies from 7 to 7.000000000000001 in the 2 rows used"), std::string::npos)
+      << message(pass);
+  y = RunningStats{};
+  y.Add(7);
+  y.Add(7 + 7 * 0x1p-39);  // beyond 2^-40 of the size: data
+  EXPECT_EQ(message(pass), "(nothing thrown)");
+  design.intercept = false;
+  y = RunningStats{};
+  y.Add(7);
+  y.Add(7);
+  EXPECT_EQ(message(pass), "(nothing thrown)");  // a model through the origin
+  y = RunningStats{};
+  y.Add(0);
+  y.Add(0);
+  EXPECT_NE(message(pass).find("response 'price' is 0 in the 2 rows used: there is nothing to fit"), std::string::npos)
+      << message(pass);
 }
 
 TEST(DataPassTest, ForEachUsedRowSeesUsedRowsInOrder) {

@@ -620,5 +620,107 @@ TEST(DesignExpandTest, MissingTokensComeFromTheReader) {
   EXPECT_EQ(design.terms[0].levels.size(), 2u);  // 3 levels "4", "5", "NA"
 }
 
+// ---- the magnitudes stepledger fits (design.h, kLargestMagnitude) ------------------------
+// Beyond about 1e154 a square overflows and below about 1e-154 it underflows; the window keeps
+// the numbers reported in the data's units (sums of squares, variances, covariances: products
+// and ratios of two such magnitudes) far inside the doubles' range. Values are common practice.
+
+DesignSpec AgeSpec(std::vector<TermSpec> terms) {
+  DesignSpec spec;
+  spec.response = "price";
+  spec.terms = Keyed(std::move(terms));
+  return spec;
+}
+
+std::string BuildMessage(const std::string& csv, const DesignSpec& spec) {
+  TempDir folder;
+  const auto path = folder.Write("m.csv", csv);
+  return ExpectInputError([&] { BuildDesign(spec, ProfileCsv(path, CsvOptions{})); });
+}
+
+TEST(DesignMagnitudeTest, TheWindowsEdgesAreFitted) {
+  TempDir folder;
+  // 1e60 and 1e-60 themselves, a zero column, and a column whose largest value is 1 though it
+  // holds a subnormal number: only the largest magnitude of a column matters.
+  const auto path = folder.Write("edges.csv",
+                                 "price,big,small,zero,mixed\n"
+                                 "1e60,-1e60,1e-60,0,1\n"
+                                 "2e59,3,-1e-61,0,4e-320\n"
+                                 "3e59,4,2e-61,0,0.5\n");
+  const Design design = BuildDesign(
+      AgeSpec({Numeric("big", "big"), Numeric("small", "small"), Numeric("zero", "zero"), Numeric("mixed", "mixed")}),
+      ProfileCsv(path, CsvOptions{}));
+  EXPECT_EQ(design.columns[1].bound, 1e60);
+  EXPECT_EQ(design.columns[2].bound, 1e-60);
+  EXPECT_EQ(design.columns[3].bound, 0.0);
+  EXPECT_EQ(design.columns[4].bound, 1.0);
+}
+
+TEST(DesignMagnitudeTest, ATooLargeColumnNamesTheCellTheValueAndTheRescaling) {
+  // The largest magnitude is negative here: -2.5e160 on line 3, column 3.
+  const std::string message =
+      BuildMessage("price,age\n1,2e100\n2,-2.5e160\n3,1e160\n", AgeSpec({Numeric("age", "age")}));
+  EXPECT_NE(message.find("m.csv:3:3: column 'age' holds -2.5e+160 beyond the magnitudes stepledger fits"),
+            std::string::npos)
+      << message;
+  EXPECT_NE(message.find("between 1e-60 and 1e+60"), std::string::npos) << message;
+  EXPECT_NE(message.find("divide it by 1e+160"), std::string::npos) << message;
+}
+
+TEST(DesignMagnitudeTest, ATinyColumnSaysToMultiply) {
+  // Every value subnormal: 4e-320 is the largest magnitude (line 3).
+  const std::string message =
+      BuildMessage("price,age\n1,1e-321\n2,4e-320\n3,-3e-320\n", AgeSpec({Numeric("age", "age")}));
+  EXPECT_NE(message.find("m.csv:3:3: column 'age' holds 4e-320, its largest value in magnitude, below"),
+            std::string::npos)
+      << message;
+  EXPECT_NE(message.find("multiply it by 1e+320"), std::string::npos) << message;
+}
+
+TEST(DesignMagnitudeTest, TheResponseAndTheWeightsAreCheckedFirst) {
+  DesignSpec spec = AgeSpec({Numeric("age", "age")});
+  std::string message = BuildMessage("price,age,w\n1e61,1e300,1\n2,3,1\n", spec);
+  EXPECT_NE(message.find("m.csv:2:1: response 'price' holds 1e+61"), std::string::npos) << message;
+  spec.weights = "w";
+  message = BuildMessage("price,age,w\n1,1e300,1e-70\n2,3,0\n", spec);
+  EXPECT_NE(message.find("m.csv:2:9: weights column 'w' holds 1e-70"), std::string::npos) << message;
+  // Under "log" the response is ln(price), at most 745 in magnitude: never refused.
+  spec.weights.reset();
+  spec.response_transform = ResponseTransform::kLog;
+  TempDir folder;
+  const auto path = folder.Write("log.csv", "price,age\n1e300,1\n1e-300,2\n");
+  EXPECT_NO_THROW(BuildDesign(spec, ProfileCsv(path, CsvOptions{})));
+}
+
+TEST(DesignMagnitudeTest, APowerAndAProductNameTheirTerm) {
+  TempDir folder;
+  const auto path = folder.Write("p.csv", "price,age,disk\n1,1e25,1e40\n2,-2e24,3\n");
+  const DataProfile profile = ProfileCsv(path, CsvOptions{});
+  // (1e25)^3 = 1e75: the column passes, its cube does not.
+  PlanError error = ExpectPlanError([&] {
+    BuildDesign(AgeSpec({Numeric("age", "age"), Power("age3", "age", 3)}), profile);
+  });
+  EXPECT_EQ(error.key_path(), "terms[1]");
+  EXPECT_NE(std::string(error.what()).find("power term 'age3' raises column 'age' to the power 3: its largest "
+                                           "value 1e+25 (" + path.string() + ":2:3) becomes 1e+75"),
+            std::string::npos)
+      << error.what();
+  // 1e25 * 1e40 = 1e65: both parts pass, their product does not.
+  error = ExpectPlanError([&] {
+    BuildDesign(AgeSpec({Product("age:disk", "age", "disk"), Numeric("age", "age"), Numeric("disk", "disk")}),
+                profile);
+  });
+  EXPECT_EQ(error.key_path(), "terms[0]");
+  EXPECT_NE(std::string(error.what()).find("product term 'age:disk' multiplies 'age' (up to 1e+25 from 1e+25 at " +
+                                           path.string() + ":2:3) and 'disk' (up to 1e+40"),
+            std::string::npos)
+      << error.what();
+  EXPECT_NE(std::string(error.what()).find("its values can reach 1e+65"), std::string::npos) << error.what();
+  // A log term is never refused, and a power far past the doubles' range still says its size.
+  EXPECT_NO_THROW(BuildDesign(AgeSpec({Log("log_age", "age")}), profile));
+  error = ExpectPlanError([&] { BuildDesign(AgeSpec({Power("age13", "age", 13)}), profile); });
+  EXPECT_NE(std::string(error.what()).find("becomes 1e+325"), std::string::npos) << error.what();
+}
+
 }  // namespace
 }  // namespace stepledger

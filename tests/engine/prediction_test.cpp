@@ -337,6 +337,35 @@ TEST_F(PredictionFlags, EachFlagOnTheRowBuiltForIt) {
             1e-12);
 }
 
+// Finite values so far out that a number of the row overflows: not priced (an invalid-value
+// problem at each column outside its range), never "priced" without numbers. a = 1e200 makes
+// a^2 infinite; b = 1e160 keeps x'b finite but the leverage, a sum of squares, overflows.
+TEST_F(PredictionFlags, ValuesTooFarOutToPriceAreNotPriced) {
+  const std::vector<PredictedRow> rows = Price(
+      "g,d,b,a,w\n"
+      "q,10,5,1e200,1\n"
+      "q,10,1e160,5,1\n"
+      "q,10,5,5,1\n");
+  ASSERT_EQ(rows.size(), 3u);
+  for (std::size_t i : {0, 1}) {
+    const PredictedRow& row = rows[i];
+    EXPECT_FALSE(row.priced()) << i << ": " << row.Detail();
+    EXPECT_EQ(row.flags, std::vector<PredictionFlag>{PredictionFlag::kInvalidValue}) << row.Detail();
+    EXPECT_FALSE(row.leverage || row.se_mean || row.ci || row.pi || row.back) << row.Detail();
+    EXPECT_TRUE(row.outside_range.empty());
+    ASSERT_EQ(row.problems.size(), 1u) << row.Detail();
+  }
+  EXPECT_EQ(rows[0].problems[0].column, "a");
+  EXPECT_EQ(rows[0].problems[0].text, "1e+200");
+  EXPECT_EQ(rows[0].problems[0].where, (scratch_.path() / "rows.csv").string() + ":2:8");
+  EXPECT_NE(rows[0].Detail().find("invalid-value: a: '1e+200' is too far outside the fitted data to price"),
+            std::string::npos)
+      << rows[0].Detail();
+  EXPECT_EQ(rows[1].problems[0].column, "b");
+  EXPECT_EQ(rows[1].problems[0].where, (scratch_.path() / "rows.csv").string() + ":3:6");
+  EXPECT_TRUE(rows[2].priced());
+}
+
 TEST_F(PredictionFlags, SeveralProblemsInOneRowAreAllListed) {
   const std::vector<PredictedRow> rows = Price("a,b,d,g\nNA,x,-1,zz\n");
   ASSERT_EQ(rows.size(), 1u);

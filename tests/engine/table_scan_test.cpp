@@ -52,6 +52,15 @@ std::string Describe(const ColumnProfile& column) {
   if (column.kind == ColumnKind::kNumeric) {
     text += " min=" + std::to_string(column.min) + " max=" + std::to_string(column.max) +
             " mean=" + std::to_string(column.mean);
+    // Where the extremes are: their first cell in file order, whatever the cuts.
+    if (column.min_at) {
+      text += " min@" + std::to_string(column.min_at->line) + ":" + std::to_string(column.min_at->column) + "=" +
+              column.min_at->text;
+    }
+    if (column.max_at) {
+      text += " max@" + std::to_string(column.max_at->line) + ":" + std::to_string(column.max_at->column) + "=" +
+              column.max_at->text;
+    }
   }
   for (const LevelCount& level : column.levels) text += " [" + level.level + "]x" + std::to_string(level.count);
   if (column.first_text) {
@@ -169,6 +178,27 @@ TEST(TableScanTest, AFileSmallerThanTheThreadsAndAFileOfOnlyAHeader) {
   const ScanResult scan = ScanData(header_only, many);
   EXPECT_EQ(scan.profile.rows, 0u);
   EXPECT_EQ(scan.spill->rows(), 0u);
+}
+
+// The profile says where a numeric column's smallest and largest values are (what the magnitude
+// check of BuildDesign names): their first cell in file order, for one reader and for any cut.
+// -3 and 9 appear twice each; the first -3 follows a quoted line end, so it sits on line 4.
+TEST(TableScanTest, ExtremesAreTheirFirstCellsForEveryCut) {
+  TempDir dir;
+  const std::string text = "note,x\na,5\n\"two\nlines\",-3\nb,9\nc,-3\nd,9.0\n";
+  const auto path = dir.Write("extremes.csv", text);
+  for (std::uint64_t cut = 0; cut <= text.size(); ++cut) {
+    const ScanResult scan = ScanData(path, WithCuts({cut}));
+    const ColumnProfile& x = scan.profile.columns[1];
+    ASSERT_TRUE(x.min_at && x.max_at) << "cut at byte " << cut;
+    EXPECT_EQ(x.min_at->line, 4u) << "cut at byte " << cut;  // after the quoted line end
+    EXPECT_EQ(x.min_at->column, 8u) << "cut at byte " << cut;
+    EXPECT_EQ(x.min_at->text, "-3");
+    EXPECT_EQ(x.max_at->line, 5u) << "cut at byte " << cut;
+    EXPECT_EQ(x.max_at->column, 3u) << "cut at byte " << cut;
+    EXPECT_EQ(x.max_at->text, "9");  // the value's shortest text, not the cell's
+    EXPECT_FALSE(scan.profile.columns[0].min_at);  // categorical: no range
+  }
 }
 
 // A bad cell near the end of the last range and a broken quote: the same message, with the line

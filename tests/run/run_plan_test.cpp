@@ -97,5 +97,77 @@ TEST(RunPlan, APlanErrorNamesItsKeyBeforeAnyPass) {
   EXPECT_THROW(RunPlan(data, Plan("forward"), options), InputError);
 }
 
+// Nothing to fit is bad input (exit 2), never a "model" with n = 0 and df -1 or a route that
+// follows rounding errors (common practice: a regression needs rows and a response that varies).
+std::string RunError(const std::string& csv, const std::string& plan_text) {
+  testing::TempDir folder;
+  const auto data = folder.Write("rows.csv", csv);
+  try {
+    RunPlan(data, ParsePlanText(plan_text), RunOptions{});
+  } catch (const PlanError& error) {
+    ADD_FAILURE() << "expected an InputError about the rows, got a PlanError: " << error.what();
+  } catch (const InputError& error) {
+    return error.what();
+  }
+  ADD_FAILURE() << "expected an InputError";
+  return "";
+}
+
+constexpr const char* kAgePlan = R"({"response": "price", "weights": "w", "terms": [
+    {"name": "age", "column": "age"}], "method": "forward", "criterion": "aic"})";
+
+TEST(RunPlan, NoUsableRowSaysWhyEveryRowWasDropped) {
+  // Three rows of weight 0 and two missing an age: every row is dropped (reasons in the
+  // accounting's order: missing cells, then zero weights).
+  std::string message = RunError("price,age,w\n1,2,0\n2,,1\n3,4,0\n4,NA,1\n5,6,0\n", kAgePlan);
+  EXPECT_NE(message.find("rows.csv: no row can be used: all 5 rows read were dropped (2 with a missing cell in "
+                         "column 'age', 3 with weight 0 in column 'w')"),
+            std::string::npos)
+      << message;
+  // A header alone: the design already finds the response empty (a PlanError at its key).
+  testing::TempDir folder;
+  const auto header_only = folder.Write("header.csv", "price,age,w\n");
+  EXPECT_THROW(RunPlan(header_only, ParsePlanText(kAgePlan), RunOptions{}), PlanError);
+}
+
+TEST(RunPlan, AConstantResponseIsRefusedWithAnIntercept) {
+  std::string message = RunError("price,age,w\n250,1,1\n250,2,1\n250,3,2\n7,4,0\n", kAgePlan);
+  EXPECT_NE(message.find("rows.csv: response 'price' is 250 in the 3 rows used: with an intercept there is "
+                         "nothing left to explain"),
+            std::string::npos)
+      << message;
+  EXPECT_NE(message.find("the rows dropped (1 row)"), std::string::npos) << message;
+  // Values that differ only in their last bits count as constant: 250 and the next doubles.
+  message = RunError("price,age,w\n250,1,1\n250.00000000000006,2,1\n250.0000000000001,3,1\n", kAgePlan);
+  EXPECT_NE(message.find("only varies from 250 to 250.0000000000001 in the 3 rows used"), std::string::npos)
+      << message;
+  // Under "log" the values are said on the response's own scale.
+  message = RunError("price,age\n8,1\n8,2\n8,3\n",
+                     R"({"response": "price", "response_transform": "log", "terms": [{"name": "age", "column": "age"}],
+                         "method": "none"})");
+  EXPECT_NE(message.find("response 'price' is 8 in the 3 rows used"), std::string::npos) << message;
+  // A response of 0 throughout has nothing to fit even without an intercept.
+  message = RunError("price,age\n0,1\n0,2\n0,3\n",
+                     R"({"response": "price", "intercept": false, "terms": [{"name": "age", "column": "age"}],
+                         "method": "none"})");
+  EXPECT_NE(message.find("response 'price' is 0 in the 3 rows used: there is nothing to fit"), std::string::npos)
+      << message;
+}
+
+TEST(RunPlan, AConstantResponseWithoutAnInterceptIsAModel) {
+  // y = 5 throughout is 2.5 age when age = 2 throughout: nothing is refused.
+  testing::TempDir folder;
+  const auto data = folder.Write("rows.csv", "price,age\n5,2\n5,2\n5,2\n5,2\n");
+  const RunResult run = RunPlan(data, ParsePlanText(R"({"response": "price", "intercept": false,
+      "terms": [{"name": "age", "column": "age"}], "method": "none"})"), RunOptions{});
+  ASSERT_EQ(run.fit.coefficients.size(), 1u);
+  EXPECT_DOUBLE_EQ(run.fit.coefficients[0].estimate, 2.5);
+  // Nearly constant but varying beyond rounding: a model, with an intercept too.
+  const auto varying = folder.Write("varying.csv", "price,age\n250,1\n250.000001,2\n250.000003,3\n250.000002,4\n");
+  const RunResult near = RunPlan(varying, ParsePlanText(R"({"response": "price", "terms": [
+      {"name": "age", "column": "age"}], "method": "none"})"), RunOptions{});
+  EXPECT_EQ(near.fit.n, 4u);
+}
+
 }  // namespace
 }  // namespace stepledger

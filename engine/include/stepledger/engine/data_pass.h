@@ -67,6 +67,21 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
 /// For tests and small tools; a run scans once and passes the spill to every pass.
 PassResult RunFactorPass(const std::filesystem::path& path, const Design& design, const PassOptions& options);
 
+/// The response counts as constant when its values over the rows used differ by at most this
+/// share of their magnitude (they agree in all but the last dozen of their 53 bits): the factor
+/// then resolves the sums of squares about the mean to a few digits at best, so that with an
+/// intercept every RSS, and any route, follows rounding errors.
+inline constexpr double kConstantResponseSpread = 0x1p-40;
+
+/// Refuses a pass that leaves nothing to fit, with an InputError naming data_name:
+///  - no row used: none read (a header alone), or every row dropped; the message counts the
+///    rows dropped for each reason and column (the plan's weights column, missing cells);
+///  - a response that is 0 in every row used;
+///  - with an intercept, a response constant over the rows used (kConstantResponseSpread).
+/// A constant response without an intercept is a model like any other. RunPlan calls it after
+/// the factor pass, before any search.
+void RequireSomethingToFit(const PassResult& pass, const Design& design, const std::string& data_name);
+
 /// A used row seen again: x unscaled (design.column_count() values).
 struct UsedRow {
   std::uint64_t row_index = 0;  ///< 0-based data record index in the file

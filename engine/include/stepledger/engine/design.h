@@ -76,7 +76,23 @@ struct DesignColumn {
   std::size_t term = kNoTerm;  ///< owning term index; kNoTerm for the intercept
   /// Exact power of two by which the factor scales this column (see Design::scales).
   double scale = 1.0;
+  /// The largest |value| the column can take over the data's rows, from the profile (a power's
+  /// is the column's to that power, a product's the product of its parts'): what sets `scale`
+  /// and what the magnitude check (kLargestMagnitude) reads. 1 for the intercept and indicators.
+  double bound = 1.0;
 };
+
+/// The magnitudes stepledger fits. The largest |value| of every design column (a column, its log
+/// or power, a product of terms), of the response (after its transform) and of the weights must
+/// lie in [kSmallestMagnitude, kLargestMagnitude], or be 0. Sums of squares, variances and
+/// covariances are squares and ratios of such numbers (up to about 1e240 times factors of n,
+/// the weights and the conditioning), which keeps them well inside the range of doubles (about
+/// 1e-308 to 1e308): outside the window the factor's power-of-two scales would still fit the
+/// model, but the numbers reported in the data's units would overflow or lose their digits.
+/// BuildDesign refuses such data with an InputError at the cell of the largest magnitude (a
+/// product: a PlanError at the term), saying by what power of ten to rescale the column.
+inline constexpr double kLargestMagnitude = 1e60;
+inline constexpr double kSmallestMagnitude = 1e-60;
 
 struct DesignTerm {
   std::string name;
@@ -199,6 +215,9 @@ class Design {
 /// level, a categorical or empty response, a weights column that is not numeric.
 /// Default baseline of a categorical term: its most frequent level, ties broken by byte-wise
 /// order (the largest cell gives the most precise contrasts); recorded in DesignTerm::baseline.
+/// Throws InputError naming file:line:column (from ColumnProfile::min_at/max_at; the file alone
+/// for a profile without them) for a column, response or weights outside the magnitudes above,
+/// and PlanError naming the term's key for a product or power that leaves them.
 Design BuildDesign(const DesignSpec& spec, const DataProfile& profile);
 
 }  // namespace stepledger

@@ -4,7 +4,8 @@
 //    (RunCli reports it as an internal error, exit 3; never InputError);
 //  - bad input (data file, plan, options): InputError and PlanError, whose message is the
 //    complete one-line text for the user, naming file:line:column or the JSON key path;
-//  - numerical or internal failures that end the work: NumericalError.
+//  - numerical or internal failures that end the work: NumericalError;
+//  - the machine's resources running out (memory, address space): ResourceError (exit 3).
 // Expected numerical outcomes (aliased column, exact fit, n <= k) are never thrown: they are
 // recorded in results.
 
@@ -57,6 +58,13 @@ class PlanError : public InputError {
 
 /// A numerical or internal failure that ends the work (exit status 3).
 class NumericalError : public std::runtime_error {
+ public:
+  using std::runtime_error::runtime_error;
+};
+
+/// The machine cannot give what the work needs (memory or address space under a limit such as
+/// `ulimit -v`): exit status 3, with what() saying what ran out and what to change.
+class ResourceError : public std::runtime_error {
  public:
   using std::runtime_error::runtime_error;
 };

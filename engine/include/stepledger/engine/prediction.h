@@ -40,6 +40,7 @@
 #include <optional>
 #include <span>
 #include <string>
+#include <string_view>
 #include <vector>
 
 #include "stepledger/engine/csv.h"
@@ -54,7 +55,9 @@ enum class PredictionFlag {
   kMissing,              ///< a needed cell is empty or NA: no prediction
   kUnknownLevel,         ///< a categorical cell holds a level the fitted data did not: no prediction
   kInvalidValue,         ///< text or a non-finite number in a numeric column, a value <= 0 under
-                         ///< a log, a weight that is not a positive number: no prediction
+                         ///< a log, a weight that is not a positive number, or values so far
+                         ///< outside the fitted data that the prediction, its leverage or an
+                         ///< interval is not a finite double: no prediction
   kOutsideRange,         ///< some term value lies outside its range over the fitted rows
   kHiddenExtrapolation,  ///< unit leverage above the largest fitted one, every column in range
 };
@@ -76,6 +79,12 @@ struct RowProblem {
   std::string Describe() const;
 };
 
+/// Where a cell of a record is (as CsvField: 1-based line and byte column).
+struct CellPlace {
+  std::uint64_t line = 0;
+  std::uint64_t column = 0;
+};
+
 /// A record turned into the design row, or into the reasons it cannot be.
 struct EvaluatedRow {
   std::uint64_t row_index = 0;  ///< 0-based data record index
@@ -85,6 +94,10 @@ struct EvaluatedRow {
   /// Values of the design's source cells (indexed like Design::source.cells; numeric cells
   /// only), for saying out-of-range values on the column's own scale.
   std::vector<double> cell_values;
+  /// Where each numeric cell of cell_values was read (same indexing), and the file: what a
+  /// problem found by the Predictor (a value too far out to price) names.
+  std::vector<CellPlace> cell_places;
+  std::string_view file;
   double weight = 1;  ///< w0: the weights cell when the rows hold the weights column, else 1
   std::vector<RowProblem> problems;
   bool ok() const { return problems.empty(); }
@@ -220,10 +233,16 @@ class Predictor {
   /// Student t quantile t(1 - (1 - level)/2; df_residual) (Boost.Math); unset when df <= 0.
   std::optional<double> t_quantile() const { return t_quantile_; }
 
-  /// Prices one evaluated row (or passes its problems on). O(k^2).
+  /// Prices one evaluated row (or passes its problems on). O(k^2). A row whose prediction,
+  /// leverage, standard error or an interval (or its back-transform) is not a finite double
+  /// is not priced: it gets an invalid-value problem for each column outside its fitted range
+  /// (each numeric column of the model when none is), "is too far outside the fitted data to
+  /// price", and none of the numbers.
   PredictedRow Predict(const EvaluatedRow& row) const;
 
  private:
+  static bool AllFinite(const PredictedRow& row);
+  PredictedRow TooFarOut(const EvaluatedRow& row, PredictedRow priced) const;
   struct RangeCheck {
     std::size_t term = kNoTerm;  ///< design term
     std::ptrdiff_t cell = -1;    ///< its source cell

@@ -40,6 +40,10 @@ struct ColumnProfile {
   /// Numeric columns: over present cells (Welford, unweighted; sd is the sample standard
   /// deviation with n-1, NaN when only one cell is present). NaN for other kinds.
   double min = 0, max = 0, mean = 0, sd = 0;
+  /// Numeric columns: the first cell (in file order) holding min and max, with the value's
+  /// shortest round-trip text; for saying where a value out of the range stepledger can fit is
+  /// (design.h, kLargestMagnitude). Unset for other kinds and in profiles rebuilt from an audit.
+  std::optional<CellLocation> min_at, max_at;
   /// Categorical columns: distinct texts of the present cells, sorted byte-wise, with counts
   /// (up to max_levels). Numeric columns keep them too when they have at most max_levels
   /// distinct texts (so that a numeric code can be a categorical term); a numeric column with
