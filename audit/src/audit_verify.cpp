@@ -402,6 +402,7 @@ std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& 
     ReplayOverrides overrides;
     if (options.threads > 0) overrides.threads = options.threads;
     overrides.work_dir = options.work_dir;
+    overrides.limits = options.limits;
     const RunResult run = ReplayRecordedPlan(document, options.data, "audit", overrides);
     AuditDocumentOptions document_options;
     document_options.created_at = document.value("created_at", std::string("unknown"));
@@ -409,6 +410,8 @@ std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& 
   } catch (const json::exception& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
+  } catch (const LimitError&) {
+    throw;  // the replaying machine's limit, not a difference in the audit (exit 2)
   } catch (const PlanError& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());

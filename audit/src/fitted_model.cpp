@@ -211,11 +211,11 @@ json PredictionSectionJson(const FitResult& fit, const Design& design, const Pre
 namespace {
 
 // The plan as normalised when the audit was written (terms explicit, baselines chosen).
-Plan PlanFromAudit(const AuditReader& reader, const json& audit) {
+Plan PlanFromAudit(const AuditReader& reader, const json& audit, const InputLimits& limits) {
   const json& plan = reader.Object(audit, "", "plan");
   const json& normalised = reader.Object(plan, "plan", "normalised");
   try {
-    return PlanFromJson(normalised);
+    return PlanFromJson(normalised, limits);
   } catch (const PlanError& error) {
     reader.Fail("plan.normalised" + (error.key_path().empty() ? "" : "." + error.key_path()), error.what());
   }
@@ -361,7 +361,8 @@ PredictionSupport SupportFromAudit(const AuditReader& reader, const json& predic
 
 }  // namespace
 
-FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name) {
+FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name,
+                                 const InputLimits& limits) {
   const AuditReader reader(source_name);
   // Older audits (TERM[LEVEL] columns, model.ssr) are read with today's names.
   const json audit = AuditInCurrentShape(audit_as_read);
@@ -372,10 +373,12 @@ FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view sou
                 "needs; run `stepledger rerun` on it (or select again) with this version");
   }
   const json& prediction = reader.Object(audit, "", "prediction");
-  model.plan = PlanFromAudit(reader, audit);
+  model.plan = PlanFromAudit(reader, audit, limits);
   ReadDataSection(reader, audit, model);
   try {
-    model.design = BuildDesign(model.plan.design, model.profile);
+    model.design = BuildDesign(model.plan.design, model.profile, limits);
+  } catch (const LimitError&) {
+    throw;  // the reading machine's limit, with its own advice
   } catch (const InputError& error) {
     reader.Fail("plan.normalised", std::string("does not rebuild on the recorded columns: ") + error.what());
   }
@@ -407,7 +410,8 @@ PricingModel MakePricingModel(const FittedModel& fitted) {
     model.design.weights = fitted.design.weights;
     if (fitted.design.intercept) model.design.columns.push_back(fitted.design.columns.front());
   } else {
-    model.design = BuildDesign(spec, fitted.profile);
+    // A part of the design FittedModelFromAudit built within its limits.
+    model.design = BuildDesign(spec, fitted.profile, InputLimits::Unlimited());
   }
   model.fit = fitted.fit;
   for (const std::size_t column : fitted.fit.columns) {

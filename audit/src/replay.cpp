@@ -17,11 +17,12 @@ RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem:
     throw InputError(name + ": key 'plan.verbatim': expected the recorded plan's text");
   }
   const LoadedPlan loaded =
-      ParsePlanText(audit["plan"]["verbatim"].get<std::string>(), name + " plan.verbatim");
+      ParsePlanText(audit["plan"]["verbatim"].get<std::string>(), name + " plan.verbatim", overrides.limits);
   RunOptions options = RunOptionsFromSettings(audit.value("settings", nlohmann::json::object()));
   if (overrides.threads) options.threads = *overrides.threads;
   if (overrides.delimiter) options.csv.delimiter = *overrides.delimiter;
   options.work_dir = overrides.work_dir;
+  options.limits = overrides.limits;
   return RunPlan(data, loaded, options, observer);
 }
 

@@ -404,7 +404,7 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
   const nlohmann::json document = ReadAuditFile(args.audit);
   const std::optional<std::string> unverified_warning = CheckAuditForPricing(document, args, context);
   if (!unverified_warning) return static_cast<int>(ExitStatus::kDifferenceFound);
-  const FittedModel fitted = FittedModelFromAudit(document, args.audit);
+  const FittedModel fitted = FittedModelFromAudit(document, args.audit, context.common.limits);
   PredictionOptions options;
   options.level = args.level;
   const Predictor predictor(MakePricingModel(fitted), options);

@@ -134,6 +134,7 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--title", args->title, "Heading of the report (default: 'Selection report: DATA')")
       ->type_name("TEXT");
   AddCommonOptions(*command, context.common);
+  command->get_option("--limit")->needs(command->get_option("--data"));
   const std::string program = ProgramWord();
   command->footer(
       "The report renders from the audit alone (and, with --data, one pass over the data that "

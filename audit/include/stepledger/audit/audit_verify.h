@@ -22,6 +22,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/engine/limits.h"
 
 namespace stepledger {
 
@@ -39,6 +40,9 @@ struct VerifyOptions {
   int threads = 0;
   /// Where the replay's typed spill goes; empty: the system temporary folder.
   std::filesystem::path work_dir;
+  /// The replay's input limits (engine/limits.h). A replay over a limit is not a difference: the
+  /// LimitError is thrown, not recorded as a failed check.
+  InputLimits limits;
   /// Numbers in a replay agree when |a - b| <= relative_tolerance * max(|a|, |b|).
   /// Default 1e-9 (the contract); actions, terms and texts must match exactly.
   double relative_tolerance = 1e-9;

@@ -61,8 +61,10 @@ struct FittedModel {
 /// name) starts every message. Throws InputError naming the JSON key ("prediction.triangle")
 /// when a needed key is missing or malformed, or when the rebuilt design's columns do not
 /// match the audit's design section; an audit written before the `prediction` section existed
-/// gets a message saying to rerun it with this version.
-FittedModel FittedModelFromAudit(const nlohmann::json& audit, std::string_view source_name);
+/// gets a message saying to rerun it with this version. The recorded plan is read and rebuilt
+/// within limits (LimitError past one: a plan file's limits apply to a recorded plan too).
+FittedModel FittedModelFromAudit(const nlohmann::json& audit, std::string_view source_name,
+                                 const InputLimits& limits = {});
 
 /// The model for pricing new rows (engine/prediction.h): the design restricted to the terms
 /// the model needs (TermsNeededByModel), so that the rows need neither the response nor the

@@ -22,6 +22,9 @@ struct ReplayOverrides {
   std::optional<char> delimiter;
   /// Where the typed spill goes (never recorded); empty: the system temporary folder.
   std::filesystem::path work_dir;
+  /// The limits of the replaying command (never recorded: an audit cannot lift them); they also
+  /// apply to the recorded plan's text and terms.
+  InputLimits limits;
 };
 
 /// Runs the audit's recorded plan (plan.verbatim, read as a plan file is read) with its recorded
