@@ -42,6 +42,10 @@ std::string_view FieldAround(const char* begin, const char* end, char delimiter)
   return {begin, static_cast<std::size_t>(stop - begin)};
 }
 
+constexpr const char* kBareCarriageReturnInHeader =
+    "the header holds a carriage return that is not followed by a line feed: lines must end in "
+    "LF or CR LF (a file whose lines end in CR alone needs converting first)";
+
 std::string CountText(std::uint64_t count) {
   return count > INT64_MAX ? std::to_string(count) : FormatCount(static_cast<std::int64_t>(count));
 }
@@ -474,9 +478,7 @@ void CsvReader::ReadHeader() {
   for (const CsvField& field : fields) {
     const std::size_t carriage_return = field.quoted ? std::string_view::npos : field.text.find('\r');
     if (carriage_return != std::string_view::npos) {
-      Fail(field.line, field.column + carriage_return,
-           "the header holds a carriage return that is not followed by a line feed: lines must end in "
-           "LF or CR LF (a file whose lines end in CR alone needs converting first)");
+      Fail(field.line, field.column + carriage_return, kBareCarriageReturnInHeader);
     }
   }
   header_.reserve(fields.size());
@@ -504,8 +506,9 @@ void CsvReader::ReadHeader() {
 
 void CsvReader::CheckHeaderWidth() {
   // A field starts after every delimiter outside quotes; a quote opens a quoted field only at a
-  // field's start. Irregular text is left to the parse that follows, which names it: this count
-  // only stops a header that is too wide before the whole of it is held.
+  // field's start. A CR alone outside quotes is refused here (the file's lines end in CR: the
+  // header would be the whole file); other irregular text is left to the parse that follows,
+  // which names it. This count only stops a header that is too wide before it is held whole.
   enum class State { kFieldStart, kUnquoted, kQuoted, kQuoteInQuoted };
   State state = State::kFieldStart;
   std::uint64_t fields = 1;
@@ -516,6 +519,15 @@ void CsvReader::CheckHeaderWidth() {
     for (; cursor_ + scanned < buffer_.size(); ++scanned) {
       const char byte = buffer_[cursor_ + scanned];
       const std::uint64_t offset = buffer_offset_ + cursor_ + scanned;  // in the file
+      if (byte == '\r' && (state == State::kFieldStart || state == State::kUnquoted)) {
+        const std::size_t next = cursor_ + scanned + 1;
+        if (next == buffer_.size() && !eof_) break;  // look at the next byte once it is read
+        if (next < buffer_.size() && buffer_[next] != '\n') {
+          Fail(line, offset - line_start + 1, kBareCarriageReturnInHeader);
+        }
+        state = State::kUnquoted;
+        continue;
+      }
       if (state == State::kQuoted) {
         if (byte == kQuote) state = State::kQuoteInQuoted;
         if (byte == '\n') {

@@ -395,6 +395,16 @@ TEST_F(CsvReaderTest, ColumnsLimitCountsFieldsAsTheParseDoes) {
   EXPECT_NE(std::string(error.what()).find(four.string() + ":2:4: the header has more than 3 columns"),
             std::string::npos)
       << error.what();
+  // Lines ended by CR alone make the whole file one line: the count names the first lone CR
+  // (the message the parse gives) rather than a header too wide, whatever the file's length.
+  std::string cr_only = "price,age\r";
+  for (int row = 0; row < 10'000; ++row) cr_only += "100,2\r";
+  const auto cr_path = folder_.Write("cr-only.csv", cr_only);
+  options.max_columns = 10;
+  EXPECT_EQ(InputErrorOf([&] { CsvReader reader(cr_path, options); }),
+            cr_path.string() + ":1:10: the header holds a carriage return that is not followed by a line feed: "
+                               "lines must end in LF or CR LF (a file whose lines end in CR alone needs converting "
+                               "first)");
   // A tab-separated header counts tabs.
   options.delimiter = '\t';
   options.max_columns = 2;
