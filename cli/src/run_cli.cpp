@@ -90,13 +90,14 @@ void AddCommonOptions(CLI::App& command, CommonOptions& common, unsigned options
                     "NAME (default): " + names + ". An input over a limit is refused before the work "
                     "(exit 2); see 'Limits' in the README")
         ->type_name("NAME=N")
+        ->default_str("")
         ->allow_extra_args(false)
         ->check(CLI::Validator(
             [](std::string& text) {
               InputLimits unused;
               return ApplyLimitText(text, unused);
             },
-            "NAME=N"))
+            ""))
         ->each([&common](const std::string& text) { ApplyLimitText(text, common.limits); });
   }
 }
