@@ -12,6 +12,7 @@
 // problem is a per-row outcome, never an exception); a priced row has a finite prediction and
 // leverage and ordered intervals; flags are distinct and in their listing order.
 
+#include <algorithm>
 #include <cmath>
 #include <cstdint>
 #include <cstdio>
@@ -108,7 +109,16 @@ const Fixture& TheFixture() {
 
 void CheckRow(const EvaluatedRow& evaluated, const PredictedRow& row, const Design& design) {
   if (evaluated.ok() && evaluated.x.size() != design.column_count()) Finding("a row without problems has no design row");
-  if (row.priced() != evaluated.ok()) Finding("a row is priced although it has problems, or not priced without any");
+  if (row.priced() && !evaluated.ok()) Finding("a row is priced although it has problems");
+  if (!row.priced()) {
+    // A row that evaluates cleanly may still go unpriced, but only as too far outside the
+    // fitted data (an invalid-value problem the Predictor adds when a number would overflow).
+    const bool only_too_far_out =
+        !row.problems.empty() && std::all_of(row.problems.begin(), row.problems.end(), [](const RowProblem& problem) {
+          return problem.flag == PredictionFlag::kInvalidValue;
+        });
+    if (evaluated.ok() && !only_too_far_out) Finding("a row without problems is not priced");
+  }
   if (row.priced() != row.problems.empty()) Finding("a priced row lists problems");
   for (std::size_t i = 0; i < row.flags.size(); ++i) {
     for (std::size_t j = i + 1; j < row.flags.size(); ++j) {

@@ -254,12 +254,14 @@ void CheckSignature(const json& document, const std::filesystem::path& public_ke
 // plan.normalised, read as predict reads it, against what plan.verbatim gives on the recorded
 // columns. Both sides go through the plan reader, so keys an older audit leaves out compare at
 // their defaults, and numbers compare exactly.
-void CheckNormalisedPlan(const json& document, VerifyReport& report) {
+void CheckNormalisedPlan(const json& document, const InputLimits& limits, VerifyReport& report) {
   report.plan = Check::kHolds;
   json as_read, derived;
   try {
-    as_read = NormalisedPlanAsRead(document, "audit");
-    derived = NormalisedPlanFromVerbatim(document, "audit");
+    as_read = NormalisedPlanAsRead(document, "audit", limits);
+    derived = NormalisedPlanFromVerbatim(document, "audit", limits);
+  } catch (const LimitError&) {
+    throw;  // the command's limit, not the audit's fault: exit 2 saying how to raise it
   } catch (const InputError& error) {
     report.plan = Check::kFails;
     std::string reason = error.what();
@@ -409,7 +411,8 @@ std::optional<std::string> FirstJsonDifference(const json& recorded, const json&
   return FirstDifference(recorded, replayed, path, relative_tolerance, recorded_name, replayed_name, 0);
 }
 
-VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::path& public_key) {
+VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::path& public_key,
+                                 const InputLimits& limits) {
   VerifyReport report;
   if (!document.is_object()) {
     report.problems.push_back("the audit is not a JSON object");
@@ -420,7 +423,7 @@ VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::pa
   CheckChain(document, report);
   CheckSeal(document, report);
   CheckSignature(document, public_key, report);
-  CheckNormalisedPlan(document, report);
+  CheckNormalisedPlan(document, limits, report);
   return report;
 }
 
@@ -485,6 +488,7 @@ std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& 
     ReplayOverrides overrides;
     if (options.threads > 0) overrides.threads = options.threads;
     overrides.work_dir = options.work_dir;
+    overrides.limits = options.limits;
     const RunResult run = ReplayRecordedPlan(document, options.data, "audit", overrides);
     AuditDocumentOptions document_options;
     document_options.created_at = document.value("created_at", std::string("unknown"));
@@ -492,6 +496,8 @@ std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& 
   } catch (const json::exception& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
+  } catch (const LimitError&) {
+    throw;  // the replaying machine's limit, not a difference in the audit (exit 2)
   } catch (const PlanError& error) {
     report.replay = Check::kFails;
     report.problems.push_back(std::string("replay impossible: the recorded plan is unusable: ") + error.what());
@@ -583,7 +589,7 @@ void CompareReplayedSections(const json& recorded_document, const json& replayed
 void CompareReplayedPlan(const json& document, const json& replayed, VerifyReport& report) {
   json as_read;
   try {
-    as_read = NormalisedPlanAsRead(document, "audit");
+    as_read = NormalisedPlanAsRead(document, "audit", InputLimits::Unlimited());
   } catch (const InputError&) {
     return;  // named by the normalised plan check
   }
@@ -598,7 +604,7 @@ void CompareReplayedPlan(const json& document, const json& replayed, VerifyRepor
 }  // namespace
 
 VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
-  VerifyReport report = CheckAuditIntegrity(document, options.public_key);
+  VerifyReport report = CheckAuditIntegrity(document, options.public_key, options.limits);
   if (options.data.empty()) return report;  // the report says what was not checked
 
   // One scan of the data: the replay's, which also takes the fingerprint.

@@ -144,11 +144,11 @@ std::string PlanErrorDetail(const PlanError& error) {
 }
 
 // The plan as normalised when the audit was written (terms explicit, baselines chosen).
-Plan PlanFromAudit(const AuditReader& reader, const json& audit) {
+Plan PlanFromAudit(const AuditReader& reader, const json& audit, const InputLimits& limits) {
   const json& plan = reader.Object(audit, "", "plan");
   const json& normalised = reader.Object(plan, "plan", "normalised");
   try {
-    return PlanFromJson(normalised);
+    return PlanFromJson(normalised, limits);
   } catch (const PlanError& error) {
     reader.Fail("plan.normalised" + (error.key_path().empty() ? "" : "." + error.key_path()), PlanErrorDetail(error));
   }
@@ -298,32 +298,35 @@ PredictionSupport SupportFromAudit(const AuditReader& reader, const json& predic
 
 }  // namespace
 
-json NormalisedPlanFromVerbatim(const json& audit_as_read, std::string_view source_name) {
+json NormalisedPlanFromVerbatim(const json& audit_as_read, std::string_view source_name,
+                                const InputLimits& limits) {
   const AuditReader reader(source_name);
   const json audit = AuditInCurrentShape(audit_as_read);
   const json& plan = reader.Object(audit, "", "plan");
   const std::string verbatim = reader.String(plan, "plan", "verbatim");
   LoadedPlan loaded;
   try {
-    loaded = ParsePlanText(verbatim, std::string(source_name) + " plan.verbatim");
+    loaded = ParsePlanText(verbatim, std::string(source_name) + " plan.verbatim", limits);
   } catch (const PlanError& error) {
     reader.Fail("plan.verbatim" + (error.key_path().empty() ? "" : "." + error.key_path()), PlanErrorDetail(error));
   }
   const DataProfile profile = ProfileFromAudit(reader, reader.Object(audit, "", "data"));
   try {
-    const Design design = BuildDesign(loaded.plan.design, profile);
+    const Design design = BuildDesign(loaded.plan.design, profile, limits);
     return PlanToJson(loaded.plan, &design);
   } catch (const InputError& error) {
     reader.Fail("plan.verbatim", std::string("does not build on the recorded columns: ") + error.what());
   }
 }
 
-json NormalisedPlanAsRead(const json& audit_as_read, std::string_view source_name) {
+json NormalisedPlanAsRead(const json& audit_as_read, std::string_view source_name,
+                          const InputLimits& limits) {
   const AuditReader reader(source_name);
-  return PlanToJson(PlanFromAudit(reader, AuditInCurrentShape(audit_as_read)));
+  return PlanToJson(PlanFromAudit(reader, AuditInCurrentShape(audit_as_read), limits));
 }
 
-FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name) {
+FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view source_name,
+                                 const InputLimits& limits) {
   const AuditReader reader(source_name);
   // Older audits (TERM[LEVEL] columns, model.ssr) are read with today's names.
   const json audit = AuditInCurrentShape(audit_as_read);
@@ -334,10 +337,12 @@ FittedModel FittedModelFromAudit(const json& audit_as_read, std::string_view sou
                 "needs; run `stepledger rerun` on it (or select again) with this version");
   }
   const json& prediction = reader.Object(audit, "", "prediction");
-  model.plan = PlanFromAudit(reader, audit);
+  model.plan = PlanFromAudit(reader, audit, limits);
   ReadDataSection(reader, audit, model);
   try {
-    model.design = BuildDesign(model.plan.design, model.profile);
+    model.design = BuildDesign(model.plan.design, model.profile, limits);
+  } catch (const LimitError&) {
+    throw;  // the reading machine's limit, with its own advice
   } catch (const InputError& error) {
     reader.Fail("plan.normalised", std::string("does not rebuild on the recorded columns: ") + error.what());
   }
@@ -369,7 +374,8 @@ PricingModel MakePricingModel(const FittedModel& fitted) {
     model.design.weights = fitted.design.weights;
     if (fitted.design.intercept) model.design.columns.push_back(fitted.design.columns.front());
   } else {
-    model.design = BuildDesign(spec, fitted.profile);
+    // A part of the design FittedModelFromAudit built within its limits.
+    model.design = BuildDesign(spec, fitted.profile, InputLimits::Unlimited());
   }
   model.fit = fitted.fit;
   for (const std::size_t column : fitted.fit.columns) {

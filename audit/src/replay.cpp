@@ -30,13 +30,14 @@ RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem:
     throw InputError(name + ": key 'plan.verbatim': expected the recorded plan's text");
   }
   const LoadedPlan loaded =
-      ParsePlanText(audit["plan"]["verbatim"].get<std::string>(), name + " plan.verbatim");
+      ParsePlanText(audit["plan"]["verbatim"].get<std::string>(), name + " plan.verbatim", overrides.limits);
   RunOptions options = RunOptionsFromSettings(audit.value("settings", nlohmann::json::object()), name);
   // The recorded count is the recording machine's; more threads than cores here would only
   // cost memory (the count changes the numbers to rounding only).
   options.threads = overrides.threads ? *overrides.threads : std::min(options.threads, CoresAvailable());
   if (overrides.delimiter) options.csv.delimiter = *overrides.delimiter;
   options.work_dir = overrides.work_dir;
+  options.limits = overrides.limits;
   return RunPlan(data, loaded, options, observer);
 }
 

@@ -8,6 +8,7 @@
 #include <memory>
 #include <ostream>
 #include <string>
+#include <vector>
 
 #include <CLI/CLI.hpp>
 #include <nlohmann/json.hpp>
@@ -16,6 +17,7 @@
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/limits.h"
 #include "stepledger/run/run_plan.h"
 #include "stepledger/engine/table_scan.h"
 #include "stepledger/selection/plan.h"
@@ -45,9 +47,14 @@ struct CommonOptions {
   std::string log_level = "warn";
   /// Field separator of the data file: one character, or "tab". Default ",".
   std::string delimiter = ",";
+  /// How large the input may be (--limit NAME=N, repeatable; engine/limits.h): the defaults
+  /// unless the command line raises or lowers one.
+  InputLimits limits;
+  /// The --limit texts as given (parsed into limits as they are read).
+  std::vector<std::string> limit_texts;
 };
 
-/// The --threads and --work-dir of a command as the engine takes them.
+/// The --threads, --work-dir and --limit of a command as the engine takes them.
 DataReadOptions MakeDataReadOptions(const CommonOptions& common);
 
 /// Shared by the commands during one RunCli call.
@@ -72,12 +79,16 @@ enum CommonOption : unsigned {
   kQuietOption = 1u << 3,
   kLogLevelOption = 1u << 4,
   kDelimiterOption = 1u << 5,   ///< only commands that read a data file
-  kAllCommonOptions = (1u << 6) - 1,
+  kLimitOption = 1u << 6,       ///< only commands that read a data file, a plan or an audit's plan
+  kAllCommonOptions = (1u << 7) - 1,
 };
 
-/// Adds the chosen options among --json, --force, --threads, --quiet, --log-level and
-/// --delimiter to a subcommand (all of them by default).
+/// Adds the chosen options among --json, --force, --threads, --quiet, --log-level,
+/// --delimiter and --limit to a subcommand (all of them by default).
 void AddCommonOptions(CLI::App& command, CommonOptions& common, unsigned options = kAllCommonOptions);
+
+/// Applies one --limit text ("columns=20000") to limits; returns "" or what is wrong with it.
+std::string ApplyLimitText(const std::string& text, InputLimits& limits);
 
 /// --method's value in any case ("Forward"), or InputError naming --method and the choices.
 Method ParseMethodOption(const std::string& text);
@@ -89,7 +100,8 @@ Criterion ParseCriterionOption(const std::string& text);
 /// when the model has none. Never a tilde formula.
 std::string ModelStatement(const Design& design, const FitResult& fit);
 
-/// CSV options from the common options (throws InputError naming --delimiter).
+/// CSV options from the common options (throws InputError naming --delimiter); the header's
+/// column limit from --limit columns=N.
 CsvOptions MakeCsvOptions(const CommonOptions& common);
 
 /// How the examples in --help and the demo's "Next, try" lines call the program, so that they

@@ -36,7 +36,7 @@ int RunCompare(const CompareArgs& args, CommandContext& context) {
   // A comparison of edited files would mislead: say so first (verify gives the details).
   nlohmann::json warnings = nlohmann::json::array();
   for (const auto& [name, audit] : {std::pair{args.old_audit, &old_audit}, std::pair{args.new_audit, &new_audit}}) {
-    const VerifyReport integrity = CheckAuditIntegrity(*audit);
+    const VerifyReport integrity = CheckAuditIntegrity(*audit, {}, context.common.limits);
     if (!integrity.Holds()) warnings.push_back(name + " does not verify: " + integrity.problems.front());
   }
   if (context.common.json) {

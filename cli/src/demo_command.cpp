@@ -160,7 +160,7 @@ void AddDemoCommand(CLI::App& app, CommandContext& context) {
                       "Folder for the data, the plan, the audit and the report (created when missing)")
       ->type_name("DIR");
   // The demo writes comma-separated files: no --delimiter.
-  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kDelimiterOption);
+  AddCommonOptions(*command, context.common, kAllCommonOptions & ~kDelimiterOption & ~kLimitOption);
   command->footer(
       "Writes DIR/laptops.csv (listings of an invented reseller of refurbished laptops, drawn "
       "from a documented true model with a fixed seed), DIR/plan.json (the true model's terms "

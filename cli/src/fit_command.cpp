@@ -120,12 +120,13 @@ int RunFit(const FitArgs& args, CommandContext& context) {
   auto& log = *context.log;
   // fit is a run of the plan with method "none": every eligible term, no selection, the same
   // pipeline (profile, factor pass, refined fit, diagnostics, cautions) as select, no audit.
-  LoadedPlan loaded = LoadPlanFile(args.plan);
+  LoadedPlan loaded = LoadPlanFile(args.plan, context.common.limits);
   loaded.plan.search.method = Method::kNone;
   RunOptions options;
   options.csv = MakeCsvOptions(context.common);
   options.threads = context.common.threads;
   options.work_dir = context.common.work_dir;
+  options.limits = context.common.limits;
   options.fit.confidence_level = args.confidence_level;
   options.fit.max_refinement_passes = args.refinement_passes;
   options.vif_caution = args.vif_caution;

@@ -202,7 +202,7 @@ std::optional<std::string> CheckAuditForPricing(const nlohmann::json& document, 
                                                 CommandContext& context) {
   // Prices from an edited audit would look as trustworthy as any: refuse unless asked.
   std::string unverified_warning;
-  if (const VerifyReport integrity = CheckAuditIntegrity(document); !integrity.Holds()) {
+  if (const VerifyReport integrity = CheckAuditIntegrity(document, {}, context.common.limits); !integrity.Holds()) {
     const std::string problem = integrity.problems.empty() ? "digests do not hold" : integrity.problems.front();
     if (!args.allow_unverified) {
       context.err << "stepledger: " << args.audit << " does not verify (" << OneLineText(problem)
@@ -415,7 +415,7 @@ int RunPredict(const PredictArgs& args, CommandContext& context) {
   const nlohmann::json document = ReadAuditFile(args.audit);
   // An audit that cannot be read (a key missing or of the wrong type) is bad input, exit 2,
   // whether or not its digests hold; one that reads but does not verify is refused, exit 1.
-  const FittedModel fitted = FittedModelFromAudit(document, args.audit);
+  const FittedModel fitted = FittedModelFromAudit(document, args.audit, context.common.limits);
   const std::optional<std::string> unverified_warning = CheckAuditForPricing(document, args, context);
   if (!unverified_warning) return static_cast<int>(ExitStatus::kDifferenceFound);
   PredictionOptions options;

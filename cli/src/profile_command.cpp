@@ -109,6 +109,12 @@ StarterPlan MakeStarterPlan(const DataProfile& profile, const ProfileArgs& args,
     }
   }
   if (terms.empty()) starter.notes.push_back("no column qualifies as a term");
+  if (terms.size() > common.limits.terms) {
+    starter.notes.push_back("the starter plan has " + FormatCount(static_cast<std::int64_t>(terms.size())) +
+                            " terms, more than the terms limit (" +
+                            FormatCount(static_cast<std::int64_t>(common.limits.terms)) +
+                            "): keep the ones worth trying, or run select and fit with --limit terms=N");
+  }
   starter.plan["response"] = response;
   starter.plan["intercept"] = true;
   starter.plan["terms"] = std::move(terms);
@@ -205,6 +211,7 @@ int RunProfile(const ProfileArgs& args, CommandContext& context) {
   scan.csv = csv;
   scan.threads = context.common.threads;
   scan.spill = false;  // the profile is all this command needs
+  scan.profile.max_levels = static_cast<std::size_t>(context.common.limits.levels);
   const DataProfile profile = ScanData(args.data, scan).profile;
   const StarterPlan starter = MakeStarterPlan(profile, args, context.common);
   const bool has_plan = !starter.plan.is_null();

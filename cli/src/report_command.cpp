@@ -42,7 +42,7 @@ int RunReport(const ReportArgs& args, CommandContext& context) {
   options.title = args.title;
   // A report of an edited audit would present the edited numbers as the run's: refuse it
   // unless the reader asked for it, and then say so before anything else.
-  const VerifyReport integrity = CheckAuditIntegrity(audit);
+  const VerifyReport integrity = CheckAuditIntegrity(audit, {}, context.common.limits);
   if (!integrity.Holds()) {
     if (!args.allow_unverified) {
       context.err << "stepledger: " << args.audit << ": the audit does not verify (" << integrity.problems.front()
@@ -134,6 +134,7 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--title", args->title, "Heading of the report (default: 'Selection report: DATA')")
       ->type_name("TEXT");
   AddCommonOptions(*command, context.common);
+  command->get_option("--limit")->needs(command->get_option("--data"));
   const std::string program = ProgramWord();
   command->footer(
       "The report renders from the audit alone (and, with --data, one pass over the data that "

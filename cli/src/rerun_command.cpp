@@ -31,7 +31,7 @@ struct RerunArgs {
 
 int RunRerun(const RerunArgs& args, CommandContext& context) {
   const nlohmann::json parent = ReadAuditFile(args.audit);
-  const VerifyReport integrity = CheckAuditIntegrity(parent);
+  const VerifyReport integrity = CheckAuditIntegrity(parent, {}, context.common.limits);
   if (!integrity.Holds()) {
     throw InputError(args.audit + ": the parent audit does not verify (" + integrity.problems.front() +
                      "); run '" + ProgramWord() + " verify " + args.audit + "' for the details");
@@ -52,6 +52,7 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   }
   if (context.common.threads_given) overrides.threads = context.common.threads;
   overrides.work_dir = context.common.work_dir;
+  overrides.limits = context.common.limits;
   if (context.log) context.log->info("running the plan of {} on {}", args.audit, args.data);
   const std::unique_ptr<ProgressPrinter> progress =
       MakeProgressPrinter(*context.terminal_err, context.common.quiet, "rerun");

@@ -7,6 +7,8 @@
 #include <sched.h>
 
 #include <algorithm>
+#include <charconv>
+#include <system_error>
 #include <thread>
 #include <cctype>
 #include <cstdlib>
@@ -27,7 +29,9 @@
 #include "stepledger/report/report.h"
 #include "stepledger/io/atomic_file.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/limits.h"
 #include "stepledger/engine/notice.h"
+#include "stepledger/engine/number_format.h"
 
 #ifndef STEPLEDGER_VERSION
 #define STEPLEDGER_VERSION "unknown"
@@ -75,6 +79,48 @@ void AddCommonOptions(CLI::App& command, CommonOptions& common, unsigned options
                        "Field separator of the data file: one character, or 'tab'")
         ->type_name("CHAR");
   }
+  if (options & kLimitOption) {
+    const InputLimits defaults;
+    std::string names;
+    for (const LimitKind limit : kAllLimitKinds) {
+      names += std::string(names.empty() ? "" : ", ") + ToString(limit) + " (" +
+               FormatCount(static_cast<std::int64_t>(defaults.Get(limit))) + ")";
+    }
+    command
+        .add_option("--limit", common.limit_texts,
+                    "Raise (or lower) a limit on the size of the input, NAME=N; repeat for several. "
+                    "NAME (default): " + names + ". An input over a limit is refused before the work "
+                    "(exit 2); see 'Limits' in the README")
+        ->type_name("NAME=N")
+        ->default_str("")
+        ->allow_extra_args(false)
+        ->check(CLI::Validator(
+            [](std::string& text) {
+              InputLimits unused;
+              return ApplyLimitText(text, unused);
+            },
+            ""))
+        ->each([&common](const std::string& text) { ApplyLimitText(text, common.limits); });
+  }
+}
+
+std::string ApplyLimitText(const std::string& text, InputLimits& limits) {
+  std::string names;
+  for (const LimitKind limit : kAllLimitKinds) names += std::string(names.empty() ? "" : ", ") + ToString(limit);
+  const std::size_t equals = text.find('=');
+  const auto limit = LimitKindFromString(std::string_view(text).substr(0, equals));
+  if (equals == std::string::npos || !limit) {
+    return "expected NAME=N with NAME one of " + names + ", found '" + QuoteForMessage(text) + "'";
+  }
+  const std::string number = text.substr(equals + 1);
+  std::uint64_t value = 0;
+  const auto [end, error] = std::from_chars(number.data(), number.data() + number.size(), value);
+  if (number.empty() || error != std::errc() || end != number.data() + number.size() || value == 0) {
+    return std::string("expected a whole number >= 1 after '") + ToString(*limit) + "=', found '" +
+           QuoteForMessage(number) + "'";
+  }
+  limits.Set(*limit, value);
+  return "";
 }
 
 int DefaultThreads() {
@@ -90,6 +136,7 @@ DataReadOptions MakeDataReadOptions(const CommonOptions& common) {
   DataReadOptions options;
   options.threads = common.threads;
   options.work_dir = common.work_dir;
+  options.limits = common.limits;
   return options;
 }
 
@@ -182,6 +229,7 @@ CsvOptions MakeCsvOptions(const CommonOptions& common) {
     throw InputError("--delimiter: expected one character or 'tab', got '" +
                      QuoteForMessage(common.delimiter) + "'");
   }
+  csv.max_columns = common.limits.columns;
   csv.Validate();
   return csv;
 }
@@ -300,6 +348,11 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
 int RunCommandAction(const std::function<int()>& action, std::ostream& err) {
   try {
     return action();
+  } catch (const LimitError& error) {
+    // The limits are the command line's: say how to raise the one that refused.
+    err << "stepledger: " << cli::OneLineText(error.what()) << "; to allow more, add --limit "
+        << ToString(error.limit()) << "=N\n";
+    return static_cast<int>(ExitStatus::kBadInput);
   } catch (const InputError& error) {  // PlanError is an InputError
     err << "stepledger: " << cli::OneLineText(error.what()) << "\n";
     return static_cast<int>(ExitStatus::kBadInput);

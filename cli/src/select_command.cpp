@@ -64,7 +64,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   }
   LoadedPlan loaded;
   if (!args.plan.empty()) {
-    loaded = LoadPlanFile(args.plan);
+    loaded = LoadPlanFile(args.plan, context.common.limits);
   } else {
     loaded.plan = MakeQuickPlan(args.response);
   }
@@ -84,6 +84,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   run_options.csv = MakeCsvOptions(context.common);
   run_options.threads = context.common.threads;
   run_options.work_dir = context.common.work_dir;
+  run_options.limits = context.common.limits;
   run_options.fit.max_refinement_passes = args.refinement_passes;
   run_options.diagnostics = !args.out_dir.empty();  // the audit's extrapolation caution needs it
   const std::unique_ptr<ProgressPrinter> progress =
@@ -189,7 +190,8 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
       "numeric as it is, categorical where not numeric, except columns that cannot be terms, "
       "named in a note with the reason: empty columns, a single level, identifiers (every value "
       "distinct) and categorical columns with more than 100 levels (a plan's \"max_levels\" "
-      "raises the limit).\n\n"
+      "raises the limit). A file of more than 10,000 columns, or 2,000 usable ones, is refused "
+      "before the search; --limit columns=N and --limit terms=N raise those limits.\n\n"
       "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExamples:\n"
       "  " + program + " select build/demo/laptops.csv --plan build/demo/plan.json --out build/demo/review --force\n"
       "  " + program + " select build/demo/laptops.csv --response resale_price --method forward "

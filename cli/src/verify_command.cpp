@@ -26,6 +26,7 @@ int RunVerify(const VerifyArgs& args, CommandContext& context) {
   options.data = args.data;
   options.threads = context.common.threads_given ? context.common.threads : 0;
   options.work_dir = context.common.work_dir;
+  options.limits = context.common.limits;
   if (!args.data.empty() && context.log) context.log->info("replaying the plan on {}", args.data);
   const VerifyReport report = VerifyAudit(document, options);
   if (context.common.json) {
@@ -66,6 +67,7 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
   // Writes no file; the replay reads the data with the audit's recorded delimiter.
   AddCommonOptions(*command, context.common, kAllCommonOptions & ~kForceOption & ~kDelimiterOption);
   command->get_option("--threads")->needs(data)->description("Threads folding the factor of the replay");
+  command->get_option("--limit")->needs(data);
   command->footer(
       "Unkeyed digests and the seal catch accidental and casual edits; only a signature checked "
       "against a public key you obtained yourself shows who produced the file.\n\n"

@@ -12,9 +12,11 @@
 #include <memory>
 #include <stdexcept>
 #include <system_error>
+#include <unordered_map>
 
 #include "stepledger/engine/byte_source.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 #include "stepledger/engine/utf8.h"
 
 namespace stepledger {
@@ -39,6 +41,14 @@ std::string_view FieldAround(const char* begin, const char* end, char delimiter)
   const char* stop = FieldStop(begin, end, delimiter);
   if (stop > begin && stop[-1] == '\r') --stop;
   return {begin, static_cast<std::size_t>(stop - begin)};
+}
+
+constexpr const char* kBareCarriageReturnInHeader =
+    "the header holds a carriage return that is not followed by a line feed: lines must end in "
+    "LF or CR LF (a file whose lines end in CR alone needs converting first)";
+
+std::string CountText(std::uint64_t count) {
+  return count > INT64_MAX ? std::to_string(count) : FormatCount(static_cast<std::int64_t>(count));
 }
 
 std::string Quoted(std::string_view text) {
@@ -154,6 +164,9 @@ void CsvOptions::Validate() const {
   if (block_bytes == 0) {
     throw InputError("CSV option 'block_bytes' is 0; it must be at least 1");
   }
+  if (max_columns == 0) {
+    throw InputError("CSV option 'max_columns' is 0; it must be at least 1");
+  }
 }
 
 CellKind ClassifyCell(std::string_view text, const std::vector<std::string>& missing_tokens,
@@ -197,7 +210,6 @@ CsvReader::FileHandle& CsvReader::FileHandle::operator=(FileHandle&& other) noex
 CsvReader::FileHandle::~FileHandle() {
   if (fd_ >= 0) ::close(fd_);
 }
-
 
 CsvReader::CsvReader(std::filesystem::path path, CsvOptions options)
     : path_(std::move(path)), display_name_(path_.string()), options_(std::move(options)) {
@@ -453,6 +465,7 @@ void CsvReader::ReadHeader() {
     cursor_ = kByteOrderMark.size();
     line_start_offset_ = kByteOrderMark.size();  // columns count from after the BOM
   }
+  CheckHeaderWidth();
   std::vector<CsvField> fields;
   std::uint64_t start_line = 0;
   if (!ReadRecord(fields, start_line)) {
@@ -466,12 +479,14 @@ void CsvReader::ReadHeader() {
   for (const CsvField& field : fields) {
     const std::size_t carriage_return = field.quoted ? std::string_view::npos : field.text.find('\r');
     if (carriage_return != std::string_view::npos) {
-      Fail(field.line, field.column + carriage_return,
-           "the header holds a carriage return that is not followed by a line feed: lines must end in "
-           "LF or CR LF (a file whose lines end in CR alone needs converting first)");
+      Fail(field.line, field.column + carriage_return, kBareCarriageReturnInHeader);
     }
   }
   header_.reserve(fields.size());
+  // Names seen so far (views of the fields, valid until the next read): O(1) per name, so that a
+  // header as wide as the limit allows costs no quadratic time.
+  std::unordered_map<std::string_view, std::size_t> seen;
+  seen.reserve(fields.size());
   for (std::size_t index = 0; index < fields.size(); ++index) {
     const CsvField& field = fields[index];
     if (field.text.empty()) {
@@ -486,17 +501,69 @@ void CsvReader::ReadHeader() {
                " of the name); stepledger reads data files as UTF-8: convert the file first (for example from "
                "Latin-1)");
     }
-    for (std::size_t earlier = 0; earlier < index; ++earlier) {
-      if (header_[earlier] == field.text) {
-        Fail(field.line, field.column,
-             "duplicate column name " + Quoted(field.text) + " in header fields " +
-                 std::to_string(earlier + 1) + " and " + std::to_string(index + 1) +
-                 " (first at column " + std::to_string(fields[earlier].column) + ")");
-      }
+    const auto [earlier, inserted] = seen.emplace(field.text, index);
+    if (!inserted) {
+      Fail(field.line, field.column,
+           "duplicate column name " + Quoted(field.text) + " in header fields " +
+               std::to_string(earlier->second + 1) + " and " + std::to_string(index + 1) +
+               " (first at column " + std::to_string(fields[earlier->second].column) + ")");
     }
     header_.emplace_back(field.text);
   }
   bytes_read_ = buffer_offset_ + cursor_;
+}
+
+void CsvReader::CheckHeaderWidth() {
+  // A field starts after every delimiter outside quotes; a quote opens a quoted field only at a
+  // field's start. A CR alone outside quotes is refused here (the file's lines end in CR: the
+  // header would be the whole file); other irregular text is left to the parse that follows,
+  // which names it. This count only stops a header that is too wide before it is held whole.
+  enum class State { kFieldStart, kUnquoted, kQuoted, kQuoteInQuoted };
+  State state = State::kFieldStart;
+  std::uint64_t fields = 1;
+  std::uint64_t line = line_;
+  std::uint64_t line_start = line_start_offset_;
+  std::size_t scanned = 0;  // bytes after cursor_ looked at (ReadMore keeps them)
+  for (;;) {
+    for (; cursor_ + scanned < buffer_.size(); ++scanned) {
+      const char byte = buffer_[cursor_ + scanned];
+      const std::uint64_t offset = buffer_offset_ + cursor_ + scanned;  // in the file
+      if (byte == '\r' && (state == State::kFieldStart || state == State::kUnquoted)) {
+        const std::size_t next = cursor_ + scanned + 1;
+        if (next == buffer_.size() && !eof_) break;  // look at the next byte once it is read
+        if (next < buffer_.size() && buffer_[next] != '\n') {
+          Fail(line, offset - line_start + 1, kBareCarriageReturnInHeader);
+        }
+        state = State::kUnquoted;
+        continue;
+      }
+      if (state == State::kQuoted) {
+        if (byte == kQuote) state = State::kQuoteInQuoted;
+        if (byte == '\n') {
+          ++line;
+          line_start = offset + 1;
+        }
+        continue;
+      }
+      if (byte == kQuote) {
+        state = state == State::kFieldStart || state == State::kQuoteInQuoted ? State::kQuoted : State::kUnquoted;
+      } else if (byte == '\n') {
+        return;  // the header's end
+      } else if (byte == options_.delimiter) {
+        state = State::kFieldStart;
+        if (++fields > options_.max_columns) {
+          const std::uint64_t column = offset + 1 - line_start + 1;
+          throw LimitError(LimitKind::kColumns, options_.max_columns, FormatLocation(display_name_, line, column),
+                           "the header has more than " + CountText(options_.max_columns) + " columns (field " +
+                               CountText(fields) + " starts here)");
+        }
+      } else {
+        state = State::kUnquoted;
+      }
+    }
+    if (eof_) return;
+    ReadMore();
+  }
 }
 
 std::ptrdiff_t CsvReader::ColumnIndex(std::string_view name) const {

@@ -3,7 +3,6 @@
 #include <algorithm>
 #include <cctype>
 #include <cmath>
-#include <functional>
 #include <limits>
 #include <set>
 #include <string_view>
@@ -13,6 +12,7 @@
 #include "design_quote.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 
 namespace stepledger {
 
@@ -45,26 +45,12 @@ const char* ToString(ResponseTransform transform) {
 
 namespace {
 
-constexpr const char* kInterceptName = "intercept";
-
+using design_detail::EvaluationOrder;
+using design_detail::kInterceptName;
 using design_detail::Quote;
 using design_detail::QuotePath;
-
-std::string TermKey(const TermSpec& term, std::size_t index) {
-  return term.key_path.empty() ? "terms[" + std::to_string(index) + "]" : term.key_path;
-}
-
-// Key (relative to the term) of the source column of each kind, as the plan file spells it.
-std::string SourceKeySuffix(TermKind kind) {
-  switch (kind) {
-    case TermKind::kNumeric: return ".column";
-    case TermKind::kPower: return ".power.column";
-    case TermKind::kLog: return ".log";
-    case TermKind::kCategorical: return ".categorical";
-    case TermKind::kProduct: return ".product";
-  }
-  return "";
-}
+using design_detail::SourceKeySuffix;
+using design_detail::TermKey;
 
 // Levenshtein distance, case-insensitive; names are short so O(|a||b|) is nothing.
 std::size_t EditDistance(std::string_view a, std::string_view b) {
@@ -180,16 +166,26 @@ void BuildCategorical(const TermSpec& spec, const std::string& key, const Column
     throw PlanError(source_key, "column " + Quote(column.name) +
                                     " has no values (every cell is missing)");
   }
-  if (column.too_many_levels) {
-    throw PlanError(source_key, "column " + Quote(column.name) + " has more than " +
-                                    std::to_string(column.levels.size()) +
-                                    " distinct levels, too many for a categorical term");
-  }
-  if (column.levels.empty()) {
-    // The profile keeps the distinct texts of a numeric column only up to its level limit.
-    throw PlanError(source_key, "column " + Quote(column.name) +
-                                    " has too many distinct values for a categorical term "
-                                    "(use \"column\" for a numeric term)");
+  if (column.too_many_levels || column.levels.empty()) {
+    // The scan keeps a column's distinct texts only up to its level limit (the levels limit,
+    // InputLimits::levels); past it the column kept none. Which rule stops the term: the plan's
+    // max_levels when it is not above that limit, else the limit itself.
+    const std::string what = column.kind == ColumnKind::kNumeric ? "distinct values" : "distinct levels";
+    const std::string seen = "column " + Quote(column.name) + " has " +
+                             (column.level_limit > 0
+                                  ? "more than " + FormatCount(static_cast<std::int64_t>(column.level_limit)) + " "
+                                  : std::string("too many ")) +
+                             what;
+    const std::string numeric_hint =
+        column.kind == ColumnKind::kNumeric ? "; for a numeric term write \"column\" instead of \"categorical\"" : "";
+    if (max_levels > column.level_limit && column.level_limit > 0) {
+      throw LimitError(LimitKind::kLevels, column.level_limit, "plan key '" + source_key + "'",
+                       seen + " (the scan keeps at most that many per column)",
+                       "a column with that many levels is usually an identifier or needs grouping" + numeric_hint);
+    }
+    throw PlanError(source_key, seen + ", more than max_levels (" + std::to_string(max_levels) +
+                                    "): too many for a categorical term; leave it out of the terms or group "
+                                    "its levels" + numeric_hint);
   }
   if (column.levels.size() > max_levels) {
     throw PlanError(source_key, "column " + Quote(column.name) + " has " +
@@ -241,18 +237,38 @@ void BuildCategorical(const TermSpec& spec, const std::string& key, const Column
 }
 
 std::vector<TermSpec> AllTermsFromProfile(const DesignSpec& spec, const DataProfile& profile,
+                                          const InputLimits& limits,
                                           std::vector<std::pair<std::string, std::string>>& skipped) {
-  std::vector<TermSpec> terms;
-  for (const auto& column : profile.columns) {
-    if (column.name == spec.response || (spec.weights && column.name == *spec.weights)) continue;
-    std::string why;
-    if (column.name == kInterceptName) {
-      why = "the name 'intercept' is reserved for the intercept column";
+  // Why each column cannot be a term (empty: it can), so that the terms are counted against the
+  // limit before any is built.
+  std::vector<std::string> why(profile.columns.size());
+  std::uint64_t usable = 0;
+  for (std::size_t c = 0; c < profile.columns.size(); ++c) {
+    const ColumnProfile& column = profile.columns[c];
+    if (column.name == spec.response || (spec.weights && column.name == *spec.weights)) {
+      why[c] = "-";  // not a candidate, and not named among the skipped
+    } else if (column.name == kInterceptName) {
+      why[c] = "the name 'intercept' is reserved for the intercept column";
     } else if (auto reason = ReasonNotACandidateTerm(column, spec.max_levels)) {
-      why = std::move(*reason);
+      why[c] = std::move(*reason);
+    } else {
+      ++usable;
     }
-    if (!why.empty()) {
-      skipped.emplace_back(column.name, why);
+  }
+  if (usable > limits.terms) {
+    throw LimitError(LimitKind::kTerms, limits.terms, "plan key 'terms'",
+                     "\"all\" makes " + FormatCount(static_cast<std::int64_t>(usable)) +
+                         " terms (the usable columns of " + QuotePath(profile.path) +
+                         " besides the response" + (spec.weights ? " and the weights" : "") + ")",
+                     "name the candidate terms in a plan instead");
+  }
+  std::vector<TermSpec> terms;
+  terms.reserve(static_cast<std::size_t>(usable));
+  for (std::size_t c = 0; c < profile.columns.size(); ++c) {
+    const ColumnProfile& column = profile.columns[c];
+    if (why[c] == "-") continue;
+    if (!why[c].empty()) {
+      skipped.emplace_back(column.name, std::move(why[c]));
       continue;
     }
     TermSpec term;
@@ -269,112 +285,7 @@ std::vector<TermSpec> AllTermsFromProfile(const DesignSpec& spec, const DataProf
   return terms;
 }
 
-// Plan order with every product after its parts (depth-first; ValidateDesignSpec has
-// already refused cycles).
-std::vector<std::size_t> EvaluationOrder(const std::vector<TermSpec>& terms) {
-  std::map<std::string, std::size_t, std::less<>> by_name;
-  for (std::size_t i = 0; i < terms.size(); ++i) by_name.emplace(terms[i].name, i);
-  std::vector<std::size_t> order;
-  std::vector<bool> placed(terms.size(), false);
-  std::function<void(std::size_t)> place = [&](std::size_t index) {
-    if (placed[index]) return;
-    placed[index] = true;
-    if (terms[index].kind == TermKind::kProduct) {
-      for (const auto& part : terms[index].parts) place(by_name.at(part));
-    }
-    order.push_back(index);
-  };
-  for (std::size_t i = 0; i < terms.size(); ++i) place(i);
-  return order;
-}
-
 }  // namespace
-
-void ValidateDesignSpec(const DesignSpec& spec) {
-  if (spec.response.empty()) {
-    throw PlanError("response", "expected a column name, found an empty string");
-  }
-  if (spec.weights && spec.weights->empty()) {
-    throw PlanError("weights", "expected a column name, found an empty string");
-  }
-  if (spec.max_levels < 2) {
-    throw PlanError("max_levels", "expected an integer >= 2, found " + std::to_string(spec.max_levels));
-  }
-  if (spec.all_terms) return;
-  if (spec.terms.empty()) throw PlanError("terms", "expected at least one term, found none");
-
-  std::map<std::string, std::size_t, std::less<>> by_name;
-  for (std::size_t i = 0; i < spec.terms.size(); ++i) {
-    const TermSpec& term = spec.terms[i];
-    const std::string key = TermKey(term, i);
-    if (term.name.empty()) throw PlanError(key + ".name", "expected a non-empty term name");
-    if (term.name == kInterceptName) {
-      throw PlanError(key + ".name", "the name 'intercept' is reserved for the intercept column");
-    }
-    auto [existing, inserted] = by_name.emplace(term.name, i);
-    if (!inserted) {
-      throw PlanError(key + ".name", "duplicate term name " + Quote(term.name) + ", also " +
-                                         TermKey(spec.terms[existing->second], existing->second) +
-                                         ".name");
-    }
-    if (term.kind != TermKind::kProduct && term.column.empty()) {
-      throw PlanError(key + SourceKeySuffix(term.kind), "expected a column name, found an empty string");
-    }
-    if (term.kind == TermKind::kPower && term.degree < 2) {
-      throw PlanError(key + ".power.degree",
-                      "expected an integer >= 2, found " + std::to_string(term.degree));
-    }
-    if (term.kind != TermKind::kCategorical && term.baseline) {
-      throw PlanError(key + ".baseline", "a baseline belongs to a categorical term only");
-    }
-  }
-  for (std::size_t i = 0; i < spec.terms.size(); ++i) {
-    const TermSpec& term = spec.terms[i];
-    if (term.kind != TermKind::kProduct) continue;
-    const std::string key = TermKey(term, i);
-    if (term.parts.size() != 2) {
-      throw PlanError(key + ".product", "expected two term names, found " +
-                                            std::to_string(term.parts.size()));
-    }
-    for (std::size_t p = 0; p < 2; ++p) {
-      if (!by_name.contains(term.parts[p])) {
-        throw PlanError(key + ".product[" + std::to_string(p) + "]",
-                        "no term named " + Quote(term.parts[p]) + " in the plan");
-      }
-    }
-    if (term.parts[0] == term.parts[1]) {
-      throw PlanError(key + ".product", "a product of term " + Quote(term.parts[0]) +
-                                            " with itself; use a power term for a square");
-    }
-  }
-  // Cycles among products: depth-first search with colours.
-  std::vector<int> state(spec.terms.size(), 0);  // 0 new, 1 on the path, 2 done
-  std::vector<std::size_t> path;
-  std::function<void(std::size_t)> visit = [&](std::size_t index) {
-    state[index] = 1;
-    path.push_back(index);
-    const TermSpec& term = spec.terms[index];
-    if (term.kind == TermKind::kProduct) {
-      for (const auto& part : term.parts) {
-        const std::size_t next = by_name.at(part);
-        if (state[next] == 1) {
-          std::string route;
-          auto start = std::find(path.begin(), path.end(), next);
-          for (auto it = start; it != path.end(); ++it) route += Quote(spec.terms[*it].name) + " -> ";
-          route += Quote(spec.terms[next].name);
-          throw PlanError(TermKey(spec.terms[next], next) + ".product",
-                          "products form a cycle: " + route);
-        }
-        if (state[next] == 0) visit(next);
-      }
-    }
-    path.pop_back();
-    state[index] = 2;
-  };
-  for (std::size_t i = 0; i < spec.terms.size(); ++i) {
-    if (state[i] == 0) visit(i);
-  }
-}
 
 namespace {
 
@@ -465,13 +376,61 @@ void ExpandSourceTerm(const DesignSpec& spec, const TermSpec& term_spec, const s
   }
 }
 
+// a * b, or UINT64_MAX when that does not fit (a product of products of categorical terms).
+std::uint64_t SaturatingProduct(std::uint64_t a, std::uint64_t b) {
+  if (a != 0 && b > std::numeric_limits<std::uint64_t>::max() / a) return std::numeric_limits<std::uint64_t>::max();
+  return a * b;
+}
+
+std::string CountText(std::uint64_t count) {
+  return count > static_cast<std::uint64_t>(std::numeric_limits<std::int64_t>::max())
+             ? std::to_string(count)
+             : FormatCount(static_cast<std::int64_t>(count));
+}
+
+// The design columns counted against InputLimits::design_columns as the terms are expanded. A
+// product's count is known from its parts before its columns are made, so an oversized product
+// is refused before it allocates anything.
+class DesignColumnBudget {
+ public:
+  DesignColumnBudget(const DesignSpec& spec, const InputLimits& limits)
+      : limit_(limits.design_columns), total_(spec.intercept ? 1 : 0) {}
+
+  void Add(const TermSpec& term, const std::string& key, std::uint64_t columns) {
+    total_ = total_ > std::numeric_limits<std::uint64_t>::max() - columns ? std::numeric_limits<std::uint64_t>::max()
+                                                                           : total_ + columns;
+    largest_.emplace_back(columns, term.name);
+    std::sort(largest_.begin(), largest_.end(), [](const auto& a, const auto& b) { return a.first > b.first; });
+    if (largest_.size() > 3) largest_.pop_back();
+    if (total_ <= limit_) return;
+    std::string largest;
+    for (const auto& [count, name] : largest_) {
+      largest += (largest.empty() ? "" : ", ") + Quote(name) + " " + CountText(count);
+    }
+    throw LimitError(LimitKind::kDesignColumns, limit_, "plan key '" + key + "'",
+                     "term " + Quote(term.name) + " makes " + CountText(columns) +
+                         " design columns, which brings the design to " +
+                         (total_ == std::numeric_limits<std::uint64_t>::max() ? std::string("more than 2^64")
+                                                                               : CountText(total_)) +
+                         " (the largest terms so far: " + largest + ")",
+                     "leave out or narrow the largest terms (a product of two categorical terms has one "
+                     "column per pair of non-baseline levels), or group levels");
+  }
+
+ private:
+  std::uint64_t limit_;
+  std::uint64_t total_;
+  std::vector<std::pair<std::uint64_t, std::string>> largest_;  // at most 3, largest first
+};
+
 // Every term expanded into its design columns, in evaluation order (a product after its parts)
 // so that errors come in that order too; the result is indexed in plan order.
 std::vector<PendingTerm> ExpandTerms(const DesignSpec& spec, const std::vector<TermSpec>& specs,
                                      const TermsByName& by_name,
                                      const std::vector<std::size_t>& order,
-                                     const DataProfile& profile) {
+                                     const DataProfile& profile, const InputLimits& limits) {
   std::vector<PendingTerm> pending(specs.size());
+  DesignColumnBudget budget(spec, limits);
   for (std::size_t index : order) {
     const TermSpec& term_spec = specs[index];
     const std::string key = TermKey(term_spec, index);
@@ -482,20 +441,31 @@ std::vector<PendingTerm> ExpandTerms(const DesignSpec& spec, const std::vector<T
     term.key_path = key;
     term.degree = term_spec.kind == TermKind::kPower ? term_spec.degree : 1;
     if (term_spec.kind == TermKind::kProduct) {
+      budget.Add(term_spec, key,
+                 SaturatingProduct(pending[by_name.at(term_spec.parts[0])].column_names.size(),
+                                   pending[by_name.at(term_spec.parts[1])].column_names.size()));
       ExpandProduct(term_spec, by_name, pending, built);
     } else {
       ExpandSourceTerm(spec, term_spec, key, profile, built);
+      budget.Add(term_spec, key, built.column_names.size());
     }
   }
   return pending;
 }
 
-// Hierarchy parts of powers: the numeric term and the lower powers on the same column.
+// Hierarchy parts of powers: the numeric term and the lower powers on the same column (in plan
+// order). Terms are grouped by column first, so the cost is not quadratic in the terms.
 void LinkPowerHierarchy(const std::vector<TermSpec>& specs, std::vector<PendingTerm>& pending) {
+  std::map<std::string_view, std::vector<std::size_t>, std::less<>> by_column;
+  for (std::size_t j = 0; j < specs.size(); ++j) {
+    if (specs[j].kind == TermKind::kNumeric || specs[j].kind == TermKind::kPower) {
+      by_column[specs[j].column].push_back(j);
+    }
+  }
   for (std::size_t i = 0; i < specs.size(); ++i) {
     if (specs[i].kind != TermKind::kPower) continue;
-    for (std::size_t j = 0; j < specs.size(); ++j) {
-      if (j == i || specs[j].column != specs[i].column) continue;
+    for (const std::size_t j : by_column[specs[i].column]) {
+      if (j == i) continue;
       if (specs[j].kind == TermKind::kNumeric ||
           (specs[j].kind == TermKind::kPower && specs[j].degree < specs[i].degree)) {
         pending[i].term.parts.push_back(j);
@@ -538,15 +508,13 @@ void RecordSourceCells(const std::vector<TermSpec>& specs, const std::vector<std
                        const ResponseColumns& columns, std::vector<PendingTerm>& pending,
                        Design& design) {
   Design::Source& source = design.source;
+  std::map<std::pair<std::ptrdiff_t, bool>, std::ptrdiff_t> cell_of;  // (header index, categorical) -> cell
   auto add_cell = [&](std::ptrdiff_t header_index, const std::string& name, bool categorical,
                       std::size_t term) -> std::ptrdiff_t {
-    for (std::size_t c = 0; c < source.cells.size(); ++c) {
-      if (source.cells[c].header_index == header_index && source.cells[c].categorical == categorical) {
-        return static_cast<std::ptrdiff_t>(c);
-      }
-    }
-    source.cells.push_back({header_index, name, categorical, term});
-    return static_cast<std::ptrdiff_t>(source.cells.size() - 1);
+    const auto [found, inserted] =
+        cell_of.emplace(std::make_pair(header_index, categorical), static_cast<std::ptrdiff_t>(source.cells.size()));
+    if (inserted) source.cells.push_back({header_index, name, categorical, term});
+    return found->second;
   };
   source.response = static_cast<std::ptrdiff_t>(columns.response->index);
   source.response_cell = add_cell(source.response, columns.response->name, false, kNoTerm);
@@ -571,7 +539,11 @@ void RecordSourceCells(const std::vector<TermSpec>& specs, const std::vector<std
 
 }  // namespace
 
-Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
+Design BuildDesign(const DesignSpec& spec, const DataProfile& profile, const InputLimits& limits) {
+  if (!spec.all_terms && spec.terms.size() > limits.terms) {
+    throw LimitError(LimitKind::kTerms, limits.terms, "plan key 'terms'",
+                     "the plan lists " + CountText(spec.terms.size()) + " terms");
+  }
   ValidateDesignSpec(spec);
   Design design;
   design.response = spec.response;
@@ -582,12 +554,12 @@ Design BuildDesign(const DesignSpec& spec, const DataProfile& profile) {
 
   const ResponseColumns columns = ResolveResponseAndWeights(spec, profile, design);
   const std::vector<TermSpec> specs =
-      spec.all_terms ? AllTermsFromProfile(spec, profile, design.skipped) : spec.terms;
+      spec.all_terms ? AllTermsFromProfile(spec, profile, limits, design.skipped) : spec.terms;
   TermsByName by_name;
   for (std::size_t i = 0; i < specs.size(); ++i) by_name.emplace(specs[i].name, i);
   const std::vector<std::size_t> order = EvaluationOrder(specs);
 
-  std::vector<PendingTerm> pending = ExpandTerms(spec, specs, by_name, order, profile);
+  std::vector<PendingTerm> pending = ExpandTerms(spec, specs, by_name, order, profile, limits);
   LinkPowerHierarchy(specs, pending);
   LayOutColumns(spec, specs, pending, design);
   RecordSourceCells(specs, order, columns, pending, design);

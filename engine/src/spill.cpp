@@ -155,16 +155,17 @@ std::uint64_t Spill::bytes() const {
 // ---- SpillWriter --------------------------------------------------------------------------------
 
 SpillWriter::SpillWriter(std::filesystem::path file, std::filesystem::path work_dir, std::size_t columns)
-    : file_(std::move(file)), work_dir_(std::move(work_dir)), columns_(columns) {
+    : file_(std::move(file)), work_dir_(std::move(work_dir)), columns_(columns),
+      chunk_rows_(SpillChunkRowsFor(columns)) {
   fd_ = ::open(file_.c_str(), O_WRONLY | O_CREAT | O_TRUNC | O_CLOEXEC, 0600);
   if (fd_ < 0) {
     throw InputError("cannot write the typed copy of the rows in '" + work_dir_.string() + "': " +
                      std::strerror(errno) + " (choose another folder with --work-dir)");
   }
-  lines_.resize(kSpillChunkRows);
-  offsets_.resize(kSpillChunkRows);
-  values_.resize(columns_ * kSpillChunkRows);
-  codes_.resize(columns_ * kSpillChunkRows);
+  lines_.resize(chunk_rows_);
+  offsets_.resize(chunk_rows_);
+  values_.resize(columns_ * chunk_rows_);
+  codes_.resize(columns_ * chunk_rows_);
   has_codes_.assign(columns_, 0);
 }
 
@@ -179,7 +180,7 @@ void SpillWriter::BeginRow(std::uint64_t line, std::uint64_t offset) {
 
 void SpillWriter::EndRow() {
   ++rows_;
-  if (++rows_in_chunk_ == kSpillChunkRows) FlushChunk();
+  if (++rows_in_chunk_ == chunk_rows_) FlushChunk();
 }
 
 std::uint64_t SpillWriter::BytesFor(std::uint64_t total_rows) const {
@@ -223,9 +224,9 @@ void SpillWriter::FlushChunk() {
   put(lines_.data(), rows * 8);
   put(offsets_.data(), rows * 8);
   put(has_codes_.data(), columns_ * 8);
-  for (std::size_t c = 0; c < columns_; ++c) put(values_.data() + c * kSpillChunkRows, rows * 8);
+  for (std::size_t c = 0; c < columns_; ++c) put(values_.data() + c * chunk_rows_, rows * 8);
   for (std::size_t c = 0; c < columns_; ++c) {
-    if (has_codes_[c] != 0) put(codes_.data() + c * kSpillChunkRows, rows * 4);
+    if (has_codes_[c] != 0) put(codes_.data() + c * chunk_rows_, rows * 4);
   }
   std::memset(out, 0, static_cast<std::size_t>(out_.data() + out_.size() - out));
   chunks_.push_back({written_, rows});

@@ -104,6 +104,13 @@ std::size_t PreadSome(int fd, char* buffer, std::size_t capacity, std::uint64_t 
                   "from Latin-1)");
 }
 
+// Marks a column past the levels limit and frees the levels it kept.
+void DropLevels(ColumnTally& tally) {
+  tally.levels_overflowed = true;
+  decltype(tally.levels)().swap(tally.levels);
+  std::vector<std::string>().swap(tally.level_texts);
+}
+
 // Counts one cell into the tally and returns what the spill stores for it.
 inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_t column,
                       const std::vector<std::string>& missing_tokens, std::size_t max_levels,
@@ -157,8 +164,10 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
     tally.levels.emplace(std::string(field.text), LevelEntry{code, 1});
     tally.level_texts.emplace_back(field.text);
   } else {
-    // Once past the limit the column cannot be a categorical term; stop paying for it.
-    tally.levels_overflowed = true;
+    // Once past the limit the column cannot be a categorical term; stop paying for it, and give
+    // back what it held (a wide file of numeric columns would otherwise keep columns x limit
+    // texts it never uses).
+    DropLevels(tally);
   }
 }
 
@@ -225,7 +234,7 @@ void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_befor
     into.first_text = std::move(from.first_text);
     into.first_text->line += lines_before;
   }
-  if (from.levels_overflowed) into.levels_overflowed = true;
+  if (from.levels_overflowed && !into.levels_overflowed) DropLevels(into);
   if (into.levels_overflowed) return;
   for (auto& [text, entry] : from.levels) {
     const auto found = into.levels.find(text);
@@ -234,7 +243,7 @@ void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_befor
     } else if (into.levels.size() < max_levels) {
       into.levels.emplace(text, entry);
     } else {
-      into.levels_overflowed = true;
+      DropLevels(into);
       return;
     }
   }

@@ -13,6 +13,7 @@
 #include <vector>
 
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/number_format.h"
 #include "stepledger/selection/search.h"
 #include "stepledger/io/json_reader.h"
 
@@ -171,8 +172,8 @@ TermSpec ReadTerm(const json& value, const std::string& path) {
     term.column = ReadString(*column, power.Path("column"));
     const json* degree = power.Get("degree");
     if (degree == nullptr) throw PlanError(power.Path("degree"), "missing: a power needs a degree");
-    term.degree = static_cast<int>(ReadInteger(*degree, power.Path("degree"), 2,
-                                               std::numeric_limits<int>::max()));
+    // Capped (design.h, kMaxPowerDegree): the power is made by repeated products per row.
+    term.degree = static_cast<int>(ReadInteger(*degree, power.Path("degree"), 2, kMaxPowerDegree));
   } else {
     term.kind = TermKind::kProduct;
     const json& parts = *object.Get("product");
@@ -185,20 +186,21 @@ TermSpec ReadTerm(const json& value, const std::string& path) {
   return term;
 }
 
-// keep and never: unique names, and names of the plan's terms when it lists them.
+// keep and never: unique names, and names of the plan's terms when it lists them. O(n log n):
+// a long list costs no quadratic time.
 void CheckTermNames(const std::vector<std::string>& names, const std::string& key,
                     const DesignSpec& design) {
+  std::set<std::string_view> terms;
+  for (const TermSpec& term : design.terms) terms.insert(term.name);
+  std::map<std::string_view, std::size_t> seen;
   for (std::size_t i = 0; i < names.size(); ++i) {
-    for (std::size_t j = 0; j < i; ++j) {
-      if (names[j] == names[i]) {
-        throw PlanError(Index(key, i), "term " + Quote(names[i]) + " is listed twice (also " +
-                                           Index(key, j) + ")");
-      }
+    const auto [earlier, inserted] = seen.emplace(names[i], i);
+    if (!inserted) {
+      throw PlanError(Index(key, i), "term " + Quote(names[i]) + " is listed twice (also " +
+                                         Index(key, earlier->second) + ")");
     }
     if (design.all_terms) continue;
-    const bool known = std::any_of(design.terms.begin(), design.terms.end(),
-                                   [&](const TermSpec& term) { return term.name == names[i]; });
-    if (!known) throw PlanError(Index(key, i), "no term named " + Quote(names[i]) + " in the plan");
+    if (!terms.contains(names[i])) throw PlanError(Index(key, i), "no term named " + Quote(names[i]) + " in the plan");
   }
 }
 
@@ -265,8 +267,9 @@ void ReadResponsePart(const ObjectReader& root, DesignSpec& design) {
   }
 }
 
-// The design's terms (a list or "all") and the level cap, then the design's own checks.
-void ReadDesignTerms(const ObjectReader& root, DesignSpec& design) {
+// The design's terms (a list or "all") and the level cap, then the design's own checks. A list
+// longer than the terms limit is refused before any term is read.
+void ReadDesignTerms(const ObjectReader& root, DesignSpec& design, const InputLimits& limits) {
   const json* terms = root.Get("terms");
   if (terms == nullptr) {
     throw PlanError("terms", "missing: the plan must list its terms, or say \"all\"");
@@ -277,6 +280,11 @@ void ReadDesignTerms(const ObjectReader& root, DesignSpec& design) {
     }
     design.all_terms = true;
   } else if (terms->is_array()) {
+    if (terms->size() > limits.terms) {
+      throw LimitError(LimitKind::kTerms, limits.terms, "plan key 'terms'",
+                       "the plan lists " + FormatCount(static_cast<std::int64_t>(terms->size())) + " terms");
+    }
+    design.terms.reserve(terms->size());
     for (std::size_t i = 0; i < terms->size(); ++i) {
       design.terms.push_back(ReadTerm((*terms)[i], Index("terms", i)));
     }
@@ -296,12 +304,13 @@ void ReadKeepAndNever(const ObjectReader& root, const DesignSpec& design, Search
   if (const json* never = root.Get("never")) search.never = ReadStrings(*never, "never", false);
   CheckTermNames(search.keep, "keep", design);
   CheckTermNames(search.never, "never", design);
+  std::map<std::string_view, std::size_t> kept;
+  for (std::size_t i = 0; i < search.keep.size(); ++i) kept.emplace(search.keep[i], i);
   for (std::size_t i = 0; i < search.never.size(); ++i) {
-    const auto kept = std::find(search.keep.begin(), search.keep.end(), search.never[i]);
-    if (kept != search.keep.end()) {
+    const auto found = kept.find(search.never[i]);
+    if (found != kept.end()) {
       throw PlanError(Index("never", i),
-                      "term " + Quote(search.never[i]) + " is also in " +
-                          Index("keep", static_cast<std::size_t>(kept - search.keep.begin())) +
+                      "term " + Quote(search.never[i]) + " is also in " + Index("keep", found->second) +
                           "; a term cannot be both kept and never used");
     }
   }
@@ -353,14 +362,51 @@ void ReadMissingTokens(const ObjectReader& root, std::vector<std::string>& missi
   }
 }
 
+std::string ByteCount(std::uint64_t bytes) {
+  return bytes > static_cast<std::uint64_t>(std::numeric_limits<std::int64_t>::max())
+             ? std::to_string(bytes)
+             : FormatCount(static_cast<std::int64_t>(bytes));
+}
+
+// A plan file's bytes, refused past limit before they are held: a regular file by its size, a
+// FIFO or a device (/dev/stdin) by reading at most limit + 1 bytes. Folders and files that cannot
+// be opened get ReadWholeFile's messages.
+std::string ReadPlanBytes(const std::filesystem::path& path, std::uint64_t limit) {
+  const std::string quoted = "plan file '" + path.string() + "'";
+  auto refuse = [&](const std::string& seen) {
+    return LimitError(LimitKind::kPlanBytes, limit, quoted, seen);
+  };
+  std::error_code error;
+  const std::filesystem::file_status status = std::filesystem::status(path, error);
+  if (error || std::filesystem::is_directory(status)) return ReadWholeFile(path, "plan file");
+  if (std::filesystem::is_regular_file(status)) {
+    const std::uintmax_t size = std::filesystem::file_size(path, error);
+    if (!error && size > limit) throw refuse("it holds " + ByteCount(size) + " bytes");
+    std::string text = ReadWholeFile(path, "plan file");
+    if (text.size() > limit) throw refuse("it holds " + ByteCount(text.size()) + " bytes");
+    return text;
+  }
+  std::ifstream stream(path, std::ios::binary);
+  if (!stream) throw InputError("cannot open " + quoted + ": " + std::strerror(errno));
+  std::string text;
+  std::vector<char> buffer(1 << 16);
+  while (stream) {
+    stream.read(buffer.data(), static_cast<std::streamsize>(buffer.size()));
+    text.append(buffer.data(), static_cast<std::size_t>(stream.gcount()));
+    if (text.size() > limit) throw refuse("it holds more than " + ByteCount(limit) + " bytes");
+  }
+  if (stream.bad()) throw InputError("cannot read " + quoted + ": " + std::strerror(errno));
+  return text;
+}
+
 }  // namespace
 
-Plan PlanFromJson(const json& value) {
+Plan PlanFromJson(const json& value, const InputLimits& limits) {
   const ObjectReader root = ReadPlanRoot(value);
   Plan plan;
   // The order of the phases is the order in which errors are reported; keep it.
   ReadResponsePart(root, plan.design);
-  ReadDesignTerms(root, plan.design);
+  ReadDesignTerms(root, plan.design, limits);
   ReadKeepAndNever(root, plan.design, plan.search);
   ReadSearchSettings(root, plan.search);
   ReadMissingTokens(root, plan.missing_tokens);
@@ -370,7 +416,11 @@ Plan PlanFromJson(const json& value) {
   return plan;
 }
 
-LoadedPlan ParsePlanText(std::string text, std::string_view source_name) {
+LoadedPlan ParsePlanText(std::string text, std::string_view source_name, const InputLimits& limits) {
+  if (text.size() > limits.plan_bytes) {
+    throw LimitError(LimitKind::kPlanBytes, limits.plan_bytes, std::string(source_name),
+                     "the plan holds " + ByteCount(text.size()) + " bytes");
+  }
   LoadedPlan loaded;
   try {
     loaded.json = ParseStrictJson(text, source_name);
@@ -379,19 +429,21 @@ LoadedPlan ParsePlanText(std::string text, std::string_view source_name) {
     if (!error.key_path().empty()) throw PlanError(error.key_path(), error.detail());
     throw PlanError("", error.detail());
   }
-  loaded.plan = PlanFromJson(loaded.json);
+  loaded.plan = PlanFromJson(loaded.json, limits);
   loaded.verbatim = std::move(text);
   return loaded;
 }
 
-LoadedPlan LoadPlanFile(const std::filesystem::path& path) {
+LoadedPlan LoadPlanFile(const std::filesystem::path& path, const InputLimits& limits) {
   std::string text;
   try {
-    text = ReadWholeFile(path, "plan file");
+    text = ReadPlanBytes(path, limits.plan_bytes);
+  } catch (const LimitError&) {
+    throw;
   } catch (const InputError& error) {
     throw PlanError("", error.what());
   }
-  return ParsePlanText(std::move(text), path.string());
+  return ParsePlanText(std::move(text), path.string(), limits);
 }
 
 json PlanToJson(const Plan& plan, const Design* design) {

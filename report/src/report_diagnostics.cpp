@@ -1,5 +1,7 @@
 // The diagnostics of an audit's final model on its data file, for `report --data`.
 
+#include <algorithm>
+
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/fitted_model.h"
 #include "stepledger/report/report.h"
@@ -21,7 +23,7 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::file
   if (expected.empty()) {
     throw InputError(std::string(audit_name) + ": data.sha256: missing; cannot check the data file");
   }
-  const FittedModel model = FittedModelFromAudit(audit, audit_name);
+  const FittedModel model = FittedModelFromAudit(audit, audit_name, read_options.limits);
   const RunOptions recorded =
       RunOptionsFromSettings(audit.contains("settings") ? audit["settings"] : nlohmann::json());
   // One scan: the fingerprint and the typed spill of the rows in the same pass over the text.
@@ -30,6 +32,15 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::file
   scan_options.csv.missing_tokens = model.missing_tokens;
   scan_options.threads = read_options.threads;
   scan_options.work_dir = read_options.work_dir;
+  scan_options.csv.max_columns = read_options.limits.columns;
+  // The levels limit, but at least the levels of the model's own categorical terms (with the
+  // baseline), which the audit's run kept: fewer would make their rows look like unseen levels.
+  scan_options.profile.max_levels = static_cast<std::size_t>(read_options.limits.levels);
+  for (const DesignTerm& term : model.design.terms) {
+    if (term.kind == TermKind::kCategorical) {
+      scan_options.profile.max_levels = std::max(scan_options.profile.max_levels, term.levels.size() + 1);
+    }
+  }
   const ScanResult scan = ScanData(data, scan_options);
   // The fingerprint before any row is used: diagnostics of other rows than the audited ones
   // would mislead.

@@ -20,6 +20,7 @@ void RunOptions::Validate() const {
     throw InputError("vif_caution: expected a number above 0, got " + std::to_string(vif_caution));
   }
   fit.Validate();
+  limits.Validate();
 }
 
 std::string FingerprintFile(const std::filesystem::path& path) {
@@ -44,19 +45,22 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   run.plan = plan;
   run.options = options;
   run.options.csv.missing_tokens = plan.plan.missing_tokens;
+  run.options.csv.max_columns = options.limits.columns;
   run.data_file_name = data.filename().string();
 
   ScanOptions scan_options;
   scan_options.csv = run.options.csv;
   scan_options.threads = options.threads;
   scan_options.work_dir = options.work_dir;
-  scan_options.profile.max_levels = std::max<std::size_t>(ProfileOptions{}.max_levels, plan.plan.design.max_levels);
+  // The levels limit, not the plan's max_levels: a plan must not decide how much memory a scan
+  // may take (a column past the limit cannot be a categorical term; BuildDesign says which rule).
+  scan_options.profile.max_levels = static_cast<std::size_t>(options.limits.levels);
   ScanResult scan = ScanData(data, scan_options);
   run.profile = std::move(scan.profile);
   run.data_bytes = scan.stored_bytes;
   run.data_sha256 = scan.sha256;
   run.data_encoding = scan.encoding;
-  run.design = BuildDesign(plan.plan.design, run.profile);
+  run.design = BuildDesign(plan.plan.design, run.profile, options.limits);
   // Before the factor pass, so that a plan error costs no pass over the rows.
   ValidateSearchOptions(plan.plan.search, run.design);
 

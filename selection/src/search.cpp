@@ -77,6 +77,20 @@ void ValidateSearchOptions(const SearchOptions& options, const Design& design,
   };
   check_names(options.keep, "keep");
   check_names(options.never, "never");
+  if (options.method == Method::kAllSubsets) {
+    // Candidates: the terms neither kept nor never used (names checked above, listed once).
+    const std::size_t candidates = design.terms.size() - options.keep.size() - options.never.size();
+    if (candidates > kMaxAllSubsetsCandidates) {
+      throw PlanError("method",
+                      "all-subsets over " + std::to_string(candidates) + " candidate terms (" +
+                          std::to_string(design.terms.size()) + " terms, " + std::to_string(options.keep.size()) +
+                          " kept, " + std::to_string(options.never.size()) + " never) could have to examine 2^" +
+                          std::to_string(candidates) + " subsets; it takes at most " +
+                          std::to_string(kMaxAllSubsetsCandidates) +
+                          ": use \"method\": \"stepwise\" (or forward, backward), or move terms the search "
+                          "need not decide to \"keep\" or \"never\"");
+    }
+  }
 }
 
 SearchResult RunSearch(const Factor& factor, const Design& design, const SearchOptions& options,

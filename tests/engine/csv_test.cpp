@@ -6,6 +6,8 @@
 
 #include <gtest/gtest.h>
 
+#include <algorithm>
+#include <chrono>
 #include <cmath>
 #include <random>
 #include <stdexcept>
@@ -13,6 +15,7 @@
 #include <vector>
 
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/limits.h"
 #include "support/test_paths.h"
 #include "support/input_error.h"
 
@@ -356,6 +359,119 @@ TEST_F(CsvReaderTest, OptionsAreValidated) {
   no_block.block_bytes = 0;
   EXPECT_EQ(InputErrorOf([&] { no_block.Validate(); }),
             "CSV option 'block_bytes' is 0; it must be at least 1");
+  CsvOptions no_columns;
+  no_columns.max_columns = 0;
+  EXPECT_EQ(InputErrorOf([&] { no_columns.Validate(); }),
+            "CSV option 'max_columns' is 0; it must be at least 1");
+}
+
+// ---- the columns limit (InputLimits::columns, CsvOptions::max_columns) ----
+
+// The LimitError a reader's constructor throws; fails the test when it throws none.
+template <typename Action>
+LimitError LimitErrorOf(Action&& action) {
+  try {
+    action();
+  } catch (const LimitError& error) {
+    return error;
+  }
+  ADD_FAILURE() << "expected a LimitError";
+  return LimitError(LimitKind::kColumns, 0, "none", "none");
+}
+
+TEST_F(CsvReaderTest, HeaderWiderThanTheColumnsLimitNamesWhereTheExtraFieldStarts) {
+  CsvOptions options;
+  options.max_columns = 3;
+  const auto path = folder_.Write("wide.csv", "price,age,grade,colour\n1,2,A,red\n");
+  const LimitError error = LimitErrorOf([&] { CsvReader reader(path, options); });
+  EXPECT_EQ(error.limit(), LimitKind::kColumns);
+  EXPECT_EQ(error.value(), 3u);
+  EXPECT_STREQ(error.what(), (path.string() + ":1:17: the header has more than 3 columns (field 4 starts "
+                                              "here); the columns limit is 3").c_str());
+  // Exactly at the limit is fine.
+  const auto three = folder_.Write("three.csv", "price,age,grade\n1,2,A\n");
+  EXPECT_EQ(CsvReader(three, options).header().size(), 3u);
+}
+
+TEST_F(CsvReaderTest, ColumnsLimitCountsFieldsAsTheParseDoes) {
+  // Delimiters and line ends inside quotes, doubled quotes, a BOM (columns count after it) and
+  // CRLF: four fields, not more.
+  CsvOptions options;
+  options.max_columns = 4;
+  const auto four = folder_.Write("quoted.csv", "\xEF\xBB\xBF\"a,b\",\"c\"\"d,\",\"e\nf\",g\r\n1,2,3,4\r\n");
+  const CsvReader reader(four, options);
+  EXPECT_EQ(reader.header(), (std::vector<std::string>{"a,b", "c\"d,", "e\nf", "g"}));
+  options.max_columns = 3;
+  const LimitError error = LimitErrorOf([&] { CsvReader again(four, options); });
+  // Field 4 ("g") starts on line 2 (after the quoted line end), column 4.
+  EXPECT_NE(std::string(error.what()).find(four.string() + ":2:4: the header has more than 3 columns"),
+            std::string::npos)
+      << error.what();
+  // Lines ended by CR alone make the whole file one line: the count names the first lone CR
+  // (the message the parse gives) rather than a header too wide, whatever the file's length.
+  std::string cr_only = "price,age\r";
+  for (int row = 0; row < 10'000; ++row) cr_only += "100,2\r";
+  const auto cr_path = folder_.Write("cr-only.csv", cr_only);
+  options.max_columns = 10;
+  EXPECT_EQ(InputErrorOf([&] { CsvReader reader(cr_path, options); }),
+            cr_path.string() + ":1:10: the header holds a carriage return that is not followed by a line feed: "
+                               "lines must end in LF or CR LF (a file whose lines end in CR alone needs converting "
+                               "first)");
+  // A tab-separated header counts tabs.
+  options.delimiter = '\t';
+  options.max_columns = 2;
+  const auto tabs = folder_.Write("tabs.tsv", "a\tb,c\td\n");
+  EXPECT_NE(std::string(LimitErrorOf([&] { CsvReader reader(tabs, options); }).what()).find(":1:7:"),
+            std::string::npos);
+}
+
+TEST_F(CsvReaderTest, ColumnsLimitStopsAnEndlessHeaderAfterABoundedRead) {
+  // A header line that never ends (a source that always has more "cNNN," bytes): without the
+  // count while reading, the reader would hold it whole (and never finish); with it, the reader
+  // stops after about the first max_columns names.
+  CsvOptions options;
+  options.max_columns = 10'000;
+  options.block_bytes = 1 << 16;
+  std::uint64_t supplied = 0;
+  std::uint64_t next_name = 0;
+  std::string pending;
+  auto endless = [&](char* buffer, std::size_t capacity) -> std::size_t {
+    while (pending.size() < capacity) pending += "c" + std::to_string(next_name++) + ",";
+    std::copy_n(pending.data(), capacity, buffer);
+    pending.erase(0, capacity);
+    supplied += capacity;
+    return capacity;
+  };
+  const LimitError error = LimitErrorOf([&] { CsvReader reader("endless.csv", endless, options); });
+  EXPECT_NE(std::string(error.what()).find("endless.csv:1:"), std::string::npos) << error.what();
+  EXPECT_NE(std::string(error.what()).find("more than 10,000 columns (field 10,001 starts here)"),
+            std::string::npos)
+      << error.what();
+  // 10,000 names of at most 6 bytes with their commas are under 70 KB; the reader doubles its
+  // buffer, so it may read ahead at most about as much again plus a block.
+  EXPECT_LT(supplied, 4u * 70'000u + 2u * options.block_bytes) << supplied;
+}
+
+TEST_F(CsvReaderTest, WideHeaderWithinTheLimitReadsInLinearTime) {
+  // 100,000 distinct names: the duplicate check is a hash lookup per name (a pairwise check is
+  // 5e9 comparisons, tens of seconds).
+  std::string text;
+  for (int c = 0; c < 100'000; ++c) text += (c == 0 ? "" : ",") + ("column_" + std::to_string(c));
+  text += "\n";
+  const auto path = folder_.Write("wide.csv", text);
+  CsvOptions options;
+  options.max_columns = 100'000;
+  const auto started = std::chrono::steady_clock::now();
+  const CsvReader reader(path, options);
+  const double seconds = std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
+  EXPECT_EQ(reader.header().size(), 100'000u);
+  EXPECT_LT(seconds, 3.0) << "common practice: a header is read in well under a second";
+  // A duplicate far apart is still named with both places.
+  const auto duplicate = folder_.Write("duplicate-far.csv", text.substr(0, text.size() - 1) + ",column_17\n");
+  options.max_columns = 100'001;
+  EXPECT_NE(InputErrorOf([&] { CsvReader again(duplicate, options); })
+                .find("duplicate column name 'column_17' in header fields 18 and 100001"),
+            std::string::npos);
 }
 
 // ---- block sizes and the byte observer ----

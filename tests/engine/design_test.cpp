@@ -5,6 +5,7 @@
 
 #include "stepledger/engine/design.h"
 
+#include <chrono>
 #include <cmath>
 #include <string>
 #include <vector>
@@ -13,6 +14,7 @@
 
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/limits.h"
 #include "stepledger/engine/profile.h"
 #include "support/test_paths.h"
 #include "support/term_specs.h"
@@ -485,24 +487,169 @@ TEST_F(DesignTest, TermOnTheResponseIsRefused) {
 }
 
 TEST_F(DesignTest, TooManyLevelsIsRefused) {
+  // The scan kept 3 levels per column (the levels limit); "note" has 6. The plan's max_levels
+  // (2) is the lower rule, so the plan is what to change: a PlanError at the term's key.
   ProfileOptions options;
   options.max_levels = 3;
   const DataProfile profile = ProfileCsv(path_, CsvOptions{}, options);
   DesignSpec spec;
   spec.response = "price";
+  spec.max_levels = 2;
   spec.terms = Keyed({Categorical("note", "note")});
   const PlanError error = ExpectPlanError([&] { BuildDesign(spec, profile); });
   EXPECT_EQ(error.key_path(), "terms[0].categorical");
-  EXPECT_NE(std::string(error.what()).find("too many"), std::string::npos) << error.what();
+  EXPECT_NE(std::string(error.what()).find("column 'note' has more than 3 distinct levels, more than max_levels (2)"),
+            std::string::npos)
+      << error.what();
 }
 
-TEST_F(DesignTest, PowerDegreeBelowTwoIsRefused) {
+TEST_F(DesignTest, ColumnPastTheLevelsLimitIsALimitErrorWhenTheLimitIsTheLowerRule) {
+  // max_levels 100 (default) is above the 3 levels the scan kept: raising max_levels cannot
+  // help, the levels limit must be raised (or the column left out).
+  ProfileOptions options;
+  options.max_levels = 3;
+  const DataProfile profile = ProfileCsv(path_, CsvOptions{}, options);
+  DesignSpec spec;
+  spec.response = "price";
+  spec.terms = Keyed({Numeric("age", "age"), Categorical("note", "note")});
+  try {
+    BuildDesign(spec, profile);
+    ADD_FAILURE() << "expected a LimitError";
+  } catch (const LimitError& error) {
+    EXPECT_EQ(error.limit(), LimitKind::kLevels);
+    EXPECT_EQ(error.value(), 3u);
+    EXPECT_NE(std::string(error.what()).find("plan key 'terms[1].categorical': column 'note' has more than 3 "
+                                             "distinct levels"),
+              std::string::npos)
+        << error.what();
+    EXPECT_NE(std::string(error.what()).find("the levels limit is 3"), std::string::npos) << error.what();
+  }
+}
+
+TEST_F(DesignTest, PowerDegreeOutsideTwoToTwelveIsRefused) {
   DesignSpec spec;
   spec.response = "price";
   spec.terms = Keyed({Power("a1", "age", 1)});
-  const PlanError error = BuildError(spec);
+  PlanError error = BuildError(spec);
   EXPECT_EQ(error.key_path(), "terms[0].power.degree");
-  EXPECT_NE(std::string(error.what()).find("expected an integer >= 2, found 1"), std::string::npos);
+  EXPECT_NE(std::string(error.what()).find("expected an integer from 2 to 12, found 1"), std::string::npos);
+  // A degree of 2^31 - 1 would take that many products per row: refused before any row.
+  spec.terms = Keyed({Numeric("age", "age"), Power("huge", "age", 2147483647)});
+  error = BuildError(spec);
+  EXPECT_EQ(error.key_path(), "terms[1].power.degree");
+  EXPECT_NE(std::string(error.what()).find("from 2 to 12, found 2147483647"), std::string::npos) << error.what();
+  spec.terms = Keyed({Power("a13", "age", 13)});
+  EXPECT_EQ(BuildError(spec).key_path(), "terms[0].power.degree");
+  // 12 is allowed (kMaxPowerDegree).
+  spec.terms = Keyed({Power("a12", "age", kMaxPowerDegree)});
+  EXPECT_EQ(Build(spec).terms.at(0).degree, 12);
+}
+
+// ---- limits (engine/limits.h) ----
+
+template <typename F>
+LimitError ExpectLimitError(F&& f) {
+  try {
+    f();
+  } catch (const LimitError& error) {
+    return error;
+  } catch (const std::exception& error) {
+    ADD_FAILURE() << "expected a LimitError, got: " << error.what();
+    return LimitError(LimitKind::kColumns, 0, "none", "none");
+  }
+  ADD_FAILURE() << "expected a LimitError";
+  return LimitError(LimitKind::kColumns, 0, "none", "none");
+}
+
+TEST_F(DesignTest, AllTermsAreCountedAgainstTheTermsLimitBeforeAnyIsBuilt) {
+  // Usable columns besides the response: age, disk, grade, colour, units (note is an
+  // identifier, blank is empty): 5.
+  DesignSpec spec;
+  spec.response = "price";
+  spec.all_terms = true;
+  InputLimits limits;
+  limits.terms = 4;
+  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile_, limits); });
+  EXPECT_EQ(error.limit(), LimitKind::kTerms);
+  EXPECT_EQ(std::string(error.what()),
+            "plan key 'terms': \"all\" makes 5 terms (the usable columns of '" + path_.string() +
+                "' besides the response); the terms limit is 4; name the candidate terms in a plan instead");
+  limits.terms = 5;
+  EXPECT_EQ(BuildDesign(spec, profile_, limits).terms.size(), 5u);
+}
+
+TEST_F(DesignTest, ListedTermsAreCountedAgainstTheTermsLimit) {
+  DesignSpec spec = FullSpec();  // 9 terms
+  InputLimits limits;
+  limits.terms = 8;
+  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile_, limits); });
+  EXPECT_EQ(std::string(error.what()), "plan key 'terms': the plan lists 9 terms; the terms limit is 8");
+}
+
+TEST_F(DesignTest, DesignColumnsLimitNamesTheTermThatCrossesItAndTheLargest) {
+  // intercept 1 + grade 2 + colour 2 = 5; the product grade:colour adds 2 x 2 = 4.
+  DesignSpec spec;
+  spec.response = "price";
+  spec.terms = Keyed({Categorical("grade", "grade"), Categorical("colour", "colour"),
+                      Product("grade:colour", "grade", "colour")});
+  InputLimits limits;
+  limits.design_columns = 8;
+  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile_, limits); });
+  EXPECT_EQ(error.limit(), LimitKind::kDesignColumns);
+  EXPECT_EQ(std::string(error.what()),
+            "plan key 'terms[2]': term 'grade:colour' makes 4 design columns, which brings the design to 9 "
+            "(the largest terms so far: 'grade:colour' 4, 'grade' 2, 'colour' 2); the design-columns limit is "
+            "8; leave out or narrow the largest terms (a product of two categorical terms has one column per "
+            "pair of non-baseline levels), or group levels");
+  limits.design_columns = 9;
+  EXPECT_EQ(BuildDesign(spec, profile_, limits).column_count(), 9u);
+}
+
+TEST(DesignLimitsTest, CategoricalProductOf150By150LevelsIsRefusedBeforeItsColumnsExist) {
+  // Two categorical columns of 150 levels each (every pair of rows distinct): their product
+  // would have 149 x 149 = 22,201 columns, over the default design-columns limit (5,000).
+  TempDir folder;
+  std::string text = "price,dealer,model\n";
+  for (int row = 0; row < 300; ++row) {
+    text += std::to_string(100 + row) + ",D" + std::to_string(row % 150) + ",M" + std::to_string((row * 7) % 150) + "\n";
+  }
+  const auto path = folder.Write("pairs.csv", text);
+  const DataProfile profile = ProfileCsv(path, CsvOptions{});
+  DesignSpec spec;
+  spec.response = "price";
+  spec.max_levels = 150;
+  spec.terms = Keyed({Categorical("dealer", "dealer"), Categorical("model", "model"),
+                      Product("dealer:model", "dealer", "model")});
+  const auto started = std::chrono::steady_clock::now();
+  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile); });
+  EXPECT_LT(std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count(), 1.0);
+  EXPECT_NE(std::string(error.what()).find("plan key 'terms[2]': term 'dealer:model' makes 22,201 design columns, "
+                                           "which brings the design to 22,500"),
+            std::string::npos)
+      << error.what();
+  EXPECT_NE(std::string(error.what()).find("the design-columns limit is 5,000"), std::string::npos);
+}
+
+TEST(DesignLimitsTest, LongChainsOfProductsNeedNoDeepRecursion) {
+  // p1 = x:y, p2 = p1:z, p3 = p2:x... 200,000 deep: validation and the evaluation order walk
+  // the chain on explicit stacks (a recursive walk would overflow the call stack).
+  DesignSpec spec;
+  spec.response = "price";
+  spec.terms = {Numeric("x", "x"), Numeric("y", "y")};
+  spec.terms.push_back(Product("p1", "x", "y"));
+  for (int i = 2; i <= 200'000; ++i) {
+    spec.terms.push_back(Product("p" + std::to_string(i), "p" + std::to_string(i - 1), i % 2 == 0 ? "x" : "y"));
+  }
+  EXPECT_NO_THROW(ValidateDesignSpec(spec));
+  // A cycle at the end of the chain is still found and named.
+  spec.terms[2].parts = {"p200000", "x"};
+  try {
+    ValidateDesignSpec(spec);
+    ADD_FAILURE() << "expected a cycle";
+  } catch (const PlanError& error) {
+    EXPECT_NE(std::string(error.what()).find("products form a cycle: 'p1' -> 'p200000' -> "), std::string::npos)
+        << std::string(error.what()).substr(0, 200);
+  }
 }
 
 TEST_F(DesignTest, ClashingColumnNamesAreRefused) {
@@ -719,7 +866,10 @@ TEST(DesignMagnitudeTest, APowerAndAProductNameTheirTerm) {
   // A log term is never refused, and a power far past the doubles' range still says its size.
   EXPECT_NO_THROW(BuildDesign(AgeSpec({Log("log_age", "age")}), profile));
   error = ExpectPlanError([&] { BuildDesign(AgeSpec({Power("age13", "age", 13)}), profile); });
-  EXPECT_NE(std::string(error.what()).find("becomes 1e+325"), std::string::npos) << error.what();
+  EXPECT_NE(std::string(error.what()).find("expected an integer from 2 to 12, found 13"), std::string::npos)
+      << error.what();
+  error = ExpectPlanError([&] { BuildDesign(AgeSpec({Power("age12", "age", 12)}), profile); });
+  EXPECT_NE(std::string(error.what()).find("becomes 1e+300"), std::string::npos) << error.what();
 }
 
 }  // namespace

@@ -165,6 +165,41 @@ TEST(TableScanTest, TextThatIsNotUtf8IsRefusedAtItsCell) {
   EXPECT_NO_THROW(ScanData(utf8, ScanOptions{}));
 }
 
+TEST(TableScanTest, AWideFileIsSpilledInChunksOfBoundedBytes) {
+  // 5,000 columns: 16 MiB / (5,000 x 12 bytes) = 279 rows per chunk instead of 4,096 (whose
+  // buffers would be 245 MB per reading thread; at 100,000 columns 4.9 GB, the quick form's
+  // out-of-memory on such a file). Every cell still reads back in order.
+  ASSERT_EQ(SpillChunkRowsFor(5'000), 279u);
+  EXPECT_EQ(SpillChunkRowsFor(10'000), 139u);
+  EXPECT_EQ(SpillChunkRowsFor(100), kSpillChunkRows);
+  EXPECT_EQ(SpillChunkRowsFor(10'000'000), 1u);
+  TempDir dir;
+  std::string text = "c0";
+  for (int c = 1; c < 5'000; ++c) text += ",c" + std::to_string(c);
+  text += "\n";
+  for (int row = 0; row < 600; ++row) {
+    text += std::to_string(row);
+    for (int c = 1; c < 5'000; ++c) text += "," + std::to_string(c % 7);
+    text += "\n";
+  }
+  const auto path = dir.Write("wide.csv", text);
+  ScanOptions options;
+  options.csv.max_columns = 5'000;
+  const ScanResult scan = ScanData(path, options);
+  EXPECT_EQ(scan.spill->chunk_count(), 3u);  // 279 + 279 + 42 rows
+  SpillReader reader(*scan.spill);
+  SpillChunk chunk;
+  std::uint64_t rows = 0;
+  while (reader.Next(chunk)) {
+    EXPECT_LE(chunk.rows, 279u);
+    for (std::size_t r = 0; r < chunk.rows; ++r, ++rows) {
+      ASSERT_EQ(chunk.values(0)[r], static_cast<double>(rows));
+      ASSERT_EQ(chunk.values(4'999)[r], static_cast<double>(4'999 % 7));
+    }
+  }
+  EXPECT_EQ(rows, 600u);
+}
+
 TEST(TableScanTest, AFileSmallerThanTheThreadsAndAFileOfOnlyAHeader) {
   TempDir dir;
   const auto tiny = dir.Write("tiny.csv", "a,b\n1,2\n");

@@ -3,12 +3,21 @@
 
 #include "stepledger/io/plan_file.h"
 
+#include <sys/stat.h>
+
+#include <chrono>
+#include <csignal>
+#include <filesystem>
+#include <fstream>
 #include <string>
+#include <thread>
 #include <vector>
 
 #include <gtest/gtest.h>
 
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/limits.h"
+#include "stepledger/engine/number_format.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/selection/search.h"
 #include "support/test_paths.h"
@@ -125,6 +134,13 @@ const std::vector<ErrorCase> kErrorCases = {
      "terms[1].power.degree", "expected an integer >= 2, found 1"},
     {"PowerDegreeAsFloat", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 2.0}})"),
      "terms[1].power.degree", "expected an integer >= 2, found 2.0"},
+    {"PowerDegreeThirteen", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 13}})"),
+     "terms[1].power.degree", "expected an integer from 2 to 12, found 13"},
+    // Repeated products per row: a degree of 2^31 - 1 would never finish (kMaxPowerDegree).
+    {"PowerDegreeHuge", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 2147483647}})"),
+     "terms[1].power.degree", "expected an integer from 2 to 12, found 2147483647"},
+    {"PowerDegreeBeyondInt", WithTerm(R"({"name": "a2", "power": {"column": "age", "degree": 99999999999}})"),
+     "terms[1].power.degree", "expected an integer from 2 to 12, found 99999999999"},
     {"LogNotString", WithTerm(R"({"name": "l", "log": 3})"), "terms[1].log",
      "expected a string, found 3"},
     {"CategoricalBaselineNotString", WithTerm(R"({"name": "g", "categorical": "g", "baseline": 1})"),
@@ -370,6 +386,96 @@ TEST(PlanFileTest, FileErrorsNameTheFile) {
     EXPECT_NE(std::string(error.what()).find(broken.string() + ":1:14"), std::string::npos)
         << error.what();
   }
+}
+
+// ---- limits (engine/limits.h) ----
+
+template <typename Action>
+LimitError LimitErrorOf(Action&& action) {
+  try {
+    action();
+  } catch (const LimitError& error) {
+    return error;
+  } catch (const std::exception& error) {
+    ADD_FAILURE() << "expected a LimitError, got: " << error.what();
+    return LimitError(LimitKind::kTerms, 0, "none", "none");
+  }
+  ADD_FAILURE() << "expected a LimitError";
+  return LimitError(LimitKind::kTerms, 0, "none", "none");
+}
+
+// A plan of `count` numeric terms named t0, t1, ...; `last` replaces the final term's text.
+std::string PlanOfTerms(std::size_t count, const std::string& last = "") {
+  std::string text = R"({"response": "price", "terms": [)";
+  for (std::size_t i = 0; i < count; ++i) {
+    if (i > 0) text += ", ";
+    text += i + 1 == count && !last.empty() ? last : R"({"name": "t)" + std::to_string(i) + R"(", "column": "x"})";
+  }
+  return text + "]}";
+}
+
+TEST(PlanFileLimits, TermsListLongerThanTheLimitIsRefusedBeforeAnyTermIsRead) {
+  InputLimits limits;
+  limits.terms = 3;
+  EXPECT_EQ(ParsePlanText(PlanOfTerms(3), "p.json", limits).plan.design.terms.size(), 3u);
+  // The fourth term is malformed, and is never read: the count comes first.
+  const LimitError error = LimitErrorOf([&] { ParsePlanText(PlanOfTerms(4, "17"), "p.json", limits); });
+  EXPECT_EQ(error.limit(), LimitKind::kTerms);
+  EXPECT_STREQ(error.what(), "plan key 'terms': the plan lists 4 terms; the terms limit is 3");
+  // The default (2,000) holds a 20,000-term plan off (the kind that took gigabytes).
+  EXPECT_EQ(LimitErrorOf([&] { ParsePlanText(PlanOfTerms(20'000), "p.json"); }).value(), 2000u);
+}
+
+TEST(PlanFileLimits, PlanTextLargerThanThePlanBytesLimitIsRefused) {
+  InputLimits limits;
+  limits.plan_bytes = 100;
+  const std::string text = PlanOfTerms(10);
+  ASSERT_GT(text.size(), 100u);
+  const LimitError error = LimitErrorOf([&] { ParsePlanText(text, "p.json", limits); });
+  EXPECT_EQ(error.limit(), LimitKind::kPlanBytes);
+  EXPECT_EQ(std::string(error.what()),
+            "p.json: the plan holds " + FormatCount(static_cast<std::int64_t>(text.size())) +
+                " bytes; the plan-bytes limit is 100");
+}
+
+TEST(PlanFileLimits, PlanFileLargerThanTheLimitIsRefusedBeforeItIsRead) {
+  TempDir folder;
+  InputLimits limits;
+  limits.plan_bytes = 1000;
+  const auto small = folder.Write("small.json", PlanOfTerms(2));
+  EXPECT_EQ(LoadPlanFile(small, limits).plan.design.terms.size(), 2u);
+  const auto big = folder.Write("big.json", PlanOfTerms(200));
+  const LimitError error = LimitErrorOf([&] { LoadPlanFile(big, limits); });
+  EXPECT_EQ(std::string(error.what()),
+            "plan file '" + big.string() + "': it holds " +
+                FormatCount(static_cast<std::int64_t>(std::filesystem::file_size(big))) +
+                " bytes; the plan-bytes limit is 1,000");
+  // A FIFO has no size: it is read up to the limit and refused past it, never held whole.
+  const auto fifo = folder.path() / "plan.fifo";
+  ASSERT_EQ(::mkfifo(fifo.c_str(), 0600), 0);
+  std::signal(SIGPIPE, SIG_IGN);  // the reader stops early: the writer's last writes fail, quietly
+  std::thread writer([&] {
+    std::ofstream out(fifo);
+    out << std::string(1 << 20, ' ');  // 1 MiB of spaces: more than the limit
+  });
+  const LimitError from_fifo = LimitErrorOf([&] { LoadPlanFile(fifo, limits); });
+  writer.join();
+  EXPECT_NE(std::string(from_fifo.what()).find("it holds more than 1,000 bytes"), std::string::npos)
+      << from_fifo.what();
+}
+
+TEST(PlanFileLimits, LongKeepAndNeverListsCostNoQuadraticTime) {
+  // 100,000 distinct keep names with "terms": "all" (checked against the data later): the
+  // duplicate checks are lookups, not pairwise comparisons (5e9 of them).
+  std::string keep;
+  for (int i = 0; i < 100'000; ++i) keep += std::string(i == 0 ? "" : ", ") + "\"k" + std::to_string(i) + "\"";
+  const std::string text = R"({"response": "price", "terms": "all", "keep": [)" + keep + R"(], "never": [)" +
+                           keep + "]}";
+  const auto started = std::chrono::steady_clock::now();
+  const PlanError error = ParseError(text);
+  EXPECT_LT(std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count(), 3.0);
+  EXPECT_EQ(error.key_path(), "never[0]");
+  EXPECT_NE(std::string(error.what()).find("also in keep[0]"), std::string::npos) << error.what();
 }
 
 }  // namespace

@@ -4,9 +4,11 @@
 #include <gtest/gtest.h>
 
 #include <algorithm>
+#include <chrono>
 #include <string>
 #include <vector>
 
+#include "stepledger/engine/errors.h"
 #include "stepledger/selection/search.h"
 #include "support/refit_oracle.h"
 #include "support/selection_fixtures.h"
@@ -134,6 +136,64 @@ TEST(AllSubsetsConstraints, KeepNeverMaxTermsAndHierarchyHoldInEverySubset) {
     EXPECT_EQ(result.subsets.back().size, 3u);
   }
   ExpectSameSubsets(Subsets(problem, options, true), Subsets(problem, options, false), "constraints");
+}
+
+// ---- hopeless searches are refused before they start ----
+
+std::vector<testing::DenseTermSpec> NumericTerms(std::size_t count) {
+  std::vector<testing::DenseTermSpec> terms;
+  for (std::size_t t = 0; t < count; ++t) terms.emplace_back("x" + std::to_string(t));
+  return terms;
+}
+
+TEST(AllSubsetsLimits, MoreCandidatesThanTheLimitAreRefusedAtTheMethodKey) {
+  const Design design = testing::MakeDenseDesign(NumericTerms(45));
+  SearchOptions options;
+  options.method = Method::kAllSubsets;
+  try {
+    ValidateSearchOptions(options, design);
+    ADD_FAILURE() << "expected a PlanError";
+  } catch (const PlanError& error) {
+    EXPECT_EQ(error.key_path(), "method");
+    EXPECT_NE(std::string(error.what()).find("all-subsets over 45 candidate terms (45 terms, 0 kept, 0 never) could "
+                                             "have to examine 2^45 subsets; it takes at most " +
+                                             std::to_string(kMaxAllSubsetsCandidates)),
+              std::string::npos)
+        << error.what();
+  }
+  // max_terms does not bound the work (the tree descends from the full model): still refused.
+  options.max_terms = 3;
+  EXPECT_THROW(ValidateSearchOptions(options, design), PlanError);
+  // Kept and never terms are not candidates: 45 - 5 - 4 = 36, the limit, is accepted; one
+  // candidate more is not.
+  options.max_terms.reset();
+  options.keep = {"x0", "x1", "x2", "x3", "x4"};
+  options.never = {"x5", "x6", "x7", "x8"};
+  ASSERT_EQ(kMaxAllSubsetsCandidates, 36u);
+  EXPECT_NO_THROW(ValidateSearchOptions(options, design));
+  options.never.pop_back();
+  EXPECT_THROW(ValidateSearchOptions(options, design), PlanError);
+  // Other methods take any number of terms.
+  options.keep.clear();
+  options.never.clear();
+  options.method = Method::kStepwise;
+  EXPECT_NO_THROW(ValidateSearchOptions(options, design));
+}
+
+TEST(AllSubsetsLimits, RunSearchRefusesBeforeExaminingAnySubset) {
+  // 45 terms of similar small effect: the branch and bound could bound little away (before the
+  // limit this search ran for hours). The refusal comes at once.
+  testing::RandomProblemOptions random;
+  random.numeric_terms = 45;
+  random.true_terms = 45;
+  random.effect = 0.05;
+  random.n = 400;
+  const DenseProblem problem = testing::MakeRandomProblem(random);
+  SearchOptions options;
+  options.criterion = Criterion::kBic;
+  const auto started = std::chrono::steady_clock::now();
+  EXPECT_THROW(Subsets(problem, options, /*exhaustive=*/false), PlanError);
+  EXPECT_LT(std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count(), 1.0);
 }
 
 }  // namespace

@@ -27,6 +27,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/engine/limits.h"
 
 namespace stepledger {
 
@@ -44,6 +45,9 @@ struct VerifyOptions {
   int threads = 0;
   /// Where the replay's typed spill goes; empty: the system temporary folder.
   std::filesystem::path work_dir;
+  /// The replay's input limits (engine/limits.h). A replay over a limit is not a difference: the
+  /// LimitError is thrown, not recorded as a failed check.
+  InputLimits limits;
   /// Numbers in a replay agree when |a - b| <= relative_tolerance * max(|a|, |b|).
   /// Default 1e-9 (the contract); actions, terms and texts must match exactly.
   double relative_tolerance = 1e-9;
@@ -80,9 +84,11 @@ const char* ToString(VerifyReport::Check check);
 /// Chain, section digests, seal, signature and the normalised plan of a parsed audit. Never
 /// throws for content problems (they are reported); throws InputError when the public key file
 /// cannot be used. With a public key, the signature must verify against it and the audit's
-/// signature.public_key must be that key.
+/// signature.public_key must be that key. The recorded plan is read within limits: a plan past
+/// one is a LimitError (exit 2 with the way to raise it), not a failed check.
 VerifyReport CheckAuditIntegrity(const nlohmann::json& document,
-                                 const std::filesystem::path& public_key = {});
+                                 const std::filesystem::path& public_key = {},
+                                 const InputLimits& limits = {});
 
 /// CheckAuditIntegrity, then with options.data the fingerprint and the replay. Throws
 /// InputError when the data cannot be read or the recorded plan cannot be run on it.

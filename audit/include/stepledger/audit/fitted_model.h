@@ -61,17 +61,21 @@ struct FittedModel {
 /// name) starts every message. Throws InputError naming the JSON key ("prediction.triangle")
 /// when a needed key is missing or malformed, or when the rebuilt design's columns do not
 /// match the audit's design section; an audit written before the `prediction` section existed
-/// gets a message saying to rerun it with this version.
-FittedModel FittedModelFromAudit(const nlohmann::json& audit, std::string_view source_name);
+/// gets a message saying to rerun it with this version. The recorded plan is read and rebuilt
+/// within limits (LimitError past one: a plan file's limits apply to a recorded plan too).
+FittedModel FittedModelFromAudit(const nlohmann::json& audit, std::string_view source_name,
+                                 const InputLimits& limits = {});
 
 /// The normalised plan that the audit's plan.verbatim gives on its recorded columns
 /// (data.columns): what the run wrote as plan.normalised, derived from what a replay runs.
 /// Throws InputError naming the key when the plan or the columns cannot be read.
-nlohmann::json NormalisedPlanFromVerbatim(const nlohmann::json& audit, std::string_view source_name);
+nlohmann::json NormalisedPlanFromVerbatim(const nlohmann::json& audit, std::string_view source_name,
+                                         const InputLimits& limits = {});
 
 /// plan.normalised as FittedModelFromAudit reads it (PlanToJson of the plan it reads: keys
 /// an older audit leaves out at their defaults). Throws InputError naming the key.
-nlohmann::json NormalisedPlanAsRead(const nlohmann::json& audit, std::string_view source_name);
+nlohmann::json NormalisedPlanAsRead(const nlohmann::json& audit, std::string_view source_name,
+                                    const InputLimits& limits = {});
 
 /// The model for pricing new rows (engine/prediction.h): the design restricted to the terms
 /// the model needs (TermsNeededByModel), so that the rows need neither the response nor the

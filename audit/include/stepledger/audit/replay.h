@@ -22,6 +22,9 @@ struct ReplayOverrides {
   std::optional<char> delimiter;
   /// Where the typed spill goes (never recorded); empty: the system temporary folder.
   std::filesystem::path work_dir;
+  /// The limits of the replaying command (never recorded: an audit cannot lift them); they also
+  /// apply to the recorded plan's text and terms.
+  InputLimits limits;
 };
 
 /// The cores this process may run on (sched_getaffinity), from 1 to kMaxRecordedThreads.

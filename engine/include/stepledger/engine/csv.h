@@ -13,6 +13,8 @@
 #include <string_view>
 #include <vector>
 
+#include "stepledger/engine/limits.h"
+
 namespace stepledger {
 
 /// Options of reading a CSV file.
@@ -23,6 +25,10 @@ struct CsvOptions {
   std::vector<std::string> missing_tokens = {"", "NA"};
   /// Bytes read from the file at a time; memory of the reader is O(this + longest record).
   std::size_t block_bytes = 1 << 20;
+  /// Most columns a header may have (InputLimits::columns, >= 1): a wider header is refused with
+  /// a LimitError naming the place where field max_columns + 1 starts, while the header is read,
+  /// before its names are held. Default 10,000.
+  std::uint64_t max_columns = InputLimits{}.columns;
 
   /// Throws InputError naming the field when an option is out of range.
   void Validate() const;
@@ -70,7 +76,8 @@ CellKind ClassifyCell(std::string_view text, const std::vector<std::string>& mis
 class CsvReader {
  public:
   /// Opens the file and reads the header. Throws InputError on an unreadable file,
-  /// an empty file, and duplicate or empty header names.
+  /// an empty file, and duplicate or empty header names, and LimitError on a header of more
+  /// than CsvOptions::max_columns fields.
   CsvReader(std::filesystem::path path, CsvOptions options = {});
   /// A reader of bytes supplied by `read` (returns the bytes written into the buffer, 0 at the
   /// end; throws InputError on failure), e.g. a decompressing source; the header is read here.
@@ -155,6 +162,8 @@ class CsvReader {
   bool OnlyLineBreaksRemain();
   std::uint64_t ColumnAt(const char* position, std::uint64_t line_start) const;
   void ReadHeader();
+  // Reads until the header's line end is in the buffer, counting its fields as bytes arrive.
+  void CheckHeaderWidth();
 
   std::filesystem::path path_;
   std::string display_name_;

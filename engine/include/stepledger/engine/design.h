@@ -14,13 +14,14 @@
 #include <vector>
 
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/limits.h"
 #include "stepledger/engine/profile.h"
 
 namespace stepledger {
 
 enum class TermKind {
   kNumeric,      ///< a numeric column as it is
-  kPower,        ///< column^degree (degree >= 2), computed by repeated products in long double
+  kPower,        ///< column^degree (2 <= degree <= kMaxPowerDegree), by repeated products in long double
   kLog,          ///< natural log of a column; a non-positive value is an error naming the row
   kCategorical,  ///< k levels -> k-1 indicator columns against a baseline level
   kProduct,      ///< product of two terms: every column of one times every column of the other
@@ -32,7 +33,7 @@ struct TermSpec {
   std::string name;
   TermKind kind = TermKind::kNumeric;
   std::string column;                   ///< source column (all kinds but kProduct)
-  int degree = 1;                       ///< kPower: 2 or more
+  int degree = 1;                       ///< kPower: 2 to kMaxPowerDegree
   std::optional<std::string> baseline;  ///< kCategorical: the reference level, if given
   std::vector<std::string> parts;       ///< kProduct: exactly two term names
   std::string key_path;                 ///< where the plan said it, e.g. "terms[3]"; for messages
@@ -62,8 +63,15 @@ struct DesignSpec {
   bool operator==(const DesignSpec&) const = default;
 };
 
+/// Highest degree of a power term. 12 is above the degree-10 polynomial of NIST StRD Filip, the
+/// most collinear certified case the kernel must fit; a monomial of higher degree is aliased with
+/// the lower ones at the kernel's tolerance on any usual range of values (common practice:
+/// beyond a cubic, use a few powers of a centred column or a categorical band instead). The cap
+/// also bounds the repeated products per row (a degree of 2^31 - 1 would never finish).
+inline constexpr int kMaxPowerDegree = 12;
+
 /// The checks that need no data: a non-empty response, term names non-empty, unique and not
-/// "intercept", a power of degree >= 2, a source column named for every kind but products,
+/// "intercept", a power of degree 2 to kMaxPowerDegree, a source column named for every kind but products,
 /// a baseline only on categorical terms, products of two existing, different terms and no
 /// cycle among products, and at least one term (unless all_terms). Throws PlanError naming
 /// the key path (TermSpec::key_path + ".name", ".product[1]", ...). BuildDesign calls it.
@@ -211,13 +219,19 @@ class Design {
 
 /// Builds the design; throws PlanError naming the key path for: unknown columns, duplicate
 /// term names, a product part that is not a term (or a cycle of products), a power of degree
-/// < 2, a power/log/numeric term on a non-numeric column, a categorical baseline that is not a
-/// level, a categorical or empty response, a weights column that is not numeric.
+/// outside 2 to kMaxPowerDegree, a power/log/numeric term on a non-numeric column, a categorical
+/// baseline that is not a level, a categorical or empty response, a weights column that is not
+/// numeric. Throws LimitError (engine/limits.h) for more terms than limits.terms ("terms": "all"
+/// counts the usable columns before any term is built), a design of more than
+/// limits.design_columns columns (each term's count is known before its columns are made: the
+/// message names the term that crosses the limit and the largest terms) and a categorical term on
+/// a column that passed the levels limit of the scan when the plan's max_levels is above it.
+/// Cost: O(terms log terms + design columns), no step quadratic in the terms.
 /// Default baseline of a categorical term: its most frequent level, ties broken by byte-wise
 /// order (the largest cell gives the most precise contrasts); recorded in DesignTerm::baseline.
 /// Throws InputError naming file:line:column (from ColumnProfile::min_at/max_at; the file alone
 /// for a profile without them) for a column, response or weights outside the magnitudes above,
 /// and PlanError naming the term's key for a product or power that leaves them.
-Design BuildDesign(const DesignSpec& spec, const DataProfile& profile);
+Design BuildDesign(const DesignSpec& spec, const DataProfile& profile, const InputLimits& limits = {});
 
 }  // namespace stepledger

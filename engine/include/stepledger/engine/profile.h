@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/limits.h"
 
 namespace stepledger {
 
@@ -65,9 +66,12 @@ struct ColumnProfile {
 };
 
 struct ProfileOptions {
-  /// Distinct levels kept per column before a categorical column is marked too_many_levels.
-  /// Default 10000; 0 keeps none (every non-empty categorical column is then too_many_levels).
-  std::size_t max_levels = 10000;
+  /// Distinct levels kept per column before a categorical column is marked too_many_levels: the
+  /// levels limit (InputLimits::levels, engine/limits.h). A column that passes it stops keeping
+  /// levels and frees those it kept, so memory is O(columns x max_levels) at most and falls back
+  /// as numeric columns of many distinct values overflow. Default 1,000; 0 keeps none (every
+  /// non-empty categorical column is then too_many_levels).
+  std::size_t max_levels = InputLimits{}.levels;
 };
 
 struct DataProfile {

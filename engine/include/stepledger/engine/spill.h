@@ -6,7 +6,7 @@
 //
 // Layout. One file per byte range of the text (engine/table_scan.h reads ranges in parallel),
 // in a private folder under the working folder (--work-dir; default the system temporary
-// folder). Each file is a sequence of chunks of up to kSpillChunkRows rows:
+// folder). Each file is a sequence of chunks of up to SpillChunkRowsFor(columns) rows:
 //
 //   u64 magic "SLSPILL1" | u64 rows | u64 columns | u64 payload bytes
 //   u64 line[rows]        line on which each record starts, counted from the range's start
@@ -43,6 +43,16 @@ inline constexpr std::uint32_t kSpillNoCode = 0xFFFFFFFFU;
 /// Rows per chunk: large enough that a chunk's header costs nothing, small enough that a chunk
 /// of 100 columns is a few MB.
 inline constexpr std::size_t kSpillChunkRows = 4096;
+/// Most bytes of cells (8 for the value, 4 for the code) a chunk holds: a wide file gets fewer
+/// rows per chunk (SpillChunkRowsFor), so that a writer's and a reader's buffers stay a few tens
+/// of MB whatever the columns (10,000 columns: 139 rows per chunk, not 4,096 rows and 490 MB).
+inline constexpr std::size_t kSpillChunkCellBytes = std::size_t{16} << 20;
+/// Rows per chunk for a file of `columns` columns: kSpillChunkRows, or fewer (at least 1) so that
+/// columns x rows x 12 bytes stay within kSpillChunkCellBytes.
+inline constexpr std::size_t SpillChunkRowsFor(std::size_t columns) {
+  const std::size_t by_bytes = kSpillChunkCellBytes / (12 * (columns == 0 ? 1 : columns));
+  return by_bytes < 1 ? 1 : (by_bytes < kSpillChunkRows ? by_bytes : kSpillChunkRows);
+}
 
 /// Where a chunk starts in its range file and how many rows it holds.
 struct SpillChunkEntry {
@@ -59,7 +69,8 @@ struct SpillRange {
   /// Per column: the texts of the range's level codes (code i is levels[column][i]); empty for
   /// a column whose codes were not kept.
   std::vector<std::vector<std::string>> levels;
-  /// The chunks in file order (one entry per kSpillChunkRows rows: bounded by the rows / 4096).
+  /// The chunks in file order (one entry per SpillChunkRowsFor(columns) rows, 4096 up to 341
+  /// columns: bounded by the rows / that).
   std::vector<SpillChunkEntry> chunks;
 };
 
@@ -136,8 +147,8 @@ class SpillWriter {
   /// Starts a row; then Set each column once.
   void BeginRow(std::uint64_t line, std::uint64_t offset);
   void Set(std::size_t column, std::uint64_t value_bits, std::uint32_t code) {
-    values_[column * kSpillChunkRows + rows_in_chunk_] = value_bits;
-    codes_[column * kSpillChunkRows + rows_in_chunk_] = code;
+    values_[column * chunk_rows_ + rows_in_chunk_] = value_bits;
+    codes_[column * chunk_rows_ + rows_in_chunk_] = code;
     if (code != kSpillNoCode) has_codes_[column] = 1;
   }
   void EndRow();
@@ -156,6 +167,7 @@ class SpillWriter {
   std::filesystem::path file_;
   std::filesystem::path work_dir_;
   std::size_t columns_ = 0;
+  std::size_t chunk_rows_ = kSpillChunkRows;  // SpillChunkRowsFor(columns_)
   int fd_ = -1;
   std::uint64_t rows_ = 0;
   std::uint64_t written_ = 0;

@@ -28,13 +28,15 @@
 
 namespace stepledger {
 
-/// The resources a command gives to reading its data (the command line's --threads and
-/// --work-dir); neither changes a result beyond rounding.
+/// The resources a command gives to reading its data (the command line's --threads, --work-dir
+/// and --limit); none changes a result beyond rounding (a limit can only refuse one).
 struct DataReadOptions {
   /// Threads reading and folding (>= 1). Default 1.
   int threads = 1;
   /// Where the typed spill goes; empty: the system temporary folder.
   std::filesystem::path work_dir;
+  /// How wide the data and how large the design may be (engine/limits.h).
+  InputLimits limits;
 };
 
 struct ScanOptions {

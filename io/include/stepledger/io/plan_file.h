@@ -33,7 +33,7 @@
 //                     identifier (every value distinct) are left out and named in a note
 // A term object has "name" (non-empty, unique, not "intercept") and exactly one of
 //   "column": C                                a numeric column as it is
-//   "power": {"column": C, "degree": D}        C^D, D an integer >= 2
+//   "power": {"column": C, "degree": D}        C^D, D an integer from 2 to 12 (kMaxPowerDegree)
 //   "log": C                                   natural log of C (values must be > 0)
 //   "categorical": C, optional "baseline": L   k levels -> k-1 indicator columns, named
 //                                              TERM=LEVEL ("grade=A"; format_version 1
@@ -42,6 +42,10 @@
 //                                              columns A:B, with levels where a part is
 //                                              categorical ("age:grade=A")
 // Integers must be JSON integers (2, not 2.0).
+//
+// Limits (engine/limits.h, never read from the plan): a plan file larger than
+// InputLimits::plan_bytes is refused before it is read, and a "terms" list longer than
+// InputLimits::terms before any term is read (LimitError, naming the limit).
 
 #include <filesystem>
 #include <string>
@@ -50,6 +54,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/engine/design.h"
+#include "stepledger/engine/limits.h"
 #include "stepledger/selection/plan.h"
 
 namespace stepledger {
@@ -65,13 +70,14 @@ struct LoadedPlan {
 /// Reads and parses a plan file. Throws PlanError (empty key path) when the file cannot be
 /// read ("cannot open plan file 'x': ...") or is not JSON ("x:3:14: malformed JSON: ..."),
 /// and PlanError naming the key for any content error.
-LoadedPlan LoadPlanFile(const std::filesystem::path& path);
+LoadedPlan LoadPlanFile(const std::filesystem::path& path, const InputLimits& limits = {});
 
 /// The same from text; source_name stands for the file name in messages.
-LoadedPlan ParsePlanText(std::string text, std::string_view source_name = "plan");
+LoadedPlan ParsePlanText(std::string text, std::string_view source_name = "plan",
+                         const InputLimits& limits = {});
 
 /// The plan of a parsed JSON value (the checks of LoadPlanFile but the JSON syntax).
-Plan PlanFromJson(const nlohmann::json& json);
+Plan PlanFromJson(const nlohmann::json& json, const InputLimits& limits = {});
 
 /// The normalised plan: every key present with its value or default (null for no weights
 /// and no max_terms), in the form PlanFromJson reads, so PlanFromJson(PlanToJson(p)) == p.

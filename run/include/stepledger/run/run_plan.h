@@ -36,6 +36,10 @@ struct RunOptions {
   /// Where the typed spill's private folder is made (empty: the system temporary folder). Not
   /// recorded: it cannot change a result.
   std::filesystem::path work_dir;
+  /// How large the data and the design may be (engine/limits.h): the scan's column count
+  /// (csv.max_columns is set from it) and levels kept per column, the terms and design columns
+  /// of BuildDesign. Not recorded: a limit refuses a run, it cannot change one.
+  InputLimits limits;
   /// Confidence level, refinement and the kernel's alias tolerance of the final fit.
   FitOptions fit;
   /// VIF above which a final-model coefficient is named in the collinearity caution

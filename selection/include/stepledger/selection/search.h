@@ -82,8 +82,19 @@ struct SearchRunOptions {
 /// max_terms, a term listed twice or both kept and never, and criterion cv (not available yet).
 void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds = false);
 
+/// Most candidate terms (neither kept nor never) an all-subsets search takes. The branch and
+/// bound may examine up to 2^m subsets, each a kernel move and a score per remaining term. As
+/// measured (README "Limits"; 1,000 rows, one thread): terms of similar small effect, the worst
+/// case, cost 190 s of CPU at 32 candidates and grow about 1.8 times per added candidate, so 36
+/// is about half an hour and 45 days; a few strong terms among weak ones cost 111 s at 36.
+/// max_terms does not shrink the work (the tree starts from the full model and descends), so
+/// only fewer candidates or another method help.
+inline constexpr std::size_t kMaxAllSubsetsCandidates = 36;
+
 /// ValidateSearchSettings, then the checks that need the design: keep and never name terms of
-/// the design (a plan with "terms": "all" can only be checked here).
+/// the design (a plan with "terms": "all" can only be checked here), and all-subsets has at most
+/// kMaxAllSubsetsCandidates candidate terms (PlanError at "method", before any pass over the
+/// rows).
 void ValidateSearchOptions(const SearchOptions& options, const Design& design,
                            bool allow_cycling_thresholds = false);
 
