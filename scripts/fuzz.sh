@@ -9,7 +9,8 @@
 #
 #   FUZZ_SECONDS     total fuzzing time in seconds, split across the targets (default 60)
 #   FUZZ_TARGETS     the targets to run (default: all, as listed in fuzz/CMakeLists.txt)
-#   FUZZ_BUILD_DIR   build folder (default build-fuzz/ in the repository)
+#   FUZZ_BUILD_DIR   build folder (default build-fuzz/ in the repository); a folder made by
+#                    SANITIZE_WITH_FUZZ=1 scripts/sanitize.sh is reused as it is, tests and all
 #   FUZZ_JOBS        compile jobs (default: the cores)
 #   FUZZ_TIMEOUT     seconds one input may take before it counts as a hang (default 25)
 set -euo pipefail
@@ -29,8 +30,12 @@ for target in "${targets[@]}"; do
 done
 
 # Debug with -O1: assertions on, sanitizers and coverage instrumentation on every library.
+# A folder that already builds the tests (the sanitizer build) keeps them: the flags are the
+# same, so nothing is compiled twice.
+tests=OFF
+grep -qs '^STEPLEDGER_BUILD_TESTS:BOOL=ON' "$build/CMakeCache.txt" && tests=ON
 cmake -S "$root" -B "$build" -DCMAKE_CXX_COMPILER=clang++ -DCMAKE_BUILD_TYPE=Debug \
-  -DCMAKE_CXX_FLAGS_DEBUG="-O1 -g" -DSTEPLEDGER_BUILD_FUZZ=ON -DSTEPLEDGER_BUILD_TESTS=OFF \
+  -DCMAKE_CXX_FLAGS_DEBUG="-O1 -g" -DSTEPLEDGER_BUILD_FUZZ=ON -DSTEPLEDGER_BUILD_TESTS="$tests" \
   -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF >/dev/null
 start=$SECONDS
 cmake --build "$build" -j"$jobs" --target "${targets[@]/#/fuzz_}"

@@ -8,6 +8,9 @@
 #   SANITIZE_BUILD_DIR   build folder (default build-asan/ in the repository)
 #   SANITIZE_CXX         compiler (default clang++; g++ works too)
 #   SANITIZE_JOBS        parallel compile and test jobs (default: the cores)
+#   SANITIZE_WITH_FUZZ   1: also build the libFuzzer targets in this folder (Clang; the libraries
+#                        get libFuzzer's coverage instrumentation too), so that
+#                        FUZZ_BUILD_DIR=build-asan scripts/fuzz.sh needs no second build (CI)
 #   extra arguments      passed to ctest, e.g. -R csv to run some tests only
 set -euo pipefail
 root="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
@@ -19,7 +22,8 @@ jobs="${SANITIZE_JOBS:-$(nproc)}"
 # instrumented tests reasonably fast.
 cmake -S "$root" -B "$build" -DCMAKE_CXX_COMPILER="${SANITIZE_CXX:-clang++}" \
   -DCMAKE_BUILD_TYPE=Debug -DCMAKE_CXX_FLAGS_DEBUG="-O1 -g" -DSTEPLEDGER_SANITIZE=ON \
-  -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF >/dev/null
+  -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF \
+  -DSTEPLEDGER_BUILD_FUZZ="$([[ "${SANITIZE_WITH_FUZZ:-0}" == 1 ]] && echo ON || echo OFF)" >/dev/null
 start=$SECONDS
 cmake --build "$build" -j"$jobs"
 echo "sanitize: built in $((SECONDS - start)) s"

@@ -54,6 +54,10 @@ struct CommonOptions {
   std::vector<std::string> limit_texts;
 };
 
+/// Checks an option that names an input file: it must exist and not be a folder ("'x.csv'
+/// does not exist", "'data' is a folder, not a file"). A FIFO or /dev/stdin passes.
+extern const CLI::Validator kExistingInputFile;
+
 /// The --threads, --work-dir and --limit of a command as the engine takes them.
 DataReadOptions MakeDataReadOptions(const CommonOptions& common);
 

@@ -65,11 +65,11 @@ void AddCompareCommand(CLI::App& app, CommandContext& context) {
       "the plan keys that differ (method, criterion, thresholds, terms, ...), columns added or "
       "lost, numeric columns that really moved, the first step where the routes part, terms that "
       "entered or left, and coefficient changes in units of their old standard errors.");
-  command->add_option("A", args->old_audit, "The old audit")->required()->check(CLI::ExistingFile);
-  command->add_option("B", args->new_audit, "The new audit")->required()->check(CLI::ExistingFile);
+  command->add_option("A", args->old_audit, "The old audit")->required()->check(kExistingInputFile);
+  command->add_option("B", args->new_audit, "The new audit")->required()->check(kExistingInputFile);
   command->add_option("--data", args->data,
                       "B's data: also prices them with A's model, as predict does, beside B's error")
-      ->check(CLI::ExistingFile)
+      ->check(kExistingInputFile)
       ->type_name("DATA");
   // Reads no data but --data (read with B's recorded delimiter), writes no file, folds no factor.
   AddCommonOptions(*command, context.common, kJsonOption | kQuietOption | kLogLevelOption);

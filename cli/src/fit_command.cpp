@@ -184,10 +184,10 @@ void AddFitCommand(CLI::App& app, CommandContext& context) {
       "fit", "Fit every term of a plan, with no selection, and show the model");
   command->add_option("DATA", args->data, "CSV data file (header row first)")
       ->required()
-      ->check(CLI::ExistingFile);
+      ->check(kExistingInputFile);
   command->add_option("--plan", args->plan, "Plan file (JSON): response and terms")
       ->required()
-      ->check(CLI::ExistingFile)
+      ->check(kExistingInputFile)
       ->type_name("PLAN");
   command->add_option("--level", args->confidence_level, "Confidence level of the intervals")
       ->check(CLI::Range(0.5, 0.999999))

@@ -443,7 +443,7 @@ void AddPredictCommand(CLI::App& app, CommandContext& context) {
   command->add_option("AUDIT", args->audit, "Audit file (audit.json) written by select or rerun")->required();
   command->add_option("ROWS", args->rows, "CSV file of rows to price (header row first)")
       ->required()
-      ->check(CLI::ExistingFile);
+      ->check(kExistingInputFile);
   command->add_option("--out", args->out, "Write the result to FILE (atomically; --force to overwrite) instead of stdout")
       ->type_name("FILE");
   command->add_option("--level", args->level, "Level of the confidence and prediction intervals, in (0, 1); default 0.95")

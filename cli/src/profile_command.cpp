@@ -255,7 +255,7 @@ void AddProfileCommand(CLI::App& app, CommandContext& context) {
       "profile", "Summarise each column of a data file and propose a starter plan");
   command->add_option("DATA", args->data, "CSV data file (header row first)")
       ->required()
-      ->check(CLI::ExistingFile);
+      ->check(kExistingInputFile);
   CLI::Option* response = command->add_option("--response", args->response,
                                                "Response column of the starter plan (without it: no plan, "
                                                "only the column summary)")

@@ -113,7 +113,7 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
       "Without --html or --json the text report goes to stdout; with --html FILE the HTML "
       "report is written atomically (refusing to overwrite without --force). An audit whose "
       "digests do not hold is refused with exit 1 unless --allow-unverified.");
-  command->add_option("AUDIT", args->audit, "Audit file (audit.json)")->required()->check(CLI::ExistingFile);
+  command->add_option("AUDIT", args->audit, "Audit file (audit.json)")->required()->check(kExistingInputFile);
   command->add_option("--html", args->html,
                       "Write the self-contained HTML report to FILE ('-': stdout)")
       ->type_name("FILE");
@@ -121,7 +121,7 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--data", args->data,
                       "The audited data file: checks its SHA-256 against the audit, then adds the "
                       "diagnostics of the final model (one pass over the rows)")
-      ->check(CLI::ExistingFile)
+      ->check(kExistingInputFile)
       ->type_name("DATA");
   command->add_option("--rows-out", args->rows_out,
                       "With --data: write every row that stands out, in file order, "

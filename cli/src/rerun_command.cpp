@@ -108,13 +108,13 @@ void AddRerunCommand(CLI::App& app, CommandContext& context) {
       "routes part, terms that entered or left, coefficient changes in units of their old "
       "standard errors, and the old model's error on the new rows (priced as predict prices "
       "them) beside the new model's.");
-  command->add_option("AUDIT", args->audit, "The parent audit file")->required()->check(CLI::ExistingFile);
-  command->add_option("DATA", args->data, "New data file (CSV)")->required()->check(CLI::ExistingFile);
+  command->add_option("AUDIT", args->audit, "The parent audit file")->required()->check(kExistingInputFile);
+  command->add_option("DATA", args->data, "New data file (CSV)")->required()->check(kExistingInputFile);
   command->add_option("--out", args->out, "Output folder for the new audit.json and report.html")
       ->required()
       ->type_name("DIR");
   command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the new audit")
-      ->check(CLI::ExistingFile)
+      ->check(kExistingInputFile)
       ->type_name("FILE");
   AddCommonOptions(*command, context.common);
   args->delimiter_option = command->get_option("--delimiter");

@@ -132,6 +132,17 @@ int DefaultThreads() {
   return std::clamp(cores, 1, 256);
 }
 
+const CLI::Validator kExistingInputFile(
+    [](std::string& path) -> std::string {
+      std::error_code error;
+      const std::filesystem::file_status status = std::filesystem::status(path, error);
+      if (status.type() == std::filesystem::file_type::not_found) return "'" + path + "' does not exist";
+      if (error) return "'" + path + "' cannot be examined: " + error.message();
+      if (std::filesystem::is_directory(status)) return "'" + path + "' is a folder, not a file";
+      return {};
+    },
+    "FILE");
+
 DataReadOptions MakeDataReadOptions(const CommonOptions& common) {
   DataReadOptions options;
   options.threads = common.threads;

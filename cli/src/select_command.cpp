@@ -149,9 +149,9 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
       "select", "Choose the terms of a linear model and show every step of the route");
   command->add_option("DATA", args->data, "CSV data file (header row first)")
       ->required()
-      ->check(CLI::ExistingFile);
+      ->check(kExistingInputFile);
   command->add_option("--plan", args->plan, "Plan file (JSON): response, terms, method, criterion")
-      ->check(CLI::ExistingFile)
+      ->check(kExistingInputFile)
       ->type_name("PLAN");
   command->add_option("--response", args->response,
                       "Quick form: the response column; every other column is a candidate term")
@@ -167,7 +167,7 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
                                          "(written atomically)")
                          ->type_name("DIR");
   command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the audit with")
-      ->check(CLI::ExistingFile)
+      ->check(kExistingInputFile)
       ->type_name("FILE")
       ->needs(out);
   command->add_option("--refine", args->refinement_passes,

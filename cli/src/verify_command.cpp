@@ -58,11 +58,11 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
   command->add_option("AUDIT", args->audit, "Audit file (audit.json)")->required();
   CLI::Option* data = command->add_option("--data", args->data,
                                           "The data file the audit was made from: fingerprint and replay")
-                          ->check(CLI::ExistingFile)
+                          ->check(kExistingInputFile)
                           ->type_name("DATA");
   command->add_option("--public-key", args->public_key,
                       "Ed25519 public key (PEM) the signature must verify against")
-      ->check(CLI::ExistingFile)
+      ->check(kExistingInputFile)
       ->type_name("FILE");
   // Writes no file; the replay reads the data with the audit's recorded delimiter.
   AddCommonOptions(*command, context.common, kAllCommonOptions & ~kForceOption & ~kDelimiterOption);

@@ -501,6 +501,11 @@ void CsvReader::ReadHeader() {
                " of the name); stepledger reads data files as UTF-8: convert the file first (for example from "
                "Latin-1)");
     }
+    if (const auto nul = FirstNulByte(field.text)) {
+      Fail(field.line, field.column,
+           "the name in header field " + std::to_string(index + 1) + " holds a NUL byte (0x00) at byte " +
+               std::to_string(*nul + 1) + " of the name" + std::string(kNulByteAdvice));
+    }
     const auto [earlier, inserted] = seen.emplace(field.text, index);
     if (!inserted) {
       Fail(field.line, field.column,

@@ -104,6 +104,16 @@ std::size_t PreadSome(int fd, char* buffer, std::size_t capacity, std::uint64_t 
                   "from Latin-1)");
 }
 
+// A name or a level never holds a NUL byte; checked with UTF-8 validity, where text is kept.
+void CheckKeptText(const CsvReader& reader, const CsvField& field, std::size_t column) {
+  if (FirstInvalidUtf8(field.text)) FailNotUtf8(reader, field, column);
+  if (const auto nul = FirstNulByte(field.text)) {
+    reader.Fail(field.line, field.column,
+                "column '" + QuoteForMessage(reader.header()[column]) + "' holds a NUL byte (0x00) at byte " +
+                    std::to_string(*nul + 1) + " of the cell" + std::string(kNulByteAdvice));
+  }
+}
+
 // Marks a column past the levels limit and frees the levels it kept.
 void DropLevels(ColumnTally& tally) {
   tally.levels_overflowed = true;
@@ -146,7 +156,7 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
     }
     case CellKind::kText:
       if (!tally.first_text) {
-        if (FirstInvalidUtf8(field.text)) FailNotUtf8(reader, field, column);
+        CheckKeptText(reader, field, column);
         tally.first_text = CellLocation{field.line, field.column, std::string(field.text)};
       }
       bits = kSpillTextBits;
@@ -159,7 +169,7 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
     ++found->second.count;
     code = found->second.code;
   } else if (tally.levels.size() < max_levels) {
-    if (FirstInvalidUtf8(field.text)) FailNotUtf8(reader, field, column);
+    CheckKeptText(reader, field, column);
     code = static_cast<std::uint32_t>(tally.level_texts.size());
     tally.levels.emplace(std::string(field.text), LevelEntry{code, 1});
     tally.level_texts.emplace_back(field.text);

@@ -47,6 +47,12 @@ std::optional<std::size_t> FirstInvalidUtf8(std::string_view text) {
   return std::nullopt;
 }
 
+std::optional<std::size_t> FirstNulByte(std::string_view text) {
+  const std::size_t at = text.find('\0');
+  if (at == std::string_view::npos) return std::nullopt;
+  return at;
+}
+
 std::string DescribeInvalidUtf8(std::string_view text) {
   const std::optional<std::size_t> at = FirstInvalidUtf8(text);
   if (!at) return {};

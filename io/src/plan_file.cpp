@@ -52,7 +52,8 @@ class ObjectReader {
     if (!value.is_object()) {
       throw PlanError(path_, "expected an object, found " + Found(value));
     }
-    for (const auto& [key, item] : value.items()) {
+    for (const auto& entry : value.items()) {
+      const std::string& key = entry.key();  // a structured binding cannot be captured before C++20 in Clang 14
       const bool is_known = std::any_of(known.begin(), known.end(),
                                         [&](const char* name) { return key == name; });
       if (!is_known) {

@@ -105,6 +105,20 @@ TEST_F(CsvReaderTest, AHeaderNameThatIsNotUtf8IsRefusedAtItsPlace) {
   EXPECT_NO_THROW(ReadAll(utf8));
 }
 
+// A NUL byte is well-formed UTF-8 but never part of a name: a file saved as UTF-16 or a binary
+// file. Refused at its place (the name would otherwise go into JSON as "\u0000").
+TEST_F(CsvReaderTest, AHeaderNameHoldingANulByteIsRefusedAtItsPlace) {
+  const auto path = folder_.Write("nul.csv", std::string("price,a\0ge\n1,2\n", 15));
+  const std::string error = ErrorReadingAll(path);
+  EXPECT_EQ(error.rfind(path.string() + ":1:7: the name in header field 2 holds a NUL byte (0x00) at byte 2 of the name; ", 0),
+            0u)
+      << error;
+  EXPECT_NE(error.find("UTF-16"), std::string::npos) << error;
+  // Control: a NUL in a cell is the scan's to judge, not the reader's.
+  const auto cell = folder_.Write("cell.csv", std::string("price,age\n1,\0\n", 14));
+  EXPECT_NO_THROW(ReadAll(cell));
+}
+
 TEST_F(CsvReaderTest, WhereNamesFileLineAndColumn) {
   const auto path = folder_.Write("where.csv", "a,b\n1,22\n");
   CsvReader reader(path);

@@ -165,6 +165,22 @@ TEST(TableScanTest, TextThatIsNotUtf8IsRefusedAtItsCell) {
   EXPECT_NO_THROW(ScanData(utf8, ScanOptions{}));
 }
 
+// A level or a column's first text holding a NUL byte (a binary or UTF-16 file) is refused at
+// its cell, wherever the file is cut; it would otherwise be recorded as a level.
+TEST(TableScanTest, TextHoldingANulByteIsRefusedAtItsCell) {
+  TempDir dir;
+  const auto path = dir.Write("levels.csv", std::string("price,grade\n100,A\n90,B\0\n70,A\n", 29));
+  const std::string error = InputErrorOf([&] { ScanData(path, ScanOptions{}); });
+  EXPECT_EQ(error.rfind(path.string() + ":3:4: column 'grade' holds a NUL byte (0x00) at byte 2 of the cell; ", 0), 0u)
+      << error;
+  for (std::uint64_t cut = 13; cut < 29; ++cut) {
+    EXPECT_EQ(InputErrorOf([&] { ScanData(path, WithCuts({cut})); }), error) << "cut at byte " << cut;
+  }
+  const auto numeric = dir.Write("numeric.csv", std::string("price,age\n100,1\n90,\0\n", 21));
+  EXPECT_NE(InputErrorOf([&] { ScanData(numeric, ScanOptions{}); }).find(":3:4: column 'age' holds a NUL byte"),
+            std::string::npos);
+}
+
 TEST(TableScanTest, AWideFileIsSpilledInChunksOfBoundedBytes) {
   // 5,000 columns: 16 MiB / (5,000 x 12 bytes) = 279 rows per chunk instead of 4,096 (whose
   // buffers would be 245 MB per reading thread; at 100,000 columns 4.9 GB, the quick form's

@@ -17,6 +17,15 @@ namespace stepledger {
 /// U+10FFFF), or nullopt when the text is UTF-8.
 std::optional<std::size_t> FirstInvalidUtf8(std::string_view text);
 
+/// The byte offset of the first NUL byte (U+0000 is well-formed UTF-8, but no name or level
+/// holds one: a NUL in a data file means a file saved as UTF-16 or a binary file), or nullopt.
+std::optional<std::size_t> FirstNulByte(std::string_view text);
+
+/// What a message about a NUL byte adds after saying where it is.
+inline constexpr std::string_view kNulByteAdvice =
+    "; a data file is text, and a NUL byte comes from a file saved as UTF-16 or from a binary file: save it as "
+    "UTF-8 text";
+
 /// "byte 0xE9 at byte 4 of the text" for the first invalid byte, for messages; empty when valid.
 std::string DescribeInvalidUtf8(std::string_view text);
 
