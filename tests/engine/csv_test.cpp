@@ -68,6 +68,7 @@ std::vector<OwnedRecord> ReadAll(const std::filesystem::path& path, CsvOptions o
 }
 
 using testing::InputErrorOf;
+using testing::LimitErrorOf;
 
 std::string ErrorReadingAll(const std::filesystem::path& path, CsvOptions options = {}) {
   return InputErrorOf([&] { ReadAll(path, std::move(options)); });
@@ -380,18 +381,6 @@ TEST_F(CsvReaderTest, OptionsAreValidated) {
 }
 
 // ---- the columns limit (InputLimits::columns, CsvOptions::max_columns) ----
-
-// The LimitError a reader's constructor throws; fails the test when it throws none.
-template <typename Action>
-LimitError LimitErrorOf(Action&& action) {
-  try {
-    action();
-  } catch (const LimitError& error) {
-    return error;
-  }
-  ADD_FAILURE() << "expected a LimitError";
-  return LimitError(LimitKind::kColumns, 0, "none", "none");
-}
 
 TEST_F(CsvReaderTest, HeaderWiderThanTheColumnsLimitNamesWhereTheExtraFieldStarts) {
   CsvOptions options;

@@ -20,6 +20,7 @@
 #include "stepledger/engine/number_format.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/selection/search.h"
+#include "support/input_error.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -27,6 +28,7 @@ namespace {
 
 using nlohmann::json;
 using testing::TempDir;
+using testing::LimitErrorOf;
 
 // The contract's example plan (CONTRACT.md "Plan file (JSON)"), minus never (no postcode term).
 constexpr const char* kContractPlan = R"({
@@ -389,20 +391,6 @@ TEST(PlanFileTest, FileErrorsNameTheFile) {
 }
 
 // ---- limits (engine/limits.h) ----
-
-template <typename Action>
-LimitError LimitErrorOf(Action&& action) {
-  try {
-    action();
-  } catch (const LimitError& error) {
-    return error;
-  } catch (const std::exception& error) {
-    ADD_FAILURE() << "expected a LimitError, got: " << error.what();
-    return LimitError(LimitKind::kTerms, 0, "none", "none");
-  }
-  ADD_FAILURE() << "expected a LimitError";
-  return LimitError(LimitKind::kTerms, 0, "none", "none");
-}
 
 // A plan of `count` numeric terms named t0, t1, ...; `last` replaces the final term's text.
 std::string PlanOfTerms(std::size_t count, const std::string& last = "") {
