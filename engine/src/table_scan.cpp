@@ -104,8 +104,10 @@ std::size_t PreadSome(int fd, char* buffer, std::size_t capacity, std::uint64_t 
                   "from Latin-1)");
 }
 
-// A name or a level never holds a NUL byte; checked with UTF-8 validity, where text is kept.
-void CheckKeptText(const CsvReader& reader, const CsvField& field, std::size_t column) {
+// Every text cell is checked, kept or not: checking only the texts a tally keeps (its first text,
+// a new level below the levels limit) would make the outcome depend on where the file is cut, as
+// each range's tally keeps its own. A level never holds a NUL byte.
+void CheckText(const CsvReader& reader, const CsvField& field, std::size_t column) {
   if (FirstInvalidUtf8(field.text)) FailNotUtf8(reader, field, column);
   if (const auto nul = FirstNulByte(field.text)) {
     reader.Fail(field.line, field.column,
@@ -155,8 +157,8 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
       break;
     }
     case CellKind::kText:
+      CheckText(reader, field, column);
       if (!tally.first_text) {
-        CheckKeptText(reader, field, column);
         tally.first_text = CellLocation{field.line, field.column, std::string(field.text)};
       }
       bits = kSpillTextBits;
@@ -169,7 +171,6 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
     ++found->second.count;
     code = found->second.code;
   } else if (tally.levels.size() < max_levels) {
-    CheckKeptText(reader, field, column);
     code = static_cast<std::uint32_t>(tally.level_texts.size());
     tally.levels.emplace(std::string(field.text), LevelEntry{code, 1});
     tally.level_texts.emplace_back(field.text);

@@ -181,6 +181,23 @@ TEST(TableScanTest, TextHoldingANulByteIsRefusedAtItsCell) {
             std::string::npos);
 }
 
+// Every text cell is checked, not only the texts a tally keeps: past the levels limit one reader
+// kept no more texts while a range starting later kept its first, so the file was accepted
+// whole and refused when cut (found by fuzz/table_scan_fuzz.cpp).
+TEST(TableScanTest, TextPastTheLevelsLimitIsCheckedWhereverTheFileIsCut) {
+  TempDir dir;
+  const auto path = dir.Write("levels.csv", "price,grade\n1,A\n2,B\n3,C\n4,D\n5,\xFF\n");
+  ScanOptions options;
+  options.profile.max_levels = 2;
+  const std::string expected = InputErrorOf([&] { ScanData(path, options); });
+  EXPECT_NE(expected.find(":6:3: column 'grade' holds text that is not UTF-8"), std::string::npos) << expected;
+  for (std::uint64_t cut = 13; cut < 30; ++cut) {
+    ScanOptions cut_options = WithCuts({cut});
+    cut_options.profile.max_levels = 2;
+    EXPECT_EQ(InputErrorOf([&] { ScanData(path, cut_options); }), expected) << "cut at byte " << cut;
+  }
+}
+
 TEST(TableScanTest, AWideFileIsSpilledInChunksOfBoundedBytes) {
   // 5,000 columns: 16 MiB / (5,000 x 12 bytes) = 279 rows per chunk instead of 4,096 (whose
   // buffers would be 245 MB per reading thread; at 100,000 columns 4.9 GB, the quick form's
