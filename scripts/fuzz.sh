@@ -13,6 +13,8 @@
 #                    SANITIZE_WITH_FUZZ=1 scripts/sanitize.sh is reused as it is, tests and all
 #   FUZZ_JOBS        compile jobs (default: the cores)
 #   FUZZ_TIMEOUT     seconds one input may take before it counts as a hang (default 25)
+#   FUZZ_SEED        libFuzzer's random seed (default: a new one each run); CI fixes it, so a
+#                    finding there comes again with the same seed
 set -euo pipefail
 root="$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)"
 bash "$root/scripts/setup-debian.sh"
@@ -56,6 +58,7 @@ for target in "${targets[@]}"; do
   mkdir -p "$findings" "$corpus"
   rm -f "$findings"/crash-* "$findings"/leak-* "$findings"/timeout-* "$findings"/oom-* "$findings"/slow-unit-*
   options=(-timeout="$timeout" -rss_limit_mb=2048 -artifact_prefix="$findings/" -print_final_stats=1)
+  [[ -n "${FUZZ_SEED:-}" ]] && options+=(-seed="$FUZZ_SEED")
   dictionary="$root/fuzz/dictionaries/$target.dict"
   [[ -f "$dictionary" ]] && options+=(-dict="$dictionary")
 

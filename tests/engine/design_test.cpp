@@ -16,12 +16,14 @@
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/limits.h"
 #include "stepledger/engine/profile.h"
+#include "support/input_error.h"
 #include "support/test_paths.h"
 #include "support/term_specs.h"
 
 namespace stepledger {
 namespace {
 
+using testing::LimitErrorOf;
 using testing::TempDir;
 
 // grade: A 3 times, B twice, C once -> baseline A. colour: blue, red, green twice each -> tie,
@@ -547,20 +549,6 @@ TEST_F(DesignTest, PowerDegreeOutsideTwoToTwelveIsRefused) {
 
 // ---- limits (engine/limits.h) ----
 
-template <typename F>
-LimitError ExpectLimitError(F&& f) {
-  try {
-    f();
-  } catch (const LimitError& error) {
-    return error;
-  } catch (const std::exception& error) {
-    ADD_FAILURE() << "expected a LimitError, got: " << error.what();
-    return LimitError(LimitKind::kColumns, 0, "none", "none");
-  }
-  ADD_FAILURE() << "expected a LimitError";
-  return LimitError(LimitKind::kColumns, 0, "none", "none");
-}
-
 TEST_F(DesignTest, AllTermsAreCountedAgainstTheTermsLimitBeforeAnyIsBuilt) {
   // Usable columns besides the response: age, disk, grade, colour, units (note is an
   // identifier, blank is empty): 5.
@@ -569,7 +557,7 @@ TEST_F(DesignTest, AllTermsAreCountedAgainstTheTermsLimitBeforeAnyIsBuilt) {
   spec.all_terms = true;
   InputLimits limits;
   limits.terms = 4;
-  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile_, limits); });
+  const LimitError error = LimitErrorOf([&] { BuildDesign(spec, profile_, limits); });
   EXPECT_EQ(error.limit(), LimitKind::kTerms);
   EXPECT_EQ(std::string(error.what()),
             "plan key 'terms': \"all\" makes 5 terms (the usable columns of '" + path_.string() +
@@ -582,7 +570,7 @@ TEST_F(DesignTest, ListedTermsAreCountedAgainstTheTermsLimit) {
   DesignSpec spec = FullSpec();  // 9 terms
   InputLimits limits;
   limits.terms = 8;
-  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile_, limits); });
+  const LimitError error = LimitErrorOf([&] { BuildDesign(spec, profile_, limits); });
   EXPECT_EQ(std::string(error.what()), "plan key 'terms': the plan lists 9 terms; the terms limit is 8");
 }
 
@@ -594,7 +582,7 @@ TEST_F(DesignTest, DesignColumnsLimitNamesTheTermThatCrossesItAndTheLargest) {
                       Product("grade:colour", "grade", "colour")});
   InputLimits limits;
   limits.design_columns = 8;
-  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile_, limits); });
+  const LimitError error = LimitErrorOf([&] { BuildDesign(spec, profile_, limits); });
   EXPECT_EQ(error.limit(), LimitKind::kDesignColumns);
   EXPECT_EQ(std::string(error.what()),
             "plan key 'terms[2]': term 'grade:colour' makes 4 design columns, which brings the design to 9 "
@@ -621,7 +609,7 @@ TEST(DesignLimitsTest, CategoricalProductOf150By150LevelsIsRefusedBeforeItsColum
   spec.terms = Keyed({Categorical("dealer", "dealer"), Categorical("model", "model"),
                       Product("dealer:model", "dealer", "model")});
   const auto started = std::chrono::steady_clock::now();
-  const LimitError error = ExpectLimitError([&] { BuildDesign(spec, profile); });
+  const LimitError error = LimitErrorOf([&] { BuildDesign(spec, profile); });
   EXPECT_LT(std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count(), 1.0);
   EXPECT_NE(std::string(error.what()).find("plan key 'terms[2]': term 'dealer:model' makes 22,201 design columns, "
                                            "which brings the design to 22,500"),
