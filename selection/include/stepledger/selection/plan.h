@@ -9,6 +9,7 @@
 #include <vector>
 
 #include "stepledger/engine/design.h"
+#include "stepledger/engine/resampling.h"
 
 namespace stepledger {
 
@@ -42,10 +43,17 @@ struct SearchOptions {
   std::optional<std::size_t> max_terms;
   /// all-subsets: models kept per size (>= 1). Default 3.
   std::size_t best_per_size = 3;
-  /// cv: folds (>= 2). Default 10.
+  /// Cross-validation folds (2..100; engine/resampling.h): the k-fold error of the final model
+  /// of every criterion, and the score of criterion cv. Default 10.
   int folds = 10;
-  /// Seed of every random choice (fold assignment, bootstrap). Recorded in the audit.
-  std::uint64_t seed = 20261201;
+  /// Seed of the fold assignment (engine/resampling.h). Any unsigned 64-bit integer. Default 1.
+  std::uint64_t seed = 1;
+  /// Rows held out of every selection statistic and used to judge the final model (the plan's
+  /// "holdout" object); none by default.
+  std::optional<HoldoutSettings> holdout;
+  /// Poisson bootstrap replicates of the whole selection (the plan's "bootstrap" object); none
+  /// by default.
+  std::optional<BootstrapSettings> bootstrap;
   bool operator==(const SearchOptions&) const = default;
 };
 
