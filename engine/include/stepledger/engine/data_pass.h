@@ -42,6 +42,9 @@ struct RowDrop {
 struct RowAccounting {
   std::uint64_t rows_read = 0;
   std::uint64_t rows_used = 0;
+  /// Rows the plan's holdout set aside (engine/resampling.h): usable rows that enter no selection
+  /// statistic. rows_read = rows_used + rows_held_out + dropped.
+  std::uint64_t rows_held_out = 0;
   /// One entry per (reason, column) that dropped a row, ordered by reason (DropReason order),
   /// then column (byte-wise), so that any pass over the same rows gives the same list.
   std::vector<RowDrop> rows_dropped;

@@ -20,6 +20,7 @@
 #include "stepledger/engine/model_support.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/io/plan_file.h"
+#include "stepledger/run/validation.h"
 #include "stepledger/selection/search.h"
 
 namespace stepledger {
@@ -72,6 +73,8 @@ struct RunResult {
   PredictionSupport prediction_support;
   /// The diagnostics of the final model (a bounded summary), when the diagnostics pass ran.
   std::optional<DiagnosticsResult> diagnostics;
+  /// The final model's k-fold error, and the holdout and bootstrap results the plan asks for.
+  ValidationResult validation;
   RunOptions options;
   double duration_seconds = 0;      ///< wall time of the run
 };
