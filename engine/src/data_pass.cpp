@@ -29,13 +29,22 @@ void ValidatePassOptions(const PassOptions& options) {
   if (options.block_rows < 1) throw InputError("block_rows: expected an integer >= 1, found 0");
 }
 
-void Count(RowAccounting& accounting, const RowOutcome& outcome) {
+// Counts a row and says whether it belongs to the set the caller wants (used rows: the model's
+// rows or the held-out ones).
+bool CountAndSelect(RowAccounting& accounting, const RowOutcome& outcome, std::uint64_t record,
+                    const std::optional<HoldoutSettings>& holdout, RowSet set) {
   ++accounting.rows_read;
-  if (outcome.used) {
-    ++accounting.rows_used;
-  } else {
+  if (!outcome.used) {
     accounting.CountDropped(outcome.reason, outcome.column);
+    return false;
   }
+  const bool held_out = holdout && IsHeldOut(*holdout, record);
+  if (held_out) {
+    ++accounting.rows_held_out;
+  } else {
+    ++accounting.rows_used;
+  }
+  return held_out == (set == RowSet::kHeldOutRows);
 }
 
 // The level offsets of every categorical cell of the design for every range of the spill:
@@ -184,6 +193,7 @@ void ForEachRow(const Spill& spill, const Design& design, const LevelTables& tab
 void RowAccounting::Add(const RowAccounting& other) {
   rows_read += other.rows_read;
   rows_used += other.rows_used;
+  rows_held_out += other.rows_held_out;
   for (const RowDrop& entry : other.rows_dropped) CountDropped(entry.reason, entry.column, entry.rows);
 }
 
@@ -204,8 +214,20 @@ std::uint64_t RowAccounting::RowsDroppedTotal() const {
   return total;
 }
 
+std::uint64_t FoldFactorBytes(std::size_t design_columns, std::size_t folds, int threads, std::size_t block_rows) {
+  const std::uint64_t width = design_columns + 1;
+  const std::uint64_t triangle = width * width * sizeof(double);
+  const std::uint64_t builder = triangle + static_cast<std::uint64_t>(block_rows) * width * sizeof(double);
+  // Every thread's builders, then the finished fold factors and the training triangles.
+  return folds * (static_cast<std::uint64_t>(std::max(threads, 1)) * builder + 2 * triangle);
+}
+
 PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOptions& options) {
   ValidatePassOptions(options);
+  if (options.folds && (options.folds->k < kMinFolds || options.folds->k > kMaxFolds)) {
+    throw InputError("folds: expected an integer from " + std::to_string(kMinFolds) + " to " +
+                     std::to_string(kMaxFolds) + ", found " + std::to_string(options.folds->k));
+  }
   lapack::UseOneBlasThread();
   design.CheckHeader(spill.source().header, spill.source().display_name);
   const LevelTables tables = MakeLevelTables(spill, design);
@@ -213,18 +235,25 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
   const std::size_t workers =
       static_cast<std::size_t>(std::max<std::uint64_t>(1, std::min<std::uint64_t>(options.threads, chunks)));
   const std::vector<double> scales = design.scales();
-  std::vector<FactorBuilder> builders;
-  builders.reserve(workers);
-  for (std::size_t t = 0; t < workers; ++t) builders.emplace_back(scales, options.block_rows);
+  // builders[t][f]: thread t's factor of fold f (one factor per thread without folds).
+  const std::size_t per_thread = options.folds ? options.folds->k : 1;
+  std::vector<std::vector<FactorBuilder>> builders(workers);
+  for (auto& thread_builders : builders) {
+    thread_builders.reserve(per_thread);
+    for (std::size_t f = 0; f < per_thread; ++f) thread_builders.emplace_back(scales, options.block_rows);
+  }
   std::vector<RowAccounting> accounting(workers);
   std::vector<std::exception_ptr> errors(workers);
   auto fold_share = [&](std::size_t t) {
     try {
       ForEachRow(spill, design, tables, chunks * t / workers, chunks * (t + 1) / workers, false,
-                 [&](const SpillCells&, const RowOutcome& outcome, std::span<const double> x, double y, double w,
-                     std::span<const double>) {
-                   Count(accounting[t], outcome);
-                   if (outcome.used) builders[t].AddRow(x, y, w);
+                 [&](const SpillCells& cells, const RowOutcome& outcome, std::span<const double> x, double y,
+                     double w, std::span<const double>) {
+                   const std::uint64_t record = cells.RowIndex();
+                   if (!CountAndSelect(accounting[t], outcome, record, options.holdout, RowSet::kModelRows)) return;
+                   const std::size_t fold =
+                       options.folds ? FoldOfRecord(options.folds->seed, record, options.folds->k) : 0;
+                   builders[t][fold].AddRow(x, y, w);
                  });
     } catch (...) {
       errors[t] = std::current_exception();
@@ -253,8 +282,16 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
   }
   PassResult result;
   for (std::size_t t = 0; t < workers; ++t) result.accounting.Add(accounting[t]);
-  for (std::size_t t = 1; t < workers; ++t) builders[0].Merge(std::move(builders[t]));
-  result.factor = builders[0].Finish();
+  std::vector<Factor> factors;
+  factors.reserve(per_thread);
+  for (std::size_t f = 0; f < per_thread; ++f) {
+    for (std::size_t t = 1; t < workers; ++t) builders[0][f].Merge(std::move(builders[t][f]));
+    factors.push_back(builders[0][f].Finish());
+  }
+  // The factor of all the rows: the folds merged in fold order (each row was folded once).
+  result.factor = factors[0];
+  for (std::size_t f = 1; f < factors.size(); ++f) result.factor = MergeFactors(result.factor, factors[f]);
+  if (options.folds) result.fold_factors = std::move(factors);
   return result;
 }
 
@@ -275,6 +312,10 @@ void RequireSomethingToFit(const PassResult& pass, const Design& design, const s
   if (rows.rows_used == 0) {
     if (rows.rows_read == 0) {
       throw InputError(data_name + ": the file has no data rows (a header alone): nothing to fit");
+    }
+    if (rows.rows_held_out > 0) {
+      throw InputError(data_name + ": no row is left to fit: all " + Rows(rows.rows_held_out) +
+                       " that could be used were drawn into the holdout; lower holdout.fraction or use more rows");
     }
     std::string reasons;
     for (const RowDrop& drop : rows.rows_dropped) {
@@ -337,15 +378,18 @@ PassResult RunFactorPass(const std::filesystem::path& path, const Design& design
   return RunFactorPass(*scan.spill, design, options);
 }
 
-void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit) {
+void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
+                    const std::optional<HoldoutSettings>& holdout, RowSet set) {
   design.CheckHeader(spill.source().header, spill.source().display_name);
   const LevelTables tables = MakeLevelTables(spill, design);
   UsedRow row;
+  RowAccounting accounting;
   ForEachRow(spill, design, tables, 0, spill.chunk_count(), true,
              [&](const SpillCells& cells, const RowOutcome& outcome, std::span<const double> x, double y, double w,
                  std::span<const double> x_low) {
-               if (!outcome.used) return;
-               row.row_index = cells.RowIndex();
+               const std::uint64_t record = cells.RowIndex();
+               if (!CountAndSelect(accounting, outcome, record, holdout, set)) return;
+               row.row_index = record;
                row.line = cells.Line();
                row.x = x;
                row.x_low = x_low;
@@ -355,10 +399,37 @@ void ForEachUsedRow(const Spill& spill, const Design& design, const std::functio
              });
 }
 
-RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design) {
-  return [spill = std::move(spill), design](const std::function<void(const UsedRow&)>& visit) {
-    ForEachUsedRow(*spill, design, visit);
+RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design,
+                         std::optional<HoldoutSettings> holdout, RowSet set) {
+  return [spill = std::move(spill), design, holdout, set](const std::function<void(const UsedRow&)>& visit) {
+    ForEachUsedRow(*spill, design, visit, holdout, set);
   };
+}
+
+std::vector<Factor> BuildFoldFactors(const Spill& spill, const Design& design, std::span<const std::size_t> columns,
+                                     const FoldSettings& folds, const std::optional<HoldoutSettings>& holdout,
+                                     std::size_t block_rows) {
+  lapack::UseOneBlasThread();
+  const std::vector<double> design_scales = design.scales();
+  std::vector<double> scales;
+  scales.reserve(columns.size() + 1);
+  for (std::size_t column : columns) scales.push_back(design_scales.at(column));
+  scales.push_back(design_scales.back());
+  std::vector<FactorBuilder> builders;
+  builders.reserve(folds.k);
+  for (std::size_t f = 0; f < folds.k; ++f) builders.emplace_back(scales, block_rows);
+  std::vector<double> x(columns.size());
+  ForEachUsedRow(
+      spill, design,
+      [&](const UsedRow& row) {
+        for (std::size_t j = 0; j < columns.size(); ++j) x[j] = row.x[columns[j]];
+        builders[FoldOfRecord(folds.seed, row.row_index, folds.k)].AddRow(x, row.y, row.weight);
+      },
+      holdout, RowSet::kModelRows);
+  std::vector<Factor> factors;
+  factors.reserve(folds.k);
+  for (FactorBuilder& builder : builders) factors.push_back(builder.Finish());
+  return factors;
 }
 
 void ForEachUsedRow(const std::filesystem::path& path, const Design& design, const CsvOptions& csv,

@@ -9,6 +9,7 @@
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
 #include "stepledger/engine/table_scan.h"
+#include "validation_run.h"
 
 namespace stepledger {
 
@@ -64,19 +65,39 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   // Before the factor pass, so that a plan error costs no pass over the rows.
   ValidateSearchOptions(plan.plan.search, run.design);
 
+  const SearchOptions& search = plan.plan.search;
+  const FoldSettings folds{static_cast<std::size_t>(search.folds), search.seed};
   PassOptions pass_options;
   pass_options.threads = options.threads;
+  pass_options.holdout = search.holdout;
+  // The fold factors of every design column come from the factor pass at no extra pass when they
+  // fit in kFoldFactorBudget; a wider design gets the folds of its final model's columns from one
+  // more replay, and criterion cv (which needs every column's folds) is refused.
+  const bool folds_in_pass = FoldFactorBytes(run.design.column_count(), folds.k, options.threads,
+                                             pass_options.block_rows) <= kFoldFactorBudget;
+  if (folds_in_pass) {
+    pass_options.folds = folds;
+  } else if (search.criterion == Criterion::kCv) {
+    throw PlanError("folds", "criterion cv with " + std::to_string(folds.k) + " folds over " +
+                                 std::to_string(run.design.column_count()) +
+                                 " design columns needs more than " + std::to_string(kFoldFactorBudget >> 20) +
+                                 " MB of fold factors; use fewer folds, fewer terms or --threads 1, or another criterion");
+  }
   PassResult pass = RunFactorPass(*scan.spill, run.design, pass_options);
   RequireSomethingToFit(pass, run.design, data.string());
   run.accounting = pass.accounting;
+  std::optional<CrossValidation> cross_validation;
+  if (folds_in_pass) cross_validation.emplace(std::move(pass.fold_factors), options.fit.kernel);
 
   SearchRunOptions search_run;
   search_run.kernel = options.fit.kernel;
-  run.search = RunSearch(pass.factor, run.design, plan.plan.search, observer, search_run);
+  search_run.cross_validation = cross_validation ? &*cross_validation : nullptr;
+  run.search = RunSearch(pass.factor, run.design, search, observer, search_run);
 
   FitOptions fit_options = options.fit;
   fit_options.cp_sigma2 = run.search.cp_sigma2;
-  const RowReplay replay = SpillRowReplay(scan.spill, run.design);
+  // Refinement and diagnostics replay the model's rows: the held-out rows stay out of both.
+  const RowReplay replay = SpillRowReplay(scan.spill, run.design, search.holdout);
   run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
   if (options.diagnostics && run.fit.n > 0) {
     run.diagnostics = DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
@@ -84,6 +105,13 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
       run.max_leverage = run.diagnostics->max_leverage;
       run.max_leverage_line = run.diagnostics->max_leverage_line;
     }
+  }
+  run.validation.folds =
+      run_detail::FinalModelFolds(cross_validation ? &*cross_validation : nullptr, *scan.spill, run.design, run.fit,
+                                  folds, search.holdout, options.fit.kernel);
+  if (search.holdout && run.fit.n > 0) {
+    run.validation.holdout =
+        run_detail::EvaluateHoldout(*scan.spill, run.design, run.fit, run.prediction_support, *search.holdout);
   }
   run.duration_seconds =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();

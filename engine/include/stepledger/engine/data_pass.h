@@ -7,6 +7,7 @@
 #include <filesystem>
 #include <functional>
 #include <memory>
+#include <optional>
 #include <span>
 #include <string>
 #include <string_view>
@@ -15,6 +16,7 @@
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/factor.h"
+#include "stepledger/engine/resampling.h"
 #include "stepledger/engine/spill.h"
 
 namespace stepledger {
@@ -28,7 +30,21 @@ struct PassOptions {
   int threads = 1;
   /// Rows per fold block.
   std::size_t block_rows = 256;
+  /// Cross-validation folds (engine/resampling.h): when set, every used row is folded into the
+  /// factor of its fold, and the pass's factor is the merge of the fold factors in fold order
+  /// (one fold of each row: the folds cost no more rows than the plain factor). Unset: one factor.
+  std::optional<FoldSettings> folds;
+  /// Rows held out (engine/resampling.h): a usable row drawn into the holdout enters no factor
+  /// and is counted in RowAccounting::rows_held_out.
+  std::optional<HoldoutSettings> holdout;
 };
+
+/// The memory the fold factors of a pass would take (bytes): the fold triangles and blocks of
+/// every thread, and the training triangles of the cross-validation. RunPlan compares it with
+/// kFoldFactorBudget.
+std::uint64_t FoldFactorBytes(std::size_t design_columns, std::size_t folds, int threads, std::size_t block_rows);
+/// Above this, the fold factors of every design column are not built in the factor pass.
+inline constexpr std::uint64_t kFoldFactorBudget = std::uint64_t{1} << 30;
 
 /// Rows dropped for one reason in one column (the audit's `data.rows_dropped` entries).
 struct RowDrop {
@@ -59,6 +75,8 @@ struct RowAccounting {
 
 struct PassResult {
   Factor factor;
+  /// One factor per fold (fold order) when PassOptions::folds is set; empty otherwise.
+  std::vector<Factor> fold_factors;
   RowAccounting accounting;
 };
 
@@ -100,15 +118,31 @@ struct UsedRow {
   double weight = 1;
 };
 
-/// Calls visit for every used row of the spill, in file order.
-void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit);
+/// Which used rows a replay visits.
+enum class RowSet {
+  kModelRows,    ///< the rows the factor holds (used and not held out)
+  kHeldOutRows,  ///< the rows the holdout set aside (usable, held out)
+};
+
+/// Calls visit for every used row of the spill, in file order: the model's rows, or the held-out
+/// ones (none without a holdout).
+void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
+                    const std::optional<HoldoutSettings>& holdout = std::nullopt, RowSet set = RowSet::kModelRows);
 
 /// Something that can replay the used rows of the data a factor was built from.
 /// (A spill, or rows kept in memory by tests.)
 using RowReplay = std::function<void(const std::function<void(const UsedRow&)>&)>;
 
-/// A RowReplay over a spill (kept alive by the replay).
-RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design);
+/// A RowReplay over a spill (kept alive by the replay): the rows of ForEachUsedRow.
+RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design,
+                         std::optional<HoldoutSettings> holdout = std::nullopt, RowSet set = RowSet::kModelRows);
+
+/// The fold factors of a subset of the design's columns, built by replaying the model's rows
+/// (for a final model whose design is too wide for fold factors of every column in the factor
+/// pass, kFoldFactorBudget). Factor columns: `columns` in the given order, then the response.
+std::vector<Factor> BuildFoldFactors(const Spill& spill, const Design& design, std::span<const std::size_t> columns,
+                                     const FoldSettings& folds, const std::optional<HoldoutSettings>& holdout,
+                                     std::size_t block_rows = 256);
 
 /// The same from a file (one scan into a spill removed afterwards; for tests and small tools).
 void ForEachUsedRow(const std::filesystem::path& path, const Design& design, const CsvOptions& csv,

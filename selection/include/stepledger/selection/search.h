@@ -31,6 +31,7 @@
 
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/factor.h"
+#include "stepledger/engine/cross_validation.h"
 #include "stepledger/engine/kernel.h"
 #include "stepledger/selection/observer.h"
 #include "stepledger/selection/plan.h"
@@ -72,6 +73,9 @@ struct SearchRunOptions {
   /// Lets stepwise partial-f run with entry_p > exit_p, which ValidateSearchOptions refuses,
   /// so that tests can exercise the cycle guard. Never set by the command line.
   bool allow_cycling_thresholds = false;
+  /// The fold factors' cross-validation (engine/cross_validation.h) that criterion cv scores
+  /// with; required by cv, unused by the other criteria. Not owned.
+  const CrossValidation* cross_validation = nullptr;
 };
 
 /// The one validation of a plan's search settings, wherever the plan comes from (a plan file,
