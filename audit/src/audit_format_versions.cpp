@@ -11,6 +11,8 @@
 #include <vector>
 
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/io/json_reader.h"
+#include "stepledger/selection/plan.h"
 
 namespace stepledger {
 namespace {
@@ -248,6 +250,44 @@ json FromVersion1(const json& document) {
   return current;
 }
 
+// ---- format_version 2 -> 3 --------------------------------------------------------------
+
+// The seed default of format_versions 1 and 2, recorded in plan.normalised where the plan file
+// left the seed out.
+constexpr std::int64_t kVersion2DefaultSeed = 20261201;
+
+// Whether the plan file's text (plan.verbatim) sets "seed" at its top level. Text that is not a
+// JSON object says no: the upgrade then leaves the seed, and verify reports the verbatim plan.
+bool VerbatimPlanSetsSeed(const json& plan) {
+  const json* verbatim = Member(plan, "verbatim");
+  if (verbatim == nullptr || !verbatim->is_string()) return true;
+  try {
+    const json parsed = ParseStrictJson(verbatim->get_ref<const std::string&>(), "plan.verbatim");
+    return !parsed.is_object() || parsed.contains("seed");
+  } catch (const JsonReadError&) {
+    return true;
+  }
+}
+
+json FromVersion2(const json& document) {
+  json current = document;
+  if (current.contains("plan") && current["plan"].is_object() && current["plan"].contains("normalised") &&
+      current["plan"]["normalised"].is_object()) {
+    json& normalised = current["plan"]["normalised"];
+    // Only the old default is replaced, and only where the plan file did not choose it: an
+    // edited seed stays edited, and verify still compares it with plan.verbatim.
+    const json* seed = Member(normalised, "seed");
+    if (seed != nullptr && seed->is_number_integer() && seed->get<std::int64_t>() == kVersion2DefaultSeed &&
+        !VerbatimPlanSetsSeed(current["plan"])) {
+      normalised["seed"] = SearchOptions{}.seed;
+    }
+    if (!normalised.contains("holdout")) normalised["holdout"] = nullptr;
+    if (!normalised.contains("bootstrap")) normalised["bootstrap"] = nullptr;
+  }
+  current["format_version"] = 3;
+  return current;
+}
+
 }  // namespace
 
 json AuditInCurrentShape(const json& document) {
@@ -259,6 +299,7 @@ json AuditInCurrentShape(const json& document) {
   // One step per version, oldest first, so that each step is written against the shape of the
   // version it reads.
   if (current["format_version"] == 1) current = FromVersion1(current);
+  if (current["format_version"] == 2) current = FromVersion2(current);
   current["read_from_format_version"] = read_from;
   return current;
 }

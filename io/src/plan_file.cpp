@@ -9,6 +9,7 @@
 #include <map>
 #include <set>
 #include <sstream>
+#include <type_traits>
 #include <utility>
 #include <vector>
 
@@ -112,6 +113,69 @@ double ReadProbability(const json& value, const std::string& path) {
     throw PlanError(path, "expected a number in (0, 1), found " + Found(value));
   }
   return number;
+}
+
+// An unsigned 64-bit integer (a seed): every JSON integer from 0 to 2^64 - 1, read exactly (the
+// JSON reader keeps integers up to 2^64 - 1 as integers; 2^64 and beyond arrive as doubles).
+std::uint64_t ReadSeed(const json& value, const std::string& path) {
+  if (!value.is_number_unsigned() && !(value.is_number_integer() && value.get<std::int64_t>() >= 0)) {
+    throw PlanError(path, "expected an integer from 0 to 18446744073709551615 (2^64 - 1), found " + Found(value));
+  }
+  return value.get<std::uint64_t>();
+}
+
+// A JSON integer for a setting of type Field whose rule, [minimum, maximum], ValidateSearchSettings
+// checks (the one place of the search's rules). The reader checks the type only, and refuses here
+// what Field cannot hold, with the rule's own range so that the message is the same for 101 and
+// for 2^31.
+template <typename Field>
+Field ReadIntegerInto(const json& value, const std::string& path, std::size_t minimum, std::size_t maximum) {
+  const auto refuse = [&] {
+    return PlanError(path, "expected an integer from " + std::to_string(minimum) + " to " +
+                               std::to_string(maximum) + ", found " + Found(value));
+  };
+  if (!value.is_number_integer()) throw refuse();
+  if (value.is_number_unsigned()) {
+    const std::uint64_t number = value.get<std::uint64_t>();
+    if (number > static_cast<std::uint64_t>(std::numeric_limits<Field>::max())) throw refuse();
+    return static_cast<Field>(number);
+  }
+  const std::int64_t number = value.get<std::int64_t>();
+  if constexpr (std::is_signed_v<Field>) {
+    if (number < std::numeric_limits<Field>::min() || number > std::numeric_limits<Field>::max()) throw refuse();
+  } else {
+    if (number < 0) throw refuse();
+  }
+  return static_cast<Field>(number);
+}
+
+// A JSON number for a setting whose range ValidateSearchSettings checks.
+double ReadNumber(const json& value, const std::string& path, std::string_view rule) {
+  if (!value.is_number()) throw PlanError(path, "expected " + std::string(rule) + ", found " + Found(value));
+  return value.get<double>();
+}
+
+// "holdout": {"fraction", "seed"}; a key left out takes HoldoutSettings' default.
+HoldoutSettings ReadHoldout(const json& value, const std::string& path) {
+  ObjectReader object(value, path, {"fraction", "seed"});
+  HoldoutSettings holdout;
+  if (const json* fraction = object.Get("fraction")) {
+    holdout.fraction = ReadNumber(*fraction, object.Path("fraction"), "a number strictly between 0 and 1");
+  }
+  if (const json* seed = object.Get("seed")) holdout.seed = ReadSeed(*seed, object.Path("seed"));
+  return holdout;
+}
+
+// "bootstrap": {"replicates", "seed"}; a key left out takes BootstrapSettings' default.
+BootstrapSettings ReadBootstrap(const json& value, const std::string& path) {
+  ObjectReader object(value, path, {"replicates", "seed"});
+  BootstrapSettings bootstrap;
+  if (const json* replicates = object.Get("replicates")) {
+    bootstrap.replicates =
+        ReadIntegerInto<std::size_t>(*replicates, object.Path("replicates"), 1, kMaxReplicates);
+  }
+  if (const json* seed = object.Get("seed")) bootstrap.seed = ReadSeed(*seed, object.Path("seed"));
+  return bootstrap;
 }
 
 std::vector<std::string> ReadStrings(const json& value, const std::string& path, bool allow_empty) {
@@ -242,7 +306,8 @@ ObjectReader ReadPlanRoot(const json& value) {
   return ObjectReader(value, "",
                       {"response", "response_transform", "intercept", "weights", "terms", "keep",
                        "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
-                       "max_terms", "best_per_size", "folds", "seed", "missing", "max_levels"});
+                       "max_terms", "best_per_size", "folds", "seed", "holdout", "bootstrap", "missing",
+                       "max_levels"});
 }
 
 // The design's response side: response column, its transform, intercept and weights.
@@ -351,9 +416,15 @@ void ReadSearchSettings(const ObjectReader& root, SearchOptions& search) {
     search.best_per_size = static_cast<std::size_t>(ReadInteger(*best, "best_per_size", 1));
   }
   if (const json* folds = root.Get("folds")) {
-    search.folds = static_cast<int>(ReadInteger(*folds, "folds", 2, std::numeric_limits<int>::max()));
+    search.folds = ReadIntegerInto<int>(*folds, "folds", kMinFolds, kMaxFolds);
   }
-  if (const json* seed = root.Get("seed")) search.seed = ReadInteger(*seed, "seed", 0);
+  if (const json* seed = root.Get("seed")) search.seed = ReadSeed(*seed, "seed");
+  if (const json* holdout = root.Get("holdout"); holdout != nullptr && !holdout->is_null()) {
+    search.holdout = ReadHoldout(*holdout, "holdout");
+  }
+  if (const json* bootstrap = root.Get("bootstrap"); bootstrap != nullptr && !bootstrap->is_null()) {
+    search.bootstrap = ReadBootstrap(*bootstrap, "bootstrap");
+  }
 }
 
 // The tokens a data cell may hold to mean "missing"; "" is a token like any other.
@@ -477,6 +548,11 @@ json PlanToJson(const Plan& plan, const Design* design) {
   out["best_per_size"] = search.best_per_size;
   out["folds"] = search.folds;
   out["seed"] = search.seed;
+  out["holdout"] = search.holdout ? json{{"fraction", search.holdout->fraction}, {"seed", search.holdout->seed}}
+                                  : json(nullptr);
+  out["bootstrap"] = search.bootstrap
+                         ? json{{"replicates", search.bootstrap->replicates}, {"seed", search.bootstrap->seed}}
+                         : json(nullptr);
   out["missing"] = plan.missing_tokens;
   out["max_levels"] = spec.max_levels;
   return out;

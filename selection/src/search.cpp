@@ -37,8 +37,20 @@ void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thr
                                    "forever; make entry_p <= exit_p");
   }
   if (options.best_per_size < 1) throw PlanError("best_per_size", "best_per_size must be at least 1");
-  if (options.folds < 2) {
-    throw PlanError("folds", "folds must be at least 2; got " + std::to_string(options.folds));
+  // The resampling settings' ranges (engine/resampling.h). The plan reader checks their types
+  // only, and words its messages as these ("expected ..., found ..."), so a plan file and the
+  // command line say the same.
+  if (options.folds < static_cast<int>(kMinFolds) || options.folds > static_cast<int>(kMaxFolds)) {
+    throw PlanError("folds", "expected an integer from " + std::to_string(kMinFolds) + " to " +
+                                 std::to_string(kMaxFolds) + ", found " + std::to_string(options.folds));
+  }
+  if (options.holdout && !(options.holdout->fraction > 0 && options.holdout->fraction < 1)) {
+    throw PlanError("holdout.fraction",
+                    "expected a number strictly between 0 and 1, found " + Threshold(options.holdout->fraction));
+  }
+  if (options.bootstrap && (options.bootstrap->replicates < 1 || options.bootstrap->replicates > kMaxReplicates)) {
+    throw PlanError("bootstrap.replicates", "expected an integer from 1 to " + std::to_string(kMaxReplicates) +
+                                                ", found " + std::to_string(options.bootstrap->replicates));
   }
   std::set<std::string> kept;
   for (std::size_t position = 0; position < options.keep.size(); ++position) {

@@ -56,7 +56,7 @@ TEST(AuditDocument, HoldsTheContractKeysAndTheRoute) {
     EXPECT_TRUE(document.contains(key)) << key;
   }
   EXPECT_EQ(document["format"], "stepledger-audit");
-  EXPECT_EQ(document["format_version"], 2);
+  EXPECT_EQ(document["format_version"], 3);
   EXPECT_FALSE(document.contains("validation")) << "no validation was run: the key is omitted";
   EXPECT_FALSE(document.contains("subsets")) << "stepwise has no subsets table";
   EXPECT_FALSE(document.contains("signature"));
@@ -298,7 +298,7 @@ TEST(AuditReading, NamesTheProblemOfAnUnreadableAudit) {
     ReadAuditFile(older);
     FAIL();
   } catch (const InputError& error) {
-    EXPECT_NE(std::string(error.what()).find("'format_version': 0 is not a version this tool reads (1 to 2)"),
+    EXPECT_NE(std::string(error.what()).find("'format_version': 0 is not a version this tool reads (1 to 3)"),
               std::string::npos) << error.what();
   }
   // 2^64 - 1 is newer than any version, not -1 (the unsigned value is compared as it is).
@@ -307,7 +307,7 @@ TEST(AuditReading, NamesTheProblemOfAnUnreadableAudit) {
     ReadAuditFile(huge);
     FAIL();
   } catch (const InputError& error) {
-    EXPECT_NE(std::string(error.what()).find("'format_version': 18446744073709551615 is newer than this tool reads (2)"),
+    EXPECT_NE(std::string(error.what()).find("'format_version': 18446744073709551615 is newer than this tool reads (3)"),
               std::string::npos) << error.what();
   }
   EXPECT_THROW(ReadAuditFile(dir.path() / "absent.json"), InputError);

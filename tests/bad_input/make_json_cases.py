@@ -327,7 +327,7 @@ def main():
         args = ["report", "audit.json"] if command == "report" else ["predict", "audit.json", "rows.csv"]
         audit_cases["resealed_format_version_2_64_" + command] = audit_case(
             "format_version 2^64 - 1, re-sealed: not read as -1 by " + command, "11.8 integers range-checked", args, 2,
-            ["key 'format_version': 18446744073709551615 is newer than this tool reads (2)"], version,
+            ["key 'format_version': 18446744073709551615 is newer than this tool reads (3)"], version,
             {"rows.csv": TO_PRICE} if command == "predict" else None)
 
     threads = copy_of(base)
@@ -549,7 +549,7 @@ def main():
             dict(PLAN, terms=[{"name": "age2", "power": {"column": "age_months", "degree": "2"}}]),
             ["plan key 'terms[0].power.degree': expected an integer >= 2, found \"2\""]),
         "wrong_type_seed_float": plan_case("the seed written as 3.0", "11 plans with wrong types", with_key("seed", 3.0),
-                                           ["plan key 'seed': expected an integer >= 0, found 3.0"]),
+                                           ["plan key 'seed': expected an integer from 0 to 18446744073709551615 (2^64 - 1), found 3.0"]),
         "unknown_key_top": plan_case("an unknown top-level key", "11 plans with unknown keys", with_key("colour", "red"),
                                      ["plan key 'colour': unknown key"]),
         "unknown_key_in_term": plan_case(
@@ -565,7 +565,7 @@ def main():
                                                json.dumps(PLAN)[:-1] + ', "entry_p": 1e-400}',
                                                ["plan key 'entry_p': expected a number in (0, 1), found 0.0"]),
         "extreme_folds_2_31": plan_case("folds 2^31", "11 plans with extreme numbers", with_key("folds", 2 ** 31),
-                                        ["plan key 'folds': expected an integer from 2 to 2147483647, found 2147483648"]),
+                                        ["plan key 'folds': expected an integer from 2 to 100, found 2147483648"]),
         "deep_nesting_in_terms": plan_case(
             "a term nested 70 deep inside terms", "11.4 deep nesting",
             '{"response": "price",\n "terms": [' + "[" * 70 + "]" * 70 + "]}",
@@ -575,6 +575,53 @@ def main():
             '{"response": "price", "terms": [{"name": "age", "column": "age_months", "name": "years"}]}',
             ["plan key 'terms[0].name': duplicate key", "(plan.json:1:73)"]),
     }
+    # The validation keys (issue 12): every bad value exits 2 naming the key. The accepted edges
+    # (2^64 - 1 as a seed, 2 and 100 folds) are unit tests (tests/io/plan_file_test.cpp).
+    seed_rule = "expected an integer from 0 to 18446744073709551615 (2^64 - 1)"
+    validation = "12 validation keys"
+    plan_cases.update({
+        "folds_1": plan_case("one fold", validation, with_key("folds", 1),
+                             ["plan key 'folds': expected an integer from 2 to 100, found 1"]),
+        "folds_101": plan_case("101 folds", validation, with_key("folds", 101),
+                               ["plan key 'folds': expected an integer from 2 to 100, found 101"]),
+        "folds_fraction": plan_case("folds 2.5", validation, with_key("folds", 2.5),
+                                    ["plan key 'folds': expected an integer from 2 to 100, found 2.5"]),
+        "seed_negative": plan_case("a negative seed", validation, with_key("seed", -1),
+                                   ["plan key 'seed': " + seed_rule + ", found -1"]),
+        "seed_text": plan_case("the seed as text", validation, with_key("seed", "42"),
+                               ["plan key 'seed': " + seed_rule + ", found \"42\""]),
+        "seed_fraction": plan_case("the seed 0.5", validation, with_key("seed", 0.5),
+                                   ["plan key 'seed': " + seed_rule + ", found 0.5"]),
+        "seed_exponent": plan_case("the seed written 1e3", validation, json.dumps(PLAN)[:-1] + ', "seed": 1e3}',
+                                   ["plan key 'seed': " + seed_rule + ", found 1000.0"]),
+        "seed_2_64": plan_case("the seed 2^64, one past the largest", validation,
+                               json.dumps(PLAN)[:-1] + ', "seed": 18446744073709551616}',
+                               ["plan key 'seed': " + seed_rule]),
+        "holdout_fraction_0": plan_case("a holdout of fraction 0", validation, with_key("holdout", {"fraction": 0}),
+                                        ["plan key 'holdout.fraction': expected a number strictly between 0 and 1, found 0"]),
+        "holdout_fraction_1": plan_case("a holdout of fraction 1", validation, with_key("holdout", {"fraction": 1}),
+                                        ["plan key 'holdout.fraction': expected a number strictly between 0 and 1, found 1"]),
+        "holdout_fraction_text": plan_case(
+            "a holdout fraction written as text", validation, with_key("holdout", {"fraction": "20%"}),
+            ["plan key 'holdout.fraction': expected a number strictly between 0 and 1, found \"20%\""]),
+        "holdout_not_object": plan_case("holdout given as a number", validation, with_key("holdout", 0.2),
+                                        ["plan key 'holdout': expected an object, found 0.2"]),
+        "holdout_unknown_key": plan_case("an unknown key in holdout", validation, with_key("holdout", {"share": 0.2}),
+                                         ["plan key 'holdout.share': unknown key; the keys here are fraction, seed"]),
+        "holdout_seed_negative": plan_case("a negative holdout seed", validation, with_key("holdout", {"seed": -7}),
+                                           ["plan key 'holdout.seed': " + seed_rule + ", found -7"]),
+        "bootstrap_replicates_0": plan_case(
+            "no bootstrap replicates", validation, with_key("bootstrap", {"replicates": 0}),
+            ["plan key 'bootstrap.replicates': expected an integer from 1 to 100000, found 0"]),
+        "bootstrap_replicates_100001": plan_case(
+            "100,001 bootstrap replicates", validation, with_key("bootstrap", {"replicates": 100001}),
+            ["plan key 'bootstrap.replicates': expected an integer from 1 to 100000, found 100001"]),
+        "bootstrap_unknown_key": plan_case(
+            "an unknown key in bootstrap", validation, with_key("bootstrap", {"replicates": 10, "samples": 10}),
+            ["plan key 'bootstrap.samples': unknown key; the keys here are replicates, seed"]),
+        "bootstrap_seed_text": plan_case("the bootstrap seed as text", validation, with_key("bootstrap", {"seed": "eleven"}),
+                                         ["plan key 'bootstrap.seed': " + seed_rule + ", found \"eleven\""]),
+    })
     for name, case in plan_cases.items():
         write_case("plan", name, case)
     print("wrote %d audit, %d json and %d plan cases" % (len(audit_cases), len(json_cases), len(plan_cases)))

@@ -2,6 +2,8 @@
 #include "stepledger/io/json_reader.h"
 
 #include <chrono>
+#include <cstdint>
+#include <limits>
 #include <string>
 
 #include <gtest/gtest.h>
@@ -66,6 +68,21 @@ TEST(StrictJson, ANumberBeyondADoubleNamesWhereItStarts) {
   EXPECT_NE(MessageOf("[" + std::string(400, '9') + "]").find("doc.json:1:2: number 9999"), std::string::npos);
   // Tiny numbers underflow to zero or a subnormal, which a double holds: accepted.
   EXPECT_EQ(MessageOf("[1e-400]"), "");
+}
+
+// Seeds are unsigned 64-bit integers: every integer up to 2^64 - 1 arrives as an integer, exactly
+// (a double would round 2^53 + 1 and 2^64 - 1); 2^64 and beyond arrive as a double, which the plan
+// reader refuses as "not an integer".
+TEST(StrictJson, IntegersUpToTwoToThe64MinusOneAreExact) {
+  const nlohmann::json values =
+      ParseStrictJson("[18446744073709551615, 9007199254740993, -9223372036854775808, 18446744073709551616]", "doc.json");
+  EXPECT_TRUE(values[0].is_number_unsigned());
+  EXPECT_EQ(values[0].get<std::uint64_t>(), 18446744073709551615ull);
+  EXPECT_EQ(values[1].get<std::uint64_t>(), 9007199254740993ull);
+  EXPECT_TRUE(values[2].is_number_integer());
+  EXPECT_EQ(values[2].get<std::int64_t>(), std::numeric_limits<std::int64_t>::min());
+  EXPECT_TRUE(values[3].is_number_float());
+  EXPECT_EQ(values[3].get<double>(), 18446744073709551616.0);
 }
 
 // 100,000 levels crashed the old reader's message code; the limit refuses them while parsing.

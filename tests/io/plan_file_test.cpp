@@ -181,10 +181,51 @@ const std::vector<ErrorCase> kErrorCases = {
         "keep": ["a", "b"], "max_terms": 1})",
      "max_terms", "expected at least 2"},
     {"BestPerSizeZero", With("best_per_size", "0"), "best_per_size", "expected an integer >= 1, found 0"},
-    {"FoldsOne", With("folds", "1"), "folds", "expected an integer >= 2, found 1"},
+    // The validation keys (README "The plan file"); ranges from engine/resampling.h.
+    {"FoldsOne", With("folds", "1"), "folds", "expected an integer from 2 to 100, found 1"},
+    {"FoldsZero", With("folds", "0"), "folds", "expected an integer from 2 to 100, found 0"},
+    {"FoldsNegative", With("folds", "-3"), "folds", "expected an integer from 2 to 100, found -3"},
+    {"Folds101", With("folds", "101"), "folds", "expected an integer from 2 to 100, found 101"},
+    {"FoldsBeyondInt", With("folds", "4294967298"), "folds", "expected an integer from 2 to 100, found 4294967298"},
+    {"FoldsFraction", With("folds", "2.5"), "folds", "expected an integer from 2 to 100, found 2.5"},
+    {"FoldsAsFloat", With("folds", "10.0"), "folds", "found 10.0"},
+    {"FoldsText", With("folds", R"("10")"), "folds", R"(found "10")"},
+    {"SeedText", With("seed", R"("7")"), "seed", R"(expected an integer from 0 to 18446744073709551615 (2^64 - 1), found "7")"},
+    {"SeedExponent", With("seed", "1e3"), "seed", "found 1000.0"},
+    {"SeedTwoToThe64", With("seed", "18446744073709551616"), "seed", "expected an integer from 0 to 18446744073709551615"},
+    {"SeedNull", With("seed", "null"), "seed", "found null"},
+    {"HoldoutNotObject", With("holdout", "0.2"), "holdout", "expected an object, found 0.2"},
+    {"HoldoutArray", With("holdout", "[0.2, 7]"), "holdout", "expected an object, found [0.2,7]"},
+    {"HoldoutUnknownKey", With("holdout", R"({"share": 0.2})"), "holdout.share",
+     "unknown key; the keys here are fraction, seed"},
+    {"HoldoutFractionZero", With("holdout", R"({"fraction": 0})"), "holdout.fraction",
+     "expected a number strictly between 0 and 1, found 0"},
+    {"HoldoutFractionOne", With("holdout", R"({"fraction": 1.0})"), "holdout.fraction",
+     "expected a number strictly between 0 and 1, found 1"},
+    {"HoldoutFractionNegative", With("holdout", R"({"fraction": -0.1})"), "holdout.fraction", "found -0.1"},
+    {"HoldoutFractionText", With("holdout", R"({"fraction": "0.2"})"), "holdout.fraction",
+     R"(expected a number strictly between 0 and 1, found "0.2")"},
+    {"HoldoutSeedNegative", With("holdout", R"({"seed": -7})"), "holdout.seed",
+     "expected an integer from 0 to 18446744073709551615 (2^64 - 1), found -7"},
+    {"HoldoutSeedFraction", With("holdout", R"({"seed": 7.5})"), "holdout.seed", "found 7.5"},
+    {"BootstrapNotObject", With("bootstrap", "200"), "bootstrap", "expected an object, found 200"},
+    {"BootstrapUnknownKey", With("bootstrap", R"({"replicates": 10, "samples": 10})"), "bootstrap.samples",
+     "unknown key; the keys here are replicates, seed"},
+    {"BootstrapReplicatesZero", With("bootstrap", R"({"replicates": 0})"), "bootstrap.replicates",
+     "expected an integer from 1 to 100000, found 0"},
+    {"BootstrapReplicates100001", With("bootstrap", R"({"replicates": 100001})"), "bootstrap.replicates",
+     "expected an integer from 1 to 100000, found 100001"},
+    {"BootstrapReplicatesNegative", With("bootstrap", R"({"replicates": -1})"), "bootstrap.replicates",
+     "expected an integer from 1 to 100000, found -1"},
+    {"BootstrapReplicatesFraction", With("bootstrap", R"({"replicates": 2.5})"), "bootstrap.replicates",
+     "expected an integer from 1 to 100000, found 2.5"},
+    {"BootstrapSeedText", With("bootstrap", R"({"seed": "eleven"})"), "bootstrap.seed",
+     R"(found "eleven")"},
+    {"BootstrapSeedTwoToThe64", With("bootstrap", R"({"seed": 18446744073709551616})"), "bootstrap.seed",
+     "expected an integer from 0 to 18446744073709551615"},
     {"MaxLevelsOne", With("max_levels", "1"), "max_levels", "expected an integer >= 2, found 1"},
     {"MaxLevelsFraction", With("max_levels", "2.5"), "max_levels", "found 2.5"},
-    {"SeedNegative", With("seed", "-5"), "seed", "expected an integer >= 0, found -5"},
+    {"SeedNegative", With("seed", "-5"), "seed", "expected an integer from 0 to 18446744073709551615 (2^64 - 1), found -5"},
     {"SeedFraction", With("seed", "1.5"), "seed", "found 1.5"},
     {"MissingNotStrings", With("missing", R"(["", 0])"), "missing[1]", "expected a string, found 0"},
     {"UnknownTopKey", With("respnse", R"("price")"), "respnse", "unknown key"},
@@ -245,7 +286,12 @@ TEST(PlanFileTest, DefaultsOfAMinimalPlan) {
   EXPECT_EQ(plan.search.method, Method::kStepwise);
   EXPECT_EQ(plan.search.criterion, Criterion::kBic);
   EXPECT_FALSE(plan.search.max_terms);
-  EXPECT_EQ(plan.search.seed, 20261201u);
+  // README "The plan file": folds 10, seed 1, no holdout, no bootstrap (common practice: ten
+  // folds; the seeds are the tool's own choice).
+  EXPECT_EQ(plan.search.folds, 10);
+  EXPECT_EQ(plan.search.seed, 1u);
+  EXPECT_FALSE(plan.search.holdout);
+  EXPECT_FALSE(plan.search.bootstrap);
   EXPECT_EQ(plan.design.max_levels, 100u);  // README: default 100 (common practice)
   EXPECT_EQ(ParsePlanText(R"({"response": "price", "terms": "all", "max_levels": 500})").plan.design.max_levels,
             500u);
@@ -270,7 +316,8 @@ TEST(PlanFileTest, NormalisedPlanRoundTrips) {
   EXPECT_EQ(ParsePlanText(normalised.dump(2)).plan, plan);
   for (const char* key : {"response", "response_transform", "intercept", "weights", "terms", "keep",
                           "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
-                          "max_terms", "best_per_size", "folds", "seed", "missing", "max_levels"}) {
+                          "max_terms", "best_per_size", "folds", "seed", "holdout", "bootstrap", "missing",
+                          "max_levels"}) {
     EXPECT_TRUE(normalised.contains(key)) << key;
   }
   const Plan quick = MakeQuickPlan("price");
@@ -278,7 +325,108 @@ TEST(PlanFileTest, NormalisedPlanRoundTrips) {
   EXPECT_EQ(quick_json.at("terms"), "all");
   EXPECT_TRUE(quick_json.at("weights").is_null());
   EXPECT_TRUE(quick_json.at("max_terms").is_null());
+  EXPECT_TRUE(quick_json.at("holdout").is_null());
+  EXPECT_TRUE(quick_json.at("bootstrap").is_null());
+  EXPECT_EQ(quick_json.at("folds"), 10);
+  EXPECT_EQ(quick_json.at("seed"), 1u);
   EXPECT_EQ(PlanFromJson(quick_json), quick);
+}
+
+// The validation keys: every edge of each range is accepted, a key left out of holdout or
+// bootstrap takes its default, and the normalised form writes both keys of each object.
+TEST(PlanFileValidationKeys, AcceptsTheEdgesOfEveryRange) {
+  const auto read = [](const std::string& key, const std::string& value) {
+    return ParsePlanText(With(key, value)).plan.search;
+  };
+  EXPECT_EQ(read("folds", "2").folds, 2);
+  EXPECT_EQ(read("folds", "100").folds, 100);
+  EXPECT_EQ(read("seed", "0").seed, 0u);
+  EXPECT_EQ(read("seed", "-0").seed, 0u);  // JSON's -0 is the integer 0
+  // 2^64 - 1 read exactly: not through a double (which would give 2^64).
+  EXPECT_EQ(read("seed", "18446744073709551615").seed, 18446744073709551615ull);
+  EXPECT_EQ(read("seed", "18446744073709551614").seed, 18446744073709551614ull);
+  // 2^53 + 1, the first integer a double cannot hold.
+  EXPECT_EQ(read("seed", "9007199254740993").seed, 9007199254740993ull);
+  EXPECT_EQ(read("holdout", R"({"fraction": 5e-324})").holdout->fraction, 5e-324);  // the least double
+  EXPECT_EQ(read("holdout", R"({"fraction": 0.9999999999999999})").holdout->fraction, 0.9999999999999999);
+  EXPECT_EQ(read("holdout", R"({"seed": 18446744073709551615})").holdout->seed, 18446744073709551615ull);
+  EXPECT_EQ(read("bootstrap", R"({"replicates": 1})").bootstrap->replicates, 1u);
+  EXPECT_EQ(read("bootstrap", R"({"replicates": 100000})").bootstrap->replicates, 100000u);
+  EXPECT_EQ(read("bootstrap", R"({"seed": 0})").bootstrap->seed, 0u);
+}
+
+TEST(PlanFileValidationKeys, KeysLeftOutOfTheObjectsTakeTheirDefaults) {
+  const SearchOptions empty_objects = ParsePlanText(With("holdout", "{}")).plan.search;
+  ASSERT_TRUE(empty_objects.holdout);
+  EXPECT_EQ(empty_objects.holdout->fraction, 0.2);  // README: default fraction 0.2
+  EXPECT_EQ(empty_objects.holdout->seed, 7u);       // README: default seed 7
+  EXPECT_FALSE(empty_objects.bootstrap);
+  const SearchOptions fraction_only = ParsePlanText(With("holdout", R"({"fraction": 0.3})")).plan.search;
+  EXPECT_EQ(fraction_only.holdout, (HoldoutSettings{0.3, 7}));
+  const SearchOptions seed_only = ParsePlanText(With("holdout", R"({"seed": 99})")).plan.search;
+  EXPECT_EQ(seed_only.holdout, (HoldoutSettings{0.2, 99}));
+
+  const SearchOptions bootstrap = ParsePlanText(With("bootstrap", "{}")).plan.search;
+  ASSERT_TRUE(bootstrap.bootstrap);
+  EXPECT_EQ(bootstrap.bootstrap->replicates, 200u);  // README: default 200 replicates
+  EXPECT_EQ(bootstrap.bootstrap->seed, 11u);         // README: default seed 11
+  EXPECT_EQ(ParsePlanText(With("bootstrap", R"({"replicates": 50})")).plan.search.bootstrap,
+            (BootstrapSettings{50, 11}));
+  // null is "none", as the normalised plan writes it.
+  EXPECT_FALSE(ParsePlanText(With("holdout", "null")).plan.search.holdout);
+  EXPECT_FALSE(ParsePlanText(With("bootstrap", "null")).plan.search.bootstrap);
+}
+
+TEST(PlanFileValidationKeys, TheNormalisedPlanWritesThemAndRoundTrips) {
+  const std::string text = R"({"response": "price", "terms": "all", "folds": 5,
+      "seed": 18446744073709551615, "holdout": {"fraction": 0.25},
+      "bootstrap": {"seed": 12345678901234567890}})";
+  const Plan plan = ParsePlanText(text).plan;
+  const json normalised = PlanToJson(plan);
+  EXPECT_EQ(normalised.at("folds"), 5);
+  EXPECT_TRUE(normalised.at("seed").is_number_unsigned());
+  EXPECT_EQ(normalised.at("seed").get<std::uint64_t>(), 18446744073709551615ull);
+  EXPECT_EQ(normalised.at("holdout"), json::parse(R"({"fraction": 0.25, "seed": 7})"));
+  EXPECT_EQ(normalised.at("bootstrap"), json::parse(R"({"replicates": 200, "seed": 12345678901234567890})"));
+  EXPECT_EQ(normalised.at("bootstrap").at("seed").get<std::uint64_t>(), 12345678901234567890ull);
+  // The digits survive text: dump writes 18446744073709551615, not 1.8446744073709552e19.
+  EXPECT_NE(normalised.dump().find("\"seed\":18446744073709551615"), std::string::npos) << normalised.dump();
+  EXPECT_EQ(PlanFromJson(normalised), plan);
+  EXPECT_EQ(ParsePlanText(normalised.dump(2)).plan, plan);
+  // A plan without them writes null and reads back as none.
+  const json plain = PlanToJson(ParsePlanText(R"({"response": "price", "terms": "all"})").plan);
+  EXPECT_TRUE(plain.at("holdout").is_null());
+  EXPECT_TRUE(plain.at("bootstrap").is_null());
+  EXPECT_EQ(plain.at("seed"), 1u);
+}
+
+// The reader checks types; the ranges are ValidateSearchSettings' alone, so settings made in
+// code (the command line, a replay) meet the same rule with the same words.
+TEST(PlanFileValidationKeys, TheRangesAreTheSearchsRule) {
+  const auto message = [](const SearchOptions& options) -> std::string {
+    try {
+      ValidateSearchSettings(options);
+    } catch (const PlanError& error) {
+      return error.key_path() + ": " + error.what();
+    }
+    return "accepted";
+  };
+  SearchOptions options;
+  EXPECT_EQ(message(options), "accepted");
+  options.folds = 101;
+  EXPECT_EQ(message(options), "folds: plan key 'folds': expected an integer from 2 to 100, found 101");
+  options.folds = 2;
+  options.holdout = HoldoutSettings{1.0, 7};
+  EXPECT_EQ(message(options),
+            "holdout.fraction: plan key 'holdout.fraction': expected a number strictly between 0 and 1, found 1");
+  options.holdout = HoldoutSettings{};
+  options.bootstrap = BootstrapSettings{0, 11};
+  EXPECT_EQ(message(options),
+            "bootstrap.replicates: plan key 'bootstrap.replicates': expected an integer from 1 to 100000, found 0");
+  options.bootstrap = BootstrapSettings{kMaxReplicates + 1, 11};
+  EXPECT_NE(message(options).find("found 100001"), std::string::npos);
+  options.bootstrap = BootstrapSettings{};
+  EXPECT_EQ(message(options), "accepted");
 }
 
 class PlanWithDataTest : public ::testing::Test {

@@ -2,8 +2,8 @@
 // The audit file (CONTRACT.md `audit.json`, DESIGN.md §6): one run of a plan on a data file,
 // recorded so that a reviewer can see every step, prove that nothing was edited, and replay it.
 //
-// Shape (format "stepledger-audit", format_version 2; audit/schema/audit.schema.json; audits of
-// format_version 1 still verify and are read through AuditInCurrentShape,
+// Shape (format "stepledger-audit", format_version 3; audit/schema/audit.schema.json; audits of
+// format_version 1 and 2 still verify and are read through AuditInCurrentShape,
 // audit/audit_format_versions.h):
 //   format, format_version, tool {name, version, commit, build {compiler, blas, build_type}},
 //   created_at, duration_seconds,                         <- the only fields that record time
@@ -56,7 +56,10 @@ inline constexpr std::string_view kAuditFormat = "stepledger-audit";
 /// 2: design columns TERM=LEVEL, model.ss_regression, data.rows_dropped as a list of
 /// {reason, column, rows}, counts as JSON integers (1 wrote TERM[LEVEL], model.ssr and an
 /// object keyed by reason).
-inline constexpr int kAuditFormatVersion = 2;
+/// 3: the validation section (cross-validation, holdout, bootstrap); plan.normalised holds
+/// holdout and bootstrap, and the seed's default is 1 (2 recorded 20261201, a seed that then did
+/// nothing).
+inline constexpr int kAuditFormatVersion = 3;
 /// Top-level fields that record time: they (and the seal and signature over them) are the only
 /// fields in which two runs of the same plan on the same data with the same build differ.
 inline constexpr std::array<std::string_view, 2> kAuditTimeFields = {"created_at",

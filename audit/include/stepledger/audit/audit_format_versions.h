@@ -17,6 +17,13 @@
 //                      ->  [{reason: "missing", column, rows}, {reason: "zero weight",
 //                           column: the weights column, rows}] (RowAccounting's order)
 //     counts           anova df, model.df_residual and search.n as JSON integers (3, not 3.0)
+//   format_version 2 -> 3
+//     plan.normalised.seed   20261201 (the old default, recorded where plan.verbatim has no
+//                            "seed" key)  ->  1, the default plan.verbatim now gives. The seed
+//                            drew nothing before version 3, so no recorded result depends on it;
+//                            any other recorded seed stays (an edit is still caught by verify).
+//     plan.normalised        gains "holdout": null and "bootstrap": null (version 2 had neither)
+//     validation             absent: a version 2 run made no validation
 // A change to the format adds its step here and raises kAuditFormatVersion.
 
 #include <nlohmann/json.hpp>

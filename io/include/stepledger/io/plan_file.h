@@ -24,8 +24,19 @@
 //   hierarchy         bool, default true
 //   max_terms         integer >= 1, or null for no limit (default); at least the size of keep
 //   best_per_size     integer >= 1, default 3
-//   folds             integer >= 2, default 10
-//   seed              integer >= 0 (up to 2^64 - 1), default 20261201
+//   folds             integer from 2 to 100 (kMinFolds..kMaxFolds, engine/resampling.h),
+//                     default 10: the cross-validation folds
+//   seed              unsigned 64-bit integer (0 to 2^64 - 1, read exactly), default 1: the
+//                     seed of the fold assignment
+//   holdout           null (default: no holdout) or an object {"fraction": number strictly
+//                     between 0 and 1 (default 0.2), "seed": unsigned 64-bit integer (default 7)}
+//   bootstrap         null (default: no bootstrap) or an object {"replicates": integer from 1 to
+//                     100000 (kMaxReplicates; default 200), "seed": unsigned 64-bit integer
+//                     (default 11)}
+//                     Inside holdout and bootstrap a key left out takes its default and an unknown
+//                     key is an error naming it ("holdout.share"). The reader checks the types (and
+//                     refuses an integer the setting cannot hold); the ranges of folds, fraction and
+//                     replicates are checked by ValidateSearchSettings, like entry_p's.
 //   missing           array of strings: cell texts meaning missing; default ["", "NA"]
 //   max_levels        integer >= 2, default 100: most levels a categorical term may have. An
 //                     explicit categorical term over it is refused (raise it, or leave the
@@ -79,8 +90,8 @@ LoadedPlan ParsePlanText(std::string text, std::string_view source_name = "plan"
 /// The plan of a parsed JSON value (the checks of LoadPlanFile but the JSON syntax).
 Plan PlanFromJson(const nlohmann::json& json, const InputLimits& limits = {});
 
-/// The normalised plan: every key present with its value or default (null for no weights
-/// and no max_terms), in the form PlanFromJson reads, so PlanFromJson(PlanToJson(p)) == p.
+/// The normalised plan: every key present with its value or default (null for no weights,
+/// no max_terms, no holdout and no bootstrap; holdout and bootstrap otherwise with both keys), in the form PlanFromJson reads, so PlanFromJson(PlanToJson(p)) == p.
 /// Given the design built from the plan, the terms are the design's: "all" resolved into
 /// the list of terms it made, and every categorical term with the baseline chosen.
 nlohmann::json PlanToJson(const Plan& plan, const Design* design = nullptr);

@@ -80,7 +80,8 @@ struct SearchRunOptions {
 
 /// The one validation of a plan's search settings, wherever the plan comes from (a plan file,
 /// the command line, a recorded audit). Throws PlanError naming the key ("entry_p", "exit_p",
-/// "max_terms", "best_per_size", "folds", "criterion", "keep[1]", "never[0]") for values out of
+/// "max_terms", "best_per_size", "folds" (2..100), "holdout.fraction" (strictly between 0 and 1),
+/// "bootstrap.replicates" (1..100000), "criterion", "keep[1]", "never[0]") for values out of
 /// range, entry_p > exit_p where the thresholds decide the route (stepwise by partial F: a term
 /// could enter and leave in turn; other criteria do not use the thresholds), more keep terms than
 /// max_terms, a term listed twice or both kept and never, and criterion cv (not available yet).
