@@ -5,16 +5,20 @@
 namespace stepledger {
 
 nlohmann::json CandidateToJson(const CandidateScore& candidate) {
-  return nlohmann::json{{"term", candidate.term},
-                        {"action", ToString(candidate.action)},
-                        {"df", candidate.df},
-                        {"rss", NumberOrNull(candidate.rss)},
-                        {"score", NumberOrNull(candidate.score)},
-                        {"f", NumberOrNull(candidate.f)},
-                        {"p", NumberOrNull(candidate.p)},
-                        {"eligible", candidate.eligible},
-                        {"reason", candidate.reason.empty() ? nlohmann::json(nullptr)
-                                                            : nlohmann::json(candidate.reason)}};
+  nlohmann::json json{{"term", candidate.term},
+                      {"action", ToString(candidate.action)},
+                      {"df", candidate.df},
+                      {"rss", NumberOrNull(candidate.rss)},
+                      {"score", NumberOrNull(candidate.score)},
+                      {"f", NumberOrNull(candidate.f)},
+                      {"p", NumberOrNull(candidate.p)},
+                      {"eligible", candidate.eligible},
+                      {"reason", candidate.reason.empty() ? nlohmann::json(nullptr)
+                                                          : nlohmann::json(candidate.reason)}};
+  // Only when present (criterion cv): the candidates of other criteria keep the shape, and so
+  // the step digests, of audits written before the key existed.
+  if (!candidate.fold_sse.empty()) json["fold_sse"] = candidate.fold_sse;
+  return json;
 }
 
 nlohmann::json StepToJson(const RouteStep& step) {
@@ -36,11 +40,13 @@ nlohmann::json StepToJson(const RouteStep& step) {
 }
 
 nlohmann::json SubsetToJson(const SubsetRecord& subset) {
-  return nlohmann::json{{"size", subset.size},
-                        {"terms", subset.terms},
-                        {"rss", NumberOrNull(subset.rss)},
-                        {"score", NumberOrNull(subset.score)},
-                        {"rank", subset.rank_in_size}};
+  nlohmann::json json{{"size", subset.size},
+                      {"terms", subset.terms},
+                      {"rss", NumberOrNull(subset.rss)},
+                      {"score", NumberOrNull(subset.score)},
+                      {"rank", subset.rank_in_size}};
+  if (!subset.fold_sse.empty()) json["fold_sse"] = subset.fold_sse;  // criterion cv only
+  return json;
 }
 
 nlohmann::json RouteToJson(const SearchResult& result) {

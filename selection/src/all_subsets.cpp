@@ -13,6 +13,11 @@
 // The exhaustive cross-check visits every subset in Gray-code order: one term enters or
 // leaves per subset (ModelState Add/Remove), 2^m moves.
 //
+// Criterion cv: the kept models are still the best by RSS (the bound is exact for RSS, and
+// cv, which does not fall with RSS, admits no such bound); cv then ranks the kept models and
+// chooses among them only. So the choice is the best cv among the best_per_size models of
+// every size by RSS, not the best cv over all subsets; the rule and the README say so.
+//
 // Hierarchy: subsets that break it are not kept (the bound stays valid: it only uses kept
 // models). Terms aliased with the plan-order earlier terms are left out of every subset.
 // Sizes count terms, keep terms included; max_terms caps the size.
@@ -228,6 +233,7 @@ void RunAllSubsets(SearchContext& ctx) {
       (void)base_width;
       const Score score = ctx.criterion().ScoreModel({columns, entry.rss, static_cast<double>(columns.size())});
       if (score.value) record.score = ctx.criterion().Reported(*score.value);
+      record.fold_sse = score.fold_sse;
       record.rank_in_size = rank++;
       records.push_back(std::move(record));
       scores.push_back(score);
@@ -258,7 +264,8 @@ void RunAllSubsets(SearchContext& ctx) {
   for (const auto& name : records[*best].terms) names += (names.empty() ? "" : ", ") + name;
   if (names.empty()) names = "no terms";
   ctx.Stop(SearchOutcome::kCompleted,
-           "best of " + std::to_string(records.size()) + " kept subsets by " +
+           "best of " + std::to_string(records.size()) + " kept subsets" +
+               (ctx.options().criterion == Criterion::kCv ? " (the best by RSS of each size)" : "") + " by " +
                ctx.criterion().ValueName() + ": " + names + " (" + ctx.criterion().ValueName() +
                " " + FormatCriterionValue(ctx.options().criterion, records[*best].score) + ")");
 }

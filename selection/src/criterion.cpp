@@ -6,6 +6,7 @@
 #include <sstream>
 
 #include "stepledger/engine/errors.h"
+#include "search_internal.h"
 
 namespace stepledger {
 namespace {
@@ -95,14 +96,56 @@ class FormulaCriterion final : public ModelCriterion {
   CriterionContext context_;
 };
 
+/// The k-fold cross-validated RMSE from the per-fold factors (engine/cross_validation.h):
+/// the model's columns refitted on every training triangle, no row read.
+class CvCriterion final : public ModelCriterion {
+ public:
+  explicit CvCriterion(CriterionContext context) : context_(std::move(context)) {}
+  Criterion kind() const override { return Criterion::kCv; }
+
+  Score ScoreModel(const ModelToScore& model) const override {
+    FoldErrors errors = context_.cross_validation->Evaluate(model.columns);
+    Score score;
+    if (errors.rmse && std::isfinite(*errors.rmse)) {
+      score.value = errors.rmse;
+      score.fold_sse = std::move(errors.sse);
+      return score;
+    }
+    if (errors.rmse) {
+      score.undefined_reason = "cv is not finite";
+    } else if (errors.aliased_column) {
+      const std::size_t column = *errors.aliased_column;
+      const std::string name = column < context_.column_names.size() ? context_.column_names[column]
+                                                                     : std::to_string(column);
+      const std::string fold = std::to_string(errors.aliased_fold);
+      score.undefined_reason =
+          "cv undefined (column '" + name + "' is aliased in the training rows of fold " + fold +
+          ", every fold's rows but " + fold + "'s, folds counted from 0: relative norm " +
+          FormatQuantity(errors.aliased_relative_norm, 6) + ", below alias_tolerance " +
+          selection_detail::Threshold(context_.cross_validation->kernel().alias_tolerance) + ")";
+    } else {
+      score.undefined_reason = "cv undefined (" + errors.undefined_reason + ")";
+    }
+    return score;
+  }
+
+  std::string ValueName() const override { return "cv"; }
+
+ private:
+  CriterionContext context_;
+};
+
 }  // namespace
 
 std::unique_ptr<ModelCriterion> MakeCriterion(Criterion criterion,
                                               const CriterionContext& context) {
   if (criterion == Criterion::kCv) {
-    throw PlanError("criterion",
-                    "criterion 'cv' (cross-validated error) is not available yet; use adj-r2, "
-                    "aic, aicc, bic, cp or partial-f");
+    if (context.cross_validation == nullptr) {
+      throw PlanError("criterion",
+                      "criterion 'cv' needs the per-fold factors of the data pass, and this run "
+                      "has none");
+    }
+    return std::make_unique<CvCriterion>(context);
   }
   return std::make_unique<FormulaCriterion>(criterion, context);
 }

@@ -17,11 +17,6 @@ using selection_detail::Threshold;
 using selection_detail::SearchContext;
 
 void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds) {
-  if (options.criterion == Criterion::kCv) {
-    throw PlanError("criterion",
-                    "criterion 'cv' (cross-validated error) is not available yet; use adj-r2, "
-                    "aic, aicc, bic, cp or partial-f");
-  }
   auto check_probability = [](const char* key, double value) {
     if (!(value > 0 && value < 1)) {
       throw PlanError(key, std::string(key) + " must be in (0, 1); got " + Threshold(value));
@@ -114,6 +109,17 @@ SearchResult RunSearch(const Factor& factor, const Design& design, const SearchO
     throw std::logic_error("RunSearch (a bug in the caller): the factor has " +
                            std::to_string(factor.column_count()) + " design columns but the design has " +
                            std::to_string(design.column_count()));
+  }
+  if (options.criterion == Criterion::kCv && run.cross_validation != nullptr) {
+    // The fold factors come from the same pass as the factor, with the plan's folds.
+    const CrossValidation& cv = *run.cross_validation;
+    if (cv.fold(0).column_count() != design.column_count() ||
+        cv.folds() != static_cast<std::size_t>(options.folds)) {
+      throw std::logic_error("RunSearch (a bug in the caller): " + std::to_string(cv.folds()) +
+                             " fold factors of " + std::to_string(cv.fold(0).column_count()) +
+                             " design columns, but the plan has folds " + std::to_string(options.folds) +
+                             " and the design " + std::to_string(design.column_count()) + " columns");
+    }
   }
   RouteRecorder recorder;
   ObserverFanOut fan_out({&recorder, observer});

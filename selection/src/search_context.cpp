@@ -72,6 +72,10 @@ SearchContext::SearchContext(const Factor& factor, const Design& design,
       criterion_context_.full_sigma2 = rss_full / (criterion_context_.n - k_full);
     }
   }
+  criterion_context_.cross_validation = run.cross_validation;
+  if (options.criterion == Criterion::kCv) {
+    for (const auto& column : design.columns) criterion_context_.column_names.push_back(column.name);
+  }
   criterion_ = MakeCriterion(options.criterion, criterion_context_);
 }
 
@@ -182,6 +186,7 @@ std::vector<Move> SearchContext::ScoreAdditions() {
     columns_after.insert(columns_after.end(), columns.begin(), columns.end());
     move.score = criterion_->ScoreModel({columns_after, *rss_after, k_after});
     view.score = Reported(move.score);
+    view.fold_sse = move.score.fold_sse;
     const PartialF partial = ComputePartialF(rss_now, *rss_after, static_cast<double>(columns.size()), n, k_after);
     FinishCandidate(std::move(move), partial, k_after, AddBlockedReason(term), moves);
   }
@@ -209,6 +214,7 @@ std::vector<Move> SearchContext::ScoreRemovals() {
     }
     move.score = criterion_->ScoreModel({columns_after, group.rss, k_after});
     view.score = Reported(move.score);
+    view.fold_sse = move.score.fold_sse;
     const PartialF partial = ComputePartialF(group.rss, rss_now, static_cast<double>(columns.size()), n, k_now);
     FinishCandidate(std::move(move), partial, k_now, RemoveBlockedReason(term), moves);
   }

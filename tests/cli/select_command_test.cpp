@@ -104,7 +104,9 @@ TEST_F(SelectHald, BadUsageExitsTwoWithOneLineNamingTheProblem) {
   EXPECT_NE(run.err.find("exit_p"), std::string::npos) << run.err;
   run = RunSelect({"select", data_, "--response", "y", "--criterion", "cv"});
   EXPECT_EQ(run.status, 2);
-  EXPECT_NE(run.err.find("not available yet"), std::string::npos) << run.err;
+  // Until the run builds fold factors (RunPlan passing SearchRunOptions::cross_validation), cv is
+  // refused at the search, naming the criterion; once wired, this case runs.
+  EXPECT_NE(run.err.find("per-fold factors"), std::string::npos) << run.err;
 }
 
 // --- The quick form's candidate terms (issue: an identifier column became a 1,999-level term).

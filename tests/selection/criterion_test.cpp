@@ -8,7 +8,10 @@
 #include <numbers>
 #include <vector>
 
+#include "stepledger/engine/cross_validation.h"
 #include "stepledger/engine/errors.h"
+#include "support/dense_design.h"
+#include "support/selection_fixtures.h"
 
 namespace stepledger {
 namespace {
@@ -61,14 +64,47 @@ TEST(Criterion, UndefinedCasesSayWhy) {
   EXPECT_FALSE(MakeCriterion(Criterion::kCp, context)->ScoreModel({columns, 10, 3}).defined());
 }
 
-TEST(Criterion, CrossValidationIsNotAvailableYet) {
+TEST(Criterion, CvWithoutFoldFactorsIsRefusedNamingTheCriterion) {
   try {
     MakeCriterion(Criterion::kCv, HaldContext());
     FAIL();
   } catch (const PlanError& error) {
     EXPECT_EQ(error.key_path(), "criterion");
-    EXPECT_NE(std::string(error.what()).find("not available yet"), std::string::npos);
+    EXPECT_NE(std::string(error.what()).find("per-fold factors"), std::string::npos);
   }
+}
+
+// Leave-one-out as 13 folds of one row each: the cv criterion's sum of squared held-out errors
+// is then the PRESS statistic, sum_i (e_i / (1 - h_ii))^2 (Allen, "The relationship between
+// variable selection and data augmentation and a method for prediction", Technometrics 16,
+// 1974), computed here from the hat matrix of the full fit instead. Data: Hald cement {x1, x2}.
+TEST(Criterion, CvOfOneRowFoldsIsThePressStatistic) {
+  const testing::DenseProblem hald = testing::LoadHald();
+  const std::size_t n = hald.x.n_rows;
+  std::vector<Factor> folds;
+  for (std::size_t i = 0; i < n; ++i) {
+    folds.push_back(testing::BuildFactor(hald.x.rows(i, i), hald.y.rows(i, i), {}, 256, hald.design.scales()));
+  }
+  const CrossValidation cv(std::move(folds));
+  CriterionContext context = HaldContext();
+  context.cross_validation = &cv;
+  const auto criterion = MakeCriterion(Criterion::kCv, context);
+  EXPECT_EQ(criterion->ValueName(), "cv");
+  const std::vector<std::size_t> columns{0, 1, 2};  // intercept, x1, x2
+  const Score score = criterion->ScoreModel({columns, 57.90448318, 3});
+  ASSERT_TRUE(score.defined()) << score.undefined_reason;
+  ASSERT_EQ(score.fold_sse.size(), n);
+  const arma::mat x = hald.x.cols(0, 2);
+  const arma::mat hat = x * arma::inv_sympd(x.t() * x) * x.t();
+  const arma::vec residual = hald.y - hat * hald.y;
+  double press = 0;
+  for (std::size_t i = 0; i < n; ++i) {
+    const double loo = residual(i) / (1 - hat(i, i));
+    press += loo * loo;
+    EXPECT_NEAR(score.fold_sse[i], loo * loo, 1e-9 * loo * loo + 1e-12) << "row " << i;
+  }
+  EXPECT_NEAR(*score.value, std::sqrt(press / static_cast<double>(n)), 1e-10 * std::sqrt(press));
+  EXPECT_EQ(criterion->Reported(*score.value), *score.value);  // lower is better, shown as is
 }
 
 TEST(Criterion, TiesAreRelative) {

@@ -214,19 +214,6 @@ TEST(SearchOptionsValidation, StepwisePartialFWithEntryAboveExitIsRefusedNamingB
   EXPECT_NO_THROW(RunSearch(problem.factor, problem.design, options));
 }
 
-TEST(SearchOptionsValidation, CrossValidationIsNotAvailableYet) {
-  const DenseProblem problem = testing::MakeRandomProblem({});
-  SearchOptions options;
-  options.criterion = Criterion::kCv;
-  try {
-    RunSearch(problem.factor, problem.design, options);
-    FAIL() << "expected PlanError";
-  } catch (const PlanError& error) {
-    EXPECT_EQ(error.key_path(), "criterion");
-    EXPECT_NE(std::string(error.what()).find("not available yet"), std::string::npos);
-  }
-}
-
 TEST(SearchOptionsValidation, ProbabilitiesOutsideZeroOneNameTheirKey) {
   const DenseProblem problem = testing::MakeRandomProblem({});
   SearchOptions options;

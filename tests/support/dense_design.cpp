@@ -3,6 +3,9 @@
 #include <cmath>
 #include <memory>
 #include <stdexcept>
+#include <vector>
+
+#include "stepledger/engine/resampling.h"
 
 namespace stepledger::testing {
 
@@ -29,6 +32,59 @@ Factor BuildFactor(const arma::mat& x, const arma::vec& y, const arma::vec& w, s
     builder.AddRow(row, y(i), w.is_empty() ? 1.0 : w(i));
   }
   return builder.Finish();
+}
+
+std::vector<std::size_t> FoldsOfRows(std::size_t rows, std::uint64_t seed, std::size_t folds) {
+  std::vector<std::size_t> fold_of_row(rows);
+  for (std::size_t i = 0; i < rows; ++i) fold_of_row[i] = FoldOfRecord(seed, i, folds);
+  return fold_of_row;
+}
+
+std::vector<Factor> BuildFoldFactors(const arma::mat& x, const arma::vec& y, const arma::vec& w,
+                                     const std::vector<std::size_t>& fold_of_row, std::size_t folds,
+                                     std::vector<double> scales) {
+  if (scales.empty()) scales = PowerOfTwoScales(x, y);
+  std::vector<FactorBuilder> builders;
+  for (std::size_t f = 0; f < folds; ++f) builders.emplace_back(scales, 16);
+  std::vector<double> row(x.n_cols);
+  for (arma::uword i = 0; i < x.n_rows; ++i) {
+    for (arma::uword j = 0; j < x.n_cols; ++j) row[j] = x(i, j);
+    builders[fold_of_row[i]].AddRow(row, y(i), w.is_empty() ? 1.0 : w(i));
+  }
+  std::vector<Factor> factors;
+  for (auto& builder : builders) factors.push_back(builder.Finish());
+  return factors;
+}
+
+std::optional<std::vector<double>> BruteForceFoldSse(const arma::mat& x, const arma::vec& y,
+                                                     const arma::vec& w,
+                                                     const std::vector<std::size_t>& fold_of_row,
+                                                     std::size_t folds,
+                                                     const std::vector<std::size_t>& columns) {
+  const arma::vec weights = w.is_empty() ? arma::vec(x.n_rows, arma::fill::ones) : w;
+  arma::uvec picked(columns.size());
+  for (std::size_t j = 0; j < columns.size(); ++j) picked(j) = columns[j];
+  std::vector<double> sse(folds, 0.0);
+  for (std::size_t f = 0; f < folds; ++f) {
+    std::vector<arma::uword> train, test;
+    for (arma::uword i = 0; i < x.n_rows; ++i) (fold_of_row[i] == f ? test : train).push_back(i);
+    if (test.empty()) continue;
+    const arma::uvec train_rows(train), test_rows(test);
+    arma::vec beta(columns.size(), arma::fill::zeros);
+    if (!columns.empty()) {
+      if (train.size() < columns.size()) return std::nullopt;
+      const arma::vec root = arma::sqrt(weights(train_rows));
+      const arma::mat a = arma::diagmat(root) * x.submat(train_rows, picked);
+      const arma::vec b = root % y(train_rows);
+      if (arma::rank(a) < columns.size()) return std::nullopt;
+      if (!arma::solve(beta, a, b, arma::solve_opts::no_approx)) return std::nullopt;
+    }
+    const arma::vec residual =
+        y(test_rows) - (columns.empty() ? arma::vec(test.size(), arma::fill::zeros)
+                                        : arma::vec(x.submat(test_rows, picked) * beta));
+    sse[f] = arma::accu(weights(test_rows) % arma::square(residual));
+  }
+  return sse;
 }
 
 RowReplay MemoryRowReplay(const arma::mat& x, const arma::vec& y, const arma::vec& w, const arma::mat& x_low) {

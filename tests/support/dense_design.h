@@ -3,6 +3,8 @@
 // numerical engine without CSV files or plans.
 
 #include <cstddef>
+#include <cstdint>
+#include <optional>
 #include <string>
 #include <utility>
 #include <vector>
@@ -25,6 +27,23 @@ std::vector<double> PowerOfTwoScales(const arma::mat& x, const arma::vec& y);
 /// factor, block_rows rows per fold, with the given scales (empty: PowerOfTwoScales).
 Factor BuildFactor(const arma::mat& x, const arma::vec& y, const arma::vec& w = {},
                    std::size_t block_rows = 256, std::vector<double> scales = {});
+
+/// The fold of every row (row i is data record i): FoldOfRecord(seed, i, folds).
+std::vector<std::size_t> FoldsOfRows(std::size_t rows, std::uint64_t seed, std::size_t folds);
+/// One factor per fold (fold order), each folded from its rows only, with the given scales
+/// (empty: PowerOfTwoScales of all rows): what a data pass with cross-validation gives.
+std::vector<Factor> BuildFoldFactors(const arma::mat& x, const arma::vec& y, const arma::vec& w,
+                                     const std::vector<std::size_t>& fold_of_row, std::size_t folds,
+                                     std::vector<double> scales = {});
+/// The brute-force k-fold error: for each fold f, least squares (sqrt(w)-weighted, LAPACK
+/// through arma::solve, return checked) on the other folds' rows over the given columns, then
+/// sum over fold f's rows of w_i (y_i - x_i' beta)^2. nullopt when some training fit fails
+/// (rank-deficient). No columns: the prediction is 0.
+std::optional<std::vector<double>> BruteForceFoldSse(const arma::mat& x, const arma::vec& y,
+                                                     const arma::vec& w,
+                                                     const std::vector<std::size_t>& fold_of_row,
+                                                     std::size_t folds,
+                                                     const std::vector<std::size_t>& columns);
 
 /// A RowReplay over the rows in memory, in the given order (row_index = position, line = +2).
 /// x_low (optional, same shape as x): low-order parts of the design values (UsedRow::x_low).

@@ -37,8 +37,9 @@ struct Candidate {
 
 class Oracle {
  public:
-  Oracle(const DenseProblem& problem, const SearchOptions& options)
-      : problem_(problem), options_(options), n_(static_cast<double>(problem.y.n_elem)) {
+  Oracle(const DenseProblem& problem, const SearchOptions& options, OracleScore score = {})
+      : problem_(problem), options_(options), score_(std::move(score)),
+        n_(static_cast<double>(problem.y.n_elem)) {
     const double mean = problem.design.intercept ? arma::mean(problem.y) : 0.0;
     tss_ = arma::accu(arma::square(problem.y - mean));
     for (std::size_t term = 0; term < problem.design.terms.size(); ++term) {
@@ -162,7 +163,7 @@ class Oracle {
   std::optional<Candidate> Choose(const std::vector<std::size_t>& model, MoveAction action) {
     const double rss_now = OracleRss(problem_, model);
     const double k_now = K(model);
-    current_score_ = ScoreOf(rss_now, k_now);
+    current_score_ = score_ ? score_(model) : ScoreOf(rss_now, k_now);
     std::vector<Candidate> scored;
     std::vector<std::size_t> pool;
     if (action == MoveAction::kAdd) {
@@ -193,7 +194,7 @@ class Oracle {
         candidate.p = boost::math::cdf(boost::math::complement(distribution, candidate.f));
         p_defined = true;
       }
-      const auto score = ScoreOf(rss, k);
+      const auto score = score_ ? score_(changed) : ScoreOf(rss, k);
       const bool allowed = action == MoveAction::kAdd ? HierarchyAllowsAdd(model, term)
                                                       : HierarchyAllowsRemove(model, term);
       if (options_.criterion == Criterion::kPartialF) candidate.eligible = allowed && p_defined;
@@ -234,6 +235,7 @@ class Oracle {
 
   const DenseProblem& problem_;
   const SearchOptions& options_;
+  OracleScore score_;
   double n_;
   double tss_ = 0;
   std::optional<double> sigma2_full_;
@@ -259,6 +261,14 @@ OracleRoute OracleSearch(const DenseProblem& problem, const SearchOptions& optio
     throw std::invalid_argument("OracleSearch: greedy methods only");
   }
   return Oracle(problem, options).Run();
+}
+
+OracleRoute OracleSearch(const DenseProblem& problem, const SearchOptions& options, OracleScore score) {
+  if (options.method == Method::kAllSubsets || options.method == Method::kNone ||
+      options.criterion == Criterion::kPartialF || !score) {
+    throw std::invalid_argument("OracleSearch with a score: greedy methods and a score-based criterion only");
+  }
+  return Oracle(problem, options, std::move(score)).Run();
 }
 
 OracleRoute RouteOf(const SearchResult& result, const Design& design) {

@@ -9,6 +9,7 @@
 // stepwise re-testing every term after each addition, and a stop on a model met before.
 // Supported constraints: keep, never, max_terms, hierarchy. Not supported: aliased terms.
 
+#include <functional>
 #include <optional>
 #include <string>
 #include <vector>
@@ -35,6 +36,13 @@ double OracleRss(const DenseProblem& problem, const std::vector<std::size_t>& te
 
 /// forward, backward or stepwise by refitting.
 OracleRoute OracleSearch(const DenseProblem& problem, const SearchOptions& options);
+
+/// A criterion the test computes itself from the model's terms (the intercept implied when the
+/// design has one): lower is better, nullopt when undefined. Used instead of the criterion
+/// formulas (e.g. for cv, a per-fold refit from the rows).
+using OracleScore = std::function<std::optional<double>(const std::vector<std::size_t>& terms)>;
+/// forward, backward or stepwise by the given score (not partial-f).
+OracleRoute OracleSearch(const DenseProblem& problem, const SearchOptions& options, OracleScore score);
 
 /// The route of a kernel search in the same form.
 OracleRoute RouteOf(const SearchResult& result, const Design& design);

@@ -15,16 +15,21 @@
 //  - TSS = 0: adjusted R^2 undefined;
 //  - Cp without sigma^2 of the largest eligible model (or with n <= k there): undefined.
 //
-// A cross-validated criterion needs more than RSS: the model's columns, to refit on
-// per-fold factors. Score() therefore receives the model's columns too; MakeCriterion
-// reports kCv as not available yet.
+// The cross-validated criterion (cv) needs more than RSS: the model's columns, to refit on
+// per-fold factors (engine/cross_validation.h). ScoreModel therefore receives the model's
+// columns too. Its score is the k-fold RMSE sqrt(sum_f sse_f / sum_i w_i), lower is better
+// and reported as it is; it is undefined when a column of the model is aliased in some fold's
+// training rows (the reason names the design column and the fold). It does not use n <= k:
+// a model that the training rows of every fold can fit has a held-out error.
 
 #include <memory>
 #include <optional>
 #include <span>
 #include <string>
+#include <vector>
 
 #include "stepledger/engine/criteria.h"
+#include "stepledger/engine/cross_validation.h"
 #include "stepledger/selection/plan.h"
 
 namespace stepledger {
@@ -37,6 +42,11 @@ struct CriterionContext {
   double log_weight_sum = 0;      ///< sum of ln w_i (0 without weights)
   /// sigma^2 of the largest eligible model (all eligible terms); needed by Cp only.
   std::optional<double> full_sigma2;
+  /// cv: the per-fold factors (not owned; must outlive the criterion). Needed by cv only.
+  const CrossValidation* cross_validation = nullptr;
+  /// cv: the design's column names, to name an aliased column in a reason (may be empty:
+  /// the column's index is named then).
+  std::vector<std::string> column_names;
 };
 
 /// One model to score: its design columns (model order), RSS (data units), and k.
@@ -50,6 +60,9 @@ struct ModelToScore {
 struct Score {
   std::optional<double> value;  ///< internal, lower is better
   std::string undefined_reason; ///< when value is unset, e.g. "n <= k (n = 4, k = 5)"
+  /// cv only: held-out weighted SSE per fold (fold order, data units); empty for the other
+  /// criteria and when the score is undefined.
+  std::vector<double> fold_sse;
   bool defined() const { return value.has_value(); }
 };
 
@@ -67,8 +80,9 @@ class ModelCriterion {
   virtual std::string ValueName() const { return ToString(kind()); }
 };
 
-/// The criterion of the plan. Throws InputError for kCv ("not available yet"). Cp without
-/// context.full_sigma2 scores every model as undefined, saying why.
+/// The criterion of the plan. Cp without context.full_sigma2 scores every model as undefined,
+/// saying why. kCv without context.cross_validation throws PlanError at "criterion" (the run
+/// built no fold factors).
 std::unique_ptr<ModelCriterion> MakeCriterion(Criterion criterion, const CriterionContext& context);
 
 /// Relative tolerance under which two scores are equal (ties break by plan order).

@@ -30,6 +30,9 @@ struct CandidateScore {
   std::optional<double> f, p;          ///< partial F of the term and its p-value (entry or exit)
   bool eligible = false;
   std::string reason;                  ///< why not eligible; empty when eligible
+  /// Criterion cv only: held-out weighted SSE per fold of the model after the move (fold order,
+  /// data units); empty otherwise and when the score is undefined.
+  std::vector<double> fold_sse;
 };
 
 /// Terms left out of the search before it starts, and why (never, aliased, ...).
@@ -94,6 +97,7 @@ struct SubsetRecord {
   double rss = 0;
   std::optional<double> score;      ///< criterion value (reported units); unset when undefined
   std::size_t rank_in_size = 1;     ///< 1 = smallest RSS of its size
+  std::vector<double> fold_sse;     ///< criterion cv only: held-out SSE per fold (fold order)
 };
 
 class SearchObserver {

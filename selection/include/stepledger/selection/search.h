@@ -16,7 +16,10 @@
 //    search (kCycleDetected); partial-f with entry_p > exit_p is refused (it can cycle);
 //  - all-subsets: the best_per_size models of every size by RSS, by branch and bound over
 //    the factor (a subtree is bounded by the RSS of the largest model in it, Furnival and
-//    Wilson, Technometrics 1974), then the best of those by the criterion;
+//    Wilson, Technometrics 1974), then the best of those by the criterion; with cv, too, the
+//    models kept are those best by RSS (exact), and cv chooses among them only: cv does not
+//    fall with RSS, so no bound prunes by it, and the model of least cv over every subset is
+//    not searched for;
 //  - none: the base model plus every eligible term.
 // Constraints (all methods): keep terms are in every model; never terms in none; with
 // hierarchy a product or power enters only when its parts are in the model and a part leaves
@@ -29,9 +32,9 @@
 #include <string>
 #include <vector>
 
+#include "stepledger/engine/cross_validation.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/factor.h"
-#include "stepledger/engine/cross_validation.h"
 #include "stepledger/engine/kernel.h"
 #include "stepledger/selection/observer.h"
 #include "stepledger/selection/plan.h"
@@ -73,8 +76,9 @@ struct SearchRunOptions {
   /// Lets stepwise partial-f run with entry_p > exit_p, which ValidateSearchOptions refuses,
   /// so that tests can exercise the cycle guard. Never set by the command line.
   bool allow_cycling_thresholds = false;
-  /// The fold factors' cross-validation (engine/cross_validation.h) that criterion cv scores
-  /// with; required by cv, unused by the other criteria. Not owned.
+  /// Criterion cv: the per-fold factors of the pass (not owned; must outlive RunSearch), of the
+  /// same design as the factor. Ignored by the other criteria. Criterion cv without it: RunSearch
+  /// throws PlanError at "criterion".
   const CrossValidation* cross_validation = nullptr;
 };
 
@@ -84,7 +88,7 @@ struct SearchRunOptions {
 /// "bootstrap.replicates" (1..100000), "criterion", "keep[1]", "never[0]") for values out of
 /// range, entry_p > exit_p where the thresholds decide the route (stepwise by partial F: a term
 /// could enter and leave in turn; other criteria do not use the thresholds), more keep terms than
-/// max_terms, a term listed twice or both kept and never, and criterion cv (not available yet).
+/// max_terms, a term listed twice or both kept and never.
 void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds = false);
 
 /// Most candidate terms (neither kept nor never) an all-subsets search takes. The branch and
@@ -105,7 +109,9 @@ void ValidateSearchOptions(const SearchOptions& options, const Design& design,
 
 /// Runs the search. The observer (optional) sees every event as it happens; the result holds
 /// the same route. Throws PlanError for invalid options (see ValidateSearchOptions) and for a
-/// keep term aliased with the intercept and earlier keep terms.
+/// keep term aliased with the intercept and earlier keep terms, and for criterion cv without
+/// run.cross_validation; std::logic_error when the factor or the fold factors are of another
+/// design, or (cv) the number of fold factors is not the plan's folds.
 SearchResult RunSearch(const Factor& factor, const Design& design, const SearchOptions& options,
                        SearchObserver* observer = nullptr, const SearchRunOptions& run = {});
 
