@@ -6,7 +6,6 @@
 #include <filesystem>
 #include <functional>
 #include <memory>
-#include <optional>
 #include <ostream>
 #include <string>
 #include <vector>
@@ -20,7 +19,7 @@
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/limits.h"
 #include "stepledger/run/run_plan.h"
-#include "stepledger/run/validation.h"
+#include "stepledger/cli/validation_text.h"
 #include "stepledger/engine/table_scan.h"
 #include "stepledger/selection/plan.h"
 
@@ -28,13 +27,6 @@ namespace stepledger::cli {
 
 /// The cores this process may run on (sched_getaffinity), at least 1 and at most 256.
 int DefaultThreads();
-
-/// "Error on unseen rows: 10-fold RMSE ... beside the in-sample residual SD ..." (one line;
-/// residual_sd is used when the validation does not carry its own).
-std::string ValidationSummaryText(const ValidationResult& validation, std::optional<double> residual_sd);
-/// The holdout's metrics and calibration table and the bootstrap's stability summary; empty
-/// when the plan asked for neither.
-std::string ValidationDetailText(const ValidationResult& validation);
 
 /// Options every command accepts (CONTRACT.md "Common options").
 struct CommonOptions {

@@ -2,10 +2,11 @@
 // in-sample residual SD in the summary; the holdout, its calibration and the bootstrap's
 // stability in the full text. Numbers follow engine/number_format.h.
 #include <algorithm>
+#include <cstdint>
 #include <sstream>
 #include <string>
 
-#include "commands.h"
+#include "stepledger/cli/validation_text.h"
 #include "stepledger/engine/number_format.h"
 
 namespace stepledger::cli {
