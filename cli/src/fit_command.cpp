@@ -171,7 +171,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
     return 0;
   }
 
-  context.out << "Model: " << ModelStatement(run.design, fit) << "\n" << fit.FullReport()
+  context.out << "Model: " << ModelStatement(run.design, fit) << "\n" << fit.FullReport() << "\n"
               << ValidationSummaryText(run.validation, fit.criteria.sigma) << "\n" << RowsText(run.accounting);
   if (const std::string detail = ValidationDetailText(run.validation); !detail.empty()) {
     context.out << "\n" << detail;

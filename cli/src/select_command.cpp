@@ -132,7 +132,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
     context.out << "\n";
   }
   context.out << result.FullReport() << "\nFinal model: " << ModelStatement(run.design, fit) << "\n"
-              << fit.FullReport() << ValidationSummaryText(run.validation, fit.criteria.sigma);
+              << fit.FullReport() << "\n" << ValidationSummaryText(run.validation, fit.criteria.sigma);
   if (const std::string detail = ValidationDetailText(run.validation); !detail.empty()) {
     context.out << "\n" << detail;
   }
