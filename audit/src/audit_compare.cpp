@@ -17,6 +17,7 @@
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/fitted_model.h"
 #include "stepledger/audit/model_json.h"
+#include "stepledger/audit/validation_json.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/number_format.h"
@@ -64,6 +65,7 @@ struct AuditView {
   std::vector<std::string> terms;
   std::vector<CoefficientView> coefficients;
   std::optional<double> rss, weight_sum;
+  std::optional<ValidationResult> validation;  // absent in audits made before it existed
 };
 
 AuditView ReadForComparison(const json& audit, const AuditReader& reader) {
@@ -112,6 +114,9 @@ AuditView ReadForComparison(const json& audit, const AuditReader& reader) {
   }
   view.rss = reader.OptionalNumber(model, "model", "rss");
   view.weight_sum = reader.OptionalNumber(model, "model", "weight_sum");
+  if (const json* validation = AuditReader::Find(audit, "validation"); validation != nullptr && !validation->is_null()) {
+    view.validation = ValidationFromJson(*validation, reader.source());
+  }
   return view;
 }
 
@@ -337,6 +342,46 @@ ComparisonVerdict VerdictFromParts(const std::vector<std::string>& old_terms,
   return ComparisonVerdict::kSameModel;
 }
 
+ValidationComparisonPart ValidationComparison(const AuditView& old_view, const AuditView& new_view) {
+  ValidationComparisonPart part;
+  if (!old_view.validation || !new_view.validation) return part;
+  const ValidationResult& before = *old_view.validation;
+  const ValidationResult& after = *new_view.validation;
+  part.folds_compared = true;
+  part.old_folds_rmse = before.folds.rmse;
+  part.new_folds_rmse = after.folds.rmse;
+  if (before.holdout && after.holdout) {
+    part.holdout_compared = true;
+    part.old_holdout_rmse = before.holdout->rmse;
+    part.new_holdout_rmse = after.holdout->rmse;
+  }
+  if (!before.bootstrap || !after.bootstrap) return part;
+  part.inclusion_compared = true;
+  const auto frequency_of = [](const BootstrapValidation& bootstrap, const std::string& term) -> std::optional<double> {
+    for (const TermInclusion& entry : bootstrap.inclusion) {
+      if (entry.term == term) return entry.frequency;
+    }
+    return std::nullopt;
+  };
+  for (const TermInclusion& entry : before.bootstrap->inclusion) {
+    part.inclusion.push_back({entry.term, entry.frequency, frequency_of(*after.bootstrap, entry.term)});
+  }
+  for (const TermInclusion& entry : after.bootstrap->inclusion) {
+    if (!frequency_of(*before.bootstrap, entry.term)) part.inclusion.push_back({entry.term, std::nullopt, entry.frequency});
+  }
+  double largest = 0;
+  for (std::size_t i = 0; i < part.inclusion.size(); ++i) {
+    const InclusionChange& change = part.inclusion[i];
+    if (!change.old_frequency || !change.new_frequency) continue;
+    const double moved = std::fabs(*change.new_frequency - *change.old_frequency);
+    if (moved > largest) {
+      largest = moved;
+      part.largest_change = i;
+    }
+  }
+  return part;
+}
+
 }  // namespace
 
 AuditComparison CompareAudits(const json& old_as_read, const json& new_as_read, const CompareOptions& options) {
@@ -365,6 +410,7 @@ AuditComparison CompareAudits(const json& old_as_read, const json& new_as_read, 
   comparison.coefficients_only_old = std::move(changes.only_old);
   comparison.coefficients_only_new = std::move(changes.only_new);
   comparison.prediction = RecordedPrediction(old_audit, new_audit, new_reader);
+  comparison.validation = ValidationComparison(old_view, new_view);
   return comparison;
 }
 
@@ -437,6 +483,25 @@ json AuditComparison::ToJson() const {
   comparison["coefficients_only_old"] = StringsJson(coefficients_only_old);
   comparison["coefficients_only_new"] = StringsJson(coefficients_only_new);
   comparison["prediction"] = prediction;
+  json inclusion = json::array();
+  for (const InclusionChange& change : validation.inclusion) {
+    inclusion.push_back({{"term", change.term},
+                         {"old", NumberOrNull(change.old_frequency)},
+                         {"new", NumberOrNull(change.new_frequency)}});
+  }
+  json validation_json = {{"folds_compared", validation.folds_compared},
+                          {"holdout_compared", validation.holdout_compared},
+                          {"inclusion_compared", validation.inclusion_compared},
+                          {"inclusion", std::move(inclusion)}};
+  if (validation.folds_compared) {
+    validation_json["folds_rmse"] = {{"old", NumberOrNull(validation.old_folds_rmse)},
+                                     {"new", NumberOrNull(validation.new_folds_rmse)}};
+  }
+  if (validation.holdout_compared) {
+    validation_json["holdout_rmse"] = {{"old", NumberOrNull(validation.old_holdout_rmse)},
+                                       {"new", NumberOrNull(validation.new_holdout_rmse)}};
+  }
+  comparison["validation"] = std::move(validation_json);
   comparison["verdict"] = ToString(verdict);
   comparison["models_differ"] = ModelsDiffer();
   return comparison;

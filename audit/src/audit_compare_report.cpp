@@ -1,5 +1,6 @@
 // The comparison of two audits as text for the terminal (AuditComparison::BriefReport and
 // FullReport): one renderer per part, in the order a reviewer reads them.
+#include <algorithm>
 #include <cstdint>
 #include <optional>
 #include <sstream>
@@ -186,9 +187,41 @@ void RenderPrediction(const json& prediction, std::ostringstream& text) {
   text << "\n";
 }
 
+// The k-fold and holdout RMSE side by side, and the bootstrap inclusion frequencies of both runs
+// (beside the route: a term that entered or left often moved in frequency too).
+void RenderValidation(const ValidationComparisonPart& validation, std::ostringstream& text) {
+  if (validation.folds_compared) {
+    text << "  k-fold RMSE: " << FormatQuantity(validation.old_folds_rmse) << " -> "
+         << FormatQuantity(validation.new_folds_rmse) << "\n";
+  }
+  if (validation.holdout_compared) {
+    text << "  holdout RMSE: " << FormatQuantity(validation.old_holdout_rmse) << " -> "
+         << FormatQuantity(validation.new_holdout_rmse) << "\n";
+  }
+  if (!validation.inclusion_compared) return;
+  text << "  bootstrap inclusion (share of replicates choosing the term, old -> new):\n";
+  std::size_t width = 8;
+  for (const InclusionChange& change : validation.inclusion) width = std::max(width, change.term.size());
+  for (const InclusionChange& change : validation.inclusion) {
+    const auto share = [](const std::optional<double>& value) {
+      return value ? FormatPercent(value) : std::string("not a candidate");
+    };
+    text << "    " << change.term << std::string(width - change.term.size(), ' ') << "  "
+         << share(change.old_frequency) << " -> " << share(change.new_frequency) << "\n";
+  }
+}
+
 }  // namespace
 
-std::string AuditComparison::BriefReport() const { return VerdictSentence(verdict); }
+std::string AuditComparison::BriefReport() const {
+  std::string brief = VerdictSentence(verdict);
+  if (validation.largest_change) {
+    const InclusionChange& change = validation.inclusion[*validation.largest_change];
+    brief += " Largest change in bootstrap inclusion: " + change.term + " " + FormatPercent(change.old_frequency) +
+             " -> " + FormatPercent(change.new_frequency) + ".";
+  }
+  return brief;
+}
 
 std::string AuditComparison::FullReport() const {
   std::ostringstream text;
@@ -198,6 +231,7 @@ std::string AuditComparison::FullReport() const {
   RenderRows(rows, text);
   RenderRoute(route, text);
   RenderFinalTerms(final_terms, text);
+  RenderValidation(validation, text);
   RenderCoefficients(*this, text);
   RenderPrediction(prediction, text);
   return text.str();

@@ -17,6 +17,7 @@
 #include "stepledger/io/json_reader.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/audit/route_json.h"
+#include "stepledger/audit/validation_json.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
 #include "stepledger/engine/utf8.h"
@@ -92,7 +93,7 @@ json DataJson(const RunResult& run) {
   for (const ColumnProfile& column : run.profile.columns) columns.push_back(ColumnJson(column));
   // The file's name is for people (the fingerprint identifies the data): a name that is not
   // UTF-8 is recorded with U+FFFD in place of its bad bytes, before the seal covers it.
-  return {{"file", Utf8Replaced(run.data_file_name)},
+  json data{{"file", Utf8Replaced(run.data_file_name)},
           {"sha256", run.data_sha256},
           {"bytes", run.data_bytes},
           {"encoding", run.data_encoding},
@@ -102,6 +103,10 @@ json DataJson(const RunResult& run) {
           {"rows_dropped", RowsDroppedJson(run.accounting)},
           {"missing", run.plan.plan.missing_tokens},
           {"columns", std::move(columns)}};
+  // Only a plan with a holdout sets rows aside: without one the key is absent, as in audits
+  // made before holdouts existed.
+  if (run.plan.plan.search.holdout) data["rows_held_out"] = run.accounting.rows_held_out;
+  return data;
 }
 
 json DesignJson(const Design& design) {
@@ -216,6 +221,25 @@ json CautionsToJson(const std::vector<Caution>& cautions) {
       case CautionKind::kExcludedTerms:
         entry["terms"] = caution.terms;
         break;
+      case CautionKind::kSelectionStability: {
+        json rare = json::array();
+        for (const TermInclusion& term : caution.rarely_chosen) {
+          rare.push_back({{"term", term.term}, {"frequency", NumberOrNull(term.frequency)}});
+        }
+        json pairs = json::array();
+        for (const SubstitutePair& pair : caution.substitutes) pairs.push_back({{"first", pair.first}, {"second", pair.second}});
+        entry["rarely_chosen"] = std::move(rare);
+        entry["substitutes"] = std::move(pairs);
+        entry["inclusion_threshold"] = kStableInclusionShare;
+        entry["replicates"] = caution.replicates.value_or(0);
+        break;
+      }
+      case CautionKind::kHoldoutError:
+        entry["holdout_rmse"] = NumberOrNull(caution.holdout_rmse);
+        entry["residual_sd"] = NumberOrNull(caution.residual_sd);
+        entry["holdout_rows"] = caution.holdout_rows.value_or(0);
+        entry["ratio_threshold"] = kHoldoutErrorRatio;
+        break;
       case CautionKind::kAssociation:
       case CautionKind::kNoResidualDf:
         break;
@@ -247,6 +271,7 @@ json BuildAuditDocument(const RunResult& run, const AuditDocumentOptions& option
   document["model"] = ModelToJson(run.fit);
   document["numerics"] = NumericsJson(run);
   document["prediction"] = PredictionSectionJson(run.fit, run.design, run.prediction_support);
+  document["validation"] = ValidationToJson(run.validation);
   document["cautions"] = CautionsToJson(ComputeCautions(run));
   if (options.parent) document["parent"] = *options.parent;
   if (options.comparison) document["comparison"] = *options.comparison;

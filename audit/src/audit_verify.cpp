@@ -11,6 +11,7 @@
 #include "stepledger/audit/fitted_model.h"
 #include "stepledger/audit/replay.h"
 #include "stepledger/audit/signature.h"
+#include "stepledger/audit/validation_json.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
 
@@ -278,6 +279,27 @@ void CheckNormalisedPlan(const json& document, const InputLimits& limits, Verify
                             "(predict reads the one, a replay runs the other): it was edited");
 }
 
+// The validation section's structure: the typed reader names the first key that is not the
+// contract's shape. An audit of an older format_version may have none.
+void CheckValidationShape(const json& document, VerifyReport& report) {
+  if (!document.contains("validation")) {
+    if (document.value("format_version", kAuditFormatVersion) >= kAuditFormatVersion) {
+      report.validation = Check::kFails;
+      report.problems.push_back("key 'validation' is missing: an audit of this format_version records it");
+    }
+    return;
+  }
+  try {
+    ValidationFromJson(document["validation"], "audit");
+    report.validation = Check::kHolds;
+  } catch (const InputError& error) {
+    report.validation = Check::kFails;
+    std::string reason = error.what();
+    if (reason.rfind("audit: ", 0) == 0) reason.erase(0, 7);
+    report.problems.push_back(reason);
+  }
+}
+
 std::string DataFileForMessage(const std::filesystem::path& path) { return path.string(); }
 
 // The parts of a replayed document compared with the recorded one, in the order of reporting.
@@ -307,6 +329,7 @@ std::string VerifyReport::FullReport() const {
   line("seal", seal);
   line("signature", signature);
   line("normalised plan", plan);
+  line("validation section", validation);
   line("fingerprint", fingerprint);
   line("replay", replay);
   if (!DataChecked()) text << "  data fingerprint and replay: NOT CHECKED (" << kHowToCheckData << ")\n";
@@ -329,6 +352,7 @@ nlohmann::json VerifyReport::ToJson() const {
             {"seal", ToString(seal)},
             {"signature", ToString(signature)},
             {"normalised_plan", ToString(plan)},
+            {"validation", ToString(validation)},
             {"fingerprint", ToString(fingerprint)},
             {"replay", ToString(replay)}}},
           {"problems", problems},
@@ -351,7 +375,8 @@ constexpr std::size_t kMaxCompareDepth = 256;
 
 std::optional<std::string> FirstDifference(const json& recorded, const json& replayed, const std::string& path,
                                            double relative_tolerance, const char* recorded_name,
-                                           const char* replayed_name, std::size_t depth) {
+                                           const char* replayed_name, std::size_t depth,
+                                           bool exact_integers = false) {
   if (depth > kMaxCompareDepth) {
     return "key '" + path + "' is nested deeper than " + std::to_string(kMaxCompareDepth) + " levels: not compared";
   }
@@ -359,6 +384,10 @@ std::optional<std::string> FirstDifference(const json& recorded, const json& rep
     return "key '" + path + "' " + what;
   };
   if (recorded.is_number() && replayed.is_number()) {
+    if (exact_integers && recorded.is_number_integer() && replayed.is_number_integer()) {
+      if (recorded == replayed) return std::nullopt;
+      return differs("is " + Shown(recorded) + " " + recorded_name + ", " + Shown(replayed) + " " + replayed_name);
+    }
     if (NumbersAgree(recorded.get<double>(), replayed.get<double>(), relative_tolerance)) return std::nullopt;
     return differs("is " + Shown(recorded) + " " + recorded_name + ", " + Shown(replayed) + " " +
                    replayed_name);
@@ -376,7 +405,7 @@ std::optional<std::string> FirstDifference(const json& recorded, const json& rep
       if (!recorded.contains(key)) return "key '" + child + "' is missing " + recorded_name;
       if (!replayed.contains(key)) return "key '" + child + "' is missing " + replayed_name;
       if (auto difference = FirstDifference(recorded[key], replayed[key], child, relative_tolerance, recorded_name,
-                                            replayed_name, depth + 1)) {
+                                            replayed_name, depth + 1, exact_integers)) {
         return difference;
       }
     }
@@ -386,7 +415,8 @@ std::optional<std::string> FirstDifference(const json& recorded, const json& rep
     const std::size_t common = std::min(recorded.size(), replayed.size());
     for (std::size_t i = 0; i < common; ++i) {
       if (auto difference = FirstDifference(recorded[i], replayed[i], path + "[" + std::to_string(i) + "]",
-                                            relative_tolerance, recorded_name, replayed_name, depth + 1)) {
+                                            relative_tolerance, recorded_name, replayed_name, depth + 1,
+                                            exact_integers)) {
         return difference;
       }
     }
@@ -411,6 +441,12 @@ std::optional<std::string> FirstJsonDifference(const json& recorded, const json&
   return FirstDifference(recorded, replayed, path, relative_tolerance, recorded_name, replayed_name, 0);
 }
 
+std::optional<std::string> FirstValidationDifference(const json& recorded, const json& replayed,
+                                                     double relative_tolerance) {
+  return FirstDifference(recorded, replayed, "validation", relative_tolerance, "in the audit", "on replay", 0,
+                         /*exact_integers=*/true);
+}
+
 VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::path& public_key,
                                  const InputLimits& limits) {
   VerifyReport report;
@@ -424,6 +460,7 @@ VerifyReport CheckAuditIntegrity(const json& document, const std::filesystem::pa
   CheckSeal(document, report);
   CheckSignature(document, public_key, report);
   CheckNormalisedPlan(document, limits, report);
+  CheckValidationShape(document, report);
   return report;
 }
 
@@ -584,6 +621,18 @@ void CompareReplayedSections(const json& recorded_document, const json& replayed
   }
 }
 
+// The validation section: counts exactly, other numbers within the tolerance. An audit of an older
+// format_version made before validation existed has none: nothing to compare.
+void CompareReplayedValidation(const json& recorded_document, const json& replayed, double tolerance,
+                               VerifyReport& report) {
+  if (!recorded_document.contains("validation")) return;  // named by the structure check if due
+  const json replayed_validation = replayed.contains("validation") ? replayed["validation"] : json(nullptr);
+  if (auto difference = FirstValidationDifference(recorded_document["validation"], replayed_validation, tolerance)) {
+    report.replay = Check::kFails;
+    report.problems.push_back("replay differs: " + *difference);
+  }
+}
+
 // plan.normalised as predict reads it against the replay's normalisation of plan.verbatim on
 // the data, exactly (the check without data compares it with the recorded columns).
 void CompareReplayedPlan(const json& document, const json& replayed, VerifyReport& report) {
@@ -636,6 +685,7 @@ VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   const json recorded_steps = recorded_document.value("steps", json::array());
   CompareReplayedRoute(recorded_steps, replayed["steps"], tolerance, report);
   CompareReplayedSections(recorded_document, replayed, tolerance, report);
+  CompareReplayedValidation(recorded_document, replayed, tolerance, report);
   CompareReplayedPlan(document, replayed, report);
   return report;
 }

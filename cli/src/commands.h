@@ -19,6 +19,7 @@
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/limits.h"
 #include "stepledger/run/run_plan.h"
+#include "stepledger/cli/validation_text.h"
 #include "stepledger/engine/table_scan.h"
 #include "stepledger/selection/plan.h"
 

@@ -14,6 +14,7 @@
 #include "commands.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/model_json.h"
+#include "stepledger/audit/validation_json.h"
 #include "stepledger/run/cautions.h"
 #include "stepledger/run/run_plan.h"
 #include "stepledger/io/plan_file.h"
@@ -67,8 +68,9 @@ DiagnosticsSummary Summarize(const DiagnosticsResult& diagnostics) {
 
 std::string RowsText(const RowAccounting& accounting) {
   std::ostringstream text;
-  text << "Rows: " << accounting.rows_read << " read, " << accounting.rows_used << " used, "
-       << accounting.RowsDroppedTotal() << " dropped";
+  text << "Rows: " << accounting.rows_read << " read, " << accounting.rows_used << " used, ";
+  if (accounting.rows_held_out > 0) text << accounting.rows_held_out << " held out, ";
+  text << accounting.RowsDroppedTotal() << " dropped";
   if (!accounting.rows_dropped.empty()) {
     text << " (";
     bool first = true;
@@ -161,14 +163,19 @@ int RunFit(const FitArgs& args, CommandContext& context) {
         {"max_cooks_distance", NullableLine(summary.max_cooks_distance, summary.max_cooks_line)},
         {"press", NumberOrNull(summary.press)},
         {"large_standardized_residuals", summary.large_residuals}};
+    if (run.plan.plan.search.holdout) result["data"]["rows_held_out"] = run.accounting.rows_held_out;
     result["cautions"] = CautionsToJson(cautions);
+    result["validation"] = ValidationToJson(run.validation);
     result["model_statement"] = ModelStatement(run.design, fit);
     context.out << JsonText(result) << "\n";
     return 0;
   }
 
   context.out << "Model: " << ModelStatement(run.design, fit) << "\n" << fit.FullReport() << "\n"
-              << RowsText(run.accounting);
+              << ValidationSummaryText(run.validation, fit.criteria.sigma) << "\n" << RowsText(run.accounting);
+  if (const std::string detail = ValidationDetailText(run.validation); !detail.empty()) {
+    context.out << "\n" << detail;
+  }
   if (!context.common.quiet) {
     context.out << "\n" << DiagnosticsText(summary, fit) << "\nCautions:\n";
     for (const Caution& caution : cautions) context.out << "  - " << caution.message << "\n";
@@ -204,7 +211,7 @@ void AddFitCommand(CLI::App& app, CommandContext& context) {
       "variance, the criteria (R-squared, adjusted R-squared, log-likelihood, AIC, AICc, BIC), "
       "the rows read, used and dropped by reason, the largest leverage and Cook's distance "
       "with their line numbers, PRESS, and the cautions that apply. With --json: the model "
-      "object of the contract, plus model_statement, data, diagnostics and cautions.\n\n"
+      "object of the contract, plus model_statement, data, diagnostics, cautions and validation.\n\n"
       "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
       ProgramWord() + " fit build/demo/laptops.csv --plan build/demo/plan.json");
   command->callback([args, &context] {

@@ -20,6 +20,7 @@
 #include "stepledger/io/plan_file.h"
 #include "stepledger/report/report.h"
 #include "stepledger/audit/route_json.h"
+#include "stepledger/audit/validation_json.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/run/cautions.h"
 #include "stepledger/engine/design.h"
@@ -100,9 +101,11 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   document["search"] = SearchSummaryToJson(result);
   document["model"] = ModelToJson(fit);
   document["cautions"] = CautionsToJson(cautions);
+  document["validation"] = ValidationToJson(run.validation);
   document["data"] = {{"file", args.data},
                       {"rows_read", run.accounting.rows_read},
                       {"rows_used", run.accounting.rows_used}};
+  if (run.plan.plan.search.holdout) document["data"]["rows_held_out"] = run.accounting.rows_held_out;
   document["model_statement"] = ModelStatement(run.design, fit);
   nlohmann::json left_out = nlohmann::json::array();
   for (const auto& [column, reason] : run.design.skipped) {
@@ -129,7 +132,10 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
     context.out << "\n";
   }
   context.out << result.FullReport() << "\nFinal model: " << ModelStatement(run.design, fit) << "\n"
-              << fit.FullReport();
+              << fit.FullReport() << "\n" << ValidationSummaryText(run.validation, fit.criteria.sigma);
+  if (const std::string detail = ValidationDetailText(run.validation); !detail.empty()) {
+    context.out << "\n" << detail;
+  }
   if (!context.common.quiet) {
     context.out << "\nCautions:\n";
     for (const Caution& caution : cautions) context.out << "  - " << caution.message << "\n";
@@ -182,7 +188,7 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
       "the factor alone. Prints the route (step, action, term, criterion before -> after, the "
       "rule that decided), the final model in words and as `fit` prints it, and the cautions. "
       "With --json: {steps, subsets (all-subsets), search, model, model_statement, "
-      "columns_left_out, cautions, data, written}. With --out DIR: DIR/audit.json and "
+      "columns_left_out, cautions, validation, data, written}. With --out DIR: DIR/audit.json and "
       "DIR/report.html (the report with the diagnostics of the final model; see `stepledger "
       "report --help`), both paths printed at the end; an existing file is refused without "
       "--force. --method and --criterion take any case (AIC, Forward).\n\n"

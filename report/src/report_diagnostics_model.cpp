@@ -71,7 +71,7 @@ ReportChart CooksChart(const DiagnosticsResult& result, const ReportOptions& opt
   const double threshold = result.thresholds.cooks;
   chart.y_include = {0, threshold};
   chart.references.push_back({false, threshold, "4/n = " + FormatQuantity(threshold, 3)});
-  ChartSeries largest{"largest per line range", false, true, {}};
+  ChartSeries largest{"largest per line range", false, true, {}, {}};
   const double width = binned.lines.width * static_cast<double>(coarse.group);
   for (std::size_t index = 0; index < coarse.count; ++index) {
     const std::optional<RowDiagnostic>* best = nullptr;
@@ -96,7 +96,7 @@ ReportChart CooksChart(const DiagnosticsResult& result, const ReportOptions& opt
   }
   const std::size_t ranges = largest.points.size();
   chart.series.push_back(std::move(largest));
-  ChartSeries flagged{"above 4/n", false, true, {}};
+  ChartSeries flagged{"above 4/n", false, true, {}, {}};
   for (const RowDiagnostic& row : result.largest_cooks_distance) {
     if (flagged.points.size() >= options.max_flagged_points) break;
     if (!result.thresholds.CooksAbove(row)) continue;  // also skips leverage 1: no distance to draw
@@ -159,7 +159,7 @@ ReportChart DensityChart(const json& audit, const DiagnosticsResult& result, con
   const std::uint64_t most = *std::max_element(grid.counts.begin(), grid.counts.end());
   const std::size_t shown_columns = grid.columns, shown_rows = grid.rows;
   chart.grid = std::move(grid);
-  ChartSeries flagged{"rows that stand out", false, true, {}};
+  ChartSeries flagged{"rows that stand out", false, true, {}, {}};
   for (const RowDiagnostic& row : stand_out_rows) {
     if (flagged.points.size() >= options.max_flagged_points) break;
     flagged.points.push_back({row.fitted, row.residual, "resid-flagged", RowTitle(row), "", std::nullopt,
@@ -217,7 +217,7 @@ ReportChart HistogramChart(const DiagnosticsResult& result, const ReportOptions&
   // The curve the bars should follow under normal errors: n * bin width * phi(x), phi the
   // standard normal density exp(-x^2 / 2) / sqrt(2 pi) (its definition).
   const double width = 2 * limit / static_cast<double>(grid.columns);
-  ChartSeries curve{"standard normal", true, false, {}};
+  ChartSeries curve{"standard normal", true, false, {}, {}};
   constexpr int kCurvePoints = 97;
   for (int index = 0; index < kCurvePoints; ++index) {
     const double x = -limit + 2 * limit * index / (kCurvePoints - 1);
@@ -244,8 +244,8 @@ ReportChart QuantileChart(const DiagnosticsResult& result) {
   chart.title = "Standardised residuals against normal quantiles";
   chart.x_label = "standard normal quantile";
   chart.y_label = "standardised residual quantile";
-  ChartSeries diagonal{"equal quantiles", true, false, {}};
-  ChartSeries points{"quantiles", false, true, {}};
+  ChartSeries diagonal{"equal quantiles", true, false, {}, {}};
+  ChartSeries points{"quantiles", false, true, {}, {}};
   double low = -3, high = 3;
   for (const NormalQuantile& quantile : result.normal_quantiles) {
     low = std::min({low, quantile.normal, quantile.sample});

@@ -86,6 +86,9 @@ svg .cooks-bin, svg .qq-point { fill: var(--sky); stroke: #1f4e6e; stroke-width:
 svg .cooks-flagged, svg .resid-flagged { fill: var(--vermillion); stroke-width: .9; }
 svg .density-cell { fill: var(--blue); stroke: none; }
 svg .hist-bar { fill: var(--sky); stroke: #1f4e6e; stroke-width: .6; }
+svg .bar { fill: var(--sky); stroke: #1f4e6e; stroke-width: .6; }
+svg .bar.chosen { fill: var(--vermillion); }
+svg .calibration-point { fill: var(--blue); }
 svg .normal-curve { fill: none; stroke: var(--vermillion); stroke-width: 2; }
 svg .ref { stroke: var(--green); stroke-width: 1.5; stroke-dasharray: 6 3; fill: none; }
 @media (max-width: 40rem) {
@@ -200,7 +203,9 @@ void XyChart(std::ostringstream& out, const ReportChart& chart, double chart_wid
       if (series.markers) points << "\n";
     }
     if (series.joined && line.size() >= 2) {
-      out << "<polyline class=\"" << (series.markers ? "route-line" : "normal-curve") << "\" points=\""
+      const std::string line_class =
+          !series.line_class.empty() ? series.line_class : series.markers ? "route-line" : "normal-curve";
+      out << "<polyline class=\"" << line_class << "\" points=\""
           << PointList(line) << "\"/>\n";
     }
     out << points.str();
@@ -208,7 +213,8 @@ void XyChart(std::ostringstream& out, const ReportChart& chart, double chart_wid
   out << XyPlot::End();
 }
 
-// One labelled row per point, the value on the x axis (the candidates of a step).
+// One labelled row per point, the value on the x axis (the candidates of a step); with kBars a
+// bar from 0 to the value (shares of bootstrap replicates).
 void DotRowsChart(std::ostringstream& out, const ReportChart& chart, double chart_width) {
   const std::vector<ChartPoint>& points = chart.series.front().points;
   std::vector<double> values = chart.x_include;
@@ -235,7 +241,17 @@ void DotRowsChart(std::ostringstream& out, const ReportChart& chart, double char
     const double y = plot.Y(rows.hi - static_cast<double>(index) - 0.5);
     const double x = point.defined ? plot.X(point.x) : plot.X(plot.x_scale().lo);
     out << "<text class=\"row-label\" x=\"" << C(layout.left - 8) << "\" y=\"" << C(y + 4)
-        << "\" text-anchor=\"end\">" << E(point.label) << "</text>" << PointMarker(point, x, y);
+        << "\" text-anchor=\"end\">" << E(point.label) << "</text>";
+    if (chart.kind == ChartKind::kBars) {
+      const double zero = plot.X(0);
+      out << "<rect class=\"pt bar " << E(point.css_class) << "\" x=\"" << C(std::min(zero, x)) << "\" y=\""
+          << C(y - row_height * 0.35) << "\" width=\"" << C(std::fabs(x - zero)) << "\" height=\""
+          << C(row_height * 0.7) << "\"><title>" << E(point.title.value_or(point.label)) << "</title></rect>"
+          << "<text class=\"point-label\" x=\"" << C(std::max(zero, x) + 5) << "\" y=\"" << C(y + 4) << "\">"
+          << E(point.value_text) << "</text>\n";
+      continue;
+    }
+    out << PointMarker(point, x, y);
     if (point.css_class.find("chosen") != std::string::npos) {
       out << "<text class=\"point-label\" x=\"" << C(x + 11) << "\" y=\"" << C(y + 4) << "\">chosen</text>";
     }
@@ -403,7 +419,8 @@ struct HtmlBlock {
     switch (chart.kind) {
       case ChartKind::kLine:
       case ChartKind::kScatter: XyChart(out, chart, chart_width); break;
-      case ChartKind::kDotRows: DotRowsChart(out, chart, chart_width); break;
+      case ChartKind::kDotRows:
+      case ChartKind::kBars: DotRowsChart(out, chart, chart_width); break;
       case ChartKind::kIntervals: IntervalsChart(out, chart, chart_width); break;
       case ChartKind::kDensity: DensityChart(out, chart, chart_width); break;
       case ChartKind::kHistogram: HistogramChart(out, chart, chart_width); break;

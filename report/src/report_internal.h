@@ -122,6 +122,10 @@ ReportSection RouteSection(const json& audit);
 ReportSection CandidatesSection(const json& audit);
 std::optional<ReportSection> SubsetsSection(const json& audit);
 
+/// The validation section (report_validation_model.cpp); nullopt for an audit without one.
+/// Throws InputError naming the key when the section is not the contract's shape.
+std::optional<ReportSection> ValidationSection(const json& audit);
+
 /// The diagnostics section (report_diagnostics_model.cpp).
 ReportSection DiagnosticsSection(const json& audit, const ReportDiagnostics* diagnostics,
                                  const ReportOptions& options);

@@ -36,6 +36,7 @@ const char* ToString(ChartKind kind) {
     case ChartKind::kScatter: return "scatter";
     case ChartKind::kDensity: return "density";
     case ChartKind::kHistogram: return "histogram";
+    case ChartKind::kBars: return "bars";
   }
   return "line";
 }

@@ -209,7 +209,7 @@ ReportSection FinalModel(const json& audit) {
                   "every interval can be read; compare rows by the table, not by bar length. An interval "
                   "that crosses zero is compatible with no effect (and all these intervals ignore the "
                   "selection).";
-  ChartSeries series{"coefficients", false, true, {}};
+  ChartSeries series{"coefficients", false, true, {}, {}};
   for (const json& coefficient : Get(model, "coefficients")) {
     const std::string name = Text(Get(coefficient, "name"));
     const V estimate = V::Quantity(Number(Get(coefficient, "estimate")), kCriterionDigits);
@@ -355,7 +355,7 @@ ReportModel BuildReportModel(const nlohmann::json& recorded, const ReportDiagnos
   if (auto subsets = SubsetsSection(audit)) model.sections.push_back(std::move(*subsets));
   model.sections.push_back(FinalModel(audit));
   model.sections.push_back(DiagnosticsSection(audit, diagnostics, options));
-  if (audit.contains("validation")) model.sections.push_back(Generic(audit, "validation", "Validation"));
+  if (auto validation = ValidationSection(audit)) model.sections.push_back(std::move(*validation));
   if (audit.contains("stability")) model.sections.push_back(Generic(audit, "stability", "Stability"));
   model.sections.push_back(Integrity(recorded));
   return model;

@@ -37,7 +37,7 @@ void CandidateStep(const json& audit, const json& step, ReportSection& section) 
   chart.kind = ChartKind::kDotRows;
   chart.title = heading;
   chart.x_label = value_name;
-  ChartSeries series{"candidates", false, true, {}};
+  ChartSeries series{"candidates", false, true, {}, {}};
 
   for (const json& candidate : candidates) {
     const std::string term = Text(Get(candidate, "term"));
@@ -137,7 +137,7 @@ ReportSection RouteSection(const json& audit) {
   chart.integer_x = true;
   chart.rotate_point_labels = true;
   chart.x_label = "step";
-  ChartSeries series{"route", /*joined=*/true, /*markers=*/true, {}};
+  ChartSeries series{"route", /*joined=*/true, /*markers=*/true, {}, {}};
   for (const json& step : steps) {
     const std::optional<std::int64_t> index = Count(Get(step, "index"));
     const std::string action = Text(Get(step, "action"));
@@ -226,7 +226,7 @@ std::optional<ReportSection> SubsetsSection(const json& audit) {
     chart.y_label = value_name;
     chart.caption = "The best kept model of each size; ◆ marks the size of the final model. Hover a point "
                     "for its terms.";
-    ChartSeries series{"best by size", true, true, {}};
+    ChartSeries series{"best by size", true, true, {}, {}};
     for (const SubsetBest& entry : best) {
       std::string terms;
       for (const std::string& term : entry.terms) terms += (terms.empty() ? "" : ", ") + term;

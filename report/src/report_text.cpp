@@ -71,7 +71,8 @@ struct TextBlock {
 
   void operator()(const ReportChart& chart) const {
     // A step's candidate chart draws the table that follows it: naming it would only repeat.
-    if (chart.kind == ChartKind::kDotRows) return;
+    // A bar chart of shares draws the table beside it too.
+    if (chart.kind == ChartKind::kDotRows || chart.kind == ChartKind::kBars) return;
     out << "  [chart in the HTML report] " << chart.title << ". " << chart.caption << "\n";
   }
 };

@@ -114,12 +114,69 @@ Caution Extrapolation(const RunResult& run) {
   return caution;
 }
 
+// Final-model terms that few replicates chose, and the substitute pairs: the route could have
+// gone another way on a slightly different sample.
+std::optional<Caution> SelectionStability(const RunResult& run) {
+  if (!run.validation.bootstrap) return std::nullopt;
+  const BootstrapValidation& bootstrap = *run.validation.bootstrap;
+  Caution caution;
+  caution.kind = CautionKind::kSelectionStability;
+  std::vector<std::string> rare_text;
+  for (const std::string& term : run.fit.terms) {
+    const auto found = std::find_if(bootstrap.inclusion.begin(), bootstrap.inclusion.end(),
+                                    [&term](const TermInclusion& entry) { return entry.term == term; });
+    if (found == bootstrap.inclusion.end() || found->frequency >= kStableInclusionShare) continue;
+    caution.rarely_chosen.push_back(*found);
+    rare_text.push_back(term + " (" + FormatPercent(found->frequency) + ")");
+  }
+  std::vector<std::string> pair_text;
+  for (const SubstitutePair& pair : bootstrap.substitutes) {
+    pair_text.push_back(pair.first + " and " + pair.second + " (together in " + FormatPercent(pair.together) +
+                        ", one without the other in " + FormatPercent(pair.first_only + pair.second_only) + ")");
+  }
+  if (rare_text.empty() && pair_text.empty()) return std::nullopt;
+  const std::string replicates = FormatCount(static_cast<std::int64_t>(bootstrap.settings.replicates));
+  caution.message = "Rerun on " + replicates + " bootstrap samples of these rows, the selection often chose otherwise.";
+  if (!rare_text.empty()) {
+    caution.message += " Terms of the final model chosen in fewer than " + FormatPercent(kStableInclusionShare) +
+                       " of the samples: " + JoinNames(rare_text) + ".";
+  }
+  if (!pair_text.empty()) {
+    caution.message += " Terms that stand in for each other: " + JoinNames(pair_text) + ".";
+  }
+  caution.message += " Do not read the choice between them as a finding.";
+  caution.substitutes = bootstrap.substitutes;
+  caution.replicates = bootstrap.settings.replicates;
+  return caution;
+}
+
+// The model does clearly worse on the held-out rows than its in-sample fit says.
+std::optional<Caution> HoldoutError(const RunResult& run) {
+  if (!run.validation.holdout || !run.validation.holdout->rmse || !run.fit.criteria.sigma) return std::nullopt;
+  const HoldoutValidation& holdout = *run.validation.holdout;
+  const double sigma = *run.fit.criteria.sigma;
+  if (!(sigma > 0) || !(*holdout.rmse > kHoldoutErrorRatio * sigma)) return std::nullopt;
+  Caution caution;
+  caution.kind = CautionKind::kHoldoutError;
+  caution.message = "On the " + FormatCount(static_cast<std::int64_t>(holdout.rows)) +
+                    " held-out rows the RMSE is " + FormatQuantity(holdout.rmse) + ", " +
+                    FormatPercent(*holdout.rmse / sigma - 1) + " above the in-sample residual SD of " +
+                    FormatQuantity(sigma) + " (more than " + FormatPercent(kHoldoutErrorRatio - 1) +
+                    ", a common-practice threshold): the model prices unseen rows worse than its fit suggests.";
+  caution.holdout_rmse = holdout.rmse;
+  caution.residual_sd = sigma;
+  caution.holdout_rows = holdout.rows;
+  return caution;
+}
+
 }  // namespace
 
 std::string_view ToString(CautionKind kind) {
   switch (kind) {
     case CautionKind::kPostSelectionInference: return "post-selection-inference";
     case CautionKind::kCollinearity: return "collinearity";
+    case CautionKind::kSelectionStability: return "selection-stability";
+    case CautionKind::kHoldoutError: return "holdout-error";
     case CautionKind::kExtrapolation: return "extrapolation";
     case CautionKind::kAssociation: return "association";
     case CautionKind::kExcludedTerms: return "excluded-terms";
@@ -132,7 +189,9 @@ std::vector<Caution> ComputeCautions(const RunResult& run) {
   std::vector<Caution> cautions;
   if (run.search.method != Method::kNone) cautions.push_back(PostSelectionInference(run));
   if (auto collinearity = Collinearity(run)) cautions.push_back(std::move(*collinearity));
+  if (auto stability = SelectionStability(run)) cautions.push_back(std::move(*stability));
   cautions.push_back(Extrapolation(run));
+  if (auto holdout = HoldoutError(run)) cautions.push_back(std::move(*holdout));
 
   Caution association;
   association.kind = CautionKind::kAssociation;

@@ -57,7 +57,10 @@ TEST(AuditDocument, HoldsTheContractKeysAndTheRoute) {
   }
   EXPECT_EQ(document["format"], "stepledger-audit");
   EXPECT_EQ(document["format_version"], 3);
-  EXPECT_FALSE(document.contains("validation")) << "no validation was run: the key is omitted";
+  ASSERT_TRUE(document.contains("validation")) << "the final model's k-fold error is always recorded";
+  EXPECT_TRUE(document["validation"].contains("folds"));
+  EXPECT_FALSE(document["validation"].contains("holdout")) << "the plan holds no rows out";
+  EXPECT_FALSE(document["validation"].contains("bootstrap")) << "the plan asks for no replicates";
   EXPECT_FALSE(document.contains("subsets")) << "stepwise has no subsets table";
   EXPECT_FALSE(document.contains("signature"));
   EXPECT_EQ(document["plan"]["verbatim"], LaptopPlan());

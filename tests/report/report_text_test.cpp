@@ -6,6 +6,7 @@
 #include <sstream>
 #include <string>
 
+#include "stepledger/audit/validation_json.h"
 #include "stepledger/engine/number_format.h"
 #include "stepledger/report/report.h"
 #include "support/audit_test_data.h"
@@ -73,14 +74,18 @@ TEST(TextReport, WithoutDiagnosticsSaysHowAndIsDeterministic) {
   EXPECT_NE(text.find("All subsets: best BIC by model size"), std::string::npos);
   EXPECT_NE(text.find("Every kept subset:"), std::string::npos);
   EXPECT_NE(text.find("All subsets: for every model size"), std::string::npos);
-  EXPECT_EQ(text.find("Validation"), std::string::npos);
+  EXPECT_NE(text.find("\nValidation\n"), std::string::npos) << "the k-fold part is always recorded";
 
   json with_validation = made.audit;
-  with_validation["validation"] = {{"folds", {{{"fold", 1}, {"rmse", 25.5}}}}};
+  ValidationResult validation;
+  validation.folds.settings = {5, 1};
+  validation.folds.rmse = 25.5;
+  validation.folds.per_fold = {{0, 40, 40, 26010}};
+  with_validation["validation"] = ValidationToJson(validation);
   const std::string validated = RenderTextReport(with_validation, nullptr);
-  EXPECT_NE(validated.find("\nValidation\n"), std::string::npos);
-  EXPECT_NE(validated.find("folds[0].rmse"), std::string::npos);
+  EXPECT_NE(validated.find("5-fold RMSE (seed 1)"), std::string::npos) << validated;
   EXPECT_NE(validated.find("25.5"), std::string::npos);
+  EXPECT_NE(validated.find("Held-out error by fold"), std::string::npos);
 }
 
 TEST(TextReport, PlanInWordsNamesThresholdsKeepNeverAndWeights) {

@@ -17,7 +17,7 @@ VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "met
 
 
 POINT_KINDS = {"route-point", "candidate", "subset-best", "coef", "cooks-bin", "cooks-flagged",
-               "density-cell", "resid-flagged", "hist-bar", "qq-point"}
+               "density-cell", "resid-flagged", "hist-bar", "qq-point", "bar", "calibration-point"}
 POINT_STATES = {"start", "add", "remove", "stop", "eligible", "chosen", "ineligible", "no-score"}
 
 

@@ -22,6 +22,8 @@
 //   prediction   the old model priced on the new rows (PredictionComparison) beside the new
 //                model's error; else taken from B's recorded comparison when B's parent is A,
 //                else {available: false, reason}
+//   validation   the k-fold RMSE and the holdout RMSE side by side when both audits record them;
+//                when both ran the bootstrap, every term's inclusion frequency, old and new
 //   models_differ true unless the verdict is "same model".
 
 #include <cstddef>
@@ -157,6 +159,27 @@ struct CoefficientChange {
   bool beyond_mark = false;
 };
 
+/// A candidate term's bootstrap inclusion frequency in each audit (unset: not a candidate there).
+struct InclusionChange {
+  std::string term;
+  std::optional<double> old_frequency;
+  std::optional<double> new_frequency;
+};
+
+/// The validation sections side by side. An audit without the section (an older format) or
+/// without a part leaves that part not compared.
+struct ValidationComparisonPart {
+  bool folds_compared = false;      ///< both audits record the k-fold error
+  std::optional<double> old_folds_rmse, new_folds_rmse;
+  bool holdout_compared = false;    ///< both audits held rows out
+  std::optional<double> old_holdout_rmse, new_holdout_rmse;
+  bool inclusion_compared = false;  ///< both audits ran the bootstrap
+  /// The old audit's candidate terms in its order, then the new audit's other terms.
+  std::vector<InclusionChange> inclusion;
+  /// The term whose frequency moved most (among terms in both), for the brief report.
+  std::optional<std::size_t> largest_change;
+};
+
 /// The comparison of an old and a new audit as one value (what `compare` prints and `rerun`
 /// records as the new audit's `comparison` section). A default-made value is "not run": no
 /// seals, no differences, the cautious verdict kDifferentTerms and a prediction part that says
@@ -181,11 +204,13 @@ struct AuditComparison {
   /// The PredictionComparison part as that function builds it ({available, ...}); kept as JSON
   /// because it is also copied from a recorded comparison of an earlier rerun.
   nlohmann::json prediction = {{"available", false}, {"reason", "not computed"}};
+  ValidationComparisonPart validation;
   ComparisonVerdict verdict = ComparisonVerdict::kDifferentTerms;
 
   /// True unless the verdict is "same model".
   bool ModelsDiffer() const { return verdict != ComparisonVerdict::kSameModel; }
-  /// The verdict line ("Verdict: same model (...)." ...).
+  /// The verdict line ("Verdict: same model (...)." ...), and when both audits ran the bootstrap
+  /// the term whose inclusion frequency moved most.
   std::string BriefReport() const;
   /// The comparison as text for the terminal: the verdict first, then data, plan, columns,
   /// rows, route, terms, coefficients and the old model on the new rows.

@@ -8,7 +8,7 @@
 //   format, format_version, tool {name, version, commit, build {compiler, blas, build_type}},
 //   created_at, duration_seconds,                         <- the only fields that record time
 //   plan {verbatim, normalised}, settings, data, design, search, steps, subsets?, model,
-//   numerics, cautions, parent?, comparison?, digests, seal, signature?
+//   numerics, validation (audit/validation_json.h), cautions, parent?, comparison?, digests, seal, signature?
 //
 // Integrity (all SHA-256, lower-case hex, over the canonical JSON of audit/canonical_json.h,
 // so they cover content, not bytes):

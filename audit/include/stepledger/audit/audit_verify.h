@@ -63,6 +63,10 @@ struct VerifyReport {
   /// plan.normalised (what predict, report and compare read) is what plan.verbatim (what a
   /// replay runs) gives on the recorded columns
   Check plan = Check::kNotRun;
+  /// The `validation` section reads as the contract's shape (types, ranges); with data the
+  /// replay's validation is compared with it (under `replay`). Not run when an audit of an older
+  /// format_version has none.
+  Check validation = Check::kNotRun;
   Check fingerprint = Check::kNotRun;  ///< with data
   Check replay = Check::kNotRun;       ///< with data
   /// Problems, each naming its place; the first one is the first place that differs.
@@ -81,7 +85,8 @@ struct VerifyReport {
 };
 const char* ToString(VerifyReport::Check check);
 
-/// Chain, section digests, seal, signature and the normalised plan of a parsed audit. Never
+/// Chain, section digests, seal, signature, the normalised plan and the validation section's
+/// structure of a parsed audit. Never
 /// throws for content problems (they are reported); throws InputError when the public key file
 /// cannot be used. With a public key, the signature must verify against it and the audit's
 /// signature.public_key must be that key. The recorded plan is read within limits: a plan past
@@ -90,7 +95,10 @@ VerifyReport CheckAuditIntegrity(const nlohmann::json& document,
                                  const std::filesystem::path& public_key = {},
                                  const InputLimits& limits = {});
 
-/// CheckAuditIntegrity, then with options.data the fingerprint and the replay. Throws
+/// CheckAuditIntegrity, then with options.data the fingerprint and the replay. The replay's
+/// validation must equal the recorded one: counts (k, seeds, rows, folds, deciles, sizes,
+/// replicates) exactly, other numbers within relative_tolerance; a difference names the key
+/// ("validation.folds.per_fold[3].sse"). Throws
 /// InputError when the data cannot be read or the recorded plan cannot be run on it.
 VerifyReport VerifyAudit(const nlohmann::json& document, const VerifyOptions& options);
 
@@ -103,6 +111,13 @@ std::optional<std::string> FirstJsonDifference(const nlohmann::json& recorded,
                                                const char* recorded_name = "in the audit",
                                                const char* replayed_name = "on replay");
 
+/// The first difference between a recorded and a replayed `validation` object: JSON integers
+/// (counts and seeds) exactly, other numbers within relative_tolerance, texts exactly; as
+/// "key 'validation.folds.per_fold[3].sse' is 12.5 in the audit, 12.7 on replay". nullopt when
+/// they agree.
+std::optional<std::string> FirstValidationDifference(const nlohmann::json& recorded,
+                                                     const nlohmann::json& replayed,
+                                                     double relative_tolerance);
 /// Removes the texts for people — the keys rule, stop_rule, message, reason and
 /// undefined_reason — everywhere in a document. A replay of an audit of an older format_version
 /// compares without them: their wording (and the number policy inside them) is the build's own,

@@ -16,8 +16,9 @@
 // (coefficients, intervals, the APA F test, ANOVA), diagnostics (Cook's distance by line
 // number, residuals against fitted values as a density, a histogram of standardised residuals
 // with the normal curve, their quantiles against the normal's, the rows that stand out; or how
-// to get them), validation and stability (only when the audit has those keys, rendered
-// generically) and integrity.
+// to get them), validation (audits with a `validation` section: the k-fold error beside the
+// residual SD, the holdout with its calibration chart, the bootstrap's inclusion and size
+// charts, top models and coefficient intervals) and integrity.
 //
 // Size: the diagnostics arrive as a bounded summary (engine/diagnostics.h: counts, binned
 // views, the kDiagnosticsTopRows largest rows by leverage, |Cook's distance| and |standardised
@@ -175,6 +176,7 @@ enum class ChartKind {
   kScatter,    ///< x–y points, not joined (Cook's distance by line number)
   kDensity,    ///< a grid of binned counts shaded, points on top (residuals against fitted)
   kHistogram,  ///< bars of binned counts, a curve on top (residual histogram)
+  kBars,       ///< one labelled row per point, a bar from 0 to the value on x (inclusion shares)
 };
 
 struct ChartPoint {
@@ -193,6 +195,9 @@ struct ChartSeries {
   bool joined = false;   ///< draw a line through the points in order
   bool markers = true;   ///< false: a curve only (the normal density)
   std::vector<ChartPoint> points;
+  /// CSS class of the joined line; empty: the default ("route-line" with markers, else
+  /// "normal-curve"). "ref" draws a dashed reference line (the calibration chart's identity).
+  std::string line_class;
 };
 
 struct ReferenceLine {
