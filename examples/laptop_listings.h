@@ -152,9 +152,9 @@ inline std::string MakeLaptopListings(int rows = kLaptopListingsRows,
 /// A plan for these data (the text of examples/plans/METHOD_CRITERION.json): the TRUE MODEL's
 /// terms (kLaptopTrueTerms) and three candidates with no signal (weekday, photos, note_length),
 /// with the given method ("forward", "backward", "stepwise", "all-subsets", "none") and
-/// criterion ("adj-r2", "aic", "aicc", "bic", "cp", "partial-f"). The criterion "cv" is left out
-/// on purpose: this version refuses it with a PlanError. Other settings keep their defaults
-/// (entry_p 0.05, exit_p 0.10, hierarchy on: age:grade may enter only after age and grade).
+/// criterion ("adj-r2", "aic", "aicc", "bic", "cp", "partial-f", "cv"). Other settings keep their
+/// defaults (entry_p 0.05, exit_p 0.10, folds 10, seed 1, hierarchy on: age:grade may enter only
+/// after age and grade).
 inline std::string MakeLaptopPlan(const std::string& method = "stepwise",
                                   const std::string& criterion = "bic") {
   return "{\n"

@@ -22,9 +22,9 @@ namespace {
 
 namespace examples = stepledger::examples;
 
-// The methods and criteria the example plans cover ("cv" is refused by this version).
+// The methods and criteria the example plans cover.
 constexpr const char* kMethods[] = {"forward", "backward", "stepwise", "all-subsets"};
-constexpr const char* kCriteria[] = {"adj-r2", "aic", "aicc", "bic", "cp", "partial-f"};
+constexpr const char* kCriteria[] = {"adj-r2", "aic", "aicc", "bic", "cp", "partial-f", "cv"};
 
 bool WriteText(const std::filesystem::path& path, const std::string& text) {
   std::ofstream out(path, std::ios::binary);

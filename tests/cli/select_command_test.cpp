@@ -102,11 +102,14 @@ TEST_F(SelectHald, BadUsageExitsTwoWithOneLineNamingTheProblem) {
   EXPECT_EQ(run.status, 2);
   EXPECT_NE(run.err.find("entry_p"), std::string::npos) << run.err;
   EXPECT_NE(run.err.find("exit_p"), std::string::npos) << run.err;
-  run = RunSelect({"select", data_, "--response", "y", "--criterion", "cv"});
-  EXPECT_EQ(run.status, 2);
-  // Until the run builds fold factors (RunPlan passing SearchRunOptions::cross_validation), cv is
-  // refused at the search, naming the criterion; once wired, this case runs.
-  EXPECT_NE(run.err.find("per-fold factors"), std::string::npos) << run.err;
+}
+
+// Criterion cv runs from the quick form: 13 rows make at most 10 folds (default), each fold's
+// training fit has rows enough for every Hald model.
+TEST_F(SelectHald, CrossValidatedCriterionRunsFromTheQuickForm) {
+  CliRun run = RunSelect({"select", data_, "--response", "y", "--criterion", "cv", "--json"});
+  ASSERT_EQ(run.status, 0) << run.err;
+  EXPECT_NE(run.out.find("\"folds\""), std::string::npos) << run.out;
 }
 
 // --- The quick form's candidate terms (issue: an identifier column became a 1,999-level term).
