@@ -25,9 +25,38 @@ void ProgressPrinter::OnDecision(const DecisionEvent& event) {
   Show(false);
 }
 
-void ProgressPrinter::OnStop(const StopEvent& /*event*/) {
+void ProgressPrinter::OnStop(const StopEvent& /*event*/) { Clear(); }
+
+void ProgressPrinter::Clear() {
   if (shown_) err_ << "\r\033[K" << std::flush;  // clear the line: the results follow on stdout
   shown_ = false;
+}
+
+void ProgressPrinter::OnProgress(const ProgressEvent& event) {
+  const auto now = std::chrono::steady_clock::now();
+  if (event.stage != stage_) {
+    stage_ = event.stage;
+    stage_started_ = now;
+  }
+  if (event.done >= event.total) {
+    Clear();
+    return;
+  }
+  if (now - started_ < delay_) return;
+  if (shown_ && now - last_shown_ < std::chrono::milliseconds(200)) return;
+  last_shown_ = now;
+  shown_ = true;
+  const double elapsed = std::chrono::duration<double>(now - stage_started_).count();
+  err_ << "\r\033[K" << label_ << ": " << PrintableText(event.stage) << " "
+       << FormatCount(static_cast<std::int64_t>(event.done)) << " of "
+       << FormatCount(static_cast<std::int64_t>(event.total));
+  if (elapsed > 0.5 && event.done > 0) {
+    const double rate = static_cast<double>(event.done) / elapsed;
+    const double left = static_cast<double>(event.total - event.done) / rate;
+    err_ << ", " << FormatCount(static_cast<std::int64_t>(rate)) << " a second, about "
+         << static_cast<std::int64_t>(left + 0.5) << " s left";
+  }
+  err_ << std::flush;
 }
 
 void ProgressPrinter::Show(bool force) {

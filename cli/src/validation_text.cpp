@@ -19,9 +19,9 @@ std::string Padded(const std::string& text, std::size_t width) {
 }
 
 std::string TermsText(const std::vector<std::string>& terms) {
-  if (terms.empty()) return "(intercept only)";
+  if (terms.empty()) return "no terms, the intercept alone";
   std::string text;
-  for (const std::string& term : terms) text += (text.empty() ? "" : " + ") + term;
+  for (const std::string& term : terms) text += (text.empty() ? "" : ", ") + term;
   return text;
 }
 

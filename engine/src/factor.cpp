@@ -74,8 +74,9 @@ void FoldTriangle(arma::mat& r, const arma::mat& other) {
 
 }  // namespace
 
-FactorBuilder::FactorBuilder(std::vector<double> scales, std::size_t block_rows)
-    : scales_(std::move(scales)), columns_(scales_.size()), block_rows_(block_rows) {
+FactorBuilder::FactorBuilder(std::vector<double> scales, std::size_t block_rows, bool keep_column_stats)
+    : scales_(std::move(scales)), columns_(scales_.size()), block_rows_(block_rows),
+      keep_column_stats_(keep_column_stats) {
   if (columns_ == 0) throw std::invalid_argument("FactorBuilder: scales must hold at least the response's");
   if (block_rows_ == 0) throw std::invalid_argument("FactorBuilder: block_rows must be at least 1");
   for (double scale : scales_) {
@@ -87,19 +88,22 @@ FactorBuilder::FactorBuilder(std::vector<double> scales, std::size_t block_rows)
   }
   r_.zeros(columns_, columns_);
   block_.zeros(block_rows_, columns_);
-  stats_.resize(columns_);
+  if (keep_column_stats_) stats_.resize(columns_);
 }
 
-void FactorBuilder::AddRow(std::span<const double> x, double y, double weight) {
+void FactorBuilder::AddRow(std::span<const double> x, double y, double weight) { AddRepeatedRow(x, y, weight, 1); }
+
+void FactorBuilder::AddRepeatedRow(std::span<const double> x, double y, double weight, unsigned copies) {
   if (x.size() + 1 != columns_) {
     throw std::invalid_argument("FactorBuilder::AddRow: expected " + std::to_string(columns_ - 1) +
                                 " design values, got " + std::to_string(x.size()));
   }
+  if (copies == 0) throw std::invalid_argument("FactorBuilder::AddRepeatedRow: copies must be at least 1");
   if (!(weight > 0) || !std::isfinite(weight)) {
     throw NumericalError("factor: weight of used row " + std::to_string(rows_ + 1) +
                          " is not a positive finite number (" + std::to_string(weight) + ")");
   }
-  const double root_weight = std::sqrt(weight);
+  const double root_weight = std::sqrt(copies == 1 ? weight : weight * copies);
   const std::size_t last = columns_ - 1;
   for (std::size_t column = 0; column < columns_; ++column) {
     const double value = column < last ? x[column] : y;
@@ -109,12 +113,14 @@ void FactorBuilder::AddRow(std::span<const double> x, double y, double weight) {
                                           : std::string("response")));
     }
     block_(pending_, column) = root_weight * (value * scales_[column]);
-    stats_[column].Add(value);
+    if (keep_column_stats_) {
+      for (unsigned copy = 0; copy < copies; ++copy) stats_[column].Add(value);
+    }
   }
   ++pending_;
-  ++rows_;
-  weight_sum_ += weight;
-  log_weight_sum_ += std::log(weight);
+  rows_ += copies;
+  weight_sum_ += weight * copies;
+  log_weight_sum_ += copies * std::log(weight);
   if (pending_ == block_rows_) FoldPending();
 }
 
@@ -136,11 +142,14 @@ void FactorBuilder::Merge(FactorBuilder&& other) {
   rows_ += other.rows_;
   weight_sum_ += other.weight_sum_;
   log_weight_sum_ += other.log_weight_sum_;
-  for (std::size_t column = 0; column < columns_; ++column) stats_[column].Merge(other.stats_[column]);
+  if (keep_column_stats_ != other.keep_column_stats_) {
+    throw std::invalid_argument("FactorBuilder::Merge: one builder keeps column statistics, the other not");
+  }
+  for (std::size_t column = 0; column < stats_.size(); ++column) stats_[column].Merge(other.stats_[column]);
   other.r_.zeros();
   other.rows_ = 0;
   other.weight_sum_ = other.log_weight_sum_ = 0;
-  other.stats_.assign(columns_, RunningStats{});
+  other.stats_.assign(other.stats_.size(), RunningStats{});
 }
 
 Factor FactorBuilder::Finish() {
@@ -159,6 +168,9 @@ Factor FactorBuilder::Finish() {
 Factor MergeFactors(const Factor& a, const Factor& b) {
   if (a.scales != b.scales || a.r.n_rows != b.r.n_rows || a.r.n_cols != b.r.n_cols) {
     throw std::invalid_argument("MergeFactors: factors of different designs");
+  }
+  if (a.column_stats.size() != b.column_stats.size()) {
+    throw std::invalid_argument("MergeFactors: one factor keeps column statistics, the other not");
   }
   Factor merged = a;
   FoldTriangle(merged.r, b.r);

@@ -26,7 +26,11 @@ const std::array<double, 24>& PoissonDraws::CumulativeProbabilities() {
 }
 
 unsigned PoissonDraws::CountOf(std::uint64_t seed, std::uint64_t record, std::size_t replicate) {
-  const std::uint64_t hash = SplitMix64(RecordHash(seed, record) + (static_cast<std::uint64_t>(replicate) + 1) * kGoldenGamma);
+  return CountOfHash(RecordHash(seed, record), replicate);
+}
+
+unsigned PoissonDraws::CountOfHash(std::uint64_t record_hash, std::size_t replicate) {
+  const std::uint64_t hash = SplitMix64(record_hash + (static_cast<std::uint64_t>(replicate) + 1) * kGoldenGamma);
   const double u = static_cast<double>(hash >> 11) * 0x1p-53;
   const std::array<double, 24>& cdf = CumulativeProbabilities();
   unsigned count = 0;

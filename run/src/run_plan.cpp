@@ -9,6 +9,7 @@
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
 #include "stepledger/engine/table_scan.h"
+#include "bootstrap_run.h"
 #include "validation_run.h"
 
 namespace stepledger {
@@ -64,6 +65,7 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   run.design = BuildDesign(plan.plan.design, run.profile, options.limits);
   // Before the factor pass, so that a plan error costs no pass over the rows.
   ValidateSearchOptions(plan.plan.search, run.design);
+  run_detail::CheckBootstrapPlan(plan.plan.search, run.design);
 
   const SearchOptions& search = plan.plan.search;
   const FoldSettings folds{static_cast<std::size_t>(search.folds), search.seed};
@@ -99,12 +101,16 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   // Refinement and diagnostics replay the model's rows: the held-out rows stay out of both.
   const RowReplay replay = SpillRowReplay(scan.spill, run.design, search.holdout);
   run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
-  if (options.diagnostics && run.fit.n > 0) {
-    run.diagnostics = DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
-    if (run.diagnostics->rows > 0) {
-      run.max_leverage = run.diagnostics->max_leverage;
-      run.max_leverage_line = run.diagnostics->max_leverage_line;
+  // A holdout needs the ranges and the largest leverage of the model's rows to count its own
+  // extrapolations, so it learns them even when the diagnostics are not asked for.
+  if ((options.diagnostics || search.holdout) && run.fit.n > 0) {
+    std::optional<DiagnosticsResult> diagnostics =
+        DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
+    if (diagnostics->rows > 0) {
+      run.max_leverage = diagnostics->max_leverage;
+      run.max_leverage_line = diagnostics->max_leverage_line;
     }
+    if (options.diagnostics) run.diagnostics = std::move(diagnostics);
   }
   run.validation.folds =
       run_detail::FinalModelFolds(cross_validation ? &*cross_validation : nullptr, *scan.spill, run.design, run.fit,
@@ -112,6 +118,10 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   if (search.holdout && run.fit.n > 0) {
     run.validation.holdout =
         run_detail::EvaluateHoldout(*scan.spill, run.design, run.fit, run.prediction_support, *search.holdout);
+  }
+  if (search.bootstrap) {
+    run.validation.bootstrap = run_detail::RunBootstrap(*scan.spill, run.design, search, options.fit, options.threads,
+                                                        run.search, observer);
   }
   run.duration_seconds =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();

@@ -99,4 +99,8 @@ void ObserverFanOut::OnStop(const StopEvent& event) {
   for (auto* observer : observers_) if (observer) observer->OnStop(event);
 }
 
+void ObserverFanOut::OnProgress(const ProgressEvent& event) {
+  for (auto* observer : observers_) if (observer) observer->OnProgress(event);
+}
+
 }  // namespace stepledger

@@ -7,6 +7,7 @@
 #include <unistd.h>
 
 #include <sstream>
+#include <thread>
 
 #include "support/cli_run.h"
 #include "support/test_paths.h"
@@ -39,6 +40,21 @@ TEST(ProgressPrinter, AfterItsDelayShowsTheStepAndClearsTheLineAtTheEnd) {
   EXPECT_EQ(err.str().find('\n'), std::string::npos) << "one line, rewritten in place";
   printer.OnStop(StopEvent{});
   EXPECT_EQ(err.str().substr(err.str().size() - 4), "\r\033[K") << "the line is cleared";
+}
+
+TEST(ProgressPrinter, BootstrapProgressShowsUnitsRateAndTimeLeftThenClears) {
+  std::ostringstream err;
+  cli::ProgressPrinter printer(err, "select", std::chrono::milliseconds(0));
+  printer.OnProgress({"bootstrap rows", 4096, 1000000});
+  EXPECT_NE(err.str().find("select: bootstrap rows 4,096 of 1,000,000"), std::string::npos) << err.str();
+  EXPECT_EQ(err.str().find('\n'), std::string::npos) << "one line, rewritten in place";
+  // The rate and the time left need half a second of the stage behind them.
+  std::this_thread::sleep_for(std::chrono::milliseconds(600));
+  printer.OnProgress({"bootstrap rows", 500000, 1000000});
+  EXPECT_NE(err.str().find("a second, about "), std::string::npos) << err.str();
+  EXPECT_NE(err.str().find(" s left"), std::string::npos) << err.str();
+  printer.OnProgress({"bootstrap replicates", 200, 200});
+  EXPECT_EQ(err.str().substr(err.str().size() - 4), "\r\033[K") << "the line is cleared when the stage ends";
 }
 
 TEST(ProgressPrinter, NotMadeWhenStderrIsNotATerminalOrTheRunIsQuiet) {

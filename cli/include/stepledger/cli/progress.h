@@ -1,5 +1,6 @@
 #pragma once
-// A progress line on stderr for long runs, fed by the search observer's step events.
+// A progress line on stderr for long runs, fed by the search observer's step events and, after
+// the search, by the bootstrap's progress events (units done, rate, time left).
 //
 // It stays silent for the first `delay` of a run (most runs end before anyone waits) and is
 // never made unless stderr is a terminal (MakeProgressPrinter), so scripts, pipes and tests
@@ -22,9 +23,11 @@ class ProgressPrinter : public SearchObserver {
   void OnCandidate(const CandidateScore& candidate) override;
   void OnDecision(const DecisionEvent& event) override;
   void OnStop(const StopEvent& event) override;
+  void OnProgress(const ProgressEvent& event) override;
 
  private:
   void Show(bool force);
+  void Clear();
   std::ostream& err_;
   std::string label_;
   std::chrono::milliseconds delay_;
@@ -34,6 +37,8 @@ class ProgressPrinter : public SearchObserver {
   std::size_t candidates_ = 0;
   std::string last_move_;
   bool shown_ = false;
+  std::string stage_;                                   // the progress stage being timed
+  std::chrono::steady_clock::time_point stage_started_;
 };
 
 /// A printer when stderr is a terminal and the run is not --quiet; else nullptr.

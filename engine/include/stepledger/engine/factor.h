@@ -39,7 +39,8 @@ struct Factor {
   std::uint64_t rows = 0;        ///< rows folded (used rows)
   double weight_sum = 0;         ///< sum of weights of those rows
   double log_weight_sum = 0;     ///< sum of ln(weight) of those rows (for the log-likelihood)
-  std::vector<RunningStats> column_stats;  ///< unscaled design columns then the response
+  /// Unscaled design columns then the response; empty when the builder kept none.
+  std::vector<RunningStats> column_stats;
   std::size_t column_count() const { return scales.empty() ? 0 : scales.size() - 1; }
 };
 
@@ -49,10 +50,18 @@ class FactorBuilder {
   /// scales: one per design column then one for the response (exact powers of two).
   /// block_rows: rows buffered before each dtpqrt fold (>= 1); affects speed, not results
   /// beyond rounding.
-  explicit FactorBuilder(std::vector<double> scales, std::size_t block_rows = 256);
+  /// keep_column_stats: whether to keep the running statistics of every column
+  /// (Factor::column_stats, left empty when not): the bootstrap's replicate factors skip them,
+  /// as nothing reads them there and they would cost as much as the fold itself.
+  explicit FactorBuilder(std::vector<double> scales, std::size_t block_rows = 256,
+                         bool keep_column_stats = true);
 
   /// Adds one row: x are the unscaled design values, weight > 0.
   void AddRow(std::span<const double> x, double y, double weight);
+  /// Adds `copies` (>= 1) copies of one row at once, as the Poisson bootstrap draws them: one
+  /// row of the block scaled by sqrt(weight * copies) (the same R'R as the copies), counted as
+  /// `copies` rows of weight `weight` (rows, weight_sum, log_weight_sum and the statistics).
+  void AddRepeatedRow(std::span<const double> x, double y, double weight, unsigned copies);
   /// Folds another builder's rows (its pending block included) into this one.
   void Merge(FactorBuilder&& other);
   /// Folds the pending block and returns the factor (diagonal made non-negative).
@@ -70,6 +79,7 @@ class FactorBuilder {
   double weight_sum_ = 0;
   double log_weight_sum_ = 0;
   std::vector<RunningStats> stats_;
+  bool keep_column_stats_ = true;
 };
 
 /// Merges two finished factors of the same design (any order gives the same R to rounding).

@@ -79,6 +79,9 @@ class PoissonDraws {
  public:
   /// The record's count in replicate r (0-based).
   static unsigned CountOf(std::uint64_t seed, std::uint64_t record, std::size_t replicate);
+  /// The same from the record's hash RecordHash(seed, record), computed once per row by passes
+  /// that draw many replicates.
+  static unsigned CountOfHash(std::uint64_t record_hash, std::size_t replicate);
   /// The CDF thresholds P(X <= c) for c = 0.. (Boost.Math), for tests and outside checks.
   static const std::array<double, 24>& CumulativeProbabilities();
 };

@@ -7,6 +7,7 @@
 // nothing of JSON or terminals: the audit and the command line observe.
 
 #include <cstddef>
+#include <cstdint>
 #include <optional>
 #include <string>
 #include <vector>
@@ -100,6 +101,15 @@ struct SubsetRecord {
   std::vector<double> fold_sse;     ///< criterion cv only: held-out SSE per fold (fold order)
 };
 
+/// Progress of a long stage after the search (the bootstrap): `done` of `total` units. Stages:
+/// "bootstrap rows" (used rows folded into every replicate's factor) and "bootstrap replicates"
+/// (replicates whose selection has run). Sent from the thread that called RunPlan.
+struct ProgressEvent {
+  std::string stage;
+  std::uint64_t done = 0;
+  std::uint64_t total = 0;
+};
+
 class SearchObserver {
  public:
   virtual ~SearchObserver() = default;
@@ -108,6 +118,7 @@ class SearchObserver {
   virtual void OnDecision(const DecisionEvent& /*event*/) {}
   virtual void OnSubsets(const std::vector<SubsetRecord>& /*subsets*/) {}
   virtual void OnStop(const StopEvent& /*event*/) {}
+  virtual void OnProgress(const ProgressEvent& /*event*/) {}
 };
 
 enum class StepAction { kStart, kAdd, kRemove, kStop };
@@ -158,6 +169,7 @@ class ObserverFanOut : public SearchObserver {
   void OnDecision(const DecisionEvent& event) override;
   void OnSubsets(const std::vector<SubsetRecord>& subsets) override;
   void OnStop(const StopEvent& event) override;
+  void OnProgress(const ProgressEvent& event) override;
 
  private:
   std::vector<SearchObserver*> observers_;
