@@ -28,6 +28,7 @@
 
 #include <unistd.h>
 
+#include "generated_csv.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
@@ -39,39 +40,8 @@ constexpr int kColumns = 20;  // y and x1..x19
 
 using Clock = std::chrono::steady_clock;
 
-// Writes rows of y, x1..x19: x_j standard normal-ish (sum of uniforms), y a linear function of
-// them plus noise, 6 significant digits, so a row is about 200 bytes.
 void WriteCsv(const std::filesystem::path& path, std::uint64_t rows) {
-  std::ofstream out(path, std::ios::binary);
-  out << "y";
-  for (int j = 1; j < kColumns; ++j) out << ",x" << j;
-  out << "\n";
-  std::mt19937_64 engine(20261201);
-  auto uniform = [&engine] { return static_cast<double>(engine() >> 11) * 0x1.0p-53; };
-  std::string line;
-  char number[32];
-  double x[kColumns];
-  for (std::uint64_t row = 0; row < rows; ++row) {
-    double y = 0;
-    for (int j = 1; j < kColumns; ++j) {
-      x[j] = (uniform() + uniform() + uniform() - 1.5) * 2.0 + j;
-      y += 0.1 * j * x[j];
-    }
-    y += uniform() - 0.5;
-    line.clear();
-    auto append = [&](double value) {
-      const auto result = std::to_chars(number, number + sizeof number, value,
-                                        std::chars_format::general, 6);
-      line.append(number, result.ptr);
-    };
-    append(y);
-    for (int j = 1; j < kColumns; ++j) {
-      line += ',';
-      append(x[j]);
-    }
-    line += '\n';
-    out << line;
-  }
+  stepledger::bench::WriteGeneratedCsv(path, rows, {kColumns, kColumns - 1, 0.1, 1.0, 20261201});
 }
 
 std::uint64_t PeakResidentKb() {

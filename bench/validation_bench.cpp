@@ -38,6 +38,7 @@
 #include <string>
 #include <vector>
 
+#include "generated_csv.h"
 #include "stepledger/engine/bootstrap_pass.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
@@ -54,38 +55,8 @@ constexpr std::size_t kReplicates = 200;
 
 using Clock = std::chrono::steady_clock;
 
-// Rows of y, x1..x29: x_j a sum of three uniforms shifted by j, y = sum_{j<=10} 0.3 j x_j plus
-// uniform noise; 6 significant digits, about 240 bytes a row.
 void WriteCsv(const std::filesystem::path& path, std::uint64_t rows) {
-  std::ofstream out(path, std::ios::binary);
-  out << "y";
-  for (int j = 1; j < kColumns; ++j) out << ",x" << j;
-  out << "\n";
-  std::mt19937_64 engine(20261203);
-  auto uniform = [&engine] { return static_cast<double>(engine() >> 11) * 0x1.0p-53; };
-  std::string line;
-  char number[32];
-  double x[kColumns];
-  for (std::uint64_t row = 0; row < rows; ++row) {
-    double y = 0;
-    for (int j = 1; j < kColumns; ++j) {
-      x[j] = (uniform() + uniform() + uniform() - 1.5) * 2.0 + j;
-      if (j <= kActiveColumns) y += 0.3 * j * x[j];
-    }
-    y += 4.0 * (uniform() - 0.5);
-    line.clear();
-    auto append = [&](double value) {
-      const auto result = std::to_chars(number, number + sizeof number, value, std::chars_format::general, 6);
-      line.append(number, result.ptr);
-    };
-    append(y);
-    for (int j = 1; j < kColumns; ++j) {
-      line += ',';
-      append(x[j]);
-    }
-    line += '\n';
-    out << line;
-  }
+  stepledger::bench::WriteGeneratedCsv(path, rows, {kColumns, kActiveColumns, 0.3, 4.0, 20261203});
 }
 
 stepledger::DesignSpec MakeSpec() {

@@ -14,6 +14,8 @@
 
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/table_scan.h"
+#include "support/factor_compare.h"
+#include "support/term_specs.h"
 #include "support/test_paths.h"
 #include "support/test_random.h"
 
@@ -95,21 +97,12 @@ std::string MakeRows(std::size_t rows) {
   return text;
 }
 
-TermSpec Term(std::string name, TermKind kind, std::string column, std::size_t index) {
-  TermSpec term;
-  term.name = std::move(name);
-  term.kind = kind;
-  term.column = std::move(column);
-  term.key_path = "terms[" + std::to_string(index) + "]";
-  return term;
-}
-
 DesignSpec Spec() {
   DesignSpec spec;
   spec.response = "y";
   spec.weights = "w";
-  spec.terms = {Term("a", TermKind::kNumeric, "a", 0), Term("b", TermKind::kNumeric, "b", 1),
-                Term("region", TermKind::kCategorical, "region", 2)};
+  spec.terms = {testing::Numeric("a", "a"), testing::Numeric("b", "b"),
+                testing::Categorical("region", "region")};
   TermSpec product;
   product.name = "a:region";
   product.kind = TermKind::kProduct;
@@ -131,15 +124,6 @@ std::unique_ptr<Scanned> Scan(std::size_t rows) {
   scanned->scan = ScanData(path, ScanOptions{});
   scanned->design = BuildDesign(Spec(), scanned->scan.profile);
   return scanned;
-}
-
-double ColumnRelativeDifference(const arma::mat& a, const arma::mat& b) {
-  double worst = 0;
-  for (arma::uword j = 0; j < b.n_cols; ++j) {
-    const double norm = arma::norm(b.col(j));
-    if (norm > 0) worst = std::max(worst, arma::abs(a.col(j) - b.col(j)).max() / norm);
-  }
-  return worst;
 }
 
 TEST(BootstrapPass, EachReplicateFactorIsTheQrOfItsCountWeightedRows) {
@@ -191,7 +175,7 @@ TEST(BootstrapPass, EachReplicateFactorIsTheQrOfItsCountWeightedRows) {
     }
     EXPECT_EQ(factors[r].rows, copies_total) << "replicate " << r;
     EXPECT_NEAR(factors[r].weight_sum, weight_total, 1e-12 * weight_total) << "replicate " << r;
-    EXPECT_LT(ColumnRelativeDifference(factors[r].r, direct), 1e-10) << "replicate " << r;
+    EXPECT_LT(testing::ColumnRelativeDifference(factors[r].r, direct), 1e-10) << "replicate " << r;
     EXPECT_TRUE(factors[r].column_stats.empty()) << "replicate factors keep no column statistics";
   }
 }
@@ -249,7 +233,7 @@ TEST(FactorBuilder, RepeatedRowEqualsItsCopies) {
   EXPECT_EQ(a.rows, b.rows);
   EXPECT_DOUBLE_EQ(a.weight_sum, b.weight_sum);
   EXPECT_DOUBLE_EQ(a.log_weight_sum, b.log_weight_sum);
-  EXPECT_LT(ColumnRelativeDifference(a.r.t() * a.r, b.r.t() * b.r), 1e-14);
+  EXPECT_LT(testing::ColumnRelativeDifference(a.r.t() * a.r, b.r.t() * b.r), 1e-14);
   EXPECT_EQ(a.column_stats[1].count, 4u);
   EXPECT_DOUBLE_EQ(a.column_stats[1].mean, b.column_stats[1].mean);
 }

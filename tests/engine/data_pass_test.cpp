@@ -26,6 +26,8 @@
 #include "stepledger/engine/notice.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/engine/table_scan.h"
+#include "support/factor_compare.h"
+#include "support/term_specs.h"
 #include "support/test_paths.h"
 
 namespace stepledger {
@@ -43,21 +45,12 @@ constexpr const char* kLaptops =
     "NA,5,B,1\n"
     "250,40,A,3\n";
 
-TermSpec Term(std::string name, TermKind kind, std::string column, std::size_t index) {
-  TermSpec term;
-  term.name = std::move(name);
-  term.kind = kind;
-  term.column = std::move(column);
-  term.key_path = "terms[" + std::to_string(index) + "]";
-  return term;
-}
-
 DesignSpec LaptopSpec() {
   DesignSpec spec;
   spec.response = "price";
   spec.weights = "units";
-  spec.terms = {Term("age", TermKind::kNumeric, "age", 0),
-                Term("grade", TermKind::kCategorical, "grade", 1)};
+  spec.terms = {testing::Numeric("age", "age"),
+                testing::Categorical("grade", "grade")};
   return spec;
 }
 
@@ -106,11 +99,9 @@ DesignSpec GeneratedSpec() {
   DesignSpec spec;
   spec.response = "y";
   spec.weights = "w";
-  spec.terms = {Term("a", TermKind::kNumeric, "a", 0), Term("b", TermKind::kNumeric, "b", 1),
-                Term("region", TermKind::kCategorical, "region", 2)};
-  TermSpec square = Term("a^2", TermKind::kPower, "a", 3);
-  square.degree = 2;
-  spec.terms.push_back(square);
+  spec.terms = {testing::Numeric("a", "a"), testing::Numeric("b", "b"),
+                testing::Categorical("region", "region")};
+  spec.terms.push_back(testing::Power("a^2", "a", 2));
   TermSpec product;
   product.name = "a:region";
   product.kind = TermKind::kProduct;
@@ -118,16 +109,6 @@ DesignSpec GeneratedSpec() {
   product.key_path = "terms[4]";
   spec.terms.push_back(product);
   return spec;
-}
-
-// Largest |R1 - R2| in a column relative to that column's norm, over all columns.
-double ColumnRelativeDifference(const arma::mat& a, const arma::mat& b) {
-  double worst = 0;
-  for (arma::uword j = 0; j < b.n_cols; ++j) {
-    const double norm = arma::norm(b.col(j));
-    if (norm > 0) worst = std::max(worst, arma::abs(a.col(j) - b.col(j)).max() / norm);
-  }
-  return worst;
 }
 
 TEST(DataPassTest, AccountingAndFactorOfTheSmallFile) {
@@ -220,7 +201,7 @@ TEST(DataPassTest, ThreadCountsGiveTheSameFactorAndAccounting) {
     EXPECT_NEAR(other.factor.weight_sum, results[0].factor.weight_sum,
                 1e-12 * results[0].factor.weight_sum);
     // Common practice: different fold orders agree to rounding (far below 1e-12).
-    EXPECT_LT(ColumnRelativeDifference(other.factor.r, results[0].factor.r), 1e-12)
+    EXPECT_LT(testing::ColumnRelativeDifference(other.factor.r, results[0].factor.r), 1e-12)
         << r + 1 << " threads";
   }
   // A given thread count gives the same bits every time.
@@ -387,10 +368,8 @@ TEST(DataPassTest, ReplayCarriesTheLowOrderPartsOfPowers) {
   const auto path = folder.Write("p.csv", "y,a\n1,1.1\n2,0.3\n3,7\n");
   DesignSpec spec;
   spec.response = "y";
-  spec.terms = {Term("a", TermKind::kNumeric, "a", 0)};
-  TermSpec cube = Term("a^3", TermKind::kPower, "a", 1);
-  cube.degree = 3;
-  spec.terms.push_back(cube);
+  spec.terms = {testing::Numeric("a", "a")};
+  spec.terms.push_back(testing::Power("a^3", "a", 3));
   const Design design = BuildDesign(spec, ProfileCsv(path, CsvOptions{}));
   std::vector<double> values = {1.1, 0.3, 7};
   std::size_t seen = 0;

@@ -36,6 +36,8 @@
 #include "stepledger/engine/factor.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/engine/table_scan.h"
+#include "support/factor_compare.h"
+#include "support/term_specs.h"
 #include "support/test_paths.h"
 #include "support/test_random.h"
 
@@ -130,22 +132,13 @@ Data MakeData(std::size_t rows, bool weighted, std::uint64_t seed) {
   return data;
 }
 
-TermSpec Term(std::string name, TermKind kind, std::string column, std::size_t index) {
-  TermSpec term;
-  term.name = std::move(name);
-  term.kind = kind;
-  term.column = std::move(column);
-  term.key_path = "terms[" + std::to_string(index) + "]";
-  return term;
-}
-
 DesignSpec Spec(bool weighted) {
   DesignSpec spec;
   spec.response = "price";
   if (weighted) spec.weights = "units";
-  spec.terms = {Term("age", TermKind::kNumeric, "age", 0), Term("ram", TermKind::kNumeric, "ram", 1),
-                Term("screen", TermKind::kNumeric, "screen", 2),
-                Term("grade", TermKind::kCategorical, "grade", 3)};
+  spec.terms = {testing::Numeric("age", "age"), testing::Numeric("ram", "ram"),
+                testing::Numeric("screen", "screen"),
+                testing::Categorical("grade", "grade")};
   TermSpec product;
   product.name = "age:ram";
   product.kind = TermKind::kProduct;
@@ -235,16 +228,6 @@ double GramDifference(const arma::mat& factor_r, const arma::mat& reference_rows
       const double norm = std::sqrt(expected(i, i) * expected(j, j));
       if (norm > 0) worst = std::max(worst, std::fabs(actual(i, j) - expected(i, j)) / norm);
     }
-  }
-  return worst;
-}
-
-// Largest |a - b| in a column relative to b's column norm (as tests/engine/data_pass_test.cpp).
-double ColumnRelativeDifference(const arma::mat& a, const arma::mat& b) {
-  double worst = 0;
-  for (arma::uword j = 0; j < b.n_cols; ++j) {
-    const double norm = arma::norm(b.col(j));
-    if (norm > 0) worst = std::max(worst, arma::abs(a.col(j) - b.col(j)).max() / norm);
   }
   return worst;
 }
@@ -346,7 +329,7 @@ TEST(FoldPass, ThreadsAndBlockSizesGiveTheSameFoldFactors) {
           EXPECT_EQ(a.scales, b.scales) << label << " fold " << f;
           EXPECT_LE(Relative(a.weight_sum, b.weight_sum), 1e-13) << label << " fold " << f;
           EXPECT_LE(Relative(a.log_weight_sum, b.log_weight_sum), 1e-13) << label << " fold " << f;
-          EXPECT_LE(ColumnRelativeDifference(a.r, b.r), 1e-13) << label << " fold " << f;
+          EXPECT_LE(testing::ColumnRelativeDifference(a.r, b.r), 1e-13) << label << " fold " << f;
         }
       }
     }
@@ -377,7 +360,7 @@ TEST(FoldPass, MergedFoldFactorsAreThePlainFactor) {
     for (const Factor* factor : std::vector<const Factor*>{&merged, &folded.factor}) {
       EXPECT_EQ(factor->rows, plain.factor.rows);
       EXPECT_LE(Relative(factor->weight_sum, plain.factor.weight_sum), 1e-12);
-      EXPECT_LE(ColumnRelativeDifference(factor->r, plain.factor.r), 1e-12) << (weighted ? "weighted" : "unweighted");
+      EXPECT_LE(testing::ColumnRelativeDifference(factor->r, plain.factor.r), 1e-12) << (weighted ? "weighted" : "unweighted");
       ASSERT_EQ(factor->column_stats.size(), plain.factor.column_stats.size());
       for (std::size_t j = 0; j < plain.factor.column_stats.size(); ++j) {
         EXPECT_EQ(factor->column_stats[j].count, plain.factor.column_stats[j].count);
@@ -407,7 +390,7 @@ TEST(FoldPass, EmptyFoldsMergeAsNothing) {
   for (const Factor& factor : folded.fold_factors) empty += factor.rows == 0 ? 1 : 0;
   EXPECT_GE(empty, 50u);
   EXPECT_EQ(folded.factor.rows, plain.factor.rows);
-  EXPECT_LE(ColumnRelativeDifference(folded.factor.r, plain.factor.r), 1e-12);
+  EXPECT_LE(testing::ColumnRelativeDifference(folded.factor.r, plain.factor.r), 1e-12);
 }
 
 // (d) With a holdout, the fold factors hold only the rows kept, and every row is accounted for.
@@ -493,7 +476,7 @@ TEST(FoldPass, ReplaysSplitTheRowsAsThePassDoes) {
   for (std::size_t f = 0; f < replayed.size(); ++f) {
     EXPECT_EQ(replayed[f].rows, pass.fold_factors[f].rows) << "fold " << f;
     EXPECT_EQ(replayed[f].scales, pass.fold_factors[f].scales) << "fold " << f;
-    EXPECT_LE(ColumnRelativeDifference(replayed[f].r, pass.fold_factors[f].r), 1e-12) << "fold " << f;
+    EXPECT_LE(testing::ColumnRelativeDifference(replayed[f].r, pass.fold_factors[f].r), 1e-12) << "fold " << f;
   }
   // A subset of columns in another order: the factor of exactly those columns, then the response.
   const std::vector<std::size_t> subset = {3, 0, 6};
