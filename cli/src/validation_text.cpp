@@ -54,9 +54,10 @@ void BootstrapText(const BootstrapValidation& bootstrap, std::ostringstream& tex
     text << "    " << term.term << std::string(width - term.term.size(), ' ') << "  "
          << Padded(FormatPercent(term.frequency), 6) << "\n";
   }
-  text << "  model sizes:";
-  for (const SizeFrequency& size : bootstrap.sizes) {
-    text << " " << size.size << " terms in " << Count(size.replicates) << ";";
+  text << "  samples by model size:";
+  for (std::size_t i = 0; i < bootstrap.sizes.size(); ++i) {
+    const SizeFrequency& size = bootstrap.sizes[i];
+    text << (i == 0 ? " " : ", ") << size.size << (size.size == 1 ? " term " : " terms ") << Count(size.replicates);
   }
   text << "\n  most frequent models:\n";
   for (const ModelFrequency& model : bootstrap.models) {

@@ -2,6 +2,7 @@
 
 #include <algorithm>
 #include <armadillo>
+#include <atomic>
 #include <exception>
 #include <map>
 #include <mutex>
@@ -167,9 +168,10 @@ BootstrapValidation RunBootstrap(const Spill& spill, const Design& design, const
   std::mutex progress_mutex;
   std::size_t finished = 0;
   std::exception_ptr failure;
+  std::atomic<bool> failed{false};  // the other threads stop at their next replicate
   const auto started = std::this_thread::get_id();
   auto work = [&](std::size_t first, std::size_t stride) {
-    for (std::size_t r = first; r < factors.size(); r += stride) {
+    for (std::size_t r = first; r < factors.size() && !failed.load(); r += stride) {
       try {
         const SearchResult result = RunSearch(factors[r], design, replicate_search, nullptr, run);
         FitOptions options = replicate_fit;
@@ -185,6 +187,7 @@ BootstrapValidation RunBootstrap(const Spill& spill, const Design& design, const
           failure = std::make_exception_ptr(NumericalError("bootstrap replicate " + std::to_string(r + 1) + " of " +
                                                            std::to_string(factors.size()) + ": " + error.what()));
         }
+        failed.store(true);
         return;
       }
       factors[r] = Factor{};  // its memory is no longer needed

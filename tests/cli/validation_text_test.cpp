@@ -49,7 +49,7 @@ TEST(ValidationText, TheDetailHasTheHoldoutCalibrationAndBootstrap) {
         std::string("calibration by decile of prediction"),
         std::string("Stability over 200 bootstrap samples (seed 11)"),
         std::string("ram     45.0%"),
-        std::string("model sizes: 1 terms in 30; 2 terms in 150; 3 terms in 20;"),
+        std::string("samples by model size: 1 term 30, 2 terms 150, 3 terms 20\n"),
         std::string(" 70.0%  age, ram  (the chosen model)"),
         std::string("the chosen model is among them")}) {
     EXPECT_NE(text.find(part), std::string::npos) << part << "\n" << text;

@@ -90,7 +90,8 @@ TEST_F(ValidationCautions, AtSixtyPercentATermIsNotNamed) {
 TEST_F(ValidationCautions, EverySubstitutePairIsNamed) {
   RunResult run = *run_;
   run.validation = testing::FilledValidation(run);  // age and grade as a pair; every term at 90%
-  const Caution* caution = Find(ComputeCautions(run), CautionKind::kSelectionStability);
+  const std::vector<Caution> cautions = ComputeCautions(run);  // Find points into it
+  const Caution* caution = Find(cautions, CautionKind::kSelectionStability);
   ASSERT_NE(caution, nullptr);
   EXPECT_TRUE(caution->rarely_chosen.empty());
   ASSERT_EQ(caution->substitutes.size(), 1u);
