@@ -7,8 +7,9 @@
 //    step only, and the steps between are interpolated by its cost model a*w + b*w^2 per
 //    candidate (w: model width), and the output says so. Run at 50,000 and 200,000 rows: the kernel's time
 //    does not depend on the rows.
-// 2. All subsets, best 3 per size, m = 20, 30, 40 correlated terms: branch and bound beside
-//    the exhaustive Gray-code enumeration where that finishes (m <= 24).
+// 2. All subsets, best 3 per size, m = 20 to 50 correlated terms: the regression tree on 1 and
+//    2 threads beside the earlier drop tree (m <= 35) and the exhaustive Gray-code enumeration
+//    (m <= 24) in the same run; nodes per model kept, which does not depend on the machine.
 // Invented data (a seeded generator); nothing is read from disk.
 
 #include <algorithm>
@@ -150,6 +151,27 @@ void ForwardBenchmark(std::size_t n, std::size_t m, std::size_t steps, std::size
   (void)baseline_steps;
 }
 
+struct SubsetRun {
+  stepledger::SearchResult result;
+  double seconds = 0;
+};
+
+SubsetRun RunSubsets(const stepledger::Factor& factor, const Design& design,
+                     const stepledger::SearchOptions& options, const stepledger::SearchRunOptions& run) {
+  const auto start = Clock::now();
+  SubsetRun out{stepledger::RunSearch(factor, design, options, nullptr, run), 0};
+  out.seconds = Seconds(start);
+  return out;
+}
+
+bool SameSubsets(const stepledger::SearchResult& a, const stepledger::SearchResult& b) {
+  if (a.subsets.size() != b.subsets.size()) return false;
+  for (std::size_t i = 0; i < a.subsets.size(); ++i) {
+    if (a.subsets[i].terms != b.subsets[i].terms) return false;
+  }
+  return true;
+}
+
 void SubsetBenchmark(std::size_t m) {
   arma::mat x;
   arma::vec y;
@@ -160,40 +182,84 @@ void SubsetBenchmark(std::size_t m) {
   options.method = stepledger::Method::kAllSubsets;
   options.criterion = stepledger::Criterion::kBic;
   options.best_per_size = 3;
-  auto start = Clock::now();
-  const auto bounded = stepledger::RunSearch(factor, design, options);
-  const double bounded_seconds = Seconds(start);
-  std::string exhaustive_text = "not run (2^" + std::to_string(m) + " subsets)";
-  std::string same = "-";
-  if (m <= 24) {
-    stepledger::SearchRunOptions run;
-    run.exhaustive_subsets = true;
-    start = Clock::now();
-    const auto exhaustive = stepledger::RunSearch(factor, design, options, nullptr, run);
-    exhaustive_text = std::to_string(Seconds(start)).substr(0, 7) + " s";
-    bool equal = exhaustive.subsets.size() == bounded.subsets.size();
-    for (std::size_t i = 0; equal && i < bounded.subsets.size(); ++i) {
-      equal = exhaustive.subsets[i].terms == bounded.subsets[i].terms;
-    }
-    same = equal ? "yes" : "NO";
+  stepledger::SearchRunOptions run;
+  const SubsetRun one = RunSubsets(factor, design, options, run);
+  run.threads = 2;
+  const SubsetRun two = RunSubsets(factor, design, options, run);
+  bool same = SameSubsets(one.result, two.result);
+  std::string drop_text = "not run";
+  if (m <= 35) {
+    stepledger::SearchRunOptions drop;
+    drop.drop_tree_subsets = true;
+    const SubsetRun earlier = RunSubsets(factor, design, options, drop);
+    drop_text = std::to_string(earlier.seconds).substr(0, 7) + " s";
+    same = same && SameSubsets(one.result, earlier.result);
   }
-  std::printf("%5zu  %14.4f  %16zu  %22s  %s\n", m, bounded_seconds, bounded.subsets_evaluated,
-              exhaustive_text.c_str(), same.c_str());
+  std::string exhaustive_text = "not run";
+  if (m <= 24) {
+    stepledger::SearchRunOptions every;
+    every.exhaustive_subsets = true;
+    const SubsetRun exhaustive = RunSubsets(factor, design, options, every);
+    exhaustive_text = std::to_string(exhaustive.seconds).substr(0, 7) + " s";
+    same = same && SameSubsets(one.result, exhaustive.result);
+  }
+  const double kept = static_cast<double>(one.result.subsets.size());
+  std::printf("%4zu  %9.3f  %9.3f  %10zu  %12zu  %10.1f  %12s  %12s  %s\n", m, one.seconds, two.seconds,
+              one.result.subset_nodes, one.result.subsets_evaluated,
+              static_cast<double>(one.result.subset_nodes) / kept, drop_text.c_str(), exhaustive_text.c_str(),
+              same ? "yes" : "NO");
+}
+
+/// The worst case: every term of a similar small effect, uncorrelated (little can be cut).
+/// Returns the tree's seconds on one thread.
+double WeakBenchmark(std::size_t m) {
+  arma::mat x;
+  arma::vec y;
+  MakeRows(1000, m, 0.0, m, 555 + m, x, y);
+  const Design design = OneColumnTerms(m);
+  const stepledger::Factor factor = Fold(x, y, design);
+  stepledger::SearchOptions options;
+  options.method = stepledger::Method::kAllSubsets;
+  options.criterion = stepledger::Criterion::kBic;
+  options.best_per_size = 3;
+  const SubsetRun one = RunSubsets(factor, design, options, {});
+  std::string drop_text = "not run";
+  if (m <= 28) {
+    stepledger::SearchRunOptions drop;
+    drop.drop_tree_subsets = true;
+    drop_text = std::to_string(RunSubsets(factor, design, options, drop).seconds).substr(0, 7) + " s";
+  }
+  std::printf("%4zu  %9.3f  %10zu  %12zu  %12s\n", m, one.seconds, one.result.subset_nodes,
+              one.result.subsets_evaluated, drop_text.c_str());
+  return one.seconds;
 }
 
 }  // namespace
 
-int main() {
+int main(int argc, char** argv) {
+  // "subsets": the all-subsets table only.
+  const bool subsets_only = argc > 1 && std::string(argv[1]) == "subsets";
+  if (!subsets_only) {
   std::printf("Forward selection to 30 steps over 300 candidate columns (AIC, max_terms 30)\n");
   std::printf("%8s  %5s  %5s  %9s  %10s  %12s  %10s  %s\n", "rows", "m", "steps", "pass s",
               "kernel s", "refit s", "ratio", "note");
   ForwardBenchmark(50000, 300, 30, 3);
   ForwardBenchmark(200000, 300, 30, 2);
   std::printf("(pass s: one pass folding the rows into the factor; kernel s: the search after it)\n\n");
+  }
 
   std::printf("All subsets, best 3 per size, correlated terms (rho 0.6), 2000 rows\n");
-  std::printf("%5s  %14s  %16s  %22s  %s\n", "m", "branch&bound s", "models evaluated",
-              "exhaustive Gray code", "same");
-  for (std::size_t m : {20, 30, 40}) SubsetBenchmark(m);
+  std::printf("%4s  %9s  %9s  %10s  %12s  %10s  %12s  %12s  %s\n", "m", "tree 1 th", "tree 2 th", "nodes",
+              "models read", "nodes/kept", "drop tree", "exhaustive", "same");
+  for (std::size_t m : {20, 25, 30, 35, 40, 45, 50}) SubsetBenchmark(m);
+  std::printf("(tree: the regression tree with preordering, seconds on 1 and 2 threads; nodes and models\n"
+              " read on 1 thread; drop tree: the earlier branch and bound, 1 thread, m <= 35; exhaustive:\n"
+              " Gray-code enumeration, m <= 24; same: the kept subsets agree across all that ran)\n");
+  std::printf("\nAll subsets, worst case: every term of a similar small effect, uncorrelated, 1000 rows\n");
+  std::printf("%4s  %9s  %10s  %12s  %12s\n", "m", "tree 1 th", "nodes", "models read", "drop tree");
+  for (std::size_t m = 24; m <= 44; m += 4) {
+    // Four more candidates cost about ten times as much here: stop before a run of minutes.
+    if (WeakBenchmark(m) * 10 > 60) break;
+  }
   return 0;
 }

@@ -94,6 +94,7 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   SearchRunOptions search_run;
   search_run.kernel = options.fit.kernel;
   search_run.cross_validation = cross_validation ? &*cross_validation : nullptr;
+  search_run.threads = options.threads;  // all-subsets shares its subtrees across them
   run.search = RunSearch(pass.factor, run.design, search, observer, search_run);
 
   FitOptions fit_options = options.fit;

@@ -27,62 +27,20 @@
 #include <cstdint>
 
 #include "search_internal.h"
+#include "subset_tree.h"
 #include "stepledger/engine/errors.h"
 
 namespace stepledger::selection_detail {
 namespace {
 
-struct Entry {
-  double rss = 0;
-  std::vector<std::size_t> terms;  // sorted design term indices
-};
-
-/// Orders by RSS; RSS equal within the tie tolerance orders by the term indices (plan order),
-/// so that both enumerations keep the same models.
-bool Better(const Entry& a, const Entry& b) {
-  if (!ScoresTie(a.rss, b.rss)) return a.rss < b.rss;
-  return a.terms < b.terms;
-}
-
-class SizeBoard {
- public:
-  SizeBoard(std::size_t sizes, std::size_t capacity) : boards_(sizes), capacity_(capacity) {}
-  void Offer(std::size_t size, double rss, const std::vector<char>& in_set) {
-    auto& board = boards_[size];
-    if (board.size() == capacity_ && !(rss <= board.back().rss || ScoresTie(rss, board.back().rss))) return;
-    Entry entry{rss, {}};
-    for (std::size_t term = 0; term < in_set.size(); ++term) {
-      if (in_set[term]) entry.terms.push_back(term);
-    }
-    auto position = std::upper_bound(board.begin(), board.end(), entry, Better);
-    board.insert(position, std::move(entry));
-    if (board.size() > capacity_) board.pop_back();
-  }
-  /// True when no model of sizes [lo, hi] with RSS >= bound could be kept.
-  bool CanPrune(double bound, std::ptrdiff_t lo, std::ptrdiff_t hi) const {
-    lo = std::max<std::ptrdiff_t>(lo, 0);
-    hi = std::min<std::ptrdiff_t>(hi, static_cast<std::ptrdiff_t>(boards_.size()) - 1);
-    for (std::ptrdiff_t size = lo; size <= hi; ++size) {
-      const auto& board = boards_[static_cast<std::size_t>(size)];
-      if (board.size() < capacity_) return false;
-      const double worst = board.back().rss;
-      if (bound <= worst || ScoresTie(bound, worst)) return false;
-    }
-    return true;  // also when no recordable size is in [lo, hi]
-  }
-  const std::vector<std::vector<Entry>>& boards() const { return boards_; }
-
- private:
-  std::vector<std::vector<Entry>> boards_;
-  std::size_t capacity_;
-};
+using Entry = SubsetEntry;
 
 class SubsetSearch {
  public:
-  SubsetSearch(SearchContext& ctx, std::vector<std::size_t> free_terms)
+  SubsetSearch(SearchContext& ctx, std::vector<std::size_t> free_terms, SubsetBoard& board)
       : ctx_(ctx), free_(std::move(free_terms)),
         max_free_(MaxFree(ctx, free_.size())),
-        board_(max_free_ + 1, ctx.options().best_per_size),
+        board_(board),
         in_set_(ctx.design().terms.size(), 0) {
     for (std::size_t term : ctx.keep_terms()) in_set_[term] = 1;
   }
@@ -133,7 +91,6 @@ class SubsetSearch {
     }
   }
 
-  const SizeBoard& board() const { return board_; }
   std::size_t evaluated() const { return evaluated_; }
 
  private:
@@ -141,7 +98,13 @@ class SubsetSearch {
     ++evaluated_;
     if (count_in > max_free_) return;
     if (!ctx_.SatisfiesHierarchy(in_set_)) return;
-    board_.Offer(count_in, ctx_.state().Rss(), in_set_);
+    const double rss = ctx_.state().Rss();
+    if (!board_.Admits(count_in, rss)) return;
+    std::vector<std::size_t> terms;
+    for (std::size_t term = 0; term < in_set_.size(); ++term) {
+      if (in_set_[term]) terms.push_back(term);
+    }
+    board_.Offer(count_in, rss, std::move(terms));
   }
 
   void Visit(const std::vector<std::size_t>& removable, std::size_t count_in) {
@@ -179,7 +142,7 @@ class SubsetSearch {
   SearchContext& ctx_;
   std::vector<std::size_t> free_;
   std::size_t max_free_;
-  SizeBoard board_;
+  SubsetBoard& board_;
   std::vector<char> in_set_;
   std::size_t evaluated_ = 0;
 };
@@ -193,13 +156,16 @@ void RunAllSubsets(SearchContext& ctx) {
     if (!ctx.is_keep(term)) free_terms.push_back(term);
   }
   std::sort(free_terms.begin(), free_terms.end());
-  SubsetSearch search(ctx, free_terms);
+  const std::size_t max_free = SubsetSearch::MaxFree(ctx, free_terms.size());
+  SubsetBoard board(max_free + 1, ctx.options().best_per_size);
+  SubsetSearch search(ctx, free_terms, board);
   if (ctx.run().exhaustive_subsets) {
     ctx.StartFromBase();
     ctx.EmitStart("all-subsets (exhaustive, Gray-code order): every subset of the candidate terms",
                   std::move(excluded));
     search.Exhaustive();
-  } else {
+    ctx.subsets_evaluated = search.evaluated();
+  } else if (ctx.run().drop_tree_subsets) {
     ctx.StartFromBase();
     ctx.EmitStart("all-subsets (branch and bound): the best " +
                       std::to_string(ctx.options().best_per_size) + " models of every size by RSS",
@@ -208,14 +174,22 @@ void RunAllSubsets(SearchContext& ctx) {
     full.insert(full.end(), free_terms.begin(), free_terms.end());
     ctx.SetModel(full);
     search.BranchAndBound();
+    ctx.subsets_evaluated = search.evaluated();
+  } else {
+    ctx.StartFromBase();
+    ctx.EmitStart("all-subsets (branch and bound): the best " +
+                      std::to_string(ctx.options().best_per_size) + " models of every size by RSS",
+                  std::move(excluded));
+    const SubsetTreeStats stats = RunSubsetTree(ctx, free_terms, max_free, board);
+    ctx.subsets_evaluated = static_cast<std::size_t>(stats.models_evaluated);
+    ctx.subset_tree_nodes = static_cast<std::size_t>(stats.nodes);
   }
-  ctx.subsets_evaluated = search.evaluated();
 
   // Score the kept models and choose the best by the criterion (ties: smaller size, then
   // smaller RSS, then plan order: the order of the list).
   std::vector<SubsetRecord> records;
   std::vector<Score> scores;
-  const auto& boards = search.board().boards();
+  const auto& boards = board.boards();
   const std::size_t base_width = ctx.base_columns().size();
   for (std::size_t size = 0; size < boards.size(); ++size) {
     std::size_t rank = 1;

@@ -163,6 +163,7 @@ SearchResult RunSearch(const Factor& factor, const Design& design, const SearchO
   result.tss = ctx.criterion_context().tss;
   result.cp_sigma2 = ctx.criterion_context().full_sigma2;
   result.subsets_evaluated = ctx.subsets_evaluated;
+  result.subset_nodes = ctx.subset_tree_nodes;
   return result;
 }
 

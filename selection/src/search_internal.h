@@ -121,6 +121,7 @@ class SearchContext {
   /// all-subsets: the chosen model replaces the state; bookkeeping for the result.
   void SetModel(const std::vector<std::size_t>& terms_in_order);
   std::size_t subsets_evaluated = 0;
+  std::size_t subset_tree_nodes = 0;  ///< all-subsets regression tree: nodes formed
 
  private:
   const Factor& factor_;

@@ -167,12 +167,12 @@ TEST_F(LimitsOnTheCommandLine, CategoricalProductOf150By150LevelsIsRefusedBefore
   EXPECT_LT(timed.seconds, 5.0);
 }
 
-TEST_F(LimitsOnTheCommandLine, AllSubsetsOverFortyFiveTermsIsRefusedNamingTheMethod) {
-  // All-subsets over 45 candidates once started with no warning and never ended.
-  const auto data = dir_.Write("wide.csv", WideCsv(45, 200));
+TEST_F(LimitsOnTheCommandLine, AllSubsetsOverFiftyFiveTermsIsRefusedNamingTheMethod) {
+  // All-subsets over more candidates than it takes (50) is refused before the pass.
+  const auto data = dir_.Write("wide.csv", WideCsv(55, 200));
   const TimedRun timed = Timed({"select", data.string(), "--response", "y", "--method", "all-subsets"});
   EXPECT_EQ(timed.run.status, 2) << timed.run.err;
-  EXPECT_TRUE(Has(timed.run.err, "plan key 'method': all-subsets over 45 candidate terms")) << timed.run.err;
+  EXPECT_TRUE(Has(timed.run.err, "plan key 'method': all-subsets over 55 candidate terms")) << timed.run.err;
   EXPECT_TRUE(Has(timed.run.err, "use \"method\": \"stepwise\"")) << timed.run.err;
   EXPECT_LT(timed.seconds, 5.0);
 }

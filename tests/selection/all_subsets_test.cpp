@@ -147,7 +147,7 @@ std::vector<testing::DenseTermSpec> NumericTerms(std::size_t count) {
 }
 
 TEST(AllSubsetsLimits, MoreCandidatesThanTheLimitAreRefusedAtTheMethodKey) {
-  const Design design = testing::MakeDenseDesign(NumericTerms(45));
+  const Design design = testing::MakeDenseDesign(NumericTerms(60));
   SearchOptions options;
   options.method = Method::kAllSubsets;
   try {
@@ -155,8 +155,8 @@ TEST(AllSubsetsLimits, MoreCandidatesThanTheLimitAreRefusedAtTheMethodKey) {
     ADD_FAILURE() << "expected a PlanError";
   } catch (const PlanError& error) {
     EXPECT_EQ(error.key_path(), "method");
-    EXPECT_NE(std::string(error.what()).find("all-subsets over 45 candidate terms (45 terms, 0 kept, 0 never) could "
-                                             "have to examine 2^45 subsets; it takes at most " +
+    EXPECT_NE(std::string(error.what()).find("all-subsets over 60 candidate terms (60 terms, 0 kept, 0 never) could "
+                                             "have to examine 2^60 subsets; it takes at most " +
                                              std::to_string(kMaxAllSubsetsCandidates)),
               std::string::npos)
         << error.what();
@@ -164,12 +164,12 @@ TEST(AllSubsetsLimits, MoreCandidatesThanTheLimitAreRefusedAtTheMethodKey) {
   // max_terms does not bound the work (the tree descends from the full model): still refused.
   options.max_terms = 3;
   EXPECT_THROW(ValidateSearchOptions(options, design), PlanError);
-  // Kept and never terms are not candidates: 45 - 5 - 4 = 36, the limit, is accepted; one
+  // Kept and never terms are not candidates: 60 - 5 - 5 = 50, the limit, is accepted; one
   // candidate more is not.
   options.max_terms.reset();
   options.keep = {"x0", "x1", "x2", "x3", "x4"};
-  options.never = {"x5", "x6", "x7", "x8"};
-  ASSERT_EQ(kMaxAllSubsetsCandidates, 36u);
+  options.never = {"x5", "x6", "x7", "x8", "x9"};
+  ASSERT_EQ(kMaxAllSubsetsCandidates, 50u);
   EXPECT_NO_THROW(ValidateSearchOptions(options, design));
   options.never.pop_back();
   EXPECT_THROW(ValidateSearchOptions(options, design), PlanError);
@@ -181,11 +181,11 @@ TEST(AllSubsetsLimits, MoreCandidatesThanTheLimitAreRefusedAtTheMethodKey) {
 }
 
 TEST(AllSubsetsLimits, RunSearchRefusesBeforeExaminingAnySubset) {
-  // 45 terms of similar small effect: the branch and bound could bound little away (before the
-  // limit this search ran for hours). The refusal comes at once.
+  // 60 terms of similar small effect: the branch and bound could bound little away. The
+  // refusal comes at once.
   testing::RandomProblemOptions random;
-  random.numeric_terms = 45;
-  random.true_terms = 45;
+  random.numeric_terms = 60;
+  random.true_terms = 60;
   random.effect = 0.05;
   random.n = 400;
   const DenseProblem problem = testing::MakeRandomProblem(random);

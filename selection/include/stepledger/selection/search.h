@@ -15,8 +15,9 @@
 //    (repeatedly) before the next forward step; a move back to a model seen before ends the
 //    search (kCycleDetected); partial-f with entry_p > exit_p is refused (it can cycle);
 //  - all-subsets: the best_per_size models of every size by RSS, by branch and bound over
-//    the factor (a subtree is bounded by the RSS of the largest model in it, Furnival and
-//    Wilson, Technometrics 1974), then the best of those by the criterion; with cv, too, the
+//    a regression tree of triangular factors with preordering (a subtree is bounded by the RSS
+//    of the largest model in it, Furnival and Wilson, Technometrics 1974; the tree of Gatu and
+//    Kontoghiorghes, JCGS 2006; subset_tree.cpp), then the best of those by the criterion; with cv, too, the
 //    models kept are those best by RSS (exact), and cv chooses among them only: cv does not
 //    fall with RSS, so no bound prunes by it, and the model of least cv over every subset is
 //    not searched for;
@@ -29,6 +30,7 @@
 // equal within kTieRelativeTolerance) break by plan order and are recorded in the step.
 // partial-f ranks candidates by p-value, then by F (p-values of strong terms underflow to 0).
 
+#include <iosfwd>
 #include <string>
 #include <vector>
 
@@ -58,6 +60,7 @@ struct SearchResult {
   double tss = 0;
   std::optional<double> cp_sigma2;       ///< sigma^2 of the largest eligible model
   std::size_t subsets_evaluated = 0;     ///< all-subsets: models whose RSS was computed
+  std::size_t subset_nodes = 0;          ///< all-subsets regression tree: nodes whose factor was formed
 
   bool IsModelUsable() const { return outcome != SearchOutcome::kNotRun; }
   /// A few lines: method, criterion, outcome, final terms.
@@ -73,6 +76,18 @@ struct SearchRunOptions {
   /// all-subsets: enumerate every subset in Gray-code order instead of branch and bound
   /// (one term moved per subset; for cross-checks; refused above 30 candidate terms).
   bool exhaustive_subsets = false;
+  /// all-subsets: the earlier branch and bound over a single "drop" tree (one model per node,
+  /// a kernel move and a removal score per remaining term); kept for the benchmark beside the
+  /// regression tree, which is the default. Ignored when exhaustive_subsets is set.
+  bool drop_tree_subsets = false;
+  /// all-subsets: threads that share the subtrees of the regression tree (>= 1). The kept
+  /// models are the same bits for any count (see all_subsets.cpp).
+  int threads = 1;
+  /// all-subsets: progress lines on this stream (nodes, models kept, seconds) every few
+  /// seconds of a long search; nullptr for none. Not owned.
+  std::ostream* progress = nullptr;
+  /// Seconds between progress lines (the first after this long). Default 5.
+  double progress_seconds = 5;
   /// Lets stepwise partial-f run with entry_p > exit_p, which ValidateSearchOptions refuses,
   /// so that tests can exercise the cycle guard. Never set by the command line.
   bool allow_cycling_thresholds = false;
@@ -91,14 +106,15 @@ struct SearchRunOptions {
 /// max_terms, a term listed twice or both kept and never.
 void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds = false);
 
-/// Most candidate terms (neither kept nor never) an all-subsets search takes. The branch and
-/// bound may examine up to 2^m subsets, each a kernel move and a score per remaining term. As
-/// measured (README "Limits"; 1,000 rows, one thread): terms of similar small effect, the worst
-/// case, cost 190 s of CPU at 32 candidates and grow about 1.8 times per added candidate, so 36
-/// is about half an hour and 45 days; a few strong terms among weak ones cost 111 s at 36.
-/// max_terms does not shrink the work (the tree starts from the full model and descends), so
-/// only fewer candidates or another method help.
-inline constexpr std::size_t kMaxAllSubsetsCandidates = 36;
+/// Most candidate terms (neither kept nor never) an all-subsets search takes. The regression
+/// tree (selection/src/subset_tree.cpp) may still have to read up to 2^m subsets when nothing
+/// can be cut. As measured (README "Limits"; bench/select_bench, 2,000 rows, best 3 per size,
+/// correlated terms of mixed strength): 0.12 s at 40 candidates, 11 s at 45 and 0.8 s at 50 on
+/// one thread; every term of a similar small effect, 1,000 rows: 1.2 s at 40, 7.4 s at 44 (the
+/// time depends on the data far more than on m); above 50 no case was measured,
+/// so the plan is refused. max_terms cuts the subtrees of larger models, but does not lift the
+/// refusal.
+inline constexpr std::size_t kMaxAllSubsetsCandidates = 50;
 
 /// ValidateSearchSettings, then the checks that need the design: keep and never name terms of
 /// the design (a plan with "terms": "all" can only be checked here), and all-subsets has at most
