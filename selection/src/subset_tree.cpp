@@ -125,8 +125,9 @@ constexpr std::size_t kPreorderFree = 3;
 /// Free terms at or above which a child may be handed to an idle thread.
 constexpr std::size_t kShareFree = 7;
 /// A child is cut on its estimated bound only when the bound shrunk by this relative margin
-/// still cuts (the increments come from an inverse, accurate to about cond(R) * eps); otherwise
-/// its factor is formed and the bound read from it.
+/// still cuts (the increments come from an inverse, accurate to about cond(R) * eps; the margin
+/// used is the larger of this and 100 cond_1(R) eps, see Preorder); otherwise its factor is
+/// formed and the bound read from it.
 constexpr double kEstimateMargin = 1e-7;
 
 struct Node {
@@ -202,11 +203,12 @@ class Worker {
     if (n < 2) return;
     // Children, smallest subtree first.
     const std::vector<double> increments = preordered ? increments_ : std::vector<double>();
+    const double margin = estimate_margin_;  // Visit below overwrites the member
     for (std::size_t j = n - 1; j-- > k;) {
       const auto lo = static_cast<std::ptrdiff_t>(j + 1);
       const auto hi = static_cast<std::ptrdiff_t>(std::min(n - 1, s_.max_free));
       if (lo > hi) continue;
-      if (preordered && s_.board.CanPrune((rss + increments[j]) * (1 - kEstimateMargin), lo, hi)) continue;
+      if (preordered && margin < 1e-2 && s_.board.CanPrune((rss + increments[j]) * (1 - margin), lo, hi)) continue;
       Node& child = Slot(depth + 1);
       MakeChild(node, j, child);
       const double child_rss = ChildRss(child);
@@ -370,6 +372,20 @@ class Worker {
     if (info != 0) {
       throw NumericalError("all-subsets: the factor of a subset is singular at column " + std::to_string(info));
     }
+    // The increments are accurate to about cond(R) * eps relative: a cut on them needs a margin
+    // at least that wide. cond_1(R) = ||R||_1 ||R^-1||_1 (column sums of the free block and of
+    // its inverse); past 1e-2 no estimate is trusted and every child's factor is formed.
+    double norm = 0, inverse_norm = 0;
+    for (std::size_t c = 0; c < t; ++c) {
+      double column = 0, inverse_column = 0;
+      for (std::size_t i = 0; i <= c; ++i) {
+        column += std::fabs(node.r[(start + i) * ld + start + c]);
+        inverse_column += std::fabs(inverse_[i * t + c]);
+      }
+      norm = std::max(norm, column);
+      inverse_norm = std::max(inverse_norm, inverse_column);
+    }
+    estimate_margin_ = std::max(kEstimateMargin, 100.0 * norm * inverse_norm * std::numeric_limits<double>::epsilon());
     beta_.assign(t, 0);
     for (std::size_t i = 0; i < t; ++i) {
       double sum = 0;
@@ -454,6 +470,7 @@ class Worker {
   std::deque<Node> pool_;  // a deque: the nodes of the current path stay where they are as it grows
   std::vector<std::size_t> offsets_, column_map_;
   std::vector<double> leading_rss_, inverse_, beta_, increments_, qr_, tau_, work_, row_copy_;
+  double estimate_margin_ = kEstimateMargin;  // of the last Preorder (see there)
 };
 
 }  // namespace
