@@ -12,6 +12,8 @@
 #include <string>
 #include <vector>
 
+#include "stepledger/engine/design.h"
+
 namespace stepledger::bench {
 
 struct GeneratedCsv {
@@ -52,6 +54,21 @@ inline void WriteGeneratedCsv(const std::filesystem::path& path, std::uint64_t r
     line += '\n';
     out << line;
   }
+}
+
+/// The plan's design of that file: response y, one numeric term per column x1..x(columns-1),
+/// named as the column.
+inline DesignSpec GeneratedCsvSpec(const GeneratedCsv& shape) {
+  DesignSpec spec;
+  spec.response = "y";
+  for (int j = 1; j < shape.columns; ++j) {
+    TermSpec term;
+    term.name = "x" + std::to_string(j);
+    term.column = term.name;
+    term.key_path = "terms[" + std::to_string(j - 1) + "]";
+    spec.terms.push_back(term);
+  }
+  return spec;
 }
 
 }  // namespace stepledger::bench

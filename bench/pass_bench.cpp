@@ -40,8 +40,10 @@ constexpr int kColumns = 20;  // y and x1..x19
 
 using Clock = std::chrono::steady_clock;
 
+const stepledger::bench::GeneratedCsv kShape{kColumns, kColumns - 1, 0.1, 1.0, 20261201};
+
 void WriteCsv(const std::filesystem::path& path, std::uint64_t rows) {
-  stepledger::bench::WriteGeneratedCsv(path, rows, {kColumns, kColumns - 1, 0.1, 1.0, 20261201});
+  stepledger::bench::WriteGeneratedCsv(path, rows, kShape);
 }
 
 std::uint64_t PeakResidentKb() {
@@ -61,14 +63,7 @@ bool ResetPeak() {
 }
 
 stepledger::DesignSpec MakeSpec() {
-  stepledger::DesignSpec spec;
-  spec.response = "y";
-  for (int j = 1; j < kColumns; ++j) {
-    stepledger::TermSpec term;
-    term.name = "x" + std::to_string(j);
-    term.column = term.name;
-    spec.terms.push_back(term);
-  }
+  stepledger::DesignSpec spec = stepledger::bench::GeneratedCsvSpec(kShape);
   stepledger::TermSpec square;
   square.name = "x1^2";
   square.kind = stepledger::TermKind::kPower;

@@ -55,22 +55,13 @@ constexpr std::size_t kReplicates = 200;
 
 using Clock = std::chrono::steady_clock;
 
+const stepledger::bench::GeneratedCsv kShape{kColumns, kActiveColumns, 0.3, 4.0, 20261203};
+
 void WriteCsv(const std::filesystem::path& path, std::uint64_t rows) {
-  stepledger::bench::WriteGeneratedCsv(path, rows, {kColumns, kActiveColumns, 0.3, 4.0, 20261203});
+  stepledger::bench::WriteGeneratedCsv(path, rows, kShape);
 }
 
-stepledger::DesignSpec MakeSpec() {
-  stepledger::DesignSpec spec;
-  spec.response = "y";
-  for (int j = 1; j < kColumns; ++j) {
-    stepledger::TermSpec term;
-    term.name = "x" + std::to_string(j);
-    term.column = term.name;
-    term.key_path = "terms[" + std::to_string(j - 1) + "]";
-    spec.terms.push_back(term);
-  }
-  return spec;
-}
+stepledger::DesignSpec MakeSpec() { return stepledger::bench::GeneratedCsvSpec(kShape); }
 
 std::string PlanText(const char* criterion, const char* method = "forward", const std::string& extra = "") {
   std::string text = R"({"response": "y", "terms": [)";

@@ -103,7 +103,7 @@ void FactorBuilder::AddRepeatedRow(std::span<const double> x, double y, double w
     throw NumericalError("factor: weight of used row " + std::to_string(rows_ + 1) +
                          " is not a positive finite number (" + std::to_string(weight) + ")");
   }
-  const double root_weight = std::sqrt(copies == 1 ? weight : weight * copies);
+  const double root_weight = std::sqrt(weight * copies);  // exact for one copy: weight * 1 == weight
   const std::size_t last = columns_ - 1;
   for (std::size_t column = 0; column < columns_; ++column) {
     const double value = column < last ? x[column] : y;

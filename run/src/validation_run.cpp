@@ -4,6 +4,7 @@
 #include <array>
 #include <cmath>
 #include <numeric>
+#include <span>
 #include <vector>
 
 #include <boost/accumulators/accumulators.hpp>
@@ -47,11 +48,11 @@ using DecileSketch = acc::accumulator_set<double, acc::stats<acc::tag::extended_
 constexpr std::size_t kDeciles = 10;
 constexpr std::size_t kExactRows = 64;
 
-// The model's prediction of a used row (data units, on the modelled scale).
-double Predict(const FitResult& fit, const UsedRow& row) {
-  double prediction = 0;
-  for (std::size_t j = 0; j < fit.columns.size(); ++j) prediction += fit.beta[j] * row.x[fit.columns[j]];
-  return prediction;
+// The model's values of a used row (fit.columns, model order), the input of LinearPredictor
+// and UnitLeverage.
+std::span<const double> ModelValues(const FitResult& fit, const UsedRow& row, std::vector<double>& model_x) {
+  for (std::size_t j = 0; j < fit.columns.size(); ++j) model_x[j] = row.x[fit.columns[j]];
+  return model_x;
 }
 
 struct RangeCheck {
@@ -77,15 +78,16 @@ HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, cons
   for (std::size_t d = 0; d < probabilities.size(); ++d) probabilities[d] = static_cast<double>(d + 1) / kDeciles;
   DecileSketch sketch{acc::tag::extended_p_square::probabilities = probabilities};
   double sse = 0, error_sum = 0, weight = 0, mean = 0, about_mean = 0;
-  arma::vec x_model(fit.columns.size());
-  const bool leverage_known = support.max_unit_leverage.has_value() && fit.xtwx_inverse.n_rows == fit.columns.size();
+  std::vector<double> model_x(fit.columns.size()), scratch(fit.columns.size());
+  const bool leverage_known = support.max_unit_leverage.has_value() && !fit.model_triangle.is_empty();
   // A few rows are too few for the P^2 sketch (it needs 2 * 9 + 3 values to place its markers):
   // the first kExactRows predictions are kept and their deciles taken exactly when no more come.
   std::vector<double> first_predictions;
   ForEachUsedRow(
       spill, design,
       [&](const UsedRow& row) {
-        const double prediction = Predict(fit, row);
+        const std::span<const double> values = ModelValues(fit, row, model_x);
+        const double prediction = LinearPredictor(fit, values);
         const double error = row.y - prediction;
         ++result.rows;
         weight += row.weight;
@@ -102,10 +104,8 @@ HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, cons
           if (value < range.min || value > range.max) outside = true;
         }
         if (outside) ++result.rows_outside_ranges;
-        if (leverage_known) {
-          for (std::size_t j = 0; j < fit.columns.size(); ++j) x_model[j] = row.x[fit.columns[j]];
-          const double leverage = arma::as_scalar(x_model.t() * fit.xtwx_inverse * x_model);
-          if (leverage > *support.max_unit_leverage) ++result.rows_high_leverage;
+        if (leverage_known && UnitLeverage(fit, values, scratch) > *support.max_unit_leverage) {
+          ++result.rows_high_leverage;
         }
       },
       holdout, RowSet::kHeldOutRows);
@@ -132,7 +132,7 @@ HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, cons
   ForEachUsedRow(
       spill, design,
       [&](const UsedRow& row) {
-        const double prediction = Predict(fit, row);
+        const double prediction = LinearPredictor(fit, ModelValues(fit, row, model_x));
         const std::size_t bin = static_cast<std::size_t>(
             std::lower_bound(bounds.begin(), bounds.end(), prediction) - bounds.begin());
         ++bin_rows[bin];
