@@ -172,37 +172,65 @@ bool SameSubsets(const stepledger::SearchResult& a, const stepledger::SearchResu
   return true;
 }
 
-void SubsetBenchmark(std::size_t m) {
-  arma::mat x;
-  arma::vec y;
-  MakeRows(2000, m, 0.6, std::max<std::size_t>(2, m / 4), 777 + m, x, y);
-  const Design design = OneColumnTerms(m);
-  const stepledger::Factor factor = Fold(x, y, design);
+/// Seconds of another algorithm on the same search, or "not run" when `run_it` is false; `same`
+/// turns false when its kept subsets differ from `reference`'s.
+std::string TimedBeside(bool run_it, const stepledger::Factor& factor, const Design& design,
+                        const stepledger::SearchOptions& options, const stepledger::SearchRunOptions& run,
+                        const stepledger::SearchResult& reference, bool& same) {
+  if (!run_it) return "not run";
+  const SubsetRun other = RunSubsets(factor, design, options, run);
+  same = same && SameSubsets(reference, other.result);
+  return std::to_string(other.seconds).substr(0, 7) + " s";
+}
+
+stepledger::SearchRunOptions DropTree() {
+  stepledger::SearchRunOptions run;
+  run.drop_tree_subsets = true;
+  return run;
+}
+
+stepledger::SearchRunOptions Exhaustive() {
+  stepledger::SearchRunOptions run;
+  run.exhaustive_subsets = true;
+  return run;
+}
+
+/// The all-subsets search of the tables: best 3 per size by RSS, BIC.
+stepledger::SearchOptions SubsetOptions() {
   stepledger::SearchOptions options;
   options.method = stepledger::Method::kAllSubsets;
   options.criterion = stepledger::Criterion::kBic;
   options.best_per_size = 3;
+  return options;
+}
+
+/// Correlated terms (rho 0.6) of mixed strength, 2000 rows; a quarter of them in the true model.
+stepledger::Factor CorrelatedFactor(std::size_t m, const Design& design) {
+  arma::mat x;
+  arma::vec y;
+  MakeRows(2000, m, 0.6, std::max<std::size_t>(2, m / 4), 777 + m, x, y);
+  return Fold(x, y, design);
+}
+
+/// Uncorrelated terms of a similar small effect, 1000 rows: little can be cut.
+stepledger::Factor WeakFactor(std::size_t m, const Design& design) {
+  arma::mat x;
+  arma::vec y;
+  MakeRows(1000, m, 0.0, m, 555 + m, x, y);
+  return Fold(x, y, design);
+}
+
+void SubsetBenchmark(std::size_t m) {
+  const Design design = OneColumnTerms(m);
+  const stepledger::Factor factor = CorrelatedFactor(m, design);
+  const stepledger::SearchOptions options = SubsetOptions();
   stepledger::SearchRunOptions run;
   const SubsetRun one = RunSubsets(factor, design, options, run);
   run.threads = 2;
   const SubsetRun two = RunSubsets(factor, design, options, run);
   bool same = SameSubsets(one.result, two.result);
-  std::string drop_text = "not run";
-  if (m <= 35) {
-    stepledger::SearchRunOptions drop;
-    drop.drop_tree_subsets = true;
-    const SubsetRun earlier = RunSubsets(factor, design, options, drop);
-    drop_text = std::to_string(earlier.seconds).substr(0, 7) + " s";
-    same = same && SameSubsets(one.result, earlier.result);
-  }
-  std::string exhaustive_text = "not run";
-  if (m <= 24) {
-    stepledger::SearchRunOptions every;
-    every.exhaustive_subsets = true;
-    const SubsetRun exhaustive = RunSubsets(factor, design, options, every);
-    exhaustive_text = std::to_string(exhaustive.seconds).substr(0, 7) + " s";
-    same = same && SameSubsets(one.result, exhaustive.result);
-  }
+  const std::string drop_text = TimedBeside(m <= 35, factor, design, options, DropTree(), one.result, same);
+  const std::string exhaustive_text = TimedBeside(m <= 24, factor, design, options, Exhaustive(), one.result, same);
   const double kept = static_cast<double>(one.result.subsets.size());
   std::printf("%4zu  %9.3f  %9.3f  %10zu  %12zu  %10.1f  %12s  %12s  %s\n", m, one.seconds, two.seconds,
               one.result.subset_nodes, one.result.subsets_evaluated,
@@ -213,25 +241,45 @@ void SubsetBenchmark(std::size_t m) {
 /// The worst case: every term of a similar small effect, uncorrelated (little can be cut).
 /// Returns the tree's seconds on one thread.
 double WeakBenchmark(std::size_t m) {
-  arma::mat x;
-  arma::vec y;
-  MakeRows(1000, m, 0.0, m, 555 + m, x, y);
   const Design design = OneColumnTerms(m);
-  const stepledger::Factor factor = Fold(x, y, design);
-  stepledger::SearchOptions options;
-  options.method = stepledger::Method::kAllSubsets;
-  options.criterion = stepledger::Criterion::kBic;
-  options.best_per_size = 3;
+  const stepledger::Factor factor = WeakFactor(m, design);
+  const stepledger::SearchOptions options = SubsetOptions();
   const SubsetRun one = RunSubsets(factor, design, options, {});
-  std::string drop_text = "not run";
-  if (m <= 28) {
-    stepledger::SearchRunOptions drop;
-    drop.drop_tree_subsets = true;
-    drop_text = std::to_string(RunSubsets(factor, design, options, drop).seconds).substr(0, 7) + " s";
-  }
-  std::printf("%4zu  %9.3f  %10zu  %12zu  %12s\n", m, one.seconds, one.result.subset_nodes,
-              one.result.subsets_evaluated, drop_text.c_str());
+  bool same = true;
+  const std::string drop_text = TimedBeside(m <= 28, factor, design, options, DropTree(), one.result, same);
+  std::printf("%4zu  %9.3f  %10zu  %12zu  %12s  %s\n", m, one.seconds, one.result.subset_nodes,
+              one.result.subsets_evaluated, drop_text.c_str(), same ? "yes" : "NO");
   return one.seconds;
+}
+
+/// The tolerance: seconds and nodes of exact and tolerance searches (1 thread, as a tolerance
+/// search always runs), and the largest ratio of a listed RSS to the exact one of its rank.
+/// An exact search is run only where `exact_too`; returns the slowest tolerance search's seconds.
+double ToleranceBenchmark(const char* data, std::size_t m, bool exact_too) {
+  const Design design = OneColumnTerms(m);
+  const stepledger::Factor factor = data[0] == 'c' ? CorrelatedFactor(m, design) : WeakFactor(m, design);
+  stepledger::SearchOptions options = SubsetOptions();
+  SubsetRun exact;
+  if (exact_too) exact = RunSubsets(factor, design, options, {});
+  std::printf("%-10s  %4zu  %12s  %12s", data, m,
+              exact_too ? (std::to_string(exact.seconds).substr(0, 7) + " s").c_str() : "not run",
+              exact_too ? std::to_string(exact.result.subset_nodes).c_str() : "-");
+  double slowest = 0;
+  for (double tau : {0.001, 0.01}) {
+    options.subset_tolerance = tau;
+    const SubsetRun within = RunSubsets(factor, design, options, {});
+    slowest = std::max(slowest, within.seconds);
+    double worst_ratio = 0;
+    if (exact_too && exact.result.subsets.size() == within.result.subsets.size()) {
+      for (std::size_t i = 0; i < within.result.subsets.size(); ++i) {
+        worst_ratio = std::max(worst_ratio, within.result.subsets[i].rss / exact.result.subsets[i].rss);
+      }
+    }
+    std::printf("  %10.3f s  %12zu  %9s", within.seconds, within.result.subset_nodes,
+                exact_too ? std::to_string(worst_ratio).substr(0, 8).c_str() : "-");
+  }
+  std::printf("\n");
+  return slowest;
 }
 
 }  // namespace
@@ -256,10 +304,21 @@ int main(int argc, char** argv) {
               " read on 1 thread; drop tree: the earlier branch and bound, 1 thread, m <= 35; exhaustive:\n"
               " Gray-code enumeration, m <= 24; same: the kept subsets agree across all that ran)\n");
   std::printf("\nAll subsets, worst case: every term of a similar small effect, uncorrelated, 1000 rows\n");
-  std::printf("%4s  %9s  %10s  %12s  %12s\n", "m", "tree 1 th", "nodes", "models read", "drop tree");
+  std::printf("%4s  %9s  %10s  %12s  %12s  %s\n", "m", "tree 1 th", "nodes", "models read", "drop tree", "same");
   for (std::size_t m = 24; m <= 44; m += 4) {
     // Four more candidates cost about ten times as much here: stop before a run of minutes.
     if (WeakBenchmark(m) * 10 > 60) break;
   }
+  std::printf("\nAll subsets with a subset_tolerance, 1 thread (a tolerance search runs on one)\n");
+  std::printf("%-10s  %4s  %14s  %12s  %12s  %12s  %9s  %12s  %12s  %9s\n", "data", "m", "exact", "nodes",
+              "tau 0.001", "nodes", "max ratio", "tau 0.01", "nodes", "max ratio");
+  for (std::size_t m : {40, 50, 55, 60}) {
+    if (ToleranceBenchmark("correlated", m, m <= 50) > 60) break;
+  }
+  for (std::size_t m : {36, 40, 44, 48, 52}) {
+    if (ToleranceBenchmark("weak", m, m <= 40) > 30) break;
+  }
+  std::printf("(exact: the tolerance 0 search, where it runs in reasonable time; max ratio: the largest\n"
+              " RSS of a listed model over that of the exact model of its size and rank, at most 1 + tau)\n");
   return 0;
 }

@@ -162,7 +162,10 @@ json SearchJson(const SearchResult& search) {
           {"n", CountJson(search.n)},
           {"tss", NumberOrNull(search.tss)},
           {"cp_sigma2", NumberOrNull(search.cp_sigma2)},
-          {"subsets_evaluated", search.subsets_evaluated}};
+          {"subsets_evaluated", search.subsets_evaluated},
+          {"subset_nodes", search.subset_nodes},
+          {"subset_tolerance", search.subset_tolerance},
+          {"subset_guarantee", search.method == Method::kAllSubsets ? json(search.SubsetGuarantee()) : json(nullptr)}};
 }
 
 json NumericsJson(const RunResult& run) {

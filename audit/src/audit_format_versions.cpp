@@ -13,6 +13,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/io/json_reader.h"
 #include "stepledger/selection/plan.h"
+#include "stepledger/selection/search.h"
 
 namespace stepledger {
 namespace {
@@ -288,6 +289,34 @@ json FromVersion2(const json& document) {
   return current;
 }
 
+// ---- format_version 3 -> 4 --------------------------------------------------------------
+
+json FromVersion3(const json& document) {
+  json current = document;
+  if (current.contains("plan") && current["plan"].is_object() && current["plan"].contains("normalised") &&
+      current["plan"]["normalised"].is_object()) {
+    json& normalised = current["plan"]["normalised"];
+    if (!normalised.contains("subset_tolerance")) normalised["subset_tolerance"] = 0;
+  }
+  if (current.contains("search") && current["search"].is_object()) {
+    json& search = current["search"];
+    // Version 3's all-subsets searches were exact; how many nodes they formed was not recorded
+    // (the other methods form none).
+    const json* method = Member(search, "method");
+    const bool all_subsets = method != nullptr && method->is_string() &&
+                             method->get_ref<const std::string&>() == ToString(Method::kAllSubsets);
+    if (!search.contains("subset_nodes")) search["subset_nodes"] = all_subsets ? json(nullptr) : json(0);
+    if (!search.contains("subset_tolerance")) search["subset_tolerance"] = 0;
+    if (!search.contains("subset_guarantee")) {
+      SearchResult exact;
+      exact.method = Method::kAllSubsets;
+      search["subset_guarantee"] = all_subsets ? json(exact.SubsetGuarantee()) : json(nullptr);
+    }
+  }
+  current["format_version"] = 4;
+  return current;
+}
+
 }  // namespace
 
 json AuditInCurrentShape(const json& document) {
@@ -300,6 +329,7 @@ json AuditInCurrentShape(const json& document) {
   // version it reads.
   if (current["format_version"] == 1) current = FromVersion1(current);
   if (current["format_version"] == 2) current = FromVersion2(current);
+  if (current["format_version"] == 3) current = FromVersion3(current);
   current["read_from_format_version"] = read_from;
   return current;
 }

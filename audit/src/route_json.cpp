@@ -75,7 +75,12 @@ nlohmann::json SearchSummaryToJson(const SearchResult& result) {
                         {"tss", NumberOrNull(result.tss)},
                         {"cp_sigma2", NumberOrNull(result.cp_sigma2)},
                         {"excluded", std::move(excluded)},
-                        {"subsets_evaluated", result.subsets_evaluated}};
+                        {"subsets_evaluated", result.subsets_evaluated},
+                        {"subset_nodes", result.subset_nodes},
+                        {"subset_tolerance", result.subset_tolerance},
+                        {"subset_guarantee", result.method == Method::kAllSubsets
+                                                 ? nlohmann::json(result.SubsetGuarantee())
+                                                 : nlohmann::json(nullptr)}};
 }
 
 }  // namespace stepledger

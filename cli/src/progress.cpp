@@ -12,17 +12,17 @@ namespace stepledger::cli {
 ProgressPrinter::ProgressPrinter(std::ostream& err, std::string label, std::chrono::milliseconds delay)
     : err_(err), label_(std::move(label)), delay_(delay), started_(std::chrono::steady_clock::now()) {}
 
-void ProgressPrinter::OnStart(const StartEvent& /*event*/) { Show(false); }
+void ProgressPrinter::OnStart(const StartEvent& /*event*/) { Show(); }
 
 void ProgressPrinter::OnCandidate(const CandidateScore& /*candidate*/) {
   ++candidates_;
-  Show(false);
+  Show();
 }
 
 void ProgressPrinter::OnDecision(const DecisionEvent& event) {
   ++steps_;
   last_move_ = std::string(event.action == MoveAction::kAdd ? "add " : "remove ") + PrintableText(event.term);
-  Show(false);
+  Show();
 }
 
 void ProgressPrinter::OnStop(const StopEvent& /*event*/) { Clear(); }
@@ -42,10 +42,7 @@ void ProgressPrinter::OnProgress(const ProgressEvent& event) {
     Clear();
     return;
   }
-  if (now - started_ < delay_) return;
-  if (shown_ && now - last_shown_ < std::chrono::milliseconds(200)) return;
-  last_shown_ = now;
-  shown_ = true;
+  if (!Due()) return;
   const double elapsed = std::chrono::duration<double>(now - stage_started_).count();
   err_ << "\r\033[K" << label_ << ": " << PrintableText(event.stage) << " "
        << FormatCount(static_cast<std::int64_t>(event.done)) << " of "
@@ -59,13 +56,26 @@ void ProgressPrinter::OnProgress(const ProgressEvent& event) {
   err_ << std::flush;
 }
 
-void ProgressPrinter::Show(bool force) {
+bool ProgressPrinter::Due() {
   const auto now = std::chrono::steady_clock::now();
-  if (!force && now - started_ < delay_) return;
+  if (now - started_ < delay_) return false;
   // At most a few lines a second: a candidate event can come every microsecond.
-  if (shown_ && now - last_shown_ < std::chrono::milliseconds(200)) return;
+  if (shown_ && now - last_shown_ < std::chrono::milliseconds(200)) return false;
   last_shown_ = now;
   shown_ = true;
+  return true;
+}
+
+void ProgressPrinter::OnSubsetProgress(const SubsetProgressEvent& event) {
+  if (!Due()) return;
+  err_ << "\r\033[K" << label_ << ": all subsets, " << FormatCount(static_cast<std::int64_t>(event.nodes))
+       << " nodes of the search tree, " << FormatCount(static_cast<std::int64_t>(event.models_kept))
+       << " models kept, " << static_cast<std::int64_t>(event.seconds) << " s" << std::flush;
+}
+
+void ProgressPrinter::Show() {
+  if (!Due()) return;
+  const auto now = std::chrono::steady_clock::now();
   const auto seconds = std::chrono::duration_cast<std::chrono::seconds>(now - started_).count();
   err_ << "\r\033[K" << label_ << ": " << seconds << " s, step " << steps_ << ", "
        << FormatCount(static_cast<std::int64_t>(candidates_)) << " candidates scored";

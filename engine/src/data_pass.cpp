@@ -1,4 +1,5 @@
 #include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/linear_algebra_threads.h"
 
 #include <fcntl.h>
 #include <unistd.h>
@@ -261,12 +262,7 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
   };
   // Each thread inside LAPACK needs a work buffer of OpenBLAS's (engine/src/lapack.h): under an
   // address-space limit, fewer shares run at once (the same shares: the same bits).
-  const std::size_t at_once = lapack::LapackCallersAllowed(workers);
-  if (at_once == 0) {
-    throw ResourceError("not enough address space for the factor pass: the limit (ulimit -v) leaves less than "
-                        "the " + std::to_string((lapack::kLapackCallerBytes + lapack::kRunReserveBytes) >> 20) +
-                        " MB that one thread inside LAPACK needs (OpenBLAS's work buffer); raise the limit");
-  }
+  const std::size_t at_once = ThreadsForLinearAlgebra(workers, "the factor pass");
   if (workers == 1) {
     fold_share(0);
   } else {

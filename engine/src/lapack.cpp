@@ -10,6 +10,7 @@
 #include <vector>
 
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/linear_algebra_threads.h"
 
 // Fortran LAPACK/BLAS (reference LAPACK 3.11 via OpenBLAS on Debian). Character arguments carry
 // a hidden length (gfortran convention: size_t after all other arguments); we pass 1.
@@ -135,6 +136,24 @@ std::size_t LapackCallersAllowed(std::size_t wanted) {
   const std::uint64_t allowed = buffers.load() + spare / kLapackCallerBytes;
   return static_cast<std::size_t>(std::min<std::uint64_t>(wanted, allowed));
 }
+
+}  // namespace stepledger::lapack
+
+namespace stepledger {
+
+std::size_t ThreadsForLinearAlgebra(std::size_t wanted, const std::string& task) {
+  const std::size_t allowed = lapack::LapackCallersAllowed(std::max<std::size_t>(wanted, 1));
+  if (allowed == 0) {
+    throw ResourceError("not enough address space for " + task + ": the limit (ulimit -v) leaves less than the " +
+                        std::to_string((lapack::kLapackCallerBytes + lapack::kRunReserveBytes) >> 20) +
+                        " MB that one thread inside LAPACK needs (OpenBLAS's work buffer); raise the limit");
+  }
+  return allowed;
+}
+
+}  // namespace stepledger
+
+namespace stepledger::lapack {
 
 void GenerateRotation(double f, double g, double& c, double& s, double& r) {
   dlartg_(&f, &g, &c, &s, &r);

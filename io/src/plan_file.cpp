@@ -306,8 +306,8 @@ ObjectReader ReadPlanRoot(const json& value) {
   return ObjectReader(value, "",
                       {"response", "response_transform", "intercept", "weights", "terms", "keep",
                        "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
-                       "max_terms", "best_per_size", "folds", "seed", "holdout", "bootstrap", "missing",
-                       "max_levels"});
+                       "max_terms", "best_per_size", "subset_tolerance", "folds", "seed", "holdout",
+                       "bootstrap", "missing", "max_levels"});
 }
 
 // The design's response side: response column, its transform, intercept and weights.
@@ -414,6 +414,10 @@ void ReadSearchSettings(const ObjectReader& root, SearchOptions& search) {
   }
   if (const json* best = root.Get("best_per_size")) {
     search.best_per_size = static_cast<std::size_t>(ReadInteger(*best, "best_per_size", 1));
+  }
+  if (const json* tolerance = root.Get("subset_tolerance")) {
+    search.subset_tolerance =
+        ReadNumber(*tolerance, "subset_tolerance", "a number from 0 up to but not including 1");
   }
   if (const json* folds = root.Get("folds")) {
     search.folds = ReadIntegerInto<int>(*folds, "folds", kMinFolds, kMaxFolds);
@@ -546,6 +550,7 @@ json PlanToJson(const Plan& plan, const Design* design) {
   out["hierarchy"] = search.hierarchy;
   out["max_terms"] = search.max_terms ? json(*search.max_terms) : json(nullptr);
   out["best_per_size"] = search.best_per_size;
+  out["subset_tolerance"] = search.subset_tolerance;
   out["folds"] = search.folds;
   out["seed"] = search.seed;
   out["holdout"] = search.holdout ? json{{"fraction", search.holdout->fraction}, {"seed", search.holdout->seed}}

@@ -241,6 +241,17 @@ std::vector<std::string> PlanSentences(const json& audit) {
     sentences.push_back("All subsets: for every model size, branch and bound keeps the best " +
                         Text(Get(plan, "best_per_size")) +
                         " models by residual sum of squares; the criterion chooses among them.");
+    // The guarantee the search recorded (format_version 4; older audits are read as exact).
+    const std::string guarantee = Text(Get(search, "subset_guarantee"));
+    if (!guarantee.empty()) {
+      std::string sentence = "The search was " + guarantee;
+      const std::optional<std::int64_t> nodes = Count(Get(search, "subset_nodes"));
+      const std::optional<std::int64_t> read = Count(Get(search, "subsets_evaluated"));
+      if (nodes && *nodes > 0 && read) {
+        sentence += " (" + FormatCount(*nodes) + " nodes of its tree formed, " + FormatCount(*read) + " models read)";
+      }
+      sentences.push_back(sentence + ".");
+    }
   } else if (method == "none") {
     sentences.push_back("No selection: every term of the plan is fitted as given.");
   } else {

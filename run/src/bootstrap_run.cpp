@@ -9,6 +9,7 @@
 #include <string>
 #include <thread>
 
+#include "stepledger/engine/linear_algebra_threads.h"
 #include "stepledger/engine/bootstrap_pass.h"
 #include "stepledger/engine/errors.h"
 
@@ -199,7 +200,10 @@ BootstrapValidation RunBootstrap(const Spill& spill, const Design& design, const
       }
     }
   };
-  const std::size_t workers = std::min<std::size_t>(static_cast<std::size_t>(std::max(threads, 1)), factors.size());
+  // Each replicate's selection calls LAPACK: no more threads than the address space has OpenBLAS
+  // buffers for (the replicates land by index, so the count does not change the result).
+  const std::size_t workers = ThreadsForLinearAlgebra(
+      std::min<std::size_t>(static_cast<std::size_t>(std::max(threads, 1)), factors.size()), "the bootstrap");
   {
     std::vector<std::jthread> helpers;
     for (std::size_t t = 1; t < workers; ++t) helpers.emplace_back(work, t, workers);

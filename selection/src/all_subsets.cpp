@@ -177,9 +177,14 @@ void RunAllSubsets(SearchContext& ctx) {
     ctx.subsets_evaluated = search.evaluated();
   } else {
     ctx.StartFromBase();
-    ctx.EmitStart("all-subsets (branch and bound): the best " +
-                      std::to_string(ctx.options().best_per_size) + " models of every size by RSS",
+    const double tolerance = ctx.options().subset_tolerance;
+    ctx.EmitStart("all-subsets (branch and bound): the best " + std::to_string(ctx.options().best_per_size) +
+                      " models of every size by RSS" +
+                      (tolerance > 0 ? ", each within a relative tolerance of " + Threshold(tolerance) +
+                                           " of the best model of its rank"
+                                     : std::string()),
                   std::move(excluded));
+    ctx.subset_tolerance_used = tolerance;
     const SubsetTreeStats stats = RunSubsetTree(ctx, free_terms, max_free, board);
     ctx.subsets_evaluated = static_cast<std::size_t>(stats.models_evaluated);
     ctx.subset_tree_nodes = static_cast<std::size_t>(stats.nodes);

@@ -103,4 +103,8 @@ void ObserverFanOut::OnProgress(const ProgressEvent& event) {
   for (auto* observer : observers_) if (observer) observer->OnProgress(event);
 }
 
+void ObserverFanOut::OnSubsetProgress(const SubsetProgressEvent& event) {
+  for (auto* observer : observers_) if (observer) observer->OnSubsetProgress(event);
+}
+
 }  // namespace stepledger

@@ -1,7 +1,9 @@
 #include "stepledger/selection/search.h"
 
 #include <algorithm>
+#include <cmath>
 #include <iomanip>
+#include <limits>
 #include <set>
 #include <sstream>
 #include <stdexcept>
@@ -32,6 +34,10 @@ void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thr
                                    "forever; make entry_p <= exit_p");
   }
   if (options.best_per_size < 1) throw PlanError("best_per_size", "best_per_size must be at least 1");
+  if (!(options.subset_tolerance >= 0 && options.subset_tolerance < 1)) {
+    throw PlanError("subset_tolerance", "expected a number from 0 up to but not including 1, found " +
+                                            Threshold(options.subset_tolerance));
+  }
   // The resampling settings' ranges (engine/resampling.h). The plan reader checks their types
   // only, and words its messages as these ("expected ..., found ..."), so a plan file and the
   // command line say the same.
@@ -67,6 +73,81 @@ void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thr
   }
 }
 
+double AllSubsetsWorstCaseLog2(std::size_t candidates, std::size_t max_free_terms) {
+  // log2 of sum_s C(m, s), summed in log space (C(m, s) overflows a double from m = 1030).
+  const double m = static_cast<double>(candidates);
+  const std::size_t top = std::min(candidates, max_free_terms);
+  double largest = -std::numeric_limits<double>::infinity();
+  std::vector<double> terms(top + 1);
+  for (std::size_t s = 0; s <= top; ++s) {
+    const double k = static_cast<double>(s);
+    terms[s] = (std::lgamma(m + 1) - std::lgamma(k + 1) - std::lgamma(m - k + 1)) / std::log(2.0);
+    largest = std::max(largest, terms[s]);
+  }
+  double sum = 0;
+  for (double term : terms) sum += std::exp2(term - largest);
+  return largest + std::log2(sum);
+}
+
+namespace {
+
+std::string Log2Text(double log2_count) {
+  std::ostringstream text;
+  text << std::fixed << std::setprecision(1) << log2_count;
+  return "2^" + text.str();
+}
+
+// The refusal of an all-subsets plan whose worst case is past the limit, before any pass.
+void CheckAllSubsetsWork(const SearchOptions& options, const Design& design) {
+  // Candidates: the terms neither kept nor never used (names checked, listed once).
+  const std::size_t keep = options.keep.size();
+  const std::size_t candidates = design.terms.size() - keep - options.never.size();
+  const std::size_t max_free =
+      options.max_terms ? *options.max_terms - std::min(keep, *options.max_terms) : candidates;
+  // The tree keeps a triangle of the free terms' design columns at every depth of its path, in
+  // every thread: (m + 1) q^2 doubles per thread, q the free columns plus y.
+  std::size_t free_columns = 1;
+  for (const DesignTerm& term : design.terms) {
+    const bool fixed = std::find(options.keep.begin(), options.keep.end(), term.name) != options.keep.end() ||
+                       std::find(options.never.begin(), options.never.end(), term.name) != options.never.end();
+    if (!fixed) free_columns += term.column_count;
+  }
+  const double tree_bytes = static_cast<double>(candidates + 1) * static_cast<double>(free_columns) *
+                            static_cast<double>(free_columns) * sizeof(double);
+  if (tree_bytes > static_cast<double>(kMaxAllSubsetsTreeBytes)) {
+    throw PlanError("method", "all-subsets over " + std::to_string(candidates) + " candidate terms of " +
+                                  std::to_string(free_columns - 1) + " design columns would hold " +
+                                  std::to_string(static_cast<std::uint64_t>(tree_bytes) >> 20) +
+                                  " MB of triangles per thread; it takes at most " +
+                                  std::to_string(kMaxAllSubsetsTreeBytes >> 20) +
+                                  " MB: use \"method\": \"stepwise\" (or forward, backward), or move terms the "
+                                  "search need not decide to \"keep\" or \"never\"");
+  }
+  const bool tolerant = options.subset_tolerance > 0;
+  const double limit = tolerant ? kMaxAllSubsetsLog2WithTolerance : kMaxAllSubsetsLog2;
+  const double work = AllSubsetsWorstCaseLog2(candidates, max_free);
+  // 1e-9: 50 candidate terms without max_terms are 2^50 exactly, the limit.
+  if (work <= limit + 1e-9) return;
+  std::size_t fitting = 0;  // the most free terms a model may have within the limit
+  while (fitting < candidates && AllSubsetsWorstCaseLog2(candidates, fitting + 1) <= limit + 1e-9) ++fitting;
+  std::string ways = "set \"max_terms\" to at most " + std::to_string(keep + fitting) + " (" +
+                     Log2Text(AllSubsetsWorstCaseLog2(candidates, fitting)) + " subsets)";
+  if (!tolerant && AllSubsetsWorstCaseLog2(candidates, max_free) <= kMaxAllSubsetsLog2WithTolerance + 1e-9) {
+    ways += ", or allow a \"subset_tolerance\" (such as 0.001: each listed model within 0.1% of the RSS of "
+            "the exact one; the limit is then " + Log2Text(kMaxAllSubsetsLog2WithTolerance) + ")";
+  }
+  ways += ", or use \"method\": \"stepwise\" (or forward, backward), or move terms the search need not "
+          "decide to \"keep\" or \"never\"";
+  throw PlanError("method", "all-subsets over " + std::to_string(candidates) + " candidate terms (" +
+                                std::to_string(design.terms.size()) + " terms, " + std::to_string(keep) + " kept, " +
+                                std::to_string(options.never.size()) + " never" +
+                                (options.max_terms ? ", at most " + std::to_string(*options.max_terms) + " terms" : "") +
+                                ") could have to read " + Log2Text(work) + " subsets; it takes plans of at most " +
+                                Log2Text(limit) + (tolerant ? " with a tolerance" : "") + ": " + ways);
+}
+
+}  // namespace
+
 void ValidateSearchOptions(const SearchOptions& options, const Design& design,
                            bool allow_cycling_thresholds) {
   ValidateSearchSettings(options, allow_cycling_thresholds);
@@ -84,20 +165,7 @@ void ValidateSearchOptions(const SearchOptions& options, const Design& design,
   };
   check_names(options.keep, "keep");
   check_names(options.never, "never");
-  if (options.method == Method::kAllSubsets) {
-    // Candidates: the terms neither kept nor never used (names checked above, listed once).
-    const std::size_t candidates = design.terms.size() - options.keep.size() - options.never.size();
-    if (candidates > kMaxAllSubsetsCandidates) {
-      throw PlanError("method",
-                      "all-subsets over " + std::to_string(candidates) + " candidate terms (" +
-                          std::to_string(design.terms.size()) + " terms, " + std::to_string(options.keep.size()) +
-                          " kept, " + std::to_string(options.never.size()) + " never) could have to examine 2^" +
-                          std::to_string(candidates) + " subsets; it takes at most " +
-                          std::to_string(kMaxAllSubsetsCandidates) +
-                          ": use \"method\": \"stepwise\" (or forward, backward), or move terms the search "
-                          "need not decide to \"keep\" or \"never\"");
-    }
-  }
+  if (options.method == Method::kAllSubsets) CheckAllSubsetsWork(options, design);
 }
 
 SearchResult RunSearch(const Factor& factor, const Design& design, const SearchOptions& options,
@@ -164,6 +232,7 @@ SearchResult RunSearch(const Factor& factor, const Design& design, const SearchO
   result.cp_sigma2 = ctx.criterion_context().full_sigma2;
   result.subsets_evaluated = ctx.subsets_evaluated;
   result.subset_nodes = ctx.subset_tree_nodes;
+  result.subset_tolerance = ctx.subset_tolerance_used;
   return result;
 }
 
@@ -185,6 +254,14 @@ std::string ValueName(Criterion criterion) {
 }
 
 }  // namespace
+
+std::string SearchResult::SubsetGuarantee() const {
+  if (method != Method::kAllSubsets) return "";
+  if (subset_tolerance == 0) return "exact: the models listed for each size are that size's best by RSS";
+  const std::string tau = Threshold(subset_tolerance);
+  return "within a relative tolerance of " + tau + ": the r-th model listed for each size has an RSS at most (1 + " +
+         tau + ") times that of the size's r-th best model, so the first is within " + tau + " of the best";
+}
 
 std::string SearchResult::BriefReport() const {
   std::ostringstream out;
@@ -232,7 +309,9 @@ std::string SearchResult::FullReport() const {
     for (const auto& item : excluded) out << "  " << item.term << ": " << item.reason << "\n";
   }
   if (!subsets.empty()) {
-    out << "\nbest subsets by RSS (" << subsets_evaluated << " models evaluated)\n";
+    out << "\nbest subsets by RSS (" << subsets_evaluated << " models evaluated";
+    if (subset_nodes > 0) out << " at " << subset_nodes << " nodes of the search tree";
+    out << ")\n" << SubsetGuarantee() << "\n";
     out << std::left << std::setw(6) << "size" << std::setw(6) << "rank" << std::setw(16) << "RSS"
         << std::setw(16) << value_name << "terms\n";
     for (const auto& subset : subsets) {

@@ -122,6 +122,7 @@ class SearchContext {
   void SetModel(const std::vector<std::size_t>& terms_in_order);
   std::size_t subsets_evaluated = 0;
   std::size_t subset_tree_nodes = 0;  ///< all-subsets regression tree: nodes formed
+  double subset_tolerance_used = 0;   ///< all-subsets: the tolerance the search cut with (0: exact)
 
  private:
   const Factor& factor_;

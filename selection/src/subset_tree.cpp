@@ -30,6 +30,14 @@
 // A child's factor: drop S[j]'s d columns from R and restore the triangle with Givens
 // rotations (LAPACK dlartg, BLAS drot) on rows j.., O(d (q - c_j)^2); never a refactorisation.
 //
+// Tolerance (SearchOptions::subset_tolerance = tau > 0): every cut compares (1 + tau) times the
+// bound with the thresholds, so a subtree is also cut when it could only beat the kept models by
+// less than the fraction tau of their RSS. When a model B of size s is cut, the s-th threshold
+// was then below (1 + tau) RSS(B), and thresholds only fall: the final r-th model of size s has an
+// RSS at most (1 + tau) times that of the r-th best model of size s (if any of the r best was cut,
+// through it; else the r best are all on the board). The cuts now depend on the order in which
+// the board filled, so such a search runs on one thread: its list depends on the data alone.
+//
 // Threads: idle workers take subtrees that a busy worker hands out (children with at least
 // kShareFree free terms) from a shared queue; the board is shared. Each subset is read at the
 // same node by the same arithmetic whatever the thread that reads it (the tree does not depend
@@ -44,10 +52,10 @@
 #include <condition_variable>
 #include <cmath>
 #include <deque>
-#include <iomanip>
 #include <limits>
-#include <ostream>
 #include <thread>
+
+#include "stepledger/engine/linear_algebra_threads.h"
 
 #include <armadillo>
 
@@ -149,6 +157,7 @@ class Shared {
   double y_scale2 = 1;
   std::size_t max_free;
   SubsetBoard& board;
+  double widen = 1;  // 1 + tau: a bound is compared with the thresholds after this factor
 
   // Work sharing.
   std::mutex mutex;
@@ -158,17 +167,18 @@ class Shared {
   std::atomic<std::size_t> idle{0};
   std::size_t threads = 1;
 
-  // Progress.
+  // Progress: every worker adds its nodes; the caller's worker sends the events (observers need
+  // not be thread-safe), next_report_ms is its own.
   std::atomic<std::uint64_t> nodes{0};
   std::chrono::steady_clock::time_point started = std::chrono::steady_clock::now();
-  std::atomic<std::int64_t> next_report_ms{0};
-  std::mutex progress_mutex;
-  std::int64_t period_ms = 5000;
+  std::int64_t next_report_ms = 0;
+  std::int64_t period_ms = 500;
 };
 
 class Worker {
  public:
-  explicit Worker(Shared& shared) : s_(shared), in_set_(shared.ctx.design().terms.size(), 0) {
+  Worker(Shared& shared, bool caller)
+      : s_(shared), caller_(caller), in_set_(shared.ctx.design().terms.size(), 0) {
     for (std::size_t term : shared.ctx.keep_terms()) in_set_[term] = 1;
   }
 
@@ -208,11 +218,14 @@ class Worker {
       const auto lo = static_cast<std::ptrdiff_t>(j + 1);
       const auto hi = static_cast<std::ptrdiff_t>(std::min(n - 1, s_.max_free));
       if (lo > hi) continue;
-      if (preordered && margin < 1e-2 && s_.board.CanPrune((rss + increments[j]) * (1 - margin), lo, hi)) continue;
+      if (preordered && margin < 1e-2 &&
+          s_.board.CanPrune((rss + increments[j]) * (1 - margin) * s_.widen, lo, hi)) {
+        continue;
+      }
       Node& child = Slot(depth + 1);
       MakeChild(node, j, child);
       const double child_rss = ChildRss(child);
-      if (s_.board.CanPrune(child_rss, lo, hi)) continue;
+      if (s_.board.CanPrune(child_rss * s_.widen, lo, hi)) continue;
       if (n - 1 - (j + 1) >= kShareFree && s_.idle.load(std::memory_order_relaxed) > 0) {
         Hand(child);
         continue;
@@ -239,7 +252,18 @@ class Worker {
       }
       if (s_.busy == 0) break;
       s_.idle.fetch_add(1);
-      s_.wake.wait(lock, [this] { return !s_.queue.empty() || s_.busy == 0; });
+      const auto ready = [this] { return !s_.queue.empty() || s_.busy == 0; };
+      if (caller_) {
+        // The caller's worker keeps the progress going while the others work.
+        const auto period = std::chrono::milliseconds(std::max<std::int64_t>(s_.period_ms, 50));
+        while (!s_.wake.wait_for(lock, period, ready)) {
+          lock.unlock();
+          Progress(0);
+          lock.lock();
+        }
+      } else {
+        s_.wake.wait(lock, ready);
+      }
       s_.idle.fetch_sub(1);
     }
     lock.unlock();
@@ -267,16 +291,12 @@ class Worker {
 
   void Progress(std::uint64_t add) {
     const std::uint64_t total = s_.nodes.fetch_add(add, std::memory_order_relaxed) + add;
-    std::ostream* out = s_.ctx.run().progress;
-    if (out == nullptr) return;
+    if (!caller_) return;
     const auto elapsed = std::chrono::duration_cast<std::chrono::milliseconds>(
                              std::chrono::steady_clock::now() - s_.started).count();
-    std::int64_t due = s_.next_report_ms.load(std::memory_order_relaxed);
-    if (elapsed < due || !s_.next_report_ms.compare_exchange_strong(due, elapsed + s_.period_ms)) return;
-    std::lock_guard<std::mutex> lock(s_.progress_mutex);
-    *out << "all-subsets: " << total << " nodes, " << s_.board.kept() << " models kept, "
-         << std::fixed << std::setprecision(1) << static_cast<double>(elapsed) / 1000.0 << " s\n"
-         << std::defaultfloat << std::flush;
+    if (elapsed < s_.next_report_ms) return;
+    s_.next_report_ms = elapsed + s_.period_ms;
+    s_.ctx.sink().OnSubsetProgress({total, s_.board.kept(), static_cast<double>(elapsed) / 1000.0});
   }
 
   void Offsets(const Node& node) {
@@ -466,6 +486,7 @@ class Worker {
   }
 
   Shared& s_;
+  bool caller_;  // runs on the thread that called RunSearch
   std::vector<char> in_set_;
   std::deque<Node> pool_;  // a deque: the nodes of the current path stay where they are as it grows
   std::vector<std::size_t> offsets_, column_map_;
@@ -517,13 +538,19 @@ SubsetTreeStats RunSubsetTree(SearchContext& ctx, const std::vector<std::size_t>
     if (ctx.SatisfiesHierarchy(in_set)) board.Offer(0, tail / shared.y_scale2, std::move(keep));
   }
 
-  const std::size_t threads = static_cast<std::size_t>(std::max(ctx.run().threads, 1));
+  shared.widen = 1 + ctx.options().subset_tolerance;
+  // A tolerance makes the cuts depend on the order of work: one thread (see the top). Otherwise
+  // no more threads than OpenBLAS has room for (each is inside dtrtri and dgeqrf at times).
+  const std::size_t threads =
+      ctx.options().subset_tolerance > 0
+          ? 1
+          : ThreadsForLinearAlgebra(static_cast<std::size_t>(std::max(ctx.run().threads, 1)), "the all-subsets search");
   shared.threads = threads;
   shared.period_ms = static_cast<std::int64_t>(std::max(0.0, ctx.run().progress_seconds) * 1000.0);
-  shared.next_report_ms.store(shared.period_ms);
+  shared.next_report_ms = shared.period_ms;
   shared.queue.push_back(std::move(root));
   std::vector<std::unique_ptr<Worker>> workers;
-  for (std::size_t w = 0; w < threads; ++w) workers.push_back(std::make_unique<Worker>(shared));
+  for (std::size_t w = 0; w < threads; ++w) workers.push_back(std::make_unique<Worker>(shared, w == 0));
   std::vector<std::thread> pool;
   std::exception_ptr failure;
   std::mutex failure_mutex;

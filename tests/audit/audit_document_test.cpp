@@ -56,7 +56,7 @@ TEST(AuditDocument, HoldsTheContractKeysAndTheRoute) {
     EXPECT_TRUE(document.contains(key)) << key;
   }
   EXPECT_EQ(document["format"], "stepledger-audit");
-  EXPECT_EQ(document["format_version"], 3);
+  EXPECT_EQ(document["format_version"], 4);
   ASSERT_TRUE(document.contains("validation")) << "the final model's k-fold error is always recorded";
   EXPECT_TRUE(document["validation"].contains("folds"));
   EXPECT_FALSE(document["validation"].contains("holdout")) << "the plan holds no rows out";
@@ -301,7 +301,7 @@ TEST(AuditReading, NamesTheProblemOfAnUnreadableAudit) {
     ReadAuditFile(older);
     FAIL();
   } catch (const InputError& error) {
-    EXPECT_NE(std::string(error.what()).find("'format_version': 0 is not a version this tool reads (1 to 3)"),
+    EXPECT_NE(std::string(error.what()).find("'format_version': 0 is not a version this tool reads (1 to 4)"),
               std::string::npos) << error.what();
   }
   // 2^64 - 1 is newer than any version, not -1 (the unsigned value is compared as it is).
@@ -310,7 +310,7 @@ TEST(AuditReading, NamesTheProblemOfAnUnreadableAudit) {
     ReadAuditFile(huge);
     FAIL();
   } catch (const InputError& error) {
-    EXPECT_NE(std::string(error.what()).find("'format_version': 18446744073709551615 is newer than this tool reads (3)"),
+    EXPECT_NE(std::string(error.what()).find("'format_version': 18446744073709551615 is newer than this tool reads (4)"),
               std::string::npos) << error.what();
   }
   EXPECT_THROW(ReadAuditFile(dir.path() / "absent.json"), InputError);
@@ -323,7 +323,7 @@ bool IsCountKey(const std::string& key) {
       "bytes", "count", "design_columns", "df", "df_residual", "fingerprint_block_bytes", "index",
       "k", "max_leverage_line", "max_unit_leverage_line", "missing", "n", "present", "rank",
       "refinement_passes", "rows", "rows_read", "rows_used", "size", "step_count",
-      "subsets_evaluated", "threads", "candidate_terms", "max_refinement_passes"};
+      "subsets_evaluated", "subset_nodes", "threads", "candidate_terms", "max_refinement_passes"};
   return kCountKeys.count(key) > 0;
 }
 

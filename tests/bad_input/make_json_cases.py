@@ -327,7 +327,7 @@ def main():
         args = ["report", "audit.json"] if command == "report" else ["predict", "audit.json", "rows.csv"]
         audit_cases["resealed_format_version_2_64_" + command] = audit_case(
             "format_version 2^64 - 1, re-sealed: not read as -1 by " + command, "11.8 integers range-checked", args, 2,
-            ["key 'format_version': 18446744073709551615 is newer than this tool reads (3)"], version,
+            ["key 'format_version': 18446744073709551615 is newer than this tool reads (4)"], version,
             {"rows.csv": TO_PRICE} if command == "predict" else None)
 
     threads = copy_of(base)
@@ -621,6 +621,27 @@ def main():
             ["plan key 'bootstrap.samples': unknown key; the keys here are replicates, seed"]),
         "bootstrap_seed_text": plan_case("the bootstrap seed as text", validation, with_key("bootstrap", {"seed": "eleven"}),
                                          ["plan key 'bootstrap.seed': " + seed_rule + ", found \"eleven\""]),
+    })
+    # All subsets (issue 13): the tolerance's range, and a hopeless worst case refused before any
+    # pass, saying how to go on. 61 terms over one column: the refusal comes before the data.
+    subsets = "13 all subsets"
+    tolerance_rule = "expected a number from 0 up to but not including 1"
+    wide = dict(PLAN, method="all-subsets",
+                terms=[{"name": "t%d" % i, "column": "age_months"} for i in range(61)])
+    plan_cases.update({
+        "subset_tolerance_1": plan_case("a subset tolerance of 1", subsets, with_key("subset_tolerance", 1),
+                                        ["plan key 'subset_tolerance': " + tolerance_rule + ", found 1"]),
+        "subset_tolerance_negative": plan_case(
+            "a negative subset tolerance", subsets, with_key("subset_tolerance", -0.01),
+            ["plan key 'subset_tolerance': " + tolerance_rule + ", found -0.01"]),
+        "subset_tolerance_percent_text": plan_case(
+            "a subset tolerance written as a percentage", subsets, with_key("subset_tolerance", "1%"),
+            ["plan key 'subset_tolerance': " + tolerance_rule + ", found \"1%\""]),
+        "all_subsets_61_candidates": plan_case(
+            "all subsets over 61 candidate terms", subsets, wide,
+            ["plan key 'method': all-subsets over 61 candidate terms (61 terms, 0 kept, 0 never) could have to read "
+             "2^61.0 subsets; it takes plans of at most 2^50.0: set \"max_terms\" to at most ",
+             "\"method\": \"stepwise\""]),
     })
     for name, case in plan_cases.items():
         write_case("plan", name, case)

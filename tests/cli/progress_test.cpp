@@ -57,6 +57,18 @@ TEST(ProgressPrinter, BootstrapProgressShowsUnitsRateAndTimeLeftThenClears) {
   EXPECT_EQ(err.str().substr(err.str().size() - 4), "\r\033[K") << "the line is cleared when the stage ends";
 }
 
+TEST(ProgressPrinter, AllSubsetsProgressShowsNodesModelsKeptAndSecondsThenClears) {
+  std::ostringstream err;
+  cli::ProgressPrinter printer(err, "select", std::chrono::milliseconds(0));
+  printer.OnSubsetProgress({12345678, 153, 14.7});
+  EXPECT_NE(err.str().find("select: all subsets, 12,345,678 nodes of the search tree, 153 models kept, 14 s"),
+            std::string::npos)
+      << err.str();
+  EXPECT_EQ(err.str().find('\n'), std::string::npos) << "one line, rewritten in place";
+  printer.OnStop(StopEvent{});
+  EXPECT_EQ(err.str().substr(err.str().size() - 4), "\r\033[K") << "the line is cleared when the search stops";
+}
+
 TEST(ProgressPrinter, NotMadeWhenStderrIsNotATerminalOrTheRunIsQuiet) {
   std::ostringstream err;
   // ctest runs with stderr redirected; a terminal run of this binary still checks --quiet.

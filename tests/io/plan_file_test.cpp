@@ -181,6 +181,13 @@ const std::vector<ErrorCase> kErrorCases = {
         "keep": ["a", "b"], "max_terms": 1})",
      "max_terms", "expected at least 2"},
     {"BestPerSizeZero", With("best_per_size", "0"), "best_per_size", "expected an integer >= 1, found 0"},
+    // subset_tolerance: 0 <= tau < 1 (selection/plan.h).
+    {"SubsetToleranceNegative", With("subset_tolerance", "-0.01"), "subset_tolerance",
+     "expected a number from 0 up to but not including 1, found -0.01"},
+    {"SubsetToleranceOne", With("subset_tolerance", "1"), "subset_tolerance",
+     "expected a number from 0 up to but not including 1, found 1"},
+    {"SubsetToleranceText", With("subset_tolerance", R"("0.01")"), "subset_tolerance", R"(found "0.01")"},
+    {"SubsetToleranceNull", With("subset_tolerance", "null"), "subset_tolerance", "found null"},
     // The validation keys (README "The plan file"); ranges from engine/resampling.h.
     {"FoldsOne", With("folds", "1"), "folds", "expected an integer from 2 to 100, found 1"},
     {"FoldsZero", With("folds", "0"), "folds", "expected an integer from 2 to 100, found 0"},
@@ -293,6 +300,10 @@ TEST(PlanFileTest, DefaultsOfAMinimalPlan) {
   EXPECT_FALSE(plan.search.holdout);
   EXPECT_FALSE(plan.search.bootstrap);
   EXPECT_EQ(plan.design.max_levels, 100u);  // README: default 100 (common practice)
+  EXPECT_EQ(plan.search.subset_tolerance, 0.0);  // an exact all-subsets search unless asked
+  EXPECT_EQ(ParsePlanText(R"({"response": "price", "terms": "all", "subset_tolerance": 0.005})")
+                .plan.search.subset_tolerance,
+            0.005);
   EXPECT_EQ(ParsePlanText(R"({"response": "price", "terms": "all", "max_levels": 500})").plan.design.max_levels,
             500u);
 }
@@ -316,8 +327,8 @@ TEST(PlanFileTest, NormalisedPlanRoundTrips) {
   EXPECT_EQ(ParsePlanText(normalised.dump(2)).plan, plan);
   for (const char* key : {"response", "response_transform", "intercept", "weights", "terms", "keep",
                           "never", "method", "criterion", "entry_p", "exit_p", "hierarchy",
-                          "max_terms", "best_per_size", "folds", "seed", "holdout", "bootstrap", "missing",
-                          "max_levels"}) {
+                          "max_terms", "best_per_size", "subset_tolerance", "folds", "seed", "holdout",
+                          "bootstrap", "missing", "max_levels"}) {
     EXPECT_TRUE(normalised.contains(key)) << key;
   }
   const Plan quick = MakeQuickPlan("price");

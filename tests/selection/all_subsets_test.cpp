@@ -146,38 +146,78 @@ std::vector<testing::DenseTermSpec> NumericTerms(std::size_t count) {
   return terms;
 }
 
-TEST(AllSubsetsLimits, MoreCandidatesThanTheLimitAreRefusedAtTheMethodKey) {
+std::string RefusalOf(const SearchOptions& options, const Design& design) {
+  try {
+    ValidateSearchOptions(options, design);
+  } catch (const PlanError& error) {
+    EXPECT_EQ(error.key_path(), "method");
+    return error.what();
+  }
+  return "";
+}
+
+TEST(AllSubsetsLimits, TheWorstCaseCountsTheSubsetsOfAtMostMaxTerms) {
+  // log2 of sum_{s <= p} C(m, s), against exact integer sums (Python's math.comb).
+  EXPECT_DOUBLE_EQ(AllSubsetsWorstCaseLog2(50, 50), 50.0);
+  EXPECT_DOUBLE_EQ(AllSubsetsWorstCaseLog2(10, 0), 0.0);
+  EXPECT_NEAR(AllSubsetsWorstCaseLog2(60, 17), 49.12610613054918, 1e-9);
+  EXPECT_NEAR(AllSubsetsWorstCaseLog2(1000, 3), 27.3123975753784, 1e-9);
+  EXPECT_NEAR(AllSubsetsWorstCaseLog2(200, 8), 45.707821631955056, 1e-9);
+}
+
+TEST(AllSubsetsLimits, AHopelessWorstCaseIsRefusedAtTheMethodKeySayingHowToGoOn) {
   const Design design = testing::MakeDenseDesign(NumericTerms(60));
   SearchOptions options;
   options.method = Method::kAllSubsets;
-  try {
-    ValidateSearchOptions(options, design);
-    ADD_FAILURE() << "expected a PlanError";
-  } catch (const PlanError& error) {
-    EXPECT_EQ(error.key_path(), "method");
-    EXPECT_NE(std::string(error.what()).find("all-subsets over 60 candidate terms (60 terms, 0 kept, 0 never) could "
-                                             "have to examine 2^60 subsets; it takes at most " +
-                                             std::to_string(kMaxAllSubsetsCandidates)),
-              std::string::npos)
-        << error.what();
-  }
-  // max_terms does not bound the work (the tree descends from the full model): still refused.
-  options.max_terms = 3;
-  EXPECT_THROW(ValidateSearchOptions(options, design), PlanError);
-  // Kept and never terms are not candidates: 60 - 5 - 5 = 50, the limit, is accepted; one
-  // candidate more is not.
+  // 2^60 subsets: past 2^50; within the 2^60 of a tolerance search, so a tolerance is offered.
+  std::string refusal = RefusalOf(options, design);
+  EXPECT_NE(refusal.find("all-subsets over 60 candidate terms (60 terms, 0 kept, 0 never) could have to read "
+                         "2^60.0 subsets; it takes plans of at most 2^50.0: set \"max_terms\" to at most 17 "
+                         "(2^49.1 subsets), or allow a \"subset_tolerance\""),
+            std::string::npos)
+      << refusal;
+  EXPECT_NE(refusal.find("\"method\": \"stepwise\""), std::string::npos) << refusal;
+  // The max_terms it names is accepted, one more is not.
+  options.max_terms = 17;
+  EXPECT_EQ(RefusalOf(options, design), "");
+  options.max_terms = 18;
+  EXPECT_NE(RefusalOf(options, design).find("at most 18 terms) could have to read 2^50."), std::string::npos)
+      << RefusalOf(options, design);
+  // A tolerance takes 2^60.
   options.max_terms.reset();
+  options.subset_tolerance = 0.001;
+  EXPECT_EQ(RefusalOf(options, design), "");
+  // Kept and never terms are not candidates: 60 - 5 - 5 = 50, 2^50, is accepted exactly; one
+  // candidate more is not.
+  options.subset_tolerance = 0;
   options.keep = {"x0", "x1", "x2", "x3", "x4"};
   options.never = {"x5", "x6", "x7", "x8", "x9"};
-  ASSERT_EQ(kMaxAllSubsetsCandidates, 50u);
-  EXPECT_NO_THROW(ValidateSearchOptions(options, design));
+  EXPECT_EQ(RefusalOf(options, design), "");
   options.never.pop_back();
-  EXPECT_THROW(ValidateSearchOptions(options, design), PlanError);
+  EXPECT_NE(RefusalOf(options, design).find("51 candidate terms (60 terms, 5 kept, 4 never)"), std::string::npos);
   // Other methods take any number of terms.
   options.keep.clear();
   options.never.clear();
   options.method = Method::kStepwise;
   EXPECT_NO_THROW(ValidateSearchOptions(options, design));
+}
+
+TEST(AllSubsetsLimits, ATreeTooLargeForMemoryIsRefusedEvenWithMaxTerms) {
+  // 500 one-column terms with max_terms 2: few subsets (2^16.9), but a triangle of 501 columns at
+  // each of 501 depths is 959 MB per thread.
+  const Design design = testing::MakeDenseDesign(NumericTerms(500));
+  SearchOptions options;
+  options.method = Method::kAllSubsets;
+  options.max_terms = 2;
+  const std::string refusal = RefusalOf(options, design);
+  EXPECT_NE(refusal.find("all-subsets over 500 candidate terms of 500 design columns would hold 959 MB of "
+                         "triangles per thread; it takes at most 512 MB"),
+            std::string::npos)
+      << refusal;
+  // 300 terms with max_terms 3: 2^22.1 subsets, 208 MB: taken.
+  const Design smaller = testing::MakeDenseDesign(NumericTerms(300));
+  options.max_terms = 3;
+  EXPECT_EQ(RefusalOf(options, smaller), "");
 }
 
 TEST(AllSubsetsLimits, RunSearchRefusesBeforeExaminingAnySubset) {

@@ -5,6 +5,7 @@
 
 #include <gtest/gtest.h>
 
+#include <map>
 #include <random>
 #include <sstream>
 #include <string>
@@ -22,14 +23,12 @@ using testing::DenseProblem;
 
 enum class Algorithm { kTree, kDropTree, kExhaustive };
 
-SearchResult Subsets(const DenseProblem& problem, SearchOptions options, Algorithm algorithm, int threads = 1,
-                     std::ostream* progress = nullptr) {
+SearchResult Subsets(const DenseProblem& problem, SearchOptions options, Algorithm algorithm, int threads = 1) {
   options.method = Method::kAllSubsets;
   SearchRunOptions run;
   run.exhaustive_subsets = algorithm == Algorithm::kExhaustive;
   run.drop_tree_subsets = algorithm == Algorithm::kDropTree;
   run.threads = threads;
-  run.progress = progress;
   return RunSearch(problem.factor, problem.design, options, nullptr, run);
 }
 
@@ -182,27 +181,112 @@ TEST(SubsetTreeThreads, IdenticalOutputForOneTwoAndThreeThreads) {
   EXPECT_GT(one.subset_nodes, 0u);
 }
 
-TEST(SubsetTreeProgress, ReportsNodesModelsAndTimeOnTheStream) {
+/// Collects the subset progress events.
+class ProgressLog : public SearchObserver {
+ public:
+  void OnSubsetProgress(const SubsetProgressEvent& event) override { events.push_back(event); }
+  std::vector<SubsetProgressEvent> events;
+};
+
+TEST(SubsetTreeProgress, ReportsNodesModelsKeptAndTimeToTheObserver) {
   const DenseProblem problem = MakeProblem(31, 22, 0, false, false, 300);
   SearchOptions options;
   options.best_per_size = 60;  // cuts little: thousands of nodes
   options.hierarchy = false;
   options.method = Method::kAllSubsets;
-  SearchRunOptions run;
-  std::ostringstream progress;
-  run.progress = &progress;
-  run.progress_seconds = 0;  // a line whenever a worker has formed another 1024 nodes
-  const SearchResult result = RunSearch(problem.factor, problem.design, options, nullptr, run);
-  ASSERT_GE(result.subset_nodes, 1024u);
-  EXPECT_NE(progress.str().find("all-subsets: "), std::string::npos) << progress.str();
-  EXPECT_NE(progress.str().find(" nodes, "), std::string::npos) << progress.str();
-  EXPECT_NE(progress.str().find(" models kept, "), std::string::npos) << progress.str();
-  // The default waits 5 s before the first line: a short search writes none.
-  std::ostringstream quiet;
-  run.progress = &quiet;
-  run.progress_seconds = 5;
-  RunSearch(problem.factor, problem.design, options, nullptr, run);
-  EXPECT_EQ(quiet.str(), "");
+  for (int threads : {1, 2}) {
+    SearchRunOptions run;
+    run.threads = threads;
+    run.progress_seconds = 0;  // an event whenever the caller's worker has formed another 1024 nodes
+    ProgressLog log;
+    const SearchResult result = RunSearch(problem.factor, problem.design, options, &log, run);
+    ASSERT_GE(result.subset_nodes, 1024u);
+    ASSERT_FALSE(log.events.empty()) << "threads " << threads;
+    for (std::size_t i = 1; i < log.events.size(); ++i) {
+      EXPECT_GE(log.events[i].nodes, log.events[i - 1].nodes);
+      EXPECT_GE(log.events[i].seconds, log.events[i - 1].seconds);
+    }
+    EXPECT_LE(log.events.back().nodes, result.subset_nodes);
+    EXPECT_GT(log.events.back().models_kept, 0u);
+    // The default waits half a second before the first event: a short search sends none.
+    ProgressLog quiet;
+    run.progress_seconds = 5;
+    RunSearch(problem.factor, problem.design, options, &quiet, run);
+    EXPECT_TRUE(quiet.events.empty());
+  }
+}
+
+/// RSS of the kept models by size (keep terms included) and rank.
+std::map<std::size_t, std::vector<double>> RssBySize(const SearchResult& result) {
+  std::map<std::size_t, std::vector<double>> by_size;
+  for (const auto& subset : result.subsets) by_size[subset.size].push_back(subset.rss);
+  return by_size;
+}
+
+TEST(SubsetTreeTolerance, EveryListedModelIsWithinTheToleranceOfTheExhaustiveModelOfItsRank) {
+  // The guarantee (subset_tree.cpp): with tau, the r-th listed model of each size has an RSS at
+  // most (1 + tau) times that of the r-th best of that size, the enumeration's r-th; the first is
+  // within tau of the best. 32 invented designs, m <= 19, tau from 0.001 to 0.3.
+  const double taus[] = {0.001, 0.01, 0.05, 0.3};
+  std::size_t cut_more = 0;
+  for (std::uint64_t seed = 1; seed <= 32; ++seed) {
+    const DenseProblem problem =
+        MakeProblem(5300 + seed, 6 + seed % 12, seed % 3 == 0 ? 3 : 0, seed % 2 == 0, seed % 4 == 1, 80 + 20 * (seed % 5));
+    SearchOptions options;
+    options.best_per_size = 1 + seed % 4;
+    options.hierarchy = seed % 3 != 1;
+    if (seed % 8 == 0) options.max_terms = 5;
+    const double tau = taus[seed % 4];
+    const std::string label = "seed " + std::to_string(seed) + " tau " + std::to_string(tau);
+    const SearchResult exact = Subsets(problem, options, Algorithm::kExhaustive);
+    const SearchResult exact_tree = Subsets(problem, options, Algorithm::kTree);
+    options.subset_tolerance = tau;
+    const SearchResult within = Subsets(problem, options, Algorithm::kTree);
+    EXPECT_EQ(within.subset_tolerance, tau) << label;
+    const auto best = RssBySize(exact);
+    const auto listed = RssBySize(within);
+    ASSERT_EQ(best.size(), listed.size()) << label;
+    for (const auto& [size, exact_rss] : best) {
+      const std::vector<double>& rss = listed.at(size);
+      ASSERT_EQ(rss.size(), exact_rss.size()) << label << " size " << size;
+      for (std::size_t rank = 0; rank < rss.size(); ++rank) {
+        EXPECT_GE(rss[rank], exact_rss[rank] * (1 - 1e-12)) << label << " size " << size;  // never better than exact
+        EXPECT_LE(rss[rank], exact_rss[rank] * (1 + tau) * (1 + 1e-12)) << label << " size " << size << " rank " << rank;
+      }
+      EXPECT_LE(rss.front(), exact_rss.front() * (1 + tau) * (1 + 1e-12)) << label;
+    }
+    EXPECT_LE(within.subset_nodes, exact_tree.subset_nodes) << label;
+    if (within.subset_nodes < exact_tree.subset_nodes) ++cut_more;
+  }
+  EXPECT_GE(cut_more, 16u);  // the tolerance does cut: on most designs it forms fewer nodes
+}
+
+TEST(SubsetTreeTolerance, RunsOnOneThreadSoTheListDependsOnTheDataAlone) {
+  const DenseProblem problem = MakeProblem(778, 24, 3, false, true, 400);
+  SearchOptions options;
+  options.best_per_size = 3;
+  options.hierarchy = false;
+  options.subset_tolerance = 0.02;
+  const SearchResult one = Subsets(problem, options, Algorithm::kTree, 1);
+  ExpectIdentical(one, Subsets(problem, options, Algorithm::kTree, 2), "threads 2");
+  ExpectIdentical(one, Subsets(problem, options, Algorithm::kTree, 3), "threads 3");
+  EXPECT_EQ(one.subset_nodes, Subsets(problem, options, Algorithm::kTree, 3).subset_nodes);
+}
+
+TEST(SubsetTreeTolerance, TheGuaranteeIsStatedInWords) {
+  const DenseProblem problem = MakeProblem(12, 8, 0, false, false, 100);
+  SearchOptions options;
+  const SearchResult exact = Subsets(problem, options, Algorithm::kTree);
+  EXPECT_EQ(exact.SubsetGuarantee(), "exact: the models listed for each size are that size's best by RSS");
+  options.subset_tolerance = 0.01;
+  const SearchResult within = Subsets(problem, options, Algorithm::kTree);
+  EXPECT_EQ(within.SubsetGuarantee(),
+            "within a relative tolerance of 0.01: the r-th model listed for each size has an RSS at most (1 + 0.01) "
+            "times that of the size's r-th best model, so the first is within 0.01 of the best");
+  EXPECT_NE(within.FullReport().find(within.SubsetGuarantee()), std::string::npos);
+  EXPECT_NE(within.steps.front().rule.find("within a relative tolerance of 0.01"), std::string::npos);
+  // The enumeration is exact whatever the plan's tolerance.
+  EXPECT_EQ(Subsets(problem, options, Algorithm::kExhaustive).subset_tolerance, 0.0);
 }
 
 }  // namespace

@@ -59,7 +59,10 @@ inline constexpr std::string_view kAuditFormat = "stepledger-audit";
 /// 3: the validation section (cross-validation, holdout, bootstrap); plan.normalised holds
 /// holdout and bootstrap, and the seed's default is 1 (2 recorded 20261201, a seed that then did
 /// nothing).
-inline constexpr int kAuditFormatVersion = 3;
+/// 4: plan.normalised holds subset_tolerance; the search section records the all-subsets
+/// search's nodes, its tolerance and the guarantee of its list (subset_nodes, subset_tolerance,
+/// subset_guarantee).
+inline constexpr int kAuditFormatVersion = 4;
 /// Top-level fields that record time: they (and the seal and signature over them) are the only
 /// fields in which two runs of the same plan on the same data with the same build differ.
 inline constexpr std::array<std::string_view, 2> kAuditTimeFields = {"created_at",

@@ -24,6 +24,11 @@
 //                            any other recorded seed stays (an edit is still caught by verify).
 //     plan.normalised        gains "holdout": null and "bootstrap": null (version 2 had neither)
 //     validation             absent: a version 2 run made no validation
+//   format_version 3 -> 4
+//     plan.normalised        gains "subset_tolerance": 0 (version 3's all-subsets was exact)
+//     search                 gains "subset_nodes" (all-subsets: null, not recorded; else 0),
+//                            "subset_tolerance": 0 and "subset_guarantee" (the exact guarantee for
+//                            all-subsets, else null)
 // A change to the format adds its step here and raises kAuditFormatVersion.
 
 #include <nlohmann/json.hpp>

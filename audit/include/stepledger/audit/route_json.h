@@ -22,7 +22,8 @@ nlohmann::json SubsetToJson(const SubsetRecord& subset);
 nlohmann::json RouteToJson(const SearchResult& result);
 
 /// The search summary: {method, criterion, outcome, stop_rule, final_terms, criterion_value,
-/// rss, n, tss, cp_sigma2, excluded: [{term, reason}], subsets_evaluated}.
+/// rss, n, tss, cp_sigma2, excluded: [{term, reason}], subsets_evaluated, subset_nodes,
+/// subset_tolerance, subset_guarantee (all-subsets: SearchResult::SubsetGuarantee; else null)}.
 nlohmann::json SearchSummaryToJson(const SearchResult& result);
 
 }  // namespace stepledger

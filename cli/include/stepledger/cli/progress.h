@@ -1,6 +1,7 @@
 #pragma once
-// A progress line on stderr for long runs, fed by the search observer's step events and, after
-// the search, by the bootstrap's progress events (units done, rate, time left).
+// A progress line on stderr for long runs, fed by the search observer's step events, by a long
+// all-subsets search's work so far (nodes of its tree, models kept, seconds) and, after the
+// search, by the bootstrap's progress events (units done, rate, time left).
 //
 // It stays silent for the first `delay` of a run (most runs end before anyone waits) and is
 // never made unless stderr is a terminal (MakeProgressPrinter), so scripts, pipes and tests
@@ -24,9 +25,13 @@ class ProgressPrinter : public SearchObserver {
   void OnDecision(const DecisionEvent& event) override;
   void OnStop(const StopEvent& event) override;
   void OnProgress(const ProgressEvent& event) override;
+  void OnSubsetProgress(const SubsetProgressEvent& event) override;
 
  private:
-  void Show(bool force);
+  /// Whether a line may be written now (after the delay, at most five a second); if so, the
+  /// line is taken as shown.
+  bool Due();
+  void Show();
   void Clear();
   std::ostream& err_;
   std::string label_;

@@ -24,6 +24,9 @@
 //   hierarchy         bool, default true
 //   max_terms         integer >= 1, or null for no limit (default); at least the size of keep
 //   best_per_size     integer >= 1, default 3
+//   subset_tolerance  number from 0 up to but not including 1, default 0 (exact): all-subsets
+//                     may cut a subtree that cannot beat the kept models by more than this
+//                     fraction of their RSS (SearchOptions::subset_tolerance)
 //   folds             integer from 2 to 100 (kMinFolds..kMaxFolds, engine/resampling.h),
 //                     default 10: the cross-validation folds
 //   seed              unsigned 64-bit integer (0 to 2^64 - 1, read exactly), default 1: the

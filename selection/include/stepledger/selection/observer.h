@@ -110,6 +110,15 @@ struct ProgressEvent {
   std::uint64_t total = 0;
 };
 
+/// Progress of a long all-subsets search (the regression tree, selection/src/subset_tree.cpp):
+/// the work done so far, whose total is not known in advance. Sent from the thread that called
+/// RunSearch, every SearchRunOptions::progress_seconds while the search runs.
+struct SubsetProgressEvent {
+  std::uint64_t nodes = 0;        ///< nodes of the tree formed so far (every thread)
+  std::uint64_t models_kept = 0;  ///< models on the board of best models per size
+  double seconds = 0;             ///< since the search began
+};
+
 class SearchObserver {
  public:
   virtual ~SearchObserver() = default;
@@ -119,6 +128,7 @@ class SearchObserver {
   virtual void OnSubsets(const std::vector<SubsetRecord>& /*subsets*/) {}
   virtual void OnStop(const StopEvent& /*event*/) {}
   virtual void OnProgress(const ProgressEvent& /*event*/) {}
+  virtual void OnSubsetProgress(const SubsetProgressEvent& /*event*/) {}
 };
 
 enum class StepAction { kStart, kAdd, kRemove, kStop };
@@ -170,6 +180,7 @@ class ObserverFanOut : public SearchObserver {
   void OnSubsets(const std::vector<SubsetRecord>& subsets) override;
   void OnStop(const StopEvent& event) override;
   void OnProgress(const ProgressEvent& event) override;
+  void OnSubsetProgress(const SubsetProgressEvent& event) override;
 
  private:
   std::vector<SearchObserver*> observers_;

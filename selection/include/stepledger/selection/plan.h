@@ -43,6 +43,13 @@ struct SearchOptions {
   std::optional<std::size_t> max_terms;
   /// all-subsets: models kept per size (>= 1). Default 3.
   std::size_t best_per_size = 3;
+  /// all-subsets: relative tolerance of the branch and bound, 0 <= tau < 1. Default 0, an exact
+  /// search. With tau > 0 a subtree is cut once it cannot beat the kept models of any of its
+  /// sizes by more than the fraction tau of their RSS, and the r-th listed model of each size
+  /// then has an RSS at most (1 + tau) times that of the r-th best model of that size (README
+  /// "All subsets"). Such a search runs on one thread, so that its list depends only on the data
+  /// and the plan.
+  double subset_tolerance = 0;
   /// Cross-validation folds (2..100; engine/resampling.h): the k-fold error of the final model
   /// of every criterion, and the score of criterion cv. Default 10.
   int folds = 10;

@@ -30,6 +30,7 @@
 // equal within kTieRelativeTolerance) break by plan order and are recorded in the step.
 // partial-f ranks candidates by p-value, then by F (p-values of strong terms underflow to 0).
 
+#include <cstdint>
 #include <iosfwd>
 #include <string>
 #include <vector>
@@ -61,8 +62,14 @@ struct SearchResult {
   std::optional<double> cp_sigma2;       ///< sigma^2 of the largest eligible model
   std::size_t subsets_evaluated = 0;     ///< all-subsets: models whose RSS was computed
   std::size_t subset_nodes = 0;          ///< all-subsets regression tree: nodes whose factor was formed
+  /// all-subsets: the relative tolerance the search used (SearchOptions::subset_tolerance); 0 when
+  /// the kept models are exactly the best of their sizes. The other methods: 0.
+  double subset_tolerance = 0;
 
   bool IsModelUsable() const { return outcome != SearchOutcome::kNotRun; }
+  /// all-subsets: what the kept models are, in words: "exact: ..." or, with a tolerance, the
+  /// bound each listed model meets (README "All subsets"). Empty for the other methods.
+  std::string SubsetGuarantee() const;
   /// A few lines: method, criterion, outcome, final terms.
   std::string BriefReport() const;
   /// The route table (step, action, term, criterion before -> after, rule), ties, exclusions,
@@ -83,11 +90,9 @@ struct SearchRunOptions {
   /// all-subsets: threads that share the subtrees of the regression tree (>= 1). The kept
   /// models are the same bits for any count (see all_subsets.cpp).
   int threads = 1;
-  /// all-subsets: progress lines on this stream (nodes, models kept, seconds) every few
-  /// seconds of a long search; nullptr for none. Not owned.
-  std::ostream* progress = nullptr;
-  /// Seconds between progress lines (the first after this long). Default 5.
-  double progress_seconds = 5;
+  /// all-subsets: seconds between the observer's OnSubsetProgress events (the first after this
+  /// long). Default 0.5; the command line's progress line shows them only on a terminal.
+  double progress_seconds = 0.5;
   /// Lets stepwise partial-f run with entry_p > exit_p, which ValidateSearchOptions refuses,
   /// so that tests can exercise the cycle guard. Never set by the command line.
   bool allow_cycling_thresholds = false;
@@ -106,20 +111,32 @@ struct SearchRunOptions {
 /// max_terms, a term listed twice or both kept and never.
 void ValidateSearchSettings(const SearchOptions& options, bool allow_cycling_thresholds = false);
 
-/// Most candidate terms (neither kept nor never) an all-subsets search takes. The regression
-/// tree (selection/src/subset_tree.cpp) may still have to read up to 2^m subsets when nothing
-/// can be cut. As measured (README "Limits"; bench/select_bench, 2,000 rows, best 3 per size,
-/// correlated terms of mixed strength): 0.12 s at 40 candidates, 11 s at 45 and 0.8 s at 50 on
-/// one thread; every term of a similar small effect, 1,000 rows: 1.2 s at 40, 7.4 s at 44 (the
-/// time depends on the data far more than on m); above 50 no case was measured,
-/// so the plan is refused. max_terms cuts the subtrees of larger models, but does not lift the
-/// refusal.
-inline constexpr std::size_t kMaxAllSubsetsCandidates = 50;
+/// How much an all-subsets search may have to read, as log2 of the count of subsets of the
+/// candidate terms (neither kept nor never) with at most max_terms terms: log2 of the sum of
+/// C(m, s) for s = 0 .. max free terms (m when max_terms is unset: log2 2^m = m). The regression
+/// tree (selection/src/subset_tree.cpp) reads each of them at most once, and cuts most of them on
+/// the data seen so far; how many depends on the data far more than on m.
+double AllSubsetsWorstCaseLog2(std::size_t candidates, std::size_t max_free_terms);
+
+/// The largest worst case an exact all-subsets search takes: 2^50 subsets, the 50 candidate terms
+/// of the largest measured case (README "All subsets"; bench/select_bench, 2,000 rows, best 3 per
+/// size: 0.4 s at m = 50 with correlated terms of mixed strength, 6.7 s at m = 44 when every term
+/// has a similar small effect). A larger plan is refused before any pass over the rows; max_terms
+/// lowers its count, and so does moving terms to keep or never.
+inline constexpr double kMaxAllSubsetsLog2 = 50;
+/// The same with a subset_tolerance above 0, which cuts far more (bench/select_bench's tolerance
+/// table).
+inline constexpr double kMaxAllSubsetsLog2WithTolerance = 60;
+/// The most memory of triangles the regression tree may hold per thread: one triangle of the free
+/// terms' design columns (and y) at each depth of its path, (m + 1) q^2 doubles. 512 MiB: about
+/// 400 one-column candidate terms (with max_terms; without, kMaxAllSubsetsLog2 refuses far fewer).
+inline constexpr std::uint64_t kMaxAllSubsetsTreeBytes = std::uint64_t{512} << 20;
 
 /// ValidateSearchSettings, then the checks that need the design: keep and never name terms of
-/// the design (a plan with "terms": "all" can only be checked here), and all-subsets has at most
-/// kMaxAllSubsetsCandidates candidate terms (PlanError at "method", before any pass over the
-/// rows).
+/// the design (a plan with "terms": "all" can only be checked here), and all-subsets's worst case
+/// is within kMaxAllSubsetsLog2 (kMaxAllSubsetsLog2WithTolerance with a subset_tolerance): else a
+/// PlanError at "method", before any pass over the rows, that says how to go on (the max_terms
+/// that would do, a tolerance, stepwise or forward, keep and never).
 void ValidateSearchOptions(const SearchOptions& options, const Design& design,
                            bool allow_cycling_thresholds = false);
 
