@@ -288,6 +288,16 @@ json FromVersion2(const json& document) {
   return current;
 }
 
+// ---- format_version 3 -> 4 --------------------------------------------------------------
+
+// Only the signature's shape changed, and the signature is checked as recorded: nothing else to
+// translate.
+json FromVersion3(const json& document) {
+  json current = document;
+  current["format_version"] = 4;
+  return current;
+}
+
 }  // namespace
 
 json AuditInCurrentShape(const json& document) {
@@ -300,6 +310,7 @@ json AuditInCurrentShape(const json& document) {
   // version it reads.
   if (current["format_version"] == 1) current = FromVersion1(current);
   if (current["format_version"] == 2) current = FromVersion2(current);
+  if (current["format_version"] == 3) current = FromVersion3(current);
   current["read_from_format_version"] = read_from;
   return current;
 }

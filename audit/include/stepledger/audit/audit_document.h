@@ -2,8 +2,8 @@
 // The audit file (CONTRACT.md `audit.json`, DESIGN.md §6): one run of a plan on a data file,
 // recorded so that a reviewer can see every step, prove that nothing was edited, and replay it.
 //
-// Shape (format "stepledger-audit", format_version 3; audit/schema/audit.schema.json; audits of
-// format_version 1 and 2 still verify and are read through AuditInCurrentShape,
+// Shape (format "stepledger-audit", format_version 4; audit/schema/audit.schema.json; audits of
+// format_version 1 to 3 still verify and are read through AuditInCurrentShape,
 // audit/audit_format_versions.h):
 //   format, format_version, tool {name, version, commit, build {compiler, blas, build_type}},
 //   created_at, duration_seconds,                         <- the only fields that record time
@@ -20,7 +20,14 @@
 //                    per other top-level section x but the time fields}: they let `verify` name
 //                    the section edited;
 //   seal           = H(Canonical(document without "seal" and "signature"));
-//   signature      = Ed25519 over the seal's hex text: {algorithm, public_key, value}.
+//   signature      = {signed: "seal", jws, jwk}: jws is a JWS (RFC 7515) in compact serialisation
+//                    with detached payload (Appendix F: "HEADER..SIGNATURE"), alg EdDSA over
+//                    Ed25519 (RFC 8037), protected header exactly {"alg":"EdDSA","kid":K} with K
+//                    the RFC 7638 thumbprint of the key; the payload is the seal's text as
+//                    written, its 64 lower-case hex ASCII characters; jwk is the public key
+//                    {crv: "Ed25519", kty: "OKP", x} (audit/jws.h). Format_version 3 and
+//                    earlier: Ed25519 over the same 64 characters, {algorithm: "ed25519",
+//                    public_key, signed, value} in hex.
 // Digests and the seal are unkeyed: they catch accidental and casual edits, not someone who
 // recomputes them. Only a signature (or a seal kept elsewhere) shows who produced the file.
 //
@@ -59,7 +66,10 @@ inline constexpr std::string_view kAuditFormat = "stepledger-audit";
 /// 3: the validation section (cross-validation, holdout, bootstrap); plan.normalised holds
 /// holdout and bootstrap, and the seed's default is 1 (2 recorded 20261201, a seed that then did
 /// nothing).
-inline constexpr int kAuditFormatVersion = 3;
+/// 4: the signature is a JWS with detached payload and the public key a JWK ({signed, jws, jwk});
+/// 1 to 3 recorded {algorithm: "ed25519", public_key, signed, value} in hex. What is signed is
+/// unchanged: the seal's 64 hex characters (inside the JWS signing input from 4 on).
+inline constexpr int kAuditFormatVersion = 4;
 /// Top-level fields that record time: they (and the seal and signature over them) are the only
 /// fields in which two runs of the same plan on the same data with the same build differ.
 inline constexpr std::array<std::string_view, 2> kAuditTimeFields = {"created_at",
@@ -115,7 +125,7 @@ struct AuditOutputOptions {
   std::filesystem::path folder;
   /// Replace an existing audit.json (--force). Default: refuse, naming the file.
   bool overwrite = false;
-  /// Ed25519 private key (PEM) to sign the seal with (--sign-key); empty: no signature.
+  /// Ed25519 private key (PEM) to sign the seal with (--sign-key), as a JWS; empty: no signature.
   std::filesystem::path sign_key;
 };
 

@@ -24,6 +24,13 @@
 //                            any other recorded seed stays (an edit is still caught by verify).
 //     plan.normalised        gains "holdout": null and "bootstrap": null (version 2 had neither)
 //     validation             absent: a version 2 run made no validation
+//   format_version 3 -> 4
+//     signature              {algorithm: "ed25519", public_key, signed, value} (hex)  ->
+//                            {signed, jws, jwk} (a JWS with detached payload, a JWK). Nothing
+//                            to translate: the signature is an integrity field, checked as
+//                            recorded (CheckAuditSignature reads both shapes, the old one only
+//                            in an audit of format_version 3 or earlier); an old signature
+//                            cannot be rewritten as a JWS without the private key.
 // A change to the format adds its step here and raises kAuditFormatVersion.
 
 #include <nlohmann/json.hpp>
