@@ -255,7 +255,12 @@ SignatureCheck CheckJwsSignature(const json& signature, const std::string& seal,
 // Format_versions 1 to 3: {algorithm: "ed25519", public_key, signed, value}, hex.
 SignatureCheck CheckHexSignature(const json& document, const json& signature, const std::string& seal,
                                  const Ed25519PublicKey* given, const std::string& given_name, SignatureCheck check) {
-  if (document.value("format_version", kAuditFormatVersion) >= 4) {
+  // Read without conversion: a recorded version that is not a small integer is not 1 to 3.
+  const json* version = document.contains("format_version") ? &document["format_version"] : nullptr;
+  const bool version_three_or_earlier = version != nullptr && version->is_number_integer() &&
+                                        (version->is_number_unsigned() ? version->get<std::uint64_t>() <= 3
+                                                                       : version->get<std::int64_t>() <= 3);
+  if (!version_three_or_earlier) {
     return Fails(check, "key 'signature' has the shape of format_version 3 and earlier {algorithm, public_key, "
                         "value}; an audit of format_version 4 or later carries a JWS (signature.jws)");
   }
@@ -407,7 +412,7 @@ SignatureCheck CheckAuditSignature(const json& document, const Ed25519PublicKey*
     check.shape = SignatureCheck::Shape::kJws;
     return CheckJwsSignature(signature, seal, given, given_name, check);
   }
-  if (signature.value("algorithm", std::string()) == "ed25519") {
+  if (signature.contains("algorithm") && signature["algorithm"] == json("ed25519")) {
     check.shape = SignatureCheck::Shape::kHex;
     return CheckHexSignature(document, signature, seal, given, given_name, check);
   }

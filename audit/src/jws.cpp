@@ -29,6 +29,8 @@ const char* TypeName(const json& value) {
 }  // namespace
 
 std::string Base64UrlEncode(std::string_view bytes) {
+  // OpenSSL counts in int; callers encode headers, keys, seals and signatures only.
+  if (bytes.size() > (std::size_t{1} << 29)) throw InputError("base64url of more than 2^29 bytes is not written here");
   // OpenSSL writes standard base64 (RFC 4648 §4) with padding; RFC 7515 §2 wants the URL-safe
   // alphabet (§5) without it.
   std::string text(4 * ((bytes.size() + 2) / 3) + 1, '\0');
@@ -45,6 +47,9 @@ std::string Base64UrlEncode(std::string_view bytes) {
 }
 
 std::string Base64UrlDecode(std::string_view text) {
+  // OpenSSL counts in int; nothing this tool reads (a header, a key, a signature) comes near.
+  constexpr std::size_t kMaxText = std::size_t{1} << 30;
+  if (text.size() > kMaxText) throw InputError("not base64url this tool reads: longer than 2^30 characters");
   for (std::size_t i = 0; i < text.size(); ++i) {
     if (!IsBase64UrlCharacter(text[i])) {
       const unsigned char c = static_cast<unsigned char>(text[i]);

@@ -263,6 +263,16 @@ TEST_F(AuditSignature, MalformedJwsAreDifferencesNamingTheKey) {
   bad_jwk["signature"]["jwk"]["crv"] = "X25519";
   EXPECT_EQ(FirstProblem(bad_jwk).rfind("key 'signature.jwk.crv' is \"X25519\", expected \"Ed25519\"", 0), 0u)
       << FirstProblem(bad_jwk);
+  // A signature of neither shape, or of the wrong types, is named, never a crash.
+  json neither = signed_;
+  neither["signature"] = {{"algorithm", 5}, {"value", "00"}};
+  EXPECT_EQ(FirstProblem(neither).rfind("key 'signature' is neither a JWS {signed, jws, jwk}", 0), 0u) << FirstProblem(neither);
+  json number_jws = signed_;
+  number_jws["signature"]["jws"] = 7;
+  EXPECT_EQ(FirstProblem(number_jws), "key 'signature.jws' is a number, expected a JWS compact serialisation (RFC 7515 §7.1)");
+  json no_jwk = signed_;
+  no_jwk["signature"].erase("jwk");
+  EXPECT_EQ(FirstProblem(no_jwk).rfind("key 'signature.jwk' is missing", 0), 0u) << FirstProblem(no_jwk);
   // An edit after signing is caught by the signature as well as by the seal.
   json edited = signed_;
   edited["model"]["rss"] = 1.0;
