@@ -10,7 +10,9 @@ JOSE library (RFC 7515 JWS, RFC 7517 JWK, RFC 7638 thumbprints, RFC 8037 EdDSA):
   2. a JWS that jwcrypto makes over a stepledger seal with stepledger's key, detached and put into
      the audit, verifies with `stepledger verify`, with the public key as a JWK, as PEM and as
      recorded; its header is serialised with white space, which the verifier must take as written;
-  3. controls: a jwcrypto JWS over another seal, or without a kid, does not verify (exit 1).
+  3. controls: a jwcrypto JWS over another seal, or without a kid, does not verify (exit 1);
+  4. the RFC 8037 Appendix A values that tests/audit/jws_test.cpp reproduces (recalled from
+     memory there) come out of jwcrypto too: the A.3 thumbprint and the A.4 JWS.
 
 Usage: jws_interop_test.py STEPLEDGER SOURCE_DIR. Exit 0 when every check holds, 1 otherwise. A
 missing python3-jwcrypto fails the test (scripts/setup-debian.sh installs it).
@@ -74,6 +76,19 @@ def main():
         raise SystemExit(__doc__)
     binary, source = os.path.abspath(sys.argv[1]), os.path.abspath(sys.argv[2])
     fixture = os.path.join(source, "tests", "audit", "format_v1")
+
+    # -- 4. RFC 8037 Appendix A through jwcrypto (the values of tests/audit/jws_test.cpp) -------
+    rfc_key = jwk.JWK(kty="OKP", crv="Ed25519", d="nWGxne_9WmC6hEr0kuwsxERJxWl7MmkZcDusAxyuf2A",
+                      x="11qYAYKxCrfVS_7TyWQHOg7hcvPapiMlrwIaaPcHURo")
+    check(rfc_key.thumbprint() == "kPrK_qmxVWaYVA9wwBF6Iuo3vVzz7TxHCTwXBygrS4k",
+          "RFC 8037 A.3: jwcrypto's thumbprint of the A.1 key is the one jws_test.cpp uses")
+    example = jws.JWS(b"Example of Ed25519 signing")
+    example.add_signature(rfc_key, alg=None, protected='{"alg":"EdDSA"}')
+    check(example.serialize(compact=True) ==
+          "eyJhbGciOiJFZERTQSJ9.RXhhbXBsZSBvZiBFZDI1NTE5IHNpZ25pbmc."
+          "hgyY0il_MGCjP0JzlnLWG1PPOt7-09PGcvMg3AIbQR6dWbhijcNR4ki4iylGjg5BhVsPt9g7sVvpAr_MuM0KAg",
+          "RFC 8037 A.4: jwcrypto writes the JWS jws_test.cpp reproduces")
+
     with tempfile.TemporaryDirectory() as work:
         # The signing key, made by jwcrypto; stepledger reads its PEM (PKCS #8, RFC 8410).
         key = jwk.JWK.generate(kty="OKP", crv="Ed25519")

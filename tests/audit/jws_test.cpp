@@ -17,7 +17,9 @@ using json = nlohmann::json;
 // RFC 8037 Appendix A (A.1 key, A.3 thumbprint, A.4 signing, A.5 verification). The values were
 // recalled from memory and agree with the copies of Appendix A quoted in the test suites of
 // several independent JOSE implementations (the RFC page itself could not be opened here);
-// reproducing the A.4 signature byte for byte below is the check that they are right.
+// reproducing the A.4 signature byte for byte below is the check that they are right, and
+// tests/audit/jws_interop_test.py has Debian's python3-jwcrypto compute the A.3 thumbprint and
+// the A.4 JWS from the A.1 key as well.
 // The A.1 private key is RFC 8032 §7.1 TEST 1's (tests/audit/signature_test.cpp).
 constexpr const char* kRfc8037D = "nWGxne_9WmC6hEr0kuwsxERJxWl7MmkZcDusAxyuf2A";
 constexpr const char* kRfc8037X = "11qYAYKxCrfVS_7TyWQHOg7hcvPapiMlrwIaaPcHURo";
