@@ -181,6 +181,10 @@ SignatureCheck Fails(SignatureCheck check, std::string problem) {
 
 std::string Short(const std::string& text) { return text.size() > 16 ? text.substr(0, 16) + "..." : text; }
 
+std::string VerifiedAgainst(const std::string& given_name) {
+  return "signature verified against the public key " + given_name + ": the holder of its private key signed this seal";
+}
+
 // Format_version 4 on: {signed, jws, jwk}.
 SignatureCheck CheckJwsSignature(const json& signature, const std::string& seal, const Ed25519PublicKey* given,
                                  const std::string& given_name, SignatureCheck check) {
@@ -233,8 +237,7 @@ SignatureCheck CheckJwsSignature(const json& signature, const std::string& seal,
                               ") that made the signature: the audit names another signer");
     }
     check.holds = true;
-    check.note = "signature verified against the public key " + given_name +
-                 ": the holder of its private key signed this seal";
+    check.note = VerifiedAgainst(given_name);
     return check;
   }
   if (!recorded) return Fails(check, recorded_problem);
@@ -281,8 +284,7 @@ SignatureCheck CheckHexSignature(const json& document, const json& signature, co
                               "...) that made the signature: the audit names another signer");
     }
     check.holds = true;
-    check.note = "signature verified against the public key " + given_name +
-                 ": the holder of its private key signed this seal";
+    check.note = VerifiedAgainst(given_name);
     return check;
   }
   const std::string embedded = recorded.is_string() ? recorded.get<std::string>() : std::string();

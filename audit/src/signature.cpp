@@ -107,16 +107,6 @@ std::string RawPublicKey(EVP_PKEY* key, const std::string& what) {
   return std::string(reinterpret_cast<const char*>(raw), length);
 }
 
-bool Verify(EVP_PKEY* key, std::string_view message, std::string_view signature_hex) {
-  std::vector<unsigned char> signature;
-  try {
-    signature = DecodeHex(signature_hex, "signature");
-  } catch (const InputError&) {
-    return false;
-  }
-  return VerifyBytes(key, message, signature.data(), signature.size());
-}
-
 }  // namespace
 
 Ed25519Signer Ed25519Signer::FromPemFile(const std::filesystem::path& path) {
@@ -200,22 +190,16 @@ Ed25519PublicKey Ed25519PublicKeyFromPemFile(const std::filesystem::path& path) 
   return Ed25519PublicKey::FromRaw(RawPublicKey(key.get(), "key file '" + path.string() + "'"));
 }
 
-std::string Ed25519PublicKeyHexFromPemFile(const std::filesystem::path& path) {
-  return Ed25519PublicKeyFromPemFile(path).Hex();
-}
-
-bool VerifyEd25519WithPemFile(const std::filesystem::path& public_key_path,
-                              std::string_view message, std::string_view signature_hex) {
-  KeyPointer key = ReadPemKey(public_key_path, false);
-  return Verify(key.get(), message, signature_hex);
-}
-
 bool VerifyEd25519WithRawKeyHex(std::string_view public_key_hex, std::string_view message,
                                 std::string_view signature_hex) {
-  auto raw = DecodeHex(public_key_hex, "public key");
-  KeyPointer key(EVP_PKEY_new_raw_public_key(EVP_PKEY_ED25519, nullptr, raw.data(), raw.size()));
-  if (!key) throw InputError("not a 32-byte Ed25519 public key");
-  return Verify(key.get(), message, signature_hex);
+  const Ed25519PublicKey key = Ed25519PublicKey::FromHex(public_key_hex);
+  std::vector<unsigned char> signature;
+  try {
+    signature = DecodeHex(signature_hex, "signature");
+  } catch (const InputError&) {
+    return false;  // a malformed signature is one that does not verify
+  }
+  return key.Verifies(message, std::string_view(reinterpret_cast<const char*>(signature.data()), signature.size()));
 }
 
 }  // namespace stepledger

@@ -69,16 +69,9 @@ class Ed25519Signer {
 /// that is not Ed25519 ("key file 'k.pem' holds an RSA key, not an Ed25519 key").
 Ed25519PublicKey Ed25519PublicKeyFromPemFile(const std::filesystem::path& path);
 
-/// The raw 32-byte public key, lower-case hexadecimal, of a PEM public key file (or of the
-/// public half of a PEM private key file). Throws InputError naming the file.
-std::string Ed25519PublicKeyHexFromPemFile(const std::filesystem::path& path);
-
-/// Checks an Ed25519 signature (hex) of message against a PEM public key file
-/// (`openssl pkey -pubout`) — or a PEM private key file, whose public half is used.
-/// Throws InputError when the key file cannot be used; returns false for a wrong signature.
-bool VerifyEd25519WithPemFile(const std::filesystem::path& public_key_path,
-                              std::string_view message, std::string_view signature_hex);
-/// The same against a raw 32-byte public key in hexadecimal.
+/// Checks an Ed25519 signature (hex) of message against a raw 32-byte public key in hexadecimal
+/// (the signature of audits of format_version 3 and earlier). Throws InputError when the key is
+/// not 64 hex digits; returns false for a wrong or malformed signature.
 bool VerifyEd25519WithRawKeyHex(std::string_view public_key_hex, std::string_view message,
                                 std::string_view signature_hex);
 
