@@ -21,6 +21,8 @@ packages=(
   nlohmann-json3-dev libspdlog-dev libgtest-dev libgmock-dev libcli11-dev
   libboost-math-dev libssl-dev zlib1g-dev libzstd-dev
   python3 python3-numpy python3-scipy python3-statsmodels python3-jsonschema
+  # tests/audit/jws_interop_test.py: the audit's JWS signature against a general-purpose JOSE library
+  python3-jwcrypto
   # scripts/sanitize.sh and scripts/fuzz.sh: Clang, its sanitizer runtimes (only recommended by
   # clang, and recommendations are not installed here) and libFuzzer
   clang libclang-rt-14-dev libfuzzer-14-dev

@@ -14,6 +14,7 @@
 
 #include "stepledger/io/atomic_file.h"
 #include "stepledger/audit/canonical_json.h"
+#include "stepledger/audit/jws.h"
 #include "stepledger/io/json_reader.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/audit/route_json.h"
@@ -339,10 +340,12 @@ void SealAuditDocument(json& document, const Ed25519Signer* signer) {
   const std::string seal = ComputeSeal(document);
   document["seal"] = seal;
   if (signer != nullptr) {
-    document["signature"] = {{"algorithm", "ed25519"},
-                             {"public_key", signer->PublicKeyHex()},
-                             {"signed", "seal"},
-                             {"value", signer->SignHex(seal)}};
+    // A JWS with detached payload (audit/jws.h): the payload is the seal's text as written
+    // above, so that any JOSE library given the audit's seal and this JWS can check it.
+    const Ed25519PublicKey key = signer->PublicKey();
+    document["signature"] = {{"jwk", Ed25519Jwk(key)},
+                             {"jws", SignDetachedJws(*signer, AuditJwsProtectedHeader(key), seal)},
+                             {"signed", "seal"}};
   }
 }
 

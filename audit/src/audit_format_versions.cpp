@@ -291,6 +291,7 @@ json FromVersion2(const json& document) {
 
 // ---- format_version 3 -> 4 --------------------------------------------------------------
 
+// The signature's new shape needs no translation: it is checked as recorded.
 json FromVersion3(const json& document) {
   json current = document;
   if (current.contains("plan") && current["plan"].is_object() && current["plan"].contains("normalised") &&

@@ -9,6 +9,7 @@
 #include "stepledger/audit/audit_format_versions.h"
 #include "stepledger/audit/canonical_json.h"
 #include "stepledger/audit/fitted_model.h"
+#include "stepledger/audit/jws.h"
 #include "stepledger/audit/replay.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/audit/validation_json.h"
@@ -172,6 +173,134 @@ void CheckSeal(const json& document, VerifyReport& report) {
   }
 }
 
+SignatureCheck Fails(SignatureCheck check, std::string problem) {
+  check.holds = false;
+  check.problem = std::move(problem);
+  return check;
+}
+
+std::string Short(const std::string& text) { return text.size() > 16 ? text.substr(0, 16) + "..." : text; }
+
+std::string VerifiedAgainst(const std::string& given_name) {
+  return "signature verified against the public key " + given_name + ": the holder of its private key signed this seal";
+}
+
+// Format_version 4 on: {signed, jws, jwk}.
+SignatureCheck CheckJwsSignature(const json& signature, const std::string& seal, const Ed25519PublicKey* given,
+                                 const std::string& given_name, SignatureCheck check) {
+  const json& text = signature["jws"];
+  if (!text.is_string()) {
+    return Fails(check, "key 'signature.jws' is a " + std::string(text.type_name()) +
+                            ", expected a JWS compact serialisation (RFC 7515 §7.1)");
+  }
+  CompactJws jws;
+  try {
+    jws = ParseCompactJws(text.get_ref<const std::string&>());
+  } catch (const InputError& error) {
+    return Fails(check, std::string("key 'signature.jws' ") + error.what());
+  }
+  if (!jws.encoded_payload.empty()) {
+    return Fails(check, "key 'signature.jws' carries a payload part; the audit's JWS has its payload detached "
+                        "(RFC 7515 Appendix F), the payload being the seal's hex text");
+  }
+  if (const std::string wrong = CheckJwsHeader(jws.header); !wrong.empty()) {
+    return Fails(check, "key 'signature.jws': " + wrong);
+  }
+  const std::string kid = jws.header["kid"].get<std::string>();
+  check.key_label = "key thumbprint (RFC 7638) " + kid;
+  if (!signature.contains("jwk")) {
+    return Fails(check, "key 'signature.jwk' is missing: the audit must record the public key that signed it");
+  }
+  std::optional<Ed25519PublicKey> recorded;
+  std::string recorded_problem;
+  try {
+    recorded = Ed25519PublicKeyFromJwk(signature["jwk"], "", "signature.jwk.");
+  } catch (const InputError& error) {
+    recorded_problem = error.what();
+  }
+  if (given != nullptr) {
+    const std::string thumbprint = JwkThumbprint(*given);
+    if (kid != thumbprint) {
+      return Fails(check, "key 'signature.jws': protected header 'kid' is \"" + Short(kid) +
+                              "\", not the thumbprint of the public key in " + given_name + " (" + thumbprint +
+                              "): another key signed the audit");
+    }
+    if (!VerifyJws(jws, seal, *given)) {
+      return Fails(check, "signature does not verify against the public key " + given_name);
+    }
+    // The recorded key must be the given one: else the audit (and its report) could name
+    // another signer than the one who signed it. Neither the seal nor the JWS covers `jwk`.
+    if (!recorded) return Fails(check, recorded_problem);
+    if (*recorded != *given) {
+      return Fails(check, "key 'signature.jwk' is the key with thumbprint " + JwkThumbprint(*recorded) +
+                              ", not the public key in " + given_name + " (" + thumbprint +
+                              ") that made the signature: the audit names another signer");
+    }
+    check.holds = true;
+    check.note = VerifiedAgainst(given_name);
+    return check;
+  }
+  if (!recorded) return Fails(check, recorded_problem);
+  if (JwkThumbprint(*recorded) != kid) {
+    return Fails(check, "key 'signature.jwk' has the thumbprint " + JwkThumbprint(*recorded) +
+                            " (RFC 7638), not the protected header's kid \"" + Short(kid) +
+                            "\": the audit names another key than the one that signed");
+  }
+  if (!VerifyJws(jws, seal, *recorded)) {
+    return Fails(check, "signature does not verify against the key recorded in the audit");
+  }
+  check.holds = true;
+  check.note = "signature checked only against the public key recorded in the audit (thumbprint " + Short(kid) +
+               "): give --public-key to check who signed";
+  return check;
+}
+
+// Format_versions 1 to 3: {algorithm: "ed25519", public_key, signed, value}, hex.
+SignatureCheck CheckHexSignature(const json& document, const json& signature, const std::string& seal,
+                                 const Ed25519PublicKey* given, const std::string& given_name, SignatureCheck check) {
+  // Read without conversion: a recorded version that is not a small integer is not 1 to 3.
+  const json* version = document.contains("format_version") ? &document["format_version"] : nullptr;
+  const bool version_three_or_earlier = version != nullptr && version->is_number_integer() &&
+                                        (version->is_number_unsigned() ? version->get<std::uint64_t>() <= 3
+                                                                       : version->get<std::int64_t>() <= 3);
+  if (!version_three_or_earlier) {
+    return Fails(check, "key 'signature' has the shape of format_version 3 and earlier {algorithm, public_key, "
+                        "value}; an audit of format_version 4 or later carries a JWS (signature.jws)");
+  }
+  if (!signature.contains("value") || !signature["value"].is_string()) {
+    return Fails(check, "key 'signature' is not an ed25519 signature {algorithm, public_key, value}");
+  }
+  const std::string value = signature["value"].get<std::string>();
+  const json recorded = signature.value("public_key", json(nullptr));
+  if (recorded.is_string()) check.key_label = "public key " + recorded.get<std::string>();
+  if (given != nullptr) {
+    const std::string hex = given->Hex();
+    if (!VerifyEd25519WithRawKeyHex(hex, seal, value)) {
+      return Fails(check, "signature does not verify against the public key " + given_name);
+    }
+    if (!recorded.is_string() || LowerCase(recorded.get<std::string>()) != hex) {
+      return Fails(check, "key 'signature.public_key' is " + Shown(recorded) + ", not the public key in " +
+                              given_name + " (" + hex.substr(0, 16) +
+                              "...) that made the signature: the audit names another signer");
+    }
+    check.holds = true;
+    check.note = VerifiedAgainst(given_name);
+    return check;
+  }
+  const std::string embedded = recorded.is_string() ? recorded.get<std::string>() : std::string();
+  bool holds = false;
+  try {
+    holds = VerifyEd25519WithRawKeyHex(embedded, seal, value);
+  } catch (const InputError&) {
+    holds = false;
+  }
+  if (!holds) return Fails(check, "signature does not verify against the key recorded in the audit");
+  check.holds = true;
+  check.note = "signature checked only against the public key recorded in the audit (" + embedded.substr(0, 16) +
+               "...): give --public-key to check who signed";
+  return check;
+}
+
 void CheckSignature(const json& document, const std::filesystem::path& public_key,
                     VerifyReport& report) {
   const bool present = document.contains("signature");
@@ -186,69 +315,17 @@ void CheckSignature(const json& document, const std::filesystem::path& public_ke
     }
     return;
   }
-  const json& signature = document["signature"];
-  if (!signature.is_object() || !signature.contains("value") || !signature["value"].is_string() ||
-      signature.value("algorithm", std::string()) != "ed25519") {
-    report.signature = Check::kFails;
-    report.problems.push_back("key 'signature' is not an ed25519 signature {algorithm, public_key, value}");
-    return;
-  }
-  const std::string seal = document.contains("seal") && document["seal"].is_string()
-                               ? document["seal"].get<std::string>()
-                               : std::string();
-  if (signature.contains("signed") && signature["signed"] != json("seal")) {
-    report.signature = Check::kFails;
-    report.problems.push_back("key 'signature.signed' is " + Shown(signature["signed"]) +
-                              ": this tool signs the seal (\"seal\")");
-    return;
-  }
-  const std::string value = signature["value"].get<std::string>();
-  bool holds = false;
-  if (!public_key.empty()) {
-    const std::string given = Ed25519PublicKeyHexFromPemFile(public_key);
-    try {
-      holds = VerifyEd25519WithPemFile(public_key, seal, value);
-    } catch (const InputError& error) {
-      const std::string text = error.what();
-      // A key file that cannot be used is bad input; a malformed signature is a difference.
-      if (text.find(public_key.string()) != std::string::npos) throw;
-      holds = false;
-    }
-    // The recorded key must be the given one: else the audit (and its report) could name
-    // another signer than the one who signed it. The seal does not cover the signature, so the
-    // key in it is checked here.
-    const json recorded = signature.value("public_key", json(nullptr));
-    if (holds && (!recorded.is_string() || LowerCase(recorded.get<std::string>()) != given)) {
-      report.signature = Check::kFails;
-      report.problems.push_back("key 'signature.public_key' is " + Shown(recorded) + ", not the public key in " +
-                                public_key.string() + " (" + given.substr(0, 16) +
-                                "...) that made the signature: the audit names another signer");
-      return;
-    }
-    if (holds) {
-      report.notes.push_back("signature verified against the public key " + public_key.string() +
-                             ": the holder of its private key signed this seal");
-    }
-  } else {
-    const std::string embedded = signature.value("public_key", std::string());
-    try {
-      holds = VerifyEd25519WithRawKeyHex(embedded, seal, value);
-    } catch (const InputError&) {
-      holds = false;
-    }
-    if (holds) {
-      report.notes.push_back("signature checked only against the public key recorded in the audit "
-                             "(" + embedded.substr(0, 16) + "...): give --public-key to check who signed");
-    }
-  }
-  if (holds) {
+  // A key file that cannot be used is bad input (InputError, exit 2); anything wrong in the
+  // audit's signature is a difference.
+  std::optional<Ed25519PublicKey> given;
+  if (!public_key.empty()) given = ReadEd25519PublicKeyFile(public_key);
+  const SignatureCheck check = CheckAuditSignature(document, given ? &*given : nullptr, public_key.string());
+  if (check.holds) {
     report.signature = Check::kHolds;
+    report.notes.push_back(check.note);
   } else {
     report.signature = Check::kFails;
-    report.problems.push_back(public_key.empty()
-                                  ? "signature does not verify against the key recorded in the audit"
-                                  : "signature does not verify against the public key " +
-                                        public_key.string());
+    report.problems.push_back(check.problem);
   }
 }
 
@@ -307,6 +384,43 @@ const char* const kReplayedSections[] = {"search", "subsets", "model", "numerics
                                          "design", "data",    "cautions"};
 
 }  // namespace
+
+std::string SignatureCheck::Algorithm() const {
+  switch (shape) {
+    case Shape::kAbsent: return "none";
+    case Shape::kJws: return "JWS EdDSA (Ed25519; RFC 7515, RFC 8037)";
+    case Shape::kHex: return "ed25519 over the seal's hex text (format_version 3 and earlier)";
+    case Shape::kUnknown: return "unknown";
+  }
+  return "unknown";
+}
+
+SignatureCheck CheckAuditSignature(const json& document, const Ed25519PublicKey* given, const std::string& given_name) {
+  SignatureCheck check;
+  if (!document.is_object() || !document.contains("signature")) return check;
+  const json& signature = document["signature"];
+  check.shape = SignatureCheck::Shape::kUnknown;
+  if (!signature.is_object()) {
+    return Fails(check, "key 'signature' is a " + std::string(signature.type_name()) + ", expected an object");
+  }
+  if (signature.contains("signed") && signature["signed"] != json("seal")) {
+    return Fails(check, "key 'signature.signed' is " + Shown(signature["signed"]) +
+                            ": this tool signs the seal (\"seal\")");
+  }
+  const std::string seal = document.contains("seal") && document["seal"].is_string()
+                               ? document["seal"].get<std::string>()
+                               : std::string();
+  if (signature.contains("jws")) {
+    check.shape = SignatureCheck::Shape::kJws;
+    return CheckJwsSignature(signature, seal, given, given_name, check);
+  }
+  if (signature.contains("algorithm") && signature["algorithm"] == json("ed25519")) {
+    check.shape = SignatureCheck::Shape::kHex;
+    return CheckHexSignature(document, signature, seal, given, given_name, check);
+  }
+  return Fails(check, "key 'signature' is neither a JWS {signed, jws, jwk} nor an ed25519 signature "
+                      "{algorithm, public_key, value} of format_version 3 and earlier");
+}
 
 const char* ToString(VerifyReport::Check check) {
   switch (check) {

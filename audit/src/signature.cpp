@@ -2,6 +2,7 @@
 
 #include <cstdio>
 #include <memory>
+#include <utility>
 #include <vector>
 
 #include <openssl/err.h>
@@ -22,7 +23,7 @@ std::string OpenSslError() {
   return text;
 }
 
-std::vector<unsigned char> FromHex(std::string_view hex, const char* what) {
+std::vector<unsigned char> DecodeHex(std::string_view hex, const char* what) {
   auto value = [](char c) -> int {
     if (c >= '0' && c <= '9') return c - '0';
     if (c >= 'a' && c <= 'f') return c - 'a' + 10;
@@ -76,27 +77,34 @@ KeyPointer ReadPemKey(const std::filesystem::path& path, bool want_private) {
   }
   KeyPointer owned(key);
   if (EVP_PKEY_id(key) != EVP_PKEY_ED25519) {
-    throw InputError("key file '" + path.string() + "' is not an Ed25519 key");
+    // Name what the file holds, so that a user who passed an RSA or EC key sees why.
+    const char* type = EVP_PKEY_get0_type_name(key);
+    throw InputError("key file '" + path.string() + "' holds " +
+                     (type != nullptr ? std::string("an ") + type + " key" : std::string("a key")) +
+                     ", not an Ed25519 key (RFC 8032)");
   }
   return owned;
 }
 
-bool Verify(EVP_PKEY* key, std::string_view message, std::string_view signature_hex) {
-  std::vector<unsigned char> signature;
-  try {
-    signature = FromHex(signature_hex, "signature");
-  } catch (const InputError&) {
-    return false;
-  }
+bool VerifyBytes(EVP_PKEY* key, std::string_view message, const unsigned char* signature, std::size_t length) {
   EVP_MD_CTX* context = EVP_MD_CTX_new();
   if (context == nullptr) throw NumericalError("OpenSSL could not allocate a context");
   bool ok = EVP_DigestVerifyInit(context, nullptr, nullptr, nullptr, key) == 1 &&
-            EVP_DigestVerify(context, signature.data(), signature.size(),
+            EVP_DigestVerify(context, signature, length,
                              reinterpret_cast<const unsigned char*>(message.data()),
                              message.size()) == 1;
   EVP_MD_CTX_free(context);
   ERR_clear_error();
   return ok;
+}
+
+std::string RawPublicKey(EVP_PKEY* key, const std::string& what) {
+  unsigned char raw[32];
+  std::size_t length = sizeof raw;
+  if (EVP_PKEY_get_raw_public_key(key, raw, &length) != 1 || length != sizeof raw) {
+    throw InputError(what + ": cannot read its Ed25519 public key (" + OpenSslError() + ")");
+  }
+  return std::string(reinterpret_cast<const char*>(raw), length);
 }
 
 }  // namespace
@@ -106,7 +114,7 @@ Ed25519Signer Ed25519Signer::FromPemFile(const std::filesystem::path& path) {
 }
 
 Ed25519Signer Ed25519Signer::FromRawPrivateKeyHex(std::string_view hex) {
-  auto raw = FromHex(hex, "private key");
+  auto raw = DecodeHex(hex, "private key");
   EVP_PKEY* key = EVP_PKEY_new_raw_private_key(EVP_PKEY_ED25519, nullptr, raw.data(), raw.size());
   if (key == nullptr) throw InputError("not a 32-byte Ed25519 private key (" + OpenSslError() + ")");
   return Ed25519Signer(key);
@@ -127,7 +135,7 @@ Ed25519Signer& Ed25519Signer::operator=(Ed25519Signer&& other) noexcept {
 
 Ed25519Signer::~Ed25519Signer() { EVP_PKEY_free(static_cast<EVP_PKEY*>(key_)); }
 
-std::string Ed25519Signer::SignHex(std::string_view message) const {
+std::string Ed25519Signer::Sign(std::string_view message) const {
   EVP_MD_CTX* context = EVP_MD_CTX_new();
   if (context == nullptr) throw NumericalError("OpenSSL could not allocate a context");
   unsigned char signature[64];
@@ -139,40 +147,59 @@ std::string Ed25519Signer::SignHex(std::string_view message) const {
                            message.size()) == 1;
   EVP_MD_CTX_free(context);
   if (!ok) throw NumericalError("Ed25519 signing failed: " + OpenSslError());
-  return ToHexBytes(signature, length);
+  return std::string(reinterpret_cast<const char*>(signature), length);
 }
 
-std::string Ed25519Signer::PublicKeyHex() const {
-  unsigned char raw[32];
-  std::size_t length = sizeof raw;
-  if (EVP_PKEY_get_raw_public_key(static_cast<EVP_PKEY*>(key_), raw, &length) != 1) {
-    throw NumericalError("cannot read the Ed25519 public key: " + OpenSslError());
+std::string Ed25519Signer::SignHex(std::string_view message) const {
+  const std::string signature = Sign(message);
+  return ToHexBytes(reinterpret_cast<const unsigned char*>(signature.data()), signature.size());
+}
+
+Ed25519PublicKey Ed25519Signer::PublicKey() const {
+  return Ed25519PublicKey::FromRaw(RawPublicKey(static_cast<EVP_PKEY*>(key_), "the signing key"));
+}
+
+std::string Ed25519Signer::PublicKeyHex() const { return PublicKey().Hex(); }
+
+Ed25519PublicKey Ed25519PublicKey::FromRaw(std::string_view raw) {
+  if (raw.size() != 32) {
+    throw InputError("an Ed25519 public key has 32 bytes, not " + std::to_string(raw.size()));
   }
-  return ToHexBytes(raw, length);
+  return Ed25519PublicKey(std::string(raw));
 }
 
-std::string Ed25519PublicKeyHexFromPemFile(const std::filesystem::path& path) {
+Ed25519PublicKey Ed25519PublicKey::FromHex(std::string_view hex) {
+  const std::vector<unsigned char> bytes = DecodeHex(hex, "public key");
+  return FromRaw(std::string_view(reinterpret_cast<const char*>(bytes.data()), bytes.size()));
+}
+
+std::string Ed25519PublicKey::Hex() const {
+  return ToHexBytes(reinterpret_cast<const unsigned char*>(raw_.data()), raw_.size());
+}
+
+bool Ed25519PublicKey::Verifies(std::string_view message, std::string_view signature) const {
+  KeyPointer key(EVP_PKEY_new_raw_public_key(EVP_PKEY_ED25519, nullptr,
+                                             reinterpret_cast<const unsigned char*>(raw_.data()), raw_.size()));
+  if (!key) throw NumericalError("OpenSSL refused a 32-byte Ed25519 public key: " + OpenSslError());
+  return VerifyBytes(key.get(), message, reinterpret_cast<const unsigned char*>(signature.data()),
+                     signature.size());
+}
+
+Ed25519PublicKey Ed25519PublicKeyFromPemFile(const std::filesystem::path& path) {
   KeyPointer key = ReadPemKey(path, false);
-  unsigned char raw[32];
-  std::size_t length = sizeof raw;
-  if (EVP_PKEY_get_raw_public_key(key.get(), raw, &length) != 1) {
-    throw InputError("key file '" + path.string() + "': cannot read its Ed25519 public key (" + OpenSslError() + ")");
-  }
-  return ToHexBytes(raw, length);
-}
-
-bool VerifyEd25519WithPemFile(const std::filesystem::path& public_key_path,
-                              std::string_view message, std::string_view signature_hex) {
-  KeyPointer key = ReadPemKey(public_key_path, false);
-  return Verify(key.get(), message, signature_hex);
+  return Ed25519PublicKey::FromRaw(RawPublicKey(key.get(), "key file '" + path.string() + "'"));
 }
 
 bool VerifyEd25519WithRawKeyHex(std::string_view public_key_hex, std::string_view message,
                                 std::string_view signature_hex) {
-  auto raw = FromHex(public_key_hex, "public key");
-  KeyPointer key(EVP_PKEY_new_raw_public_key(EVP_PKEY_ED25519, nullptr, raw.data(), raw.size()));
-  if (!key) throw InputError("not a 32-byte Ed25519 public key");
-  return Verify(key.get(), message, signature_hex);
+  const Ed25519PublicKey key = Ed25519PublicKey::FromHex(public_key_hex);
+  std::vector<unsigned char> signature;
+  try {
+    signature = DecodeHex(signature_hex, "signature");
+  } catch (const InputError&) {
+    return false;  // a malformed signature is one that does not verify
+  }
+  return key.Verifies(message, std::string_view(reinterpret_cast<const char*>(signature.data()), signature.size()));
 }
 
 }  // namespace stepledger

@@ -113,7 +113,7 @@ void AddRerunCommand(CLI::App& app, CommandContext& context) {
   command->add_option("--out", args->out, "Output folder for the new audit.json and report.html")
       ->required()
       ->type_name("DIR");
-  command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the new audit")
+  command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) signing the new audit's seal (a JWS, EdDSA)")
       ->check(kExistingInputFile)
       ->type_name("FILE");
   AddCommonOptions(*command, context.common);

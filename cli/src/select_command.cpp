@@ -39,7 +39,7 @@ struct SelectArgs {
   std::string method;
   std::string criterion;
   std::string out_dir;
-  std::string sign_key;  ///< --sign-key: Ed25519 private key (PEM) signing the audit
+  std::string sign_key;  ///< --sign-key: Ed25519 private key (PEM) signing the audit's seal as a JWS
   int refinement_passes = 10;
 };
 
@@ -172,7 +172,7 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
                                          "Folder for audit.json and the reviewer's report report.html "
                                          "(written atomically)")
                          ->type_name("DIR");
-  command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) to sign the audit with")
+  command->add_option("--sign-key", args->sign_key, "Ed25519 private key (PEM) signing the audit's seal (a JWS, EdDSA)")
       ->check(kExistingInputFile)
       ->type_name("FILE")
       ->needs(out);

@@ -51,7 +51,7 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
       "verify",
       "Checks an audit file: the digest of every step (chained from the plan and the data), the "
       "digest of every other section, the seal over the whole document and, when present, the "
-      "Ed25519 signature; names the first step or key that does not match. With --data it also "
+      "signature (a JWS, EdDSA with Ed25519; RFC 7515, RFC 8037); names the first step or key that does not match. With --data it also "
       "checks the data's fingerprint and replays the recorded plan, comparing the route step by "
       "step (actions and terms exactly, numbers to 1e-9 relative). Exit 0 when everything holds, "
       "1 when anything differs, 2 when an input cannot be read.");
@@ -61,7 +61,8 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
                           ->check(kExistingInputFile)
                           ->type_name("DATA");
   command->add_option("--public-key", args->public_key,
-                      "Ed25519 public key (PEM) the signature must verify against")
+                      "Ed25519 public key the signature must verify against: PEM, or a JWK "
+                      "(kty OKP, crv Ed25519, x), told apart by the file's content")
       ->check(kExistingInputFile)
       ->type_name("FILE");
   // Writes no file; the replay reads the data with the audit's recorded delimiter.

@@ -9,6 +9,7 @@
 
 #include "report_internal.h"
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/number_format.h"
@@ -400,17 +401,13 @@ IntegrityFacts ReadIntegrity(const json& audit) {
       facts.seal_matches = false;
     }
   }
-  const json& signature = Get(audit, "signature");
-  facts.signed_document = signature.is_object();
+  // The same check as verify's without --public-key: against the key the audit records.
+  const SignatureCheck check = CheckAuditSignature(audit);
+  facts.signed_document = check.shape != SignatureCheck::Shape::kAbsent;
   if (facts.signed_document) {
-    facts.signature_algorithm = Text(Get(signature, "algorithm"));
-    facts.public_key = Text(Get(signature, "public_key"));
-    try {
-      facts.signature_consistent = VerifyEd25519WithRawKeyHex(
-          facts.public_key, facts.seal, Text(Get(signature, "value")));
-    } catch (const std::exception&) {
-      facts.signature_consistent = false;
-    }
+    facts.signature_algorithm = check.Algorithm();
+    facts.public_key = check.key_label.empty() ? "unreadable key" : check.key_label;
+    facts.signature_consistent = check.holds;
   }
   const json& parent = Get(audit, "parent");
   facts.has_parent = !parent.is_null();

@@ -76,7 +76,7 @@ struct IntegrityFacts {
   std::optional<bool> seal_matches;      ///< recomputed over the document; nullopt without a seal
   bool signed_document = false;
   std::string signature_algorithm;
-  std::string public_key;
+  std::string public_key;  ///< how the audit names its key: "key thumbprint (RFC 7638) ..." or "public key HEX"
   std::optional<bool> signature_consistent;  ///< against its own embedded public key
   bool has_parent = false;
   std::string parent_seal;

@@ -298,7 +298,7 @@ ReportSection Integrity(const json& audit) {
   }
   std::string signature = "absent";
   if (facts.signed_document) {
-    signature = "present, " + facts.signature_algorithm + ", public key " + facts.public_key;
+    signature = "present, " + facts.signature_algorithm + ", " + facts.public_key;
     if (facts.signature_consistent) {
       signature += *facts.signature_consistent ? " (verifies against that key)" : " (DOES NOT verify against that key)";
     }

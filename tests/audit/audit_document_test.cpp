@@ -2,6 +2,7 @@
 // atomic writing. Data: the invented laptop stock of support/audit_test_data.h.
 
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/jws.h"
 
 #include <signal.h>
 #include <sys/resource.h>
@@ -163,7 +164,10 @@ TEST(AuditDocument, TheSchemaRejectsAnAuditMissingItsSeal) {
   EXPECT_NE(problems.find("format_version"), std::string::npos) << problems;
 }
 
-TEST(AuditDocument, SignatureSignsTheSealAndRecordsThePublicKey) {
+// The signature is a JWS with detached payload (RFC 7515 Appendix F) whose payload is the seal's
+// 64 hex characters; recomputed here from the documented recipe (README "Signature") rather
+// than through the verifier.
+TEST(AuditDocument, SignatureIsADetachedJwsOverTheSealText) {
   TempDir dir;
   const auto key = dir.path() / "key.pem";
   if (testing::RunCommand("openssl genpkey -algorithm ed25519 -out '" + key.string() + "' 2>/dev/null") != 0) {
@@ -174,10 +178,22 @@ TEST(AuditDocument, SignatureSignsTheSealAndRecordsThePublicKey) {
   output.sign_key = key;
   const json document = WriteAuditDocument(RunLaptops(dir), {}, output);
   ASSERT_TRUE(document.contains("signature"));
-  EXPECT_EQ(document["signature"]["algorithm"], "ed25519");
-  EXPECT_TRUE(VerifyEd25519WithPemFile(key, document["seal"].get<std::string>(),
-                                       document["signature"]["value"].get<std::string>()));
-  EXPECT_EQ(document["signature"]["public_key"], Ed25519Signer::FromPemFile(key).PublicKeyHex());
+  const Ed25519Signer signer = Ed25519Signer::FromPemFile(key);
+  const json& signature = document["signature"];
+  EXPECT_EQ(signature["signed"], "seal");
+  EXPECT_EQ(signature["jwk"], json({{"crv", "Ed25519"}, {"kty", "OKP"}, {"x", Base64UrlEncode(signer.PublicKey().raw())}}));
+  const std::string seal = document["seal"].get<std::string>();
+  ASSERT_EQ(seal.size(), 64u);
+  const std::string header = R"({"alg":"EdDSA","kid":")" + JwkThumbprint(signer.PublicKey()) + "\"}";
+  const std::string signing_input = Base64UrlEncode(header) + "." + Base64UrlEncode(seal);
+  const std::string jws = signature["jws"].get<std::string>();
+  // Ed25519 is deterministic (RFC 8032 §5.1.6): the same key and seal give this very text.
+  EXPECT_EQ(jws, Base64UrlEncode(header) + ".." + Base64UrlEncode(signer.Sign(signing_input)));
+  EXPECT_TRUE(signer.PublicKey().Verifies(signing_input, Base64UrlDecode(jws.substr(jws.rfind('.') + 1))));
+  // The signed audit follows the schema (Draft 2020-12, Debian python3-jsonschema).
+  const std::string problems = testing::ValidateAuditAgainstSchema(output.folder / "audit.json");
+  if (problems == "skip") GTEST_SKIP() << "python3-jsonschema is missing for " << testing::ReferencePython();
+  EXPECT_EQ(problems, "");
 }
 
 // --- Atomic writing: each failure gives a clear error and leaves the folder as it was. ---

@@ -5,12 +5,14 @@
 
 #include <algorithm>
 #include <cctype>
+#include <optional>
 
 #include <gtest/gtest.h>
 
 #include "stepledger/audit/audit_compare.h"
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/canonical_json.h"
+#include "stepledger/audit/jws.h"
 #include "stepledger/audit/replay.h"
 #include "stepledger/audit/signature.h"
 #include "stepledger/engine/errors.h"
@@ -155,37 +157,164 @@ TEST_F(AuditVerify, AKeyTheNormalisedPlanLacksComparesAtItsDefault) {
 }
 
 // The seal does not cover the signature: with --public-key the key recorded in the audit must
-// be the one given (a swapped key passed before), and the signature must sign the seal.
-TEST_F(AuditVerify, ASwappedPublicKeyDoesNotPassTheKeyCheck) {
-  const auto key = folder_->path() / "signer.pem";
-  if (testing::RunCommand("openssl genpkey -algorithm ed25519 -out '" + key.string() + "' 2>/dev/null") != 0) {
-    GTEST_SKIP() << "openssl cannot make an Ed25519 key here";
+// be the one given (a swapped key passed before), the signed header's kid must name it, and the
+// signature must sign the seal.
+class AuditSignature : public AuditVerify {
+ protected:
+  void SetUp() override {
+    key_ = folder_->path() / "signer.pem";
+    if (!std::filesystem::exists(key_) &&
+        testing::RunCommand("openssl genpkey -algorithm ed25519 -out '" + key_.string() + "' 2>/dev/null") != 0) {
+      GTEST_SKIP() << "openssl cannot make an Ed25519 key here";
+    }
+    signer_.emplace(Ed25519Signer::FromPemFile(key_));
+    signed_ = *sealed_;
+    SealAuditDocument(signed_, &*signer_);
   }
-  const Ed25519Signer signer = Ed25519Signer::FromPemFile(key);
-  json signed_audit = *sealed_;
-  SealAuditDocument(signed_audit, &signer);
-  EXPECT_TRUE(CheckAuditIntegrity(signed_audit, key).Holds()) << "control: the signed audit holds";
+  // RFC 8032 §7.1 TEST 1's key (RFC 8037 A.1's): a valid key of someone else.
+  static Ed25519Signer Other() {
+    return Ed25519Signer::FromRawPrivateKeyHex("9d61b19deffd5a60ba844af492ec2cc44449c5697b326919703bac031cae7f60");
+  }
+  static constexpr const char* kOtherThumbprint = "kPrK_qmxVWaYVA9wwBF6Iuo3vVzz7TxHCTwXBygrS4k";
+  std::string FirstProblemWithKey(const json& document) const {
+    const VerifyReport report = CheckAuditIntegrity(document, key_);
+    return report.problems.empty() ? std::string("(none)") : report.problems.front();
+  }
+  std::filesystem::path key_;
+  std::optional<Ed25519Signer> signer_;
+  json signed_;
+};
 
-  // RFC 8032 section 7.1, test 1's public key: a valid key of someone else.
-  const std::string other_key = "d75a980182b10ab7d54bfed3c964073a0ee172f3daa62325af021a68f707511a";
-  json swapped = signed_audit;
-  swapped["signature"]["public_key"] = other_key;
-  const VerifyReport with_key = CheckAuditIntegrity(swapped, key);
-  EXPECT_EQ(with_key.signature, Check::kFails);
-  ASSERT_FALSE(with_key.Holds());
-  EXPECT_EQ(with_key.problems.front().rfind("key 'signature.public_key' is \"d75a9801", 0), 0u) << with_key.problems.front();
-  // Without a key the signature is checked against the recorded one, which did not sign it.
-  EXPECT_EQ(FirstProblem(swapped), "signature does not verify against the key recorded in the audit");
-  // Upper-case hex of the right key is the same key.
-  json upper = signed_audit;
-  std::string text = upper["signature"]["public_key"].get<std::string>();
-  for (char& c : text) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
-  upper["signature"]["public_key"] = text;
-  EXPECT_EQ(CheckAuditIntegrity(upper, key).signature, Check::kHolds);
+TEST_F(AuditSignature, HoldsWithThePemOrTheJwkOfTheKeyAndWithout) {
+  EXPECT_TRUE(CheckAuditIntegrity(signed_, key_).Holds()) << CheckAuditIntegrity(signed_, key_).FullReport();
+  const auto jwk = folder_->Write("signer.jwk", Ed25519Jwk(signer_->PublicKey()).dump());
+  const VerifyReport with_jwk = CheckAuditIntegrity(signed_, jwk);
+  EXPECT_EQ(with_jwk.signature, Check::kHolds) << with_jwk.FullReport();
+  EXPECT_NE(with_jwk.FullReport().find("signature verified against the public key " + jwk.string()), std::string::npos);
+  const VerifyReport without = CheckAuditIntegrity(signed_);
+  EXPECT_EQ(without.signature, Check::kHolds);
+  EXPECT_NE(without.FullReport().find("give --public-key to check who signed"), std::string::npos);
+  const SignatureCheck check = CheckAuditSignature(signed_);
+  EXPECT_EQ(check.shape, SignatureCheck::Shape::kJws);
+  EXPECT_EQ(check.key_label, "key thumbprint (RFC 7638) " + JwkThumbprint(signer_->PublicKey()));
+}
 
-  json other_message = signed_audit;
+TEST_F(AuditSignature, ASwappedJwkIsCaughtWithAndWithoutTheKey) {
+  json swapped = signed_;
+  swapped["signature"]["jwk"] = Ed25519Jwk(Other().PublicKey());
+  EXPECT_EQ(FirstProblemWithKey(swapped).rfind(std::string("key 'signature.jwk' is the key with thumbprint ") +
+                                                   kOtherThumbprint + ", not the public key in " + key_.string(),
+                                               0),
+            0u)
+      << FirstProblemWithKey(swapped);
+  EXPECT_EQ(FirstProblem(swapped).rfind(std::string("key 'signature.jwk' has the thumbprint ") + kOtherThumbprint +
+                                            " (RFC 7638), not the protected header's kid",
+                                        0),
+            0u)
+      << FirstProblem(swapped);
+}
+
+TEST_F(AuditSignature, AnotherSignerIsNamedByTheKid) {
+  // An editor re-signs with their own key: the kid names their key, not the one given.
+  json resigned = signed_;
+  const Ed25519Signer other = Other();
+  SealAuditDocument(resigned, &other);
+  EXPECT_EQ(FirstProblemWithKey(resigned).rfind("key 'signature.jws': protected header 'kid' is \"kPrK_qmxVWaYVA9w...\", "
+                                                "not the thumbprint of the public key in " + key_.string(),
+                                                0),
+            0u)
+      << FirstProblemWithKey(resigned);
+  EXPECT_EQ(FirstProblem(resigned), "(none)") << "control: as a record it holds (what the note warns of)";
+  // ... and claims the signer's kid and key: the signature itself fails.
+  json lying = signed_;
+  const std::string header = AuditJwsProtectedHeader(signer_->PublicKey());
+  lying["signature"]["jws"] = SignDetachedJws(other, header, lying["seal"].get<std::string>());
+  EXPECT_EQ(FirstProblemWithKey(lying), "signature does not verify against the public key " + key_.string());
+  EXPECT_EQ(FirstProblem(lying), "signature does not verify against the key recorded in the audit");
+}
+
+TEST_F(AuditSignature, MalformedJwsAreDifferencesNamingTheKey) {
+  auto with_jws = [this](const std::string& jws) {
+    json document = signed_;
+    document["signature"]["jws"] = jws;
+    return FirstProblem(document);
+  };
+  const std::string jws = signed_["signature"]["jws"].get<std::string>();
+  const std::string encoded_header = jws.substr(0, jws.find('.'));
+  const std::string seal = signed_["seal"].get<std::string>();
+  EXPECT_EQ(with_jws(encoded_header + "." + Base64UrlEncode(seal) + jws.substr(jws.find('.') + 1))
+                .rfind("key 'signature.jws' carries a payload part", 0),
+            0u);
+  EXPECT_EQ(with_jws(Base64UrlEncode(R"({"alg":"none"})") + "..").rfind("key 'signature.jws': protected header 'alg' is \"none\"", 0),
+            0u);
+  EXPECT_EQ(with_jws(jws + "==").rfind("key 'signature.jws' has a signature part that is not base64url", 0), 0u);
+  EXPECT_EQ(with_jws("abc").rfind("key 'signature.jws' is not a JWS compact serialisation", 0), 0u);
+  const std::string with_crit = SignDetachedJws(
+      *signer_, R"({"alg":"EdDSA","b64":false,"crit":["b64"],"kid":")" + JwkThumbprint(signer_->PublicKey()) + "\"}", seal);
+  EXPECT_EQ(with_jws(with_crit).rfind("key 'signature.jws': protected header 'crit'", 0), 0u) << with_jws(with_crit);
+  // The header as written is what was signed: white space and another member order verify.
+  const std::string spaced = SignDetachedJws(
+      *signer_, "{ \"kid\": \"" + JwkThumbprint(signer_->PublicKey()) + "\", \"alg\": \"EdDSA\" }", seal);
+  EXPECT_EQ(with_jws(spaced), "(none)");
+  json other_message = signed_;
   other_message["signature"]["signed"] = "plan";
   EXPECT_EQ(FirstProblem(other_message).rfind("key 'signature.signed' is \"plan\"", 0), 0u) << FirstProblem(other_message);
+  json bad_jwk = signed_;
+  bad_jwk["signature"]["jwk"]["crv"] = "X25519";
+  EXPECT_EQ(FirstProblem(bad_jwk).rfind("key 'signature.jwk.crv' is \"X25519\", expected \"Ed25519\"", 0), 0u)
+      << FirstProblem(bad_jwk);
+  // A signature of neither shape, or of the wrong types, is named, never a crash.
+  json neither = signed_;
+  neither["signature"] = {{"algorithm", 5}, {"value", "00"}};
+  EXPECT_EQ(FirstProblem(neither).rfind("key 'signature' is neither a JWS {signed, jws, jwk}", 0), 0u) << FirstProblem(neither);
+  json number_jws = signed_;
+  number_jws["signature"]["jws"] = 7;
+  EXPECT_EQ(FirstProblem(number_jws), "key 'signature.jws' is a number, expected a JWS compact serialisation (RFC 7515 §7.1)");
+  json no_jwk = signed_;
+  no_jwk["signature"].erase("jwk");
+  EXPECT_EQ(FirstProblem(no_jwk).rfind("key 'signature.jwk' is missing", 0), 0u) << FirstProblem(no_jwk);
+  // An edit after signing is caught by the signature as well as by the seal.
+  json edited = signed_;
+  edited["model"]["rss"] = 1.0;
+  SealAuditDocument(edited);
+  edited["signature"] = signed_["signature"];
+  EXPECT_EQ(CheckAuditIntegrity(edited, key_).signature, Check::kFails);
+}
+
+TEST_F(AuditSignature, TheShapeOfVersionThreeIsRefusedInVersionFour) {
+  json old_shape = signed_;
+  const std::string seal = old_shape["seal"].get<std::string>();
+  old_shape["signature"] = {{"algorithm", "ed25519"}, {"public_key", signer_->PublicKeyHex()}, {"signed", "seal"},
+                            {"value", signer_->SignHex(seal)}};
+  EXPECT_EQ(FirstProblemWithKey(old_shape).rfind("key 'signature' has the shape of format_version 3 and earlier", 0), 0u)
+      << FirstProblemWithKey(old_shape);
+  // Control: the same signature in an audit of format_version 3 verifies (the seal recomputed
+  // over the old version number, as that build would have written it).
+  json version_three = *sealed_;
+  version_three["format_version"] = 3;
+  SealAuditDocument(version_three);
+  const std::string old_seal = version_three["seal"].get<std::string>();
+  version_three["signature"] = {{"algorithm", "ed25519"}, {"public_key", signer_->PublicKeyHex()},
+                                {"signed", "seal"}, {"value", signer_->SignHex(old_seal)}};
+  EXPECT_EQ(CheckAuditIntegrity(version_three, key_).signature, Check::kHolds)
+      << CheckAuditIntegrity(version_three, key_).FullReport();
+  // Upper-case hex of the right key is the same key.
+  std::string text = version_three["signature"]["public_key"].get<std::string>();
+  for (char& c : text) c = static_cast<char>(std::toupper(static_cast<unsigned char>(c)));
+  version_three["signature"]["public_key"] = text;
+  EXPECT_EQ(CheckAuditIntegrity(version_three, key_).signature, Check::kHolds);
+}
+
+TEST_F(AuditSignature, AKeyFileThatCannotBeUsedIsBadInput) {
+  const auto rsa = folder_->Write("rsa.jwk", R"({"kty": "RSA", "n": "AQAB", "e": "AQAB"})");
+  EXPECT_THROW(CheckAuditIntegrity(signed_, rsa), InputError);
+  const auto hex = folder_->Write("key.hex", signer_->PublicKeyHex() + "\n");
+  try {
+    CheckAuditIntegrity(signed_, hex);
+    FAIL() << "expected InputError";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("is neither PEM"), std::string::npos) << error.what();
+  }
 }
 
 // The recorded settings are honoured on replay: each is type- and range-checked, and the thread

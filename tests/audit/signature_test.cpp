@@ -45,10 +45,11 @@ TEST(Ed25519, PemKeysFromOpenSsl) {
     GTEST_SKIP() << "the openssl command is not available to make test keys";
   }
   auto signer = Ed25519Signer::FromPemFile(key);
-  std::string signature = signer.SignHex("message");
-  EXPECT_TRUE(VerifyEd25519WithPemFile(pub, "message", signature));
-  EXPECT_TRUE(VerifyEd25519WithPemFile(key, "message", signature));  // private file accepted
-  EXPECT_FALSE(VerifyEd25519WithPemFile(other, "message", signature));  // wrong key
+  const std::string signature = signer.Sign("message");
+  EXPECT_TRUE(Ed25519PublicKeyFromPemFile(pub).Verifies("message", signature));
+  EXPECT_TRUE(Ed25519PublicKeyFromPemFile(key).Verifies("message", signature));  // private file accepted
+  EXPECT_FALSE(Ed25519PublicKeyFromPemFile(other).Verifies("message", signature));  // wrong key
+  EXPECT_FALSE(Ed25519PublicKeyFromPemFile(pub).Verifies("message", signature.substr(1)));  // not 64 bytes
 }
 
 TEST(Ed25519, UnusableKeyFilesNameTheFile) {

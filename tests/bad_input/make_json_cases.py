@@ -4,7 +4,8 @@
 The audit cases need real audits: this script runs the built stepledger on a small invented data
 set (laptop listings) to make a base audit and a signed one, then writes each hostile variant —
 truncated, edited, reordered, duplicated, re-sealed with the documented unkeyed algorithm
-(audit/include/stepledger/audit/audit_document.h), re-signed — into its case file. Rerun it after
+(audit/include/stepledger/audit/audit_document.h), re-signed (a JWS with detached payload over
+the seal, audit/include/stepledger/audit/jws.h) — into its case file. Rerun it after
 a change to the audit format or to what a run records, and review the diff:
 
     python3 tests/bad_input/make_json_cases.py build/cli/stepledger
@@ -16,6 +17,7 @@ records changed; the script checks that the tool verifies the base audit (with i
 signed one (with its key) before it writes anything.
 """
 
+import base64
 import hashlib
 import json
 import os
@@ -133,33 +135,62 @@ def run(binary, args, cwd):
     return result
 
 
-def make_key(folder, name, seed_text):
-    """An Ed25519 key from a fixed seed (PKCS #8, RFC 8410), so that the cases do not change when
-    regenerated: (private PEM, public PEM, raw public key hex)."""
+def b64url(data):
+    """RFC 7515 §2: base64url without padding."""
+    return base64.urlsafe_b64encode(data).rstrip(b"=").decode("ascii")
+
+
+def make_key(folder, name, seed_text, algorithm_prefix="302e020100300506032b657004220420"):
+    """A key from a fixed seed (PKCS #8, RFC 8410; Ed25519 unless another algorithm's prefix is
+    given), so that the cases do not change when regenerated: (private PEM, public PEM, public
+    key as a JWK {crv, kty, x})."""
     seed = hashlib.sha256(seed_text.encode()).digest()
     der = os.path.join(folder, name + ".der")
     with open(der, "wb") as out:
-        out.write(bytes.fromhex("302e020100300506032b657004220420") + seed)
+        out.write(bytes.fromhex(algorithm_prefix) + seed)
     pem = os.path.join(folder, name + ".pem")
     subprocess.run(["openssl", "pkey", "-inform", "DER", "-in", der, "-out", pem], check=True, capture_output=True)
     public = subprocess.run(["openssl", "pkey", "-in", pem, "-pubout"], check=True, capture_output=True, text=True).stdout
     raw = subprocess.run(["openssl", "pkey", "-in", pem, "-pubout", "-outform", "DER"], check=True,
-                         capture_output=True).stdout[-32:].hex()
+                         capture_output=True).stdout[-32:]
     with open(pem) as private:
-        return private.read(), public, raw
+        return private.read(), public, {"crv": "Ed25519", "kty": "OKP", "x": b64url(raw)}
 
 
-def sign(document, private_pem, public_raw):
-    """Adds the signature as SealAuditDocument does: Ed25519 over the seal's hex text."""
+def thumbprint(jwk):
+    """RFC 7638: SHA-256 of the required members, sorted, no white space, in base64url."""
+    members = '{"crv":"%s","kty":"%s","x":"%s"}' % (jwk["crv"], jwk["kty"], jwk["x"])
+    return b64url(hashlib.sha256(members.encode("utf-8")).digest())
+
+
+def ed25519(private_pem, message):
     with tempfile.TemporaryDirectory() as work:
         key = os.path.join(work, "key.pem")
         with open(key, "w") as out:
             out.write(private_pem)
-        seal = os.path.join(work, "seal")
-        with open(seal, "w") as out:
-            out.write(document["seal"])
-        value = subprocess.run(["openssl", "pkeyutl", "-sign", "-inkey", key, "-rawin", "-in", seal],
-                               capture_output=True, check=True).stdout.hex()
+        data = os.path.join(work, "message")
+        with open(data, "wb") as out:
+            out.write(message)
+        return subprocess.run(["openssl", "pkeyutl", "-sign", "-inkey", key, "-rawin", "-in", data],
+                              capture_output=True, check=True).stdout
+
+
+def sign(document, private_pem, jwk, header=None):
+    """Adds the signature as SealAuditDocument does: a JWS with detached payload (RFC 7515
+    Appendix F), EdDSA, protected header {"alg":"EdDSA","kid":THUMBPRINT}, payload the seal's hex
+    text; the public key as a JWK. header: another protected header text (hostile cases)."""
+    header = header if header is not None else '{"alg":"EdDSA","kid":"%s"}' % thumbprint(jwk)
+    signing_input = b64url(header.encode("utf-8")) + "." + b64url(document["seal"].encode("ascii"))
+    signature = ed25519(private_pem, signing_input.encode("ascii"))
+    document["signature"] = {"jwk": dict(jwk), "jws": b64url(header.encode("utf-8")) + ".." + b64url(signature),
+                             "signed": "seal"}
+    return document
+
+
+def sign_in_version_3_shape(document, private_pem, jwk):
+    """The signature of format_version 3 and earlier: Ed25519 over the seal's hex text, in hex."""
+    value = ed25519(private_pem, document["seal"].encode("ascii")).hex()
+    public_raw = base64.urlsafe_b64decode(jwk["x"] + "=").hex()
     document["signature"] = {"algorithm": "ed25519", "public_key": public_raw, "signed": "seal", "value": value}
     return document
 
@@ -209,12 +240,15 @@ def main():
             out.write(data)
         with open(os.path.join(work, "plan.json"), "w") as out:
             out.write(plan_text)
-        signer_private, signer_public, signer_raw = make_key(work, "signer", "stepledger corpus: the signer")
-        other_private, other_public, other_raw = make_key(work, "other", "stepledger corpus: someone else")
+        signer_private, signer_public, signer_jwk = make_key(work, "signer", "stepledger corpus: the signer")
+        other_private, other_public, other_jwk = make_key(work, "other", "stepledger corpus: someone else")
+        # A key of another type (X25519, RFC 8410's OID 1.3.101.110) from a fixed seed.
+        _, x25519_public, _ = make_key(work, "x25519", "stepledger corpus: not a signing key",
+                                       "302e020100300506032b656e04220420")
         run(binary, ["select", "data.csv", "--plan", "plan.json", "--out", "base", "--quiet"], work)
         with open(os.path.join(work, "base", "audit.json")) as audit:
             base = fixed(json.loads(audit.read()))
-        signed = sign(copy_of(base), signer_private, signer_raw)
+        signed = sign(copy_of(base), signer_private, signer_jwk)
         # The tool must accept both as they are: the base with its data, the signed one with its key.
         with open(os.path.join(work, "base.json"), "w") as out:
             out.write(json.dumps(base, indent=2, sort_keys=True) + "\n")
@@ -224,6 +258,9 @@ def main():
             out.write(signer_public)
         run(binary, ["verify", "base.json", "--data", "data.csv"], work)
         run(binary, ["verify", "signed.json", "--public-key", "signer.pub"], work)
+        with open(os.path.join(work, "signer.jwk"), "w") as out:
+            out.write(json.dumps(signer_jwk) + "\n")
+        run(binary, ["verify", "signed.json", "--public-key", "signer.jwk"], work)
     base_text = json.dumps(base, indent=2, sort_keys=True) + "\n"
     fixture = "tests/bad_input/fixtures/json_cases_base_audit.json.txt"
     os.makedirs(os.path.join(HERE, "fixtures"), exist_ok=True)
@@ -327,7 +364,7 @@ def main():
         args = ["report", "audit.json"] if command == "report" else ["predict", "audit.json", "rows.csv"]
         audit_cases["resealed_format_version_2_64_" + command] = audit_case(
             "format_version 2^64 - 1, re-sealed: not read as -1 by " + command, "11.8 integers range-checked", args, 2,
-            ["key 'format_version': 18446744073709551615 is newer than this tool reads (4)"], version,
+            ["key 'format_version': 18446744073709551615 is newer than this tool reads (%d)" % base["format_version"]], version,
             {"rows.csv": TO_PRICE} if command == "predict" else None)
 
     threads = copy_of(base)
@@ -398,28 +435,104 @@ def main():
 
     # re-signed: the recorded public key swapped for another (the signature is still the signer's).
     swapped = copy_of(signed)
-    swapped["signature"]["public_key"] = other_raw
+    swapped["signature"]["jwk"] = dict(other_jwk)
     audit_cases["swapped_public_key_with_key"] = audit_case(
-        "signature.public_key swapped for another key's, the signature left as the signer made it: with the "
-        "signer's --public-key it no longer passes (the recorded key was never checked)", "11.8 public key covered",
-        ["verify", "audit.json", "--public-key", "signer.pub"], 1, ["key 'signature.public_key' is \"" + other_raw[:16]],
-        swapped, {"signer.pub": signer_public})
+        "signature.jwk swapped for another key's, the signature left as the signer made it: with the "
+        "signer's --public-key it no longer passes (neither seal nor JWS covers the recorded key)",
+        "11.8 public key covered", ["verify", "audit.json", "--public-key", "signer.pub"], 1,
+        ["key 'signature.jwk' is the key with thumbprint " + thumbprint(other_jwk)], swapped,
+        {"signer.pub": signer_public})
     audit_cases["swapped_public_key_without_key"] = audit_case(
-        "the same swap without --public-key: the signature does not verify against the recorded key",
+        "the same swap without --public-key: the recorded key is not the one the signed header's kid names",
         "11.8 public key covered", ["verify", "audit.json"], 1,
-        ["signature does not verify against the key recorded in the audit"], swapped)
+        ["key 'signature.jwk' has the thumbprint " + thumbprint(other_jwk) + " (RFC 7638), not the protected "
+         "header's kid"], swapped)
     resigned = copy_of(signed)
     resigned["model"]["coefficients"][1]["estimate"] += 5.0
     reseal(resigned)
     # Re-signed by someone else: an editor with their own key signs the recomputed seal.
-    sign(resigned, other_private, other_raw)
+    sign(resigned, other_private, other_jwk)
     audit_cases["resigned_by_another_key"] = audit_case(
         "a coefficient edited, re-sealed and re-signed with another key: the signer's public key exposes it",
         "11 audits re-signed", ["verify", "audit.json", "--public-key", "signer.pub"], 1,
-        ["signature does not verify against the public key signer.pub"], resigned, {"signer.pub": signer_public})
+        ["protected header 'kid' is \"" + thumbprint(other_jwk)[:16] + "...\", not the thumbprint of the public "
+         "key in signer.pub (" + thumbprint(signer_jwk) + "): another key signed the audit"],
+        resigned, {"signer.pub": signer_public})
     audit_cases["resigned_by_another_key_control"] = audit_case(
         "control for the case above: without --public-key the re-signed file holds as a record (what the note warns of)",
         "11 audits re-signed", ["verify", "audit.json"], 0, [], resigned)
+    # Re-signed by someone else who names the signer's key in kid: the signature itself fails.
+    lying = copy_of(resigned)
+    sign(lying, other_private, signer_jwk)
+    audit_cases["resigned_naming_the_signers_key"] = audit_case(
+        "re-signed with another key whose JWS names the signer's key (kid and jwk): the signature does not "
+        "verify against the signer's public key", "11 audits re-signed",
+        ["verify", "audit.json", "--public-key", "signer.pub"], 1,
+        ["signature does not verify against the public key signer.pub"], lying, {"signer.pub": signer_public})
+    # The signer's own key, with a kid naming someone else: the signed header says another key.
+    wrong_kid = sign(copy_of(base), signer_private, signer_jwk,
+                     '{"alg":"EdDSA","kid":"%s"}' % thumbprint(other_jwk))
+    audit_cases["kid_not_the_signing_key"] = audit_case(
+        "a JWS by the signer whose protected header's kid is another key's thumbprint: refused with the kid "
+        "and the key's thumbprint", "JWS signature",
+        ["verify", "audit.json", "--public-key", "signer.pub"], 1,
+        ["key 'signature.jws': protected header 'kid' is \"" + thumbprint(other_jwk)[:16] + "...\", not the "
+         "thumbprint of the public key in signer.pub (" + thumbprint(signer_jwk) + ")"],
+        wrong_kid, {"signer.pub": signer_public})
+    alg_none = copy_of(signed)
+    alg_none["signature"]["jws"] = b64url(('{"alg":"none","kid":"%s"}' % thumbprint(signer_jwk)).encode()) + ".."
+    audit_cases["jws_alg_none"] = audit_case(
+        "an unsecured JWS (alg none, no signature): refused, naming the algorithm", "JWS signature",
+        ["verify", "audit.json"], 1, ["key 'signature.jws': protected header 'alg' is \"none\""], alg_none)
+    attached = copy_of(signed)
+    header_part, _, signature_part = attached["signature"]["jws"].split(".")
+    attached["signature"]["jws"] = header_part + "." + b64url(base["seal"].encode("ascii")) + "." + signature_part
+    audit_cases["jws_with_payload_attached"] = audit_case(
+        "the JWS with its payload part filled in: the audit's JWS has it detached, so it is refused",
+        "JWS signature", ["verify", "audit.json", "--public-key", "signer.pub"], 1,
+        ["key 'signature.jws' carries a payload part"], attached, {"signer.pub": signer_public})
+    padded = copy_of(signed)
+    padded["signature"]["jws"] += "=="
+    audit_cases["jws_signature_padded"] = audit_case(
+        "base64 padding on the JWS signature part: not base64url (RFC 7515 §2), named", "JWS signature",
+        ["verify", "audit.json"], 1,
+        ["key 'signature.jws' has a signature part that is not base64url without padding (RFC 7515 §2): '='"],
+        padded)
+    old_shape = sign_in_version_3_shape(copy_of(base), signer_private, signer_jwk)
+    audit_cases["version_3_signature_in_version_4"] = audit_case(
+        "a signature in the shape of format_version 3 in an audit of format_version 4: refused, naming both",
+        "JWS signature", ["verify", "audit.json", "--public-key", "signer.pub"], 1,
+        ["key 'signature' has the shape of format_version 3 and earlier"], old_shape, {"signer.pub": signer_public})
+    # --public-key: a JWK, told from PEM by its content; what is wrong in it is named (exit 2).
+    audit_cases["public_key_jwk"] = audit_case(
+        "control: the signer's public key as a JWK file verifies the signed audit", "JWS signature",
+        ["verify", "audit.json", "--public-key", "signer.jwk"], 0, [], signed,
+        {"signer.jwk": json.dumps(signer_jwk) + "\n"})
+    for name, edit, expected in [
+        ("kty_rsa", {"kty": "RSA"}, "key file 'signer.jwk': key 'kty' is \"RSA\", expected \"OKP\""),
+        ("crv_x25519", {"crv": "X25519"}, "key file 'signer.jwk': key 'crv' is \"X25519\", expected \"Ed25519\""),
+        ("x_padded", {"x": signer_jwk["x"] + "="},
+         "key file 'signer.jwk': key 'x' is not base64url without padding (RFC 7515 §2): '=' at character 44"),
+        ("x_standard_base64", {"x": "+" + signer_jwk["x"][1:]},
+         "key file 'signer.jwk': key 'x' is not base64url without padding (RFC 7515 §2): '+' at character 1"),
+        ("x_short", {"x": signer_jwk["x"][:40]}, "key file 'signer.jwk': key 'x' decodes to 30 bytes"),
+    ]:
+        bad_jwk = dict(signer_jwk)
+        bad_jwk.update(edit)
+        audit_cases["public_key_jwk_" + name] = audit_case(
+            "--public-key a JWK with " + json.dumps(edit) + ": exit 2 naming the file and the member", "JWS signature",
+            ["verify", "audit.json", "--public-key", "signer.jwk"], 2, [expected], signed,
+            {"signer.jwk": json.dumps(bad_jwk) + "\n"}, stderr_lines=1)
+    audit_cases["public_key_pem_x25519"] = audit_case(
+        "--public-key a PEM key of another type (X25519): exit 2 naming the file and the type", "JWS signature",
+        ["verify", "audit.json", "--public-key", "other.pub"], 2,
+        ["key file 'other.pub' holds an X25519 key, not an Ed25519 key"], signed, {"other.pub": x25519_public},
+        stderr_lines=1)
+    audit_cases["public_key_neither_pem_nor_jwk"] = audit_case(
+        "--public-key a file of hex digits: exit 2 saying the file is neither PEM nor a JWK", "JWS signature",
+        ["verify", "audit.json", "--public-key", "key.hex"], 2,
+        ["key file 'key.hex' is neither PEM (-----BEGIN ...) nor a JWK"], signed,
+        {"key.hex": base64.urlsafe_b64decode(signer_jwk["x"] + "=").hex() + "\n"}, stderr_lines=1)
 
     for name, case in audit_cases.items():
         write_case("audit", name, case)

@@ -136,6 +136,11 @@ TEST_F(RerunCommand, SignsWithTheGivenKey) {
             0);
   const auto run = RunStepledger({"verify", (out / "audit.json").string(), "--public-key", public_key.string()});
   EXPECT_EQ(run.status, 0) << run.out << run.err;
+  // The new audit's signature is the JWS of format_version 4, with the key as a JWK.
+  const nlohmann::json written = testing::ReadJsonFile(out / "audit.json");
+  EXPECT_EQ(written["format_version"], kAuditFormatVersion);
+  EXPECT_TRUE(written["signature"]["jws"].is_string()) << written["signature"].dump();
+  EXPECT_EQ(written["signature"]["jwk"]["kty"], "OKP");
 }
 
 }  // namespace

@@ -7,6 +7,7 @@
 #include <vector>
 
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/jws.h"
 #include "support/audit_test_data.h"
 #include "support/cli_run.h"
 #include "support/test_paths.h"
@@ -108,7 +109,25 @@ TEST_F(VerifyCommand, SignaturesAreCheckedAgainstTheGivenPublicKey) {
 
   run = RunStepledger({"verify", signed_audit.string(), "--public-key", other_public.string()});
   EXPECT_EQ(run.status, 1) << run.out;
-  EXPECT_NE(run.err.find("signature does not verify against the public key"), std::string::npos) << run.err;
+  // The signed header's kid names the signer's key, not the one given.
+  EXPECT_NE(run.err.find("protected header 'kid' is"), std::string::npos) << run.err;
+  EXPECT_NE(run.err.find("another key signed the audit"), std::string::npos) << run.err;
+
+  // The same public key as a JWK file (told from PEM by its content); a JWK of another curve is
+  // bad input naming the file and the member.
+  const auto jwk = dir_.path() / "key.jwk";
+  testing::WriteJsonFile(jwk, Ed25519Jwk(Ed25519PublicKeyFromPemFile(public_key)));
+  run = RunStepledger({"verify", signed_audit.string(), "--public-key", jwk.string()});
+  EXPECT_EQ(run.status, 0) << run.out << run.err;
+  EXPECT_NE(run.out.find("signature: holds"), std::string::npos) << run.out;
+  json x25519 = Ed25519Jwk(Ed25519PublicKeyFromPemFile(public_key));
+  x25519["crv"] = "X25519";
+  testing::WriteJsonFile(jwk, x25519);
+  run = RunStepledger({"verify", signed_audit.string(), "--public-key", jwk.string()});
+  EXPECT_EQ(run.status, 2) << run.out << run.err;
+  EXPECT_NE(run.err.find("key file '" + jwk.string() + "': key 'crv' is \"X25519\", expected \"Ed25519\""),
+            std::string::npos)
+      << run.err;
 
   // Without --public-key the recorded key is used, and the output says what that does not prove.
   run = RunStepledger({"verify", signed_audit.string()});

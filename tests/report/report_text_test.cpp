@@ -6,6 +6,8 @@
 #include <sstream>
 #include <string>
 
+#include "stepledger/audit/audit_document.h"
+#include "stepledger/audit/signature.h"
 #include "stepledger/audit/validation_json.h"
 #include "stepledger/engine/number_format.h"
 #include "stepledger/report/report.h"
@@ -62,6 +64,28 @@ TEST(TextReport, ListsEveryStepWithItsRuleAndEveryCaution) {
   EXPECT_EQ(Fact(text, "Rows diagnosed"), "200");
   // 4/n with n = 200 (the rule, common practice), printed as every quantity is.
   EXPECT_NE(text.find("Cook's distance above 4/n = " + FormatQuantity(0.02, 3) + ","), std::string::npos) << text;
+}
+
+// The integrity block names the signature's standard and key, and checks it as verify does
+// without --public-key (against the key the audit records).
+TEST(TextReport, ShowsTheJwsSignatureAndItsKeyThumbprint) {
+  testing::TempDir folder;
+  auto made = testing::MakeReportAudit(folder, "signed", testing::LaptopCsv(), testing::HierarchyLaptopPlan());
+  // RFC 8032 §7.1 TEST 1's key (RFC 8037 Appendix A.1's), whose RFC 7638 thumbprint RFC 8037 A.3 gives.
+  const Ed25519Signer signer =
+      Ed25519Signer::FromRawPrivateKeyHex("9d61b19deffd5a60ba844af492ec2cc44449c5697b326919703bac031cae7f60");
+  json document = made.audit;
+  SealAuditDocument(document, &signer);
+  EXPECT_EQ(Fact(RenderTextReport(document, nullptr), "Signature"),
+            "present, JWS EdDSA (Ed25519; RFC 7515, RFC 8037), key thumbprint (RFC 7638) "
+            "kPrK_qmxVWaYVA9wwBF6Iuo3vVzz7TxHCTwXBygrS4k (verifies against that key)");
+  // Re-signed over another seal: the report says it does not verify.
+  json edited = document;
+  edited["model"]["rss"] = 1.0;
+  SealAuditDocument(edited);
+  edited["signature"] = document["signature"];
+  EXPECT_NE(Fact(RenderTextReport(edited, nullptr), "Signature").find("(DOES NOT verify against that key)"),
+            std::string::npos);
 }
 
 TEST(TextReport, WithoutDiagnosticsSaysHowAndIsDeterministic) {

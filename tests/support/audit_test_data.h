@@ -118,7 +118,7 @@ inline std::string ValidateAuditAgainstSchema(const std::filesystem::path& audit
       "schema=json.load(open(sys.argv[1])); doc=json.load(open(sys.argv[2]))\n"
       "v=jsonschema.Draft202012Validator(schema)\n"
       "errors=sorted(v.iter_errors(doc), key=lambda e: list(e.path))\n"
-      "for e in errors[:5]: print('/'.join(str(p) for p in e.path)+': '+e.message[:200])\n"
+      "for e in errors[:20]: print('/'.join(str(p) for p in e.path)+': '+e.message[:200])\n"
       "sys.exit(1 if errors else 0)\n";
   TempDir scratch;
   const auto script_path = scratch.Write("validate.py", script);

@@ -2,8 +2,8 @@
 // The audit file (CONTRACT.md `audit.json`, DESIGN.md §6): one run of a plan on a data file,
 // recorded so that a reviewer can see every step, prove that nothing was edited, and replay it.
 //
-// Shape (format "stepledger-audit", format_version 3; audit/schema/audit.schema.json; audits of
-// format_version 1 and 2 still verify and are read through AuditInCurrentShape,
+// Shape (format "stepledger-audit", format_version 4; audit/schema/audit.schema.json; audits of
+// format_version 1 to 3 still verify and are read through AuditInCurrentShape,
 // audit/audit_format_versions.h):
 //   format, format_version, tool {name, version, commit, build {compiler, blas, build_type}},
 //   created_at, duration_seconds,                         <- the only fields that record time
@@ -20,7 +20,14 @@
 //                    per other top-level section x but the time fields}: they let `verify` name
 //                    the section edited;
 //   seal           = H(Canonical(document without "seal" and "signature"));
-//   signature      = Ed25519 over the seal's hex text: {algorithm, public_key, value}.
+//   signature      = {signed: "seal", jws, jwk}: jws is a JWS (RFC 7515) in compact serialisation
+//                    with detached payload (Appendix F: "HEADER..SIGNATURE"), alg EdDSA over
+//                    Ed25519 (RFC 8037), protected header exactly {"alg":"EdDSA","kid":K} with K
+//                    the RFC 7638 thumbprint of the key; the payload is the seal's text as
+//                    written, its 64 lower-case hex ASCII characters; jwk is the public key
+//                    {crv: "Ed25519", kty: "OKP", x} (audit/jws.h). Format_version 3 and
+//                    earlier: Ed25519 over the same 64 characters, {algorithm: "ed25519",
+//                    public_key, signed, value} in hex.
 // Digests and the seal are unkeyed: they catch accidental and casual edits, not someone who
 // recomputes them. Only a signature (or a seal kept elsewhere) shows who produced the file.
 //
@@ -59,7 +66,10 @@ inline constexpr std::string_view kAuditFormat = "stepledger-audit";
 /// 3: the validation section (cross-validation, holdout, bootstrap); plan.normalised holds
 /// holdout and bootstrap, and the seed's default is 1 (2 recorded 20261201, a seed that then did
 /// nothing).
-/// 4: plan.normalised holds subset_tolerance; the search section records the all-subsets
+/// 4: the signature is a JWS with detached payload and the public key a JWK ({signed, jws, jwk});
+/// 1 to 3 recorded {algorithm: "ed25519", public_key, signed, value} in hex. What is signed is
+/// unchanged: the seal's 64 hex characters (inside the JWS signing input from 4 on). Also
+/// plan.normalised holds subset_tolerance, and the search section records the all-subsets
 /// search's nodes, its tolerance and the guarantee of its list (subset_nodes, subset_tolerance,
 /// subset_guarantee).
 inline constexpr int kAuditFormatVersion = 4;
@@ -118,7 +128,7 @@ struct AuditOutputOptions {
   std::filesystem::path folder;
   /// Replace an existing audit.json (--force). Default: refuse, naming the file.
   bool overwrite = false;
-  /// Ed25519 private key (PEM) to sign the seal with (--sign-key); empty: no signature.
+  /// Ed25519 private key (PEM) to sign the seal with (--sign-key), as a JWS; empty: no signature.
   std::filesystem::path sign_key;
 };
 

@@ -29,6 +29,12 @@
 //     search                 gains "subset_nodes" (all-subsets: null, not recorded; else 0),
 //                            "subset_tolerance": 0 and "subset_guarantee" (the exact guarantee for
 //                            all-subsets, else null)
+//     signature              {algorithm: "ed25519", public_key, signed, value} (hex)  ->
+//                            {signed, jws, jwk} (a JWS with detached payload, a JWK). Nothing
+//                            to translate: the signature is an integrity field, checked as
+//                            recorded (CheckAuditSignature reads both shapes, the old one only
+//                            in an audit of format_version 3 or earlier); an old signature
+//                            cannot be rewritten as a JWS without the private key.
 // A change to the format adds its step here and raises kAuditFormatVersion.
 
 #include <nlohmann/json.hpp>

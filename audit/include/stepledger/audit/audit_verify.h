@@ -36,8 +36,9 @@ inline constexpr const char* kHowToCheckData =
     "give --data FILE, the data the audit was made from, to check its fingerprint and replay the plan";
 
 struct VerifyOptions {
-  /// Ed25519 public key (PEM) the signature must verify against; empty: the signature, when
-  /// present, is checked against the key recorded in the audit (integrity only, not identity).
+  /// Ed25519 public key file the signature must verify against, PEM or a JWK (audit/jws.h,
+  /// ReadEd25519PublicKeyFile); empty: the signature, when present, is checked against the key
+  /// recorded in the audit (integrity only, not identity).
   std::filesystem::path public_key;
   /// Data file to fingerprint and replay on; empty: no replay.
   std::filesystem::path data;
@@ -85,11 +86,38 @@ struct VerifyReport {
 };
 const char* ToString(VerifyReport::Check check);
 
+/// The audit's `signature` checked on its own (verify and the report share it).
+/// Format_version 4 on: {signed: "seal", jws, jwk}, a JWS with detached payload whose payload
+/// is the seal's 64-character hex text (audit/jws.h); its protected header's `kid` must be the
+/// RFC 7638 thumbprint of the key that verifies it and of `jwk`. Format_versions 1 to 3:
+/// {algorithm: "ed25519", public_key, signed: "seal", value}, Ed25519 over the seal's hex text,
+/// key and signature in hex; refused in an audit of format_version 4 or later.
+struct SignatureCheck {
+  enum class Shape { kAbsent, kJws, kHex, kUnknown };
+  Shape shape = Shape::kAbsent;
+  /// Whether the signature verifies (against the given key, else the recorded one) and every
+  /// name of the key in the audit is that key.
+  bool holds = false;
+  /// Why it does not hold, naming the key ("key 'signature.jws': protected header 'kid' is ...").
+  std::string problem;
+  /// What a holding signature proves, for verify's notes.
+  std::string note;
+  /// How the audit names its signing key: "key thumbprint (RFC 7638) XYZ" or "public key HEX".
+  std::string key_label;
+  /// "JWS EdDSA (Ed25519)" or "ed25519 over the seal's hex text (format_version 3 and earlier)".
+  std::string Algorithm() const;
+};
+
+/// Checks the signature of document against given (nullptr: the key the audit records;
+/// given_name names the given key's file in messages). Never throws for content problems.
+SignatureCheck CheckAuditSignature(const nlohmann::json& document, const Ed25519PublicKey* given = nullptr,
+                                   const std::string& given_name = "");
+
 /// Chain, section digests, seal, signature, the normalised plan and the validation section's
 /// structure of a parsed audit. Never
 /// throws for content problems (they are reported); throws InputError when the public key file
-/// cannot be used. With a public key, the signature must verify against it and the audit's
-/// signature.public_key must be that key. The recorded plan is read within limits: a plan past
+/// cannot be used. With a public key, the signature must verify against it and the key the
+/// audit records (signature.jwk, or signature.public_key before format_version 4) must be that key. The recorded plan is read within limits: a plan past
 /// one is a LimitError (exit 2 with the way to raise it), not a failed check.
 VerifyReport CheckAuditIntegrity(const nlohmann::json& document,
                                  const std::filesystem::path& public_key = {},
