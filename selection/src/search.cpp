@@ -133,8 +133,8 @@ void CheckAllSubsetsWork(const SearchOptions& options, const Design& design) {
   std::string ways = "set \"max_terms\" to at most " + std::to_string(keep + fitting) + " (" +
                      Log2Text(AllSubsetsWorstCaseLog2(candidates, fitting)) + " subsets)";
   if (!tolerant && AllSubsetsWorstCaseLog2(candidates, max_free) <= kMaxAllSubsetsLog2WithTolerance + 1e-9) {
-    ways += ", or allow a \"subset_tolerance\" (such as 0.001: each listed model within 0.1% of the RSS of "
-            "the exact one; the limit is then " + Log2Text(kMaxAllSubsetsLog2WithTolerance) + ")";
+    ways += ", or allow a \"subset_tolerance\" (such as 0.01: each listed model within 1% of the RSS of "
+            "the exact one of its rank; the limit is then " + Log2Text(kMaxAllSubsetsLog2WithTolerance) + ")";
   }
   ways += ", or use \"method\": \"stepwise\" (or forward, backward), or move terms the search need not "
           "decide to \"keep\" or \"never\"";

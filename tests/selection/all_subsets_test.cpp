@@ -169,23 +169,30 @@ TEST(AllSubsetsLimits, AHopelessWorstCaseIsRefusedAtTheMethodKeySayingHowToGoOn)
   const Design design = testing::MakeDenseDesign(NumericTerms(60));
   SearchOptions options;
   options.method = Method::kAllSubsets;
-  // 2^60 subsets: past 2^50; within the 2^60 of a tolerance search, so a tolerance is offered.
+  // 2^60 subsets: past 2^50, and past the 2^55 of a tolerance search, so no tolerance is offered.
   std::string refusal = RefusalOf(options, design);
   EXPECT_NE(refusal.find("all-subsets over 60 candidate terms (60 terms, 0 kept, 0 never) could have to read "
                          "2^60.0 subsets; it takes plans of at most 2^50.0: set \"max_terms\" to at most 17 "
-                         "(2^49.1 subsets), or allow a \"subset_tolerance\""),
+                         "(2^49.1 subsets), or use \"method\": \"stepwise\""),
             std::string::npos)
       << refusal;
-  EXPECT_NE(refusal.find("\"method\": \"stepwise\""), std::string::npos) << refusal;
+  options.subset_tolerance = 0.01;
+  EXPECT_NE(RefusalOf(options, design).find("it takes plans of at most 2^55.0 with a tolerance"), std::string::npos)
+      << RefusalOf(options, design);
+  options.subset_tolerance = 0;
   // The max_terms it names is accepted, one more is not.
   options.max_terms = 17;
   EXPECT_EQ(RefusalOf(options, design), "");
   options.max_terms = 18;
   EXPECT_NE(RefusalOf(options, design).find("at most 18 terms) could have to read 2^50."), std::string::npos)
       << RefusalOf(options, design);
-  // A tolerance takes 2^60.
+  // 53 candidates (7 never): 2^53 is past 2^50 but within a tolerance search's 2^55, which is
+  // offered, and taken.
   options.max_terms.reset();
-  options.subset_tolerance = 0.001;
+  options.never = {"x0", "x1", "x2", "x3", "x4", "x5", "x6"};
+  EXPECT_NE(RefusalOf(options, design).find("or allow a \"subset_tolerance\" (such as 0.01"), std::string::npos)
+      << RefusalOf(options, design);
+  options.subset_tolerance = 0.01;
   EXPECT_EQ(RefusalOf(options, design), "");
   // Kept and never terms are not candidates: 60 - 5 - 5 = 50, 2^50, is accepted exactly; one
   // candidate more is not.

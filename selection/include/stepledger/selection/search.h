@@ -124,9 +124,10 @@ double AllSubsetsWorstCaseLog2(std::size_t candidates, std::size_t max_free_term
 /// has a similar small effect). A larger plan is refused before any pass over the rows; max_terms
 /// lowers its count, and so does moving terms to keep or never.
 inline constexpr double kMaxAllSubsetsLog2 = 50;
-/// The same with a subset_tolerance above 0, which cuts far more (bench/select_bench's tolerance
-/// table).
-inline constexpr double kMaxAllSubsetsLog2WithTolerance = 60;
+/// The same with a subset_tolerance above 0, which cuts far more: 2^55 (bench/select_bench's
+/// tolerance table: correlated terms, m = 55, 1.0 s with a tolerance of 0.01 and about 2 minutes
+/// with 0.001 on a busy machine; every term of a similar small effect, m = 48, 52 s with 0.01).
+inline constexpr double kMaxAllSubsetsLog2WithTolerance = 55;
 /// The most memory of triangles the regression tree may hold per thread: one triangle of the free
 /// terms' design columns (and y) at each depth of its path, (m + 1) q^2 doubles. 512 MiB: about
 /// 400 one-column candidate terms (with max_terms; without, kMaxAllSubsetsLog2 refuses far fewer).
