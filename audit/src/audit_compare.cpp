@@ -508,7 +508,7 @@ json AuditComparison::ToJson() const {
 }
 
 json PredictionComparison(const json& old_as_read, const json& new_as_read,
-                          const std::filesystem::path& new_data, const CsvOptions& csv_in) {
+                          const DataSet& new_data, const CsvOptions& csv_in) {
   const json old_audit = AuditInCurrentShape(old_as_read);
   const json new_audit = AuditInCurrentShape(new_as_read);
   try {
@@ -518,40 +518,43 @@ json PredictionComparison(const json& old_as_read, const json& new_as_read,
     const Design& design = predictor.design();
     CsvOptions csv = csv_in;
     csv.missing_tokens = fitted.missing_tokens;
-    CsvReader reader(new_data, csv);
-    const PredictionRowEvaluator evaluator(design, reader);
-    const std::ptrdiff_t response_index = reader.ColumnIndex(design.response);
-    if (response_index < 0) {
-      return {{"available", false},
-              {"reason", new_data.string() + ": no column '" + design.response + "' (the response) in the header"}};
-    }
     const bool logged = design.response_transform == ResponseTransform::kLog;
 
     double weighted_squares = 0, weighted_errors = 0, weight_sum = 0;
     std::uint64_t rows_read = 0, rows = 0, response_unusable = 0;
     std::map<PredictionFlag, std::uint64_t> not_priced;
-    CsvRecord record;
-    while (reader.Next(record)) {
-      ++rows_read;
-      const PredictedRow row = predictor.Predict(evaluator.Evaluate(record));
-      if (!row.priced()) {
-        // Counted under the first problem, as predict lists them.
-        ++not_priced[row.problems.empty() ? PredictionFlag::kInvalidValue : row.problems.front().flag];
-        continue;
+    // Every file of a data set in reading order, each read by its own reader bound to its header.
+    for (const std::filesystem::path& file : DataSetFiles(new_data)) {
+      CsvReader reader(file, csv);
+      const PredictionRowEvaluator evaluator(design, reader);
+      const std::ptrdiff_t response_index = reader.ColumnIndex(design.response);
+      if (response_index < 0) {
+        return {{"available", false},
+                {"reason", file.string() + ": no column '" + design.response + "' (the response) in the header"}};
       }
-      double observed = 0;
-      const CellKind kind = ClassifyCell(record.fields[static_cast<std::size_t>(response_index)].text,
-                                         csv.missing_tokens, observed);
-      if (kind != CellKind::kNumber || (logged && !(observed > 0))) {
-        ++response_unusable;
-        continue;
+      CsvRecord record;
+      while (reader.Next(record)) {
+        ++rows_read;
+        const PredictedRow row = predictor.Predict(evaluator.Evaluate(record));
+        if (!row.priced()) {
+          // Counted under the first problem, as predict lists them.
+          ++not_priced[row.problems.empty() ? PredictionFlag::kInvalidValue : row.problems.front().flag];
+          continue;
+        }
+        double observed = 0;
+        const CellKind kind = ClassifyCell(record.fields[static_cast<std::size_t>(response_index)].text,
+                                           csv.missing_tokens, observed);
+        if (kind != CellKind::kNumber || (logged && !(observed > 0))) {
+          ++response_unusable;
+          continue;
+        }
+        if (logged) observed = std::log(observed);
+        const double error = observed - *row.prediction;
+        weighted_squares += row.weight * error * error;
+        weighted_errors += row.weight * error;
+        weight_sum += row.weight;
+        ++rows;
       }
-      if (logged) observed = std::log(observed);
-      const double error = observed - *row.prediction;
-      weighted_squares += row.weight * error * error;
-      weighted_errors += row.weight * error;
-      weight_sum += row.weight;
-      ++rows;
     }
     json not_priced_counts = json::object();
     for (const PredictionFlag flag : {PredictionFlag::kUnknownLevel, PredictionFlag::kMissing,

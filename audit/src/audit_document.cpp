@@ -107,6 +107,19 @@ json DataJson(const RunResult& run) {
   // Only a plan with a holdout sets rows aside: without one the key is absent, as in audits
   // made before holdouts existed.
   if (run.plan.plan.search.holdout) data["rows_held_out"] = run.accounting.rows_held_out;
+  // A data set (several files or a folder) lists its files in reading order; a single file's
+  // audit has no such key, as before data sets existed.
+  if (run.data_is_set) {
+    json files = json::array();
+    for (const DataFileRecord& file : run.data_files) {
+      files.push_back({{"name", Utf8Replaced(file.name)},
+                       {"bytes", file.bytes},
+                       {"sha256", file.sha256},
+                       {"encoding", file.encoding},
+                       {"rows", file.rows}});
+    }
+    data["files"] = std::move(files);
+  }
   return data;
 }
 

@@ -377,7 +377,7 @@ void CheckValidationShape(const json& document, VerifyReport& report) {
   }
 }
 
-std::string DataFileForMessage(const std::filesystem::path& path) { return path.string(); }
+std::string DataFileForMessage(const DataSet& data) { return DescribeDataSet(data); }
 
 // The parts of a replayed document compared with the recorded one, in the order of reporting.
 const char* const kReplayedSections[] = {"search", "subsets", "model", "numerics", "prediction",
@@ -606,20 +606,72 @@ void WithoutWording(json& value) {
 
 namespace {
 
+// The (name, sha256) of each file a data set's `files` lists; empty when the key is absent or
+// not as the schema says (the structure checks name that).
+std::vector<std::pair<std::string, std::string>> ListedFiles(const json* data) {
+  std::vector<std::pair<std::string, std::string>> files;
+  if (data == nullptr || !data->is_object() || !data->contains("files") || !(*data)["files"].is_array()) return files;
+  for (const json& file : (*data)["files"]) {
+    if (!file.is_object() || !file.contains("name") || !file["name"].is_string() || !file.contains("sha256") ||
+        !file["sha256"].is_string()) {
+      return {};
+    }
+    files.emplace_back(file["name"].get<std::string>(), file["sha256"].get<std::string>());
+  }
+  return files;
+}
+
+std::string NamesInOrder(const std::vector<std::pair<std::string, std::string>>& files) {
+  std::string text;
+  for (std::size_t i = 0; i < files.size(); ++i) text += (i == 0 ? "" : ", ") + files[i].first;
+  return text;
+}
+
+// What differs between a recorded data set and the given one, when both list their files: the
+// same files in another order, or the first file that is not the recorded one.
+std::optional<std::string> DataSetDifference(const std::vector<std::pair<std::string, std::string>>& recorded,
+                                             const std::vector<std::pair<std::string, std::string>>& given) {
+  if (recorded.empty() || given.empty()) return std::nullopt;
+  std::vector<std::string> recorded_sums, given_sums;
+  for (const auto& file : recorded) recorded_sums.push_back(file.second);
+  for (const auto& file : given) given_sums.push_back(file.second);
+  std::sort(recorded_sums.begin(), recorded_sums.end());
+  std::sort(given_sums.begin(), given_sums.end());
+  if (recorded_sums == given_sums) {
+    return "the data files are the recorded ones in another order (the audit read " + NamesInOrder(recorded) +
+           "; given in the order " + NamesInOrder(given) +
+           "); the order of a data set's files is part of its fingerprint and of its record indices: "
+           "give them in the recorded order";
+  }
+  for (std::size_t i = 0; i < recorded.size() && i < given.size(); ++i) {
+    if (recorded[i].second != given[i].second) {
+      return "data file " + std::to_string(i + 1) + " (" + given[i].first + ", sha256 " + given[i].second.substr(0, 16) +
+             "...) is not the recorded file " + std::to_string(i + 1) + " (" + recorded[i].first + ", sha256 " +
+             recorded[i].second.substr(0, 16) + "...)";
+    }
+  }
+  return "the audit read " + std::to_string(recorded.size()) + " data files (" + NamesInOrder(recorded) + "), " +
+         std::to_string(given.size()) + " are given (" + NamesInOrder(given) + ")";
+}
+
 // Fingerprint: unreadable data is bad input (exit 2), a different file a difference.
 // `actual` is the fingerprint the replay's scan took (or, when the replay could not run, one
-// taken by reading the file); its problem is named before the replay's.
-void CheckFingerprint(const json& document, const std::filesystem::path& data_file, const std::string& actual,
-                      VerifyReport& report) {
-  const json data = document.value("data", json::object());
-  const std::string recorded = data.is_object() ? data.value("sha256", std::string()) : std::string();
+// taken by reading the file); its problem is named before the replay's. actual_files: the given
+// data set's files (name, sha256) in reading order, for saying which file differs.
+void CheckFingerprint(const json& document, const DataSet& data, const std::string& actual,
+                      const std::vector<std::pair<std::string, std::string>>& actual_files, VerifyReport& report) {
+  const json data_section = document.value("data", json::object());
+  const std::string recorded = data_section.is_object() ? data_section.value("sha256", std::string()) : std::string();
   if (actual == recorded) {
     report.fingerprint = Check::kHolds;
   } else {
     report.fingerprint = Check::kFails;
-    report.problems.insert(report.problems.begin(), "fingerprint mismatch: the data are not the bytes the audit was made from (" +
-                              DataFileForMessage(data_file) + " has sha256 " + actual.substr(0, 16) +
-                              "..., the audit records " + recorded.substr(0, 16) + "...)");
+    std::string problem = "fingerprint mismatch: the data are not the bytes the audit was made from (" +
+                          DataFileForMessage(data) + " has sha256 " + actual.substr(0, 16) +
+                          "..., the audit records " + recorded.substr(0, 16) + "...)";
+    const auto recorded_files = ListedFiles(&data_section);
+    if (auto difference = DataSetDifference(recorded_files, actual_files)) problem += ": " + *difference;
+    report.problems.insert(report.problems.begin(), problem);
   }
 }
 
@@ -734,6 +786,7 @@ void CompareReplayedSections(const json& recorded_document, const json& replayed
           part->erase("sha256");
           part->erase("bytes");
           part->erase("encoding");
+          part->erase("files");  // each file's name, bytes and fingerprint: the fingerprint's check
         }
       }
     }
@@ -778,15 +831,24 @@ void CompareReplayedPlan(const json& document, const json& replayed, VerifyRepor
 
 VerifyReport VerifyAudit(const json& document, const VerifyOptions& options) {
   VerifyReport report = CheckAuditIntegrity(document, options.public_key, options.limits);
-  if (options.data.empty()) return report;  // the report says what was not checked
+  if (options.data.inputs.empty()) return report;  // the report says what was not checked
 
   // One scan of the data: the replay's, which also takes the fingerprint.
   std::optional<json> replay = ReplayedDocument(document, options, report);
   const json* replayed_data = replay && replay->contains("data") ? &(*replay)["data"] : nullptr;
-  const std::string actual = replayed_data != nullptr && replayed_data->is_object()
-                                 ? replayed_data->value("sha256", std::string())
-                                 : FingerprintFile(options.data);
-  CheckFingerprint(document, options.data, actual, report);
+  std::string actual;
+  std::vector<std::pair<std::string, std::string>> actual_files;
+  if (replayed_data != nullptr && replayed_data->is_object()) {
+    actual = replayed_data->value("sha256", std::string());
+    actual_files = ListedFiles(replayed_data);
+  } else {
+    const DataSetFingerprints fingerprints = FingerprintDataSet(options.data);
+    actual = fingerprints.sha256;
+    if (fingerprints.files.size() > 1) {
+      for (const DataFileRecord& file : fingerprints.files) actual_files.emplace_back(file.name, file.sha256);
+    }
+  }
+  CheckFingerprint(document, options.data, actual, actual_files, report);
   if (!replay) return report;
   json& replayed = *replay;
 

@@ -21,7 +21,7 @@ int CoresAvailable() {
   return std::clamp(cores, 1, kMaxRecordedThreads);
 }
 
-RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem::path& data,
+RunResult ReplayRecordedPlan(const nlohmann::json& audit, const DataSet& data,
                              std::string_view audit_name, const ReplayOverrides& overrides,
                              SearchObserver* observer) {
   const std::string name(audit_name);

@@ -59,6 +59,42 @@ struct CommonOptions {
 /// does not exist", "'data' is a folder, not a file"). A FIFO or /dev/stdin passes.
 extern const CLI::Validator kExistingInputFile;
 
+/// Checks one input of a command's data (a data file or a data set's folder): it must exist.
+/// A FIFO or /dev/stdin passes; which files a folder holds is DataSetFiles' rule.
+extern const CLI::Validator kExistingDataInput;
+
+/// A command's DATA inputs as one data set (engine/data_set.h): one file, several files in the
+/// order given, or one folder.
+DataSet MakeDataSet(const std::vector<std::string>& inputs);
+
+/// The data inputs of a command named in one text for log lines: DescribeDataSet.
+std::string DataInputsText(const std::vector<std::string>& inputs);
+
+/// The --help paragraph on data sets, shared by the commands that read one.
+inline constexpr const char* kDataSetHelp =
+    "DATA may be several files, read one after the other in the order given, or one folder, whose "
+    ".csv, .csv.gz, .csv.zst, .tsv, .tsv.gz and .tsv.zst files are read in byte order of their "
+    "names (any other entry in it is an error): one data set under one header, which every file "
+    "must repeat. The output names the files in their order; record indices (folds, holdout) run "
+    "across the set and messages give each file's own lines.\n\n";
+
+/// The help text every command that reads data gives its DATA argument.
+inline constexpr const char* kDataInputHelp =
+    "CSV data file (header row first), or several files or one folder read as one data set";
+
+/// For a data set (several files or a folder): one line naming its files in reading order, with
+/// their rows ("Data set: 3 files, read in this order: a.csv (1,000 rows), ..."); empty for a
+/// single file, so that its output is as it always was.
+std::string DataSetFilesText(bool is_set, const std::vector<DataFileRecord>& files);
+inline std::string DataSetFilesText(const RunResult& run) { return DataSetFilesText(run.data_is_set, run.data_files); }
+
+/// The files a scan read, as RunResult lists them.
+std::vector<DataFileRecord> DataFileRecords(const ScanResult& scan);
+
+/// The `files` list of a command's --json `data` for a data set: [{name, bytes, sha256,
+/// encoding, rows}] in reading order (the audit's data.files).
+nlohmann::json DataFilesJson(const std::vector<DataFileRecord>& files);
+
 /// The --threads, --work-dir and --limit of a command as the engine takes them.
 DataReadOptions MakeDataReadOptions(const CommonOptions& common);
 

@@ -5,6 +5,7 @@
 
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "commands.h"
 #include "stepledger/audit/audit_compare.h"
@@ -18,7 +19,7 @@ namespace {
 struct CompareArgs {
   std::string old_audit;
   std::string new_audit;
-  std::string data;
+  std::vector<std::string> data;  ///< --data: one file, several files or one folder
 };
 
 int RunCompare(const CompareArgs& args, CommandContext& context) {
@@ -31,7 +32,7 @@ int RunCompare(const CompareArgs& args, CommandContext& context) {
   if (!args.data.empty()) {
     // B's data are read the way B's run read them (its recorded delimiter).
     const CsvOptions csv = RunOptionsFromSettings(new_audit.value("settings", nlohmann::json::object()), args.new_audit).csv;
-    comparison.prediction = PredictionComparison(old_audit, new_audit, args.data, csv);
+    comparison.prediction = PredictionComparison(old_audit, new_audit, MakeDataSet(args.data), csv);
   }
   // A comparison of edited files would mislead: say so first (verify gives the details).
   nlohmann::json warnings = nlohmann::json::array();
@@ -68,8 +69,10 @@ void AddCompareCommand(CLI::App& app, CommandContext& context) {
   command->add_option("A", args->old_audit, "The old audit")->required()->check(kExistingInputFile);
   command->add_option("B", args->new_audit, "The new audit")->required()->check(kExistingInputFile);
   command->add_option("--data", args->data,
-                      "B's data: also prices them with A's model, as predict does, beside B's error")
-      ->check(kExistingInputFile)
+                      "B's data (a file, or a data set's files or folder): also prices them with A's model, "
+                      "as predict does, beside B's error")
+      ->expected(1, -1)
+      ->check(kExistingDataInput)
       ->type_name("DATA");
   // Reads no data but --data (read with B's recorded delimiter), writes no file, folds no factor.
   AddCommonOptions(*command, context.common, kJsonOption | kQuietOption | kLogLevelOption);

@@ -29,7 +29,7 @@ namespace stepledger::cli {
 namespace {
 
 struct FitArgs {
-  std::string data;
+  std::vector<std::string> data;  ///< one file, several files or one folder (engine/data_set.h)
   std::string plan;
   double confidence_level = 0.95;
   int refinement_passes = 10;
@@ -132,8 +132,8 @@ int RunFit(const FitArgs& args, CommandContext& context) {
   options.fit.confidence_level = args.confidence_level;
   options.fit.max_refinement_passes = args.refinement_passes;
   options.vif_caution = args.vif_caution;
-  log.info("fitting the plan {} on {}", args.plan, args.data);
-  const RunResult run = RunPlan(args.data, loaded, options);
+  log.info("fitting the plan {} on {}", args.plan, DataInputsText(args.data));
+  const RunResult run = RunPlan(MakeDataSet(args.data), loaded, options);
   for (const auto& [term, reason] : run.design.skipped) log.warn("term '{}' skipped: {}", term, reason);
   const FitResult& fit = run.fit;
   log.info("fit: {} refinement passes, last correction {:.3g}, stopped: {}", fit.refinement_passes,
@@ -153,7 +153,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
         column_ranges.push_back({{"column", range.column}, {"min", range.min}, {"max", range.max}});
       }
     }
-    result["data"] = {{"file", args.data},
+    result["data"] = {{"file", DataInputsText(args.data)},
                       {"rows_read", run.accounting.rows_read},
                       {"rows_used", run.accounting.rows_used},
                       {"rows_dropped", RowsDroppedJson(run.accounting)},
@@ -164,6 +164,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
         {"press", NumberOrNull(summary.press)},
         {"large_standardized_residuals", summary.large_residuals}};
     if (run.plan.plan.search.holdout) result["data"]["rows_held_out"] = run.accounting.rows_held_out;
+    if (run.data_is_set) result["data"]["files"] = DataFilesJson(run.data_files);
     result["cautions"] = CautionsToJson(cautions);
     result["validation"] = ValidationToJson(run.validation);
     result["model_statement"] = ModelStatement(run.design, fit);
@@ -171,7 +172,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
     return 0;
   }
 
-  context.out << "Model: " << ModelStatement(run.design, fit) << "\n" << fit.FullReport() << "\n"
+  context.out << DataSetFilesText(run) << "Model: " << ModelStatement(run.design, fit) << "\n" << fit.FullReport() << "\n"
               << ValidationSummaryText(run.validation, fit.criteria.sigma) << "\n" << RowsText(run.accounting);
   if (const std::string detail = ValidationDetailText(run.validation); !detail.empty()) {
     context.out << "\n" << detail;
@@ -189,9 +190,10 @@ void AddFitCommand(CLI::App& app, CommandContext& context) {
   auto args = std::make_shared<FitArgs>();
   CLI::App* command = app.add_subcommand(
       "fit", "Fit every term of a plan, with no selection, and show the model");
-  command->add_option("DATA", args->data, "CSV data file (header row first)")
+  command->add_option("DATA", args->data, kDataInputHelp)
       ->required()
-      ->check(kExistingInputFile);
+      ->expected(1, -1)
+      ->check(kExistingDataInput);
   command->add_option("--plan", args->plan, "Plan file (JSON): response and terms")
       ->required()
       ->check(kExistingInputFile)
@@ -205,6 +207,7 @@ void AddFitCommand(CLI::App& app, CommandContext& context) {
       ->type_name("N");
   AddCommonOptions(*command, context.common, kAllCommonOptions & ~kForceOption);
   command->footer(
+      std::string(kDataSetHelp) +
       "One streaming pass builds the triangular factor of the plan's design, the fit is refined "
       "against the rows, and one more pass gives the per-row diagnostics. Prints the "
       "coefficients (estimate, SE, t, p, confidence interval, VIF), the sequential analysis of "

@@ -21,7 +21,7 @@ namespace stepledger::cli {
 namespace {
 
 struct ProfileArgs {
-  std::string data;
+  std::vector<std::string> data;  ///< one file, several files or one folder (engine/data_set.h)
   std::string response;
   std::string plan_out;
   /// Levels shown per categorical column.
@@ -56,7 +56,7 @@ std::optional<std::string> MissingTokenHint(const DataProfile& profile, const Co
   return "column '" + column.name + "' holds numbers but for " +
          FormatCount(static_cast<std::int64_t>(text_cells)) + (text_cells == 1 ? " text cell" : " text cells") +
          ", the first '" + QuoteForMessage(cell.text) + "' at " +
-         FormatLocation(profile.path.string(), cell.line, cell.column) +
+         FormatLocation(LocationFile(profile, cell), cell.line, cell.column) +
          "; if that text means a missing value, add it to the plan's \"missing\" list (\"missing\": [\"\", "
          "\"NA\", " + nlohmann::json(cell.text).dump() + "]) so that the column is read as numeric";
 }
@@ -86,7 +86,7 @@ StarterPlan MakeStarterPlan(const DataProfile& profile, const ProfileArgs& args,
       message += "; " + *hint;
     } else if (column->first_text) {
       message += " (text '" + QuoteForMessage(column->first_text->text) + "' at " +
-                 FormatLocation(profile.path.string(), column->first_text->line, column->first_text->column) + ")";
+                 FormatLocation(LocationFile(profile, *column->first_text), column->first_text->line, column->first_text->column) + ")";
     }
     throw InputError(message);
   }
@@ -206,13 +206,18 @@ std::string ColumnsTable(const DataProfile& profile, const ProfileArgs& args) {
 
 int RunProfile(const ProfileArgs& args, CommandContext& context) {
   const CsvOptions csv = MakeCsvOptions(context.common);
-  context.log->info("profiling {}", args.data);
+  context.log->info("profiling {}", DataInputsText(args.data));
   ScanOptions scan;
   scan.csv = csv;
   scan.threads = context.common.threads;
   scan.spill = false;  // the profile is all this command needs
   scan.profile.max_levels = static_cast<std::size_t>(context.common.limits.levels);
-  const DataProfile profile = ScanData(args.data, scan).profile;
+  const DataSet data = MakeDataSet(args.data);
+  ScanResult scanned = ScanData(data, scan);
+  const DataProfile profile = std::move(scanned.profile);
+  // Several files or a folder: say which files were read, in their order.
+  const bool is_set = data.inputs.size() > 1 || scanned.files.front().path != data.inputs.front();
+  const std::vector<DataFileRecord> files = DataFileRecords(scanned);
   const StarterPlan starter = MakeStarterPlan(profile, args, context.common);
   const bool has_plan = !starter.plan.is_null();
   const std::string plan_text = has_plan ? PlanText(starter.plan) : std::string();
@@ -223,6 +228,14 @@ int RunProfile(const ProfileArgs& args, CommandContext& context) {
     nlohmann::ordered_json result;
     result["file"] = profile.path.string();
     result["rows"] = profile.rows;
+    if (is_set) {
+      nlohmann::ordered_json list = nlohmann::ordered_json::array();
+      for (const DataFileRecord& file : files) {
+        list.push_back({{"name", file.name}, {"bytes", file.bytes}, {"sha256", file.sha256},
+                        {"encoding", file.encoding}, {"rows", file.rows}});
+      }
+      result["files"] = std::move(list);
+    }
     nlohmann::ordered_json columns = nlohmann::ordered_json::array();
     for (const ColumnProfile& column : profile.columns) columns.push_back(ColumnToJson(column));
     result["columns"] = std::move(columns);
@@ -232,7 +245,7 @@ int RunProfile(const ProfileArgs& args, CommandContext& context) {
     return 0;
   }
 
-  context.out << ColumnsTable(profile, args);
+  context.out << DataSetFilesText(is_set, files) << ColumnsTable(profile, args);
   if (!context.common.quiet && !starter.notes.empty()) {
     context.out << "\nNotes:\n";
     for (const std::string& note : starter.notes) context.out << "  - " << note << "\n";
@@ -253,9 +266,10 @@ void AddProfileCommand(CLI::App& app, CommandContext& context) {
   auto args = std::make_shared<ProfileArgs>();
   CLI::App* command = app.add_subcommand(
       "profile", "Summarise each column of a data file and propose a starter plan");
-  command->add_option("DATA", args->data, "CSV data file (header row first)")
+  command->add_option("DATA", args->data, kDataInputHelp)
       ->required()
-      ->check(kExistingInputFile);
+      ->expected(1, -1)
+      ->check(kExistingDataInput);
   CLI::Option* response = command->add_option("--response", args->response,
                                                "Response column of the starter plan (without it: no plan, "
                                                "only the column summary)")
@@ -269,6 +283,7 @@ void AddProfileCommand(CLI::App& app, CommandContext& context) {
   command->remove_option(command->get_option("--work-dir"));  // a profile writes no spill
   command->get_option("--force")->needs(plan_out);
   command->footer(
+      std::string(kDataSetHelp) +
       "Reads the data file once and shows each column's kind, present and missing cells, "
       "range, mean and standard deviation (numeric columns) or most frequent levels "
       "(categorical columns). With --response COL it then proposes a starter plan: numeric "

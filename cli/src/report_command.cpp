@@ -8,6 +8,7 @@
 #include <memory>
 #include <optional>
 #include <string>
+#include <vector>
 
 #include <nlohmann/json.hpp>
 
@@ -26,7 +27,7 @@ struct ReportArgs {
   std::string audit;
   std::string html;   ///< --html FILE ("-": stdout)
   bool text = false;  ///< --text: also (or only) the text report on stdout
-  std::string data;   ///< --data DATA: adds the diagnostics
+  std::vector<std::string> data;   ///< --data DATA: adds the diagnostics (a file, or a data set)
   std::string rows_out;  ///< --rows-out FILE: every row that stands out, as CSV (needs --data)
   bool allow_unverified = false;  ///< render an audit whose digests do not hold, with a warning
   std::string title;
@@ -68,10 +69,10 @@ int RunReport(const ReportArgs& args, CommandContext& context) {
   }
   std::optional<ReportDiagnostics> diagnostics;
   if (!args.data.empty()) {
-    if (context.log) context.log->info("diagnosing the final model on {}", args.data);
+    if (context.log) context.log->info("diagnosing the final model on {}", DataInputsText(args.data));
     std::function<void(std::string_view)> stand_out_csv;
     if (rows_out) stand_out_csv = [&rows_out](std::string_view text) { rows_out->Write(text); };
-    diagnostics = DiagnoseAuditRows(audit, args.data, audit_name, stand_out_csv, MakeDataReadOptions(context.common));
+    diagnostics = DiagnoseAuditRows(audit, MakeDataSet(args.data), audit_name, stand_out_csv, MakeDataReadOptions(context.common));
   }
   const ReportDiagnostics* diagnostics_pointer = diagnostics ? &*diagnostics : nullptr;
   // Build once, render everything before writing anything: a failure leaves no file behind.
@@ -119,9 +120,11 @@ void AddReportCommand(CLI::App& app, CommandContext& context) {
       ->type_name("FILE");
   command->add_flag("--text", args->text, "Print the text report on stdout (the default without --html or --json)");
   command->add_option("--data", args->data,
-                      "The audited data file: checks its SHA-256 against the audit, then adds the "
-                      "diagnostics of the final model (one pass over the rows)")
-      ->check(kExistingInputFile)
+                      "The audited data file (or a data set's files, in the recorded order, or its folder): "
+                      "checks its SHA-256 against the audit, then adds the diagnostics of the final model "
+                      "(one pass over the rows)")
+      ->expected(1, -1)
+      ->check(kExistingDataInput)
       ->type_name("DATA");
   command->add_option("--rows-out", args->rows_out,
                       "With --data: write every row that stands out, in file order, "

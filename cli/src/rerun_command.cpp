@@ -6,6 +6,7 @@
 #include <memory>
 #include <optional>
 #include <string>
+#include <vector>
 
 #include "commands.h"
 #include "stepledger/cli/progress.h"
@@ -23,7 +24,7 @@ namespace {
 
 struct RerunArgs {
   std::string audit;
-  std::string data;
+  std::vector<std::string> data;  ///< one file, several files or one folder (engine/data_set.h)
   std::string out;
   std::string sign_key;
   CLI::Option* delimiter_option = nullptr;
@@ -53,17 +54,18 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   if (context.common.threads_given) overrides.threads = context.common.threads;
   overrides.work_dir = context.common.work_dir;
   overrides.limits = context.common.limits;
-  if (context.log) context.log->info("running the plan of {} on {}", args.audit, args.data);
+  if (context.log) context.log->info("running the plan of {} on {}", args.audit, DataInputsText(args.data));
+  const DataSet data = MakeDataSet(args.data);
   const std::unique_ptr<ProgressPrinter> progress =
       MakeProgressPrinter(*context.terminal_err, context.common.quiet, "rerun");
-  const RunResult run = ReplayRecordedPlan(parent, args.data, args.audit, overrides, progress.get());
+  const RunResult run = ReplayRecordedPlan(parent, data, args.audit, overrides, progress.get());
 
   const nlohmann::json unsealed = BuildAuditDocument(run);
   CompareOptions compare_options;
   compare_options.old_name = args.audit;
   compare_options.new_name = "the new audit";
   AuditComparison comparison = CompareAudits(parent, unsealed, compare_options);
-  comparison.prediction = PredictionComparison(parent, unsealed, args.data, run.options.csv);
+  comparison.prediction = PredictionComparison(parent, unsealed, data, run.options.csv);
 
   AuditDocumentOptions document_options;
   document_options.parent = nlohmann::json{
@@ -84,7 +86,7 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
                                   {"comparison", comparison.ToJson()}})
                 << "\n";
   } else {
-    context.out << comparison.FullReport() << "\n"
+    context.out << DataSetFilesText(run) << comparison.FullReport() << "\n"
                 << "New model: " << ModelStatement(run.design, run.fit) << "\n"
                 << run.search.BriefReport();
     if (!context.common.quiet) {
@@ -109,7 +111,10 @@ void AddRerunCommand(CLI::App& app, CommandContext& context) {
       "standard errors, and the old model's error on the new rows (priced as predict prices "
       "them) beside the new model's.");
   command->add_option("AUDIT", args->audit, "The parent audit file")->required()->check(kExistingInputFile);
-  command->add_option("DATA", args->data, "New data file (CSV)")->required()->check(kExistingInputFile);
+  command->add_option("DATA", args->data, "New data: a CSV file, or several files or one folder read as one data set")
+      ->required()
+      ->expected(1, -1)
+      ->check(kExistingDataInput);
   command->add_option("--out", args->out, "Output folder for the new audit.json and report.html")
       ->required()
       ->type_name("DIR");
@@ -124,7 +129,7 @@ void AddRerunCommand(CLI::App& app, CommandContext& context) {
       "whenever the new audit and report were written, whatever the verdict (a rerun on new data "
       "is expected to refit); use `stepledger compare` for an exit status that tells a "
       "difference. The data are read with the parent's recorded delimiter unless --delimiter is "
-      "given.\n\n"
+      "given.\n\n" + std::string(kDataSetHelp) +
       "Examples run as printed from the repository root after `bash scripts/demo.sh` made build/demo.\nExample:\n  " +
       ProgramWord() + " rerun build/demo/audit.json build/demo/laptops_month2.csv --out build/demo/month2 --force");
   command->callback([args, &context] {

@@ -143,6 +143,55 @@ const CLI::Validator kExistingInputFile(
     },
     "FILE");
 
+const CLI::Validator kExistingDataInput(
+    [](std::string& path) -> std::string {
+      std::error_code error;
+      const std::filesystem::file_status status = std::filesystem::status(path, error);
+      if (status.type() == std::filesystem::file_type::not_found) return "'" + path + "' does not exist";
+      if (error) return "'" + path + "' cannot be examined: " + error.message();
+      return {};
+    },
+    "FILE|FOLDER");
+
+DataSet MakeDataSet(const std::vector<std::string>& inputs) {
+  std::vector<std::filesystem::path> paths(inputs.begin(), inputs.end());
+  return DataSet(std::move(paths));
+}
+
+std::string DataInputsText(const std::vector<std::string>& inputs) { return DescribeDataSet(MakeDataSet(inputs)); }
+
+std::vector<DataFileRecord> DataFileRecords(const ScanResult& scan) {
+  std::vector<DataFileRecord> files;
+  for (const ScannedFile& file : scan.files) {
+    files.push_back(DataFileRecord{file.path.filename().string(), file.stored_bytes, file.sha256, file.encoding, file.rows});
+  }
+  return files;
+}
+
+std::string DataSetFilesText(bool is_set, const std::vector<DataFileRecord>& files) {
+  if (!is_set) return {};
+  std::string text = "Data set: " + std::to_string(files.size()) +
+                     (files.size() == 1 ? " file" : " files") + ", read in this order: ";
+  for (std::size_t i = 0; i < files.size(); ++i) {
+    const DataFileRecord& file = files[i];
+    text += (i == 0 ? "" : ", ") + file.name + " (" + FormatCount(static_cast<std::int64_t>(file.rows)) +
+            (file.rows == 1 ? " row)" : " rows)");
+  }
+  return text + "\n";
+}
+
+nlohmann::json DataFilesJson(const std::vector<DataFileRecord>& files) {
+  nlohmann::json list = nlohmann::json::array();
+  for (const DataFileRecord& file : files) {
+    list.push_back({{"name", file.name},
+                    {"bytes", file.bytes},
+                    {"sha256", file.sha256},
+                    {"encoding", file.encoding},
+                    {"rows", file.rows}});
+  }
+  return list;
+}
+
 DataReadOptions MakeDataReadOptions(const CommonOptions& common) {
   DataReadOptions options;
   options.threads = common.threads;

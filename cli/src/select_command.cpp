@@ -33,7 +33,7 @@ namespace stepledger::cli {
 namespace {
 
 struct SelectArgs {
-  std::string data;
+  std::vector<std::string> data;  ///< one file, several files or one folder (engine/data_set.h)
   std::string plan;
   std::string response;
   std::string method;
@@ -90,8 +90,8 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   run_options.diagnostics = !args.out_dir.empty();  // the audit's extrapolation caution needs it
   const std::unique_ptr<ProgressPrinter> progress =
       MakeProgressPrinter(*context.terminal_err, context.common.quiet, "select");
-  log.info("running the plan on {}", args.data);
-  const RunResult run = RunPlan(args.data, loaded, run_options, progress.get());
+  log.info("running the plan on {}", DataInputsText(args.data));
+  const RunResult run = RunPlan(MakeDataSet(args.data), loaded, run_options, progress.get());
   log.info("search: {} ({} steps)", ToString(run.search.outcome), run.search.steps.size());
   const SearchResult& result = run.search;
   const FitResult& fit = run.fit;
@@ -102,10 +102,11 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   document["model"] = ModelToJson(fit);
   document["cautions"] = CautionsToJson(cautions);
   document["validation"] = ValidationToJson(run.validation);
-  document["data"] = {{"file", args.data},
+  document["data"] = {{"file", DataInputsText(args.data)},
                       {"rows_read", run.accounting.rows_read},
                       {"rows_used", run.accounting.rows_used}};
   if (run.plan.plan.search.holdout) document["data"]["rows_held_out"] = run.accounting.rows_held_out;
+  if (run.data_is_set) document["data"]["files"] = DataFilesJson(run.data_files);
   document["model_statement"] = ModelStatement(run.design, fit);
   nlohmann::json left_out = nlohmann::json::array();
   for (const auto& [column, reason] : run.design.skipped) {
@@ -121,6 +122,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
     context.out << JsonText(document) << "\n";
     return 0;
   }
+  context.out << DataSetFilesText(run);
   if (!run.design.skipped.empty() && !context.common.quiet) {
     // "terms": "all" left these columns out (ReasonNotACandidateTerm); say so before the route.
     const std::size_t count = run.design.skipped.size();
@@ -153,9 +155,10 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
   auto args = std::make_shared<SelectArgs>();
   CLI::App* command = app.add_subcommand(
       "select", "Choose the terms of a linear model and show every step of the route");
-  command->add_option("DATA", args->data, "CSV data file (header row first)")
+  command->add_option("DATA", args->data, kDataInputHelp)
       ->required()
-      ->check(kExistingInputFile);
+      ->expected(1, -1)
+      ->check(kExistingDataInput);
   command->add_option("--plan", args->plan, "Plan file (JSON): response, terms, method, criterion")
       ->check(kExistingInputFile)
       ->type_name("PLAN");
@@ -184,6 +187,7 @@ void AddSelectCommand(CLI::App& app, CommandContext& context) {
   command->get_option("--force")->needs(out)->description("Allow overwriting audit.json and report.html in --out");
   const std::string program = ProgramWord();
   command->footer(
+      std::string(kDataSetHelp) +
       "One streaming pass builds the factor of every candidate column; the search then works on "
       "the factor alone. Prints the route (step, action, term, criterion before -> after, the "
       "rule that decided), the final model in words and as `fit` prints it, and the cautions. "

@@ -4,6 +4,7 @@
 
 #include <memory>
 #include <string>
+#include <vector>
 
 #include "commands.h"
 #include "stepledger/audit/audit_document.h"
@@ -15,7 +16,7 @@ namespace {
 
 struct VerifyArgs {
   std::string audit;
-  std::string data;
+  std::vector<std::string> data;  ///< --data: one file, several files or one folder
   std::string public_key;
 };
 
@@ -23,11 +24,11 @@ int RunVerify(const VerifyArgs& args, CommandContext& context) {
   const nlohmann::json document = ReadAuditFile(args.audit);
   VerifyOptions options;
   options.public_key = args.public_key;
-  options.data = args.data;
+  if (!args.data.empty()) options.data = MakeDataSet(args.data);
   options.threads = context.common.threads_given ? context.common.threads : 0;
   options.work_dir = context.common.work_dir;
   options.limits = context.common.limits;
-  if (!args.data.empty() && context.log) context.log->info("replaying the plan on {}", args.data);
+  if (!args.data.empty() && context.log) context.log->info("replaying the plan on {}", DataInputsText(args.data));
   const VerifyReport report = VerifyAudit(document, options);
   if (context.common.json) {
     nlohmann::json result = report.ToJson();
@@ -54,11 +55,14 @@ void AddVerifyCommand(CLI::App& app, CommandContext& context) {
       "signature (a JWS, EdDSA with Ed25519; RFC 7515, RFC 8037); names the first step or key that does not match. With --data it also "
       "checks the data's fingerprint and replays the recorded plan, comparing the route step by "
       "step (actions and terms exactly, numbers to 1e-9 relative). Exit 0 when everything holds, "
-      "1 when anything differs, 2 when an input cannot be read.");
+      "1 when anything differs, 2 when an input cannot be read. A data set's files are part of its "
+      "fingerprint in their order: given in another order, verify says so and fails.");
   command->add_option("AUDIT", args->audit, "Audit file (audit.json)")->required();
   CLI::Option* data = command->add_option("--data", args->data,
-                                          "The data file the audit was made from: fingerprint and replay")
-                          ->check(kExistingInputFile)
+                                          "The data the audit was made from: fingerprint and replay (a data "
+                                          "set: its files in the recorded order, or its folder)")
+                          ->expected(1, -1)
+                          ->check(kExistingDataInput)
                           ->type_name("DATA");
   command->add_option("--public-key", args->public_key,
                       "Ed25519 public key the signature must verify against: PEM, or a JWK "

@@ -141,7 +141,7 @@ class SpillCells {
   }
   template <typename Detail>
   [[noreturn]] void Fail(std::size_t cell, const Detail& detail) const {
-    const SpillSource& source = spill_.source();
+    const SpillSource& source = spill_.source_of_range(chunk_->range);
     const std::size_t header_index = HeaderIndex(cell);
     const std::uint64_t line = Line();
     if (auto reread = Reread(source, chunk_->offsets[row_], line, header_index)) {

@@ -88,7 +88,7 @@ std::string CloseNames(std::string_view name, const DataProfile& profile) {
 }
 
 std::string Where(const DataProfile& profile, const CellLocation& location) {
-  return FormatLocation(profile.path.string(), location.line, location.column);
+  return FormatLocation(LocationFile(profile, location), location.line, location.column);
 }
 
 const ColumnProfile& RequireColumn(const DataProfile& profile, const std::string& name,

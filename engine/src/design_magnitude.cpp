@@ -56,7 +56,7 @@ double LargestValue(const ColumnProfile& column) {
 [[noreturn]] void FailAtLargest(const DataProfile& profile, const ColumnProfile& column,
                                 const std::string& detail) {
   if (const CellLocation* cell = LargestCell(column)) {
-    throw LocatedInputError(profile.path.string(), cell->line, cell->column, detail);
+    throw LocatedInputError(LocationFile(profile, *cell), cell->line, cell->column, detail);
   }
   throw InputError(profile.path.string() + ": " + detail);
 }
@@ -68,7 +68,7 @@ std::string ValueText(const ColumnProfile& column) {
 
 std::string Where(const DataProfile& profile, const ColumnProfile& column) {
   if (const CellLocation* cell = LargestCell(column)) {
-    return FormatLocation(profile.path.string(), cell->line, cell->column);
+    return FormatLocation(LocationFile(profile, *cell), cell->line, cell->column);
   }
   return profile.path.string();
 }

@@ -42,6 +42,10 @@ std::optional<std::string> ReasonNotACandidateTerm(const ColumnProfile& column, 
   return std::nullopt;
 }
 
+std::string LocationFile(const DataProfile& profile, const CellLocation& location) {
+  return location.file.empty() ? profile.path.string() : location.file;
+}
+
 const ColumnProfile* DataProfile::Find(std::string_view name) const {
   for (const ColumnProfile& column : columns) {
     if (column.name == name) return &column;

@@ -10,6 +10,7 @@
 #include <cstring>
 #include <mutex>
 #include <random>
+#include <stdexcept>
 
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/number_format.h"
@@ -128,7 +129,16 @@ std::filesystem::path SpillFolder::NewFile(const std::string& name) {
 
 Spill::Spill(std::unique_ptr<SpillFolder> folder, std::vector<SpillRange> ranges, std::size_t columns,
              SpillSource source)
-    : folder_(std::move(folder)), ranges_(std::move(ranges)), columns_(columns), source_(std::move(source)) {}
+    : Spill(std::move(folder), std::move(ranges), columns, std::vector<SpillSource>{std::move(source)}) {}
+
+Spill::Spill(std::unique_ptr<SpillFolder> folder, std::vector<SpillRange> ranges, std::size_t columns,
+             std::vector<SpillSource> sources)
+    : folder_(std::move(folder)), ranges_(std::move(ranges)), columns_(columns), sources_(std::move(sources)) {
+  if (sources_.empty()) throw std::logic_error("Spill: no source (a bug)");
+  for (const SpillRange& range : ranges_) {
+    if (range.source >= sources_.size()) throw std::logic_error("Spill: a range names a source it lacks (a bug)");
+  }
+}
 
 std::uint64_t Spill::rows() const {
   std::uint64_t total = 0;

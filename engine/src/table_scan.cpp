@@ -16,6 +16,7 @@
 #include "file_identity.h"
 #include "thread_start.h"
 #include "stepledger/engine/byte_source.h"
+#include "stepledger/engine/data_set.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/utf8.h"
 #include "stepledger/engine/fingerprint.h"
@@ -50,8 +51,10 @@ struct ColumnTally {
   double squared_deviations = 0;
   double min = std::numeric_limits<double>::infinity();
   double max = -std::numeric_limits<double>::infinity();
-  // Where min and max are: their first cell in file order (line, column).
+  // Where min and max are: their first cell in file order (line, column, and the file of a data
+  // set: an index into the set's files, 0 within one file's ranges).
   std::uint64_t min_line = 0, min_column = 0, max_line = 0, max_column = 0;
+  std::size_t min_file = 0, max_file = 0, first_text_file = 0;
   bool levels_overflowed = false;
   std::unordered_map<std::string, LevelEntry, TextHash, std::equal_to<>> levels;
   std::vector<std::string> level_texts;  // by code
@@ -159,7 +162,7 @@ inline void TallyCell(const CsvReader& reader, const CsvField& field, std::size_
     case CellKind::kText:
       CheckText(reader, field, column);
       if (!tally.first_text) {
-        tally.first_text = CellLocation{field.line, field.column, std::string(field.text)};
+        tally.first_text = CellLocation{field.line, field.column, std::string(field.text), std::string()};
       }
       bits = kSpillTextBits;
       break;
@@ -213,7 +216,10 @@ void ScanRecords(CsvReader& reader, const ScanOptions& options, SpillWriter* wri
   if (writer != nullptr) out.chunks = writer->Finish();
 }
 
-void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_before, std::size_t max_levels) {
+// Folds a range's tally into the running one; the range is of file `file_index` of the set, after
+// lines_before line ends of that file.
+void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_before, std::size_t file_index,
+                std::size_t max_levels) {
   if (from.numeric_cells > 0) {
     if (into.numeric_cells == 0) {
       into.mean = from.mean;
@@ -231,11 +237,13 @@ void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_befor
       into.min = from.min;
       into.min_line = from.min_line + lines_before;
       into.min_column = from.min_column;
+      into.min_file = file_index;
     }
     if (from.max > into.max) {
       into.max = from.max;
       into.max_line = from.max_line + lines_before;
       into.max_column = from.max_column;
+      into.max_file = file_index;
     }
   }
   into.present += from.present;
@@ -244,6 +252,7 @@ void MergeTally(ColumnTally& into, ColumnTally&& from, std::uint64_t lines_befor
   if (!into.first_text && from.first_text) {
     into.first_text = std::move(from.first_text);
     into.first_text->line += lines_before;
+    into.first_text_file = file_index;
   }
   if (from.levels_overflowed && !into.levels_overflowed) DropLevels(into);
   if (into.levels_overflowed) return;
@@ -267,8 +276,9 @@ std::string ShortestText(double value) {
   return std::string(text, static_cast<std::size_t>(written.ptr - text));
 }
 
+// file_names: the display names of the set's files (locations name the file they lie in).
 ColumnProfile FinishColumn(const std::string& name, std::size_t index, ColumnTally& tally,
-                           std::size_t max_levels) {
+                           std::size_t max_levels, const std::vector<std::string>& file_names) {
   ColumnProfile column;
   column.level_limit = max_levels;
   column.name = name;
@@ -288,8 +298,8 @@ ColumnProfile FinishColumn(const std::string& name, std::size_t index, ColumnTal
     const double n = static_cast<double>(tally.numeric_cells);
     column.min = tally.min;
     column.max = tally.max;
-    column.min_at = CellLocation{tally.min_line, tally.min_column, ShortestText(tally.min)};
-    column.max_at = CellLocation{tally.max_line, tally.max_column, ShortestText(tally.max)};
+    column.min_at = CellLocation{tally.min_line, tally.min_column, ShortestText(tally.min), file_names.at(tally.min_file)};
+    column.max_at = CellLocation{tally.max_line, tally.max_column, ShortestText(tally.max), file_names.at(tally.max_file)};
     column.mean = tally.mean;
     column.sd = tally.numeric_cells > 1 ? std::sqrt(tally.squared_deviations / (n - 1)) : kUndefined;
   } else {
@@ -306,25 +316,8 @@ ColumnProfile FinishColumn(const std::string& name, std::size_t index, ColumnTal
   }
   column.too_many_levels = column.kind == ColumnKind::kCategorical && tally.levels_overflowed;
   column.first_text = std::move(tally.first_text);
+  if (column.first_text) column.first_text->file = file_names.at(tally.first_text_file);
   return column;
-}
-
-// The profile of ranges read in file order; lines_before[r] is added to range r's lines.
-DataProfile MergeProfile(const std::filesystem::path& path, const std::vector<std::string>& header,
-                         std::vector<RangeScan>& ranges, const std::vector<std::uint64_t>& lines_before,
-                         const ScanOptions& options) {
-  DataProfile profile;
-  profile.path = path;
-  std::vector<ColumnTally> merged(header.size());
-  for (std::size_t r = 0; r < ranges.size(); ++r) {
-    profile.rows += ranges[r].rows;
-    for (std::size_t c = 0; c < header.size() && c < ranges[r].tallies.size(); ++c) {
-      MergeTally(merged[c], std::move(ranges[r].tallies[c]), lines_before[r], options.profile.max_levels);
-    }
-  }
-  profile.columns.reserve(header.size());
-  for (std::size_t c = 0; c < header.size(); ++c) profile.columns.push_back(FinishColumn(header[c], c, merged[c], options.profile.max_levels));
-  return profile;
 }
 
 bool StartsCompressed(const char* bytes, std::size_t size) {
@@ -386,15 +379,17 @@ void CheckUnchanged(int fd, const FileIdentity& before, const std::string& name)
   }
 }
 
-std::vector<SpillRange> MakeSpillRanges(std::vector<RangeScan>& scans, const std::vector<std::uint64_t>& lines_before) {
-  std::vector<SpillRange> ranges;
-  std::uint64_t rows_before = 0;
+// The spill ranges of one file of the set: its rows come after rows_before records of the files
+// before it; source is the file's index in the set.
+void AppendSpillRanges(std::vector<RangeScan>& scans, const std::vector<std::uint64_t>& lines_before,
+                       std::uint64_t rows_before, std::size_t source, std::vector<SpillRange>& ranges) {
   for (std::size_t r = 0; r < scans.size(); ++r) {
     SpillRange range;
     range.file = scans[r].spill_file;
     range.rows = scans[r].rows;
     range.rows_before = rows_before;
     range.lines_before = lines_before[r];
+    range.source = source;
     range.chunks = std::move(scans[r].chunks);
     range.levels.resize(scans[r].tallies.size());
     for (std::size_t c = 0; c < scans[r].tallies.size(); ++c) {
@@ -403,13 +398,73 @@ std::vector<SpillRange> MakeSpillRanges(std::vector<RangeScan>& scans, const std
     rows_before += range.rows;
     ranges.push_back(std::move(range));
   }
-  return ranges;
+}
+
+// The scan's spill folder, made once the first file is open and its header read (never before:
+// a spill folder that appears tells whoever watches the working folder that the data file has
+// been opened), shared by every file of a set.
+class LazySpillFolder {
+ public:
+  LazySpillFolder(bool wanted, std::filesystem::path work_dir) : wanted_(wanted), work_dir_(std::move(work_dir)) {}
+  /// The folder (made on first call), or null when no spill is wanted.
+  SpillFolder* Get() {
+    if (wanted_ && !folder_) folder_ = std::make_unique<SpillFolder>(work_dir_);
+    return folder_.get();
+  }
+  std::unique_ptr<SpillFolder> Release() { return std::move(folder_); }
+
+ private:
+  bool wanted_ = false;
+  std::filesystem::path work_dir_;
+  std::unique_ptr<SpillFolder> folder_;
+};
+
+// What the scan of one file gives before it joins the set's profile and spill.
+struct FileScan {
+  std::vector<std::string> header;
+  std::vector<RangeScan> ranges;
+  std::vector<std::uint64_t> lines_before;  // per range: the file's line ends before it
+  std::string sha256;
+  std::uint64_t stored_bytes = 0;
+  std::string encoding = "plain";
+  bool plain = true;
+};
+
+// The first file's header, which every later file of a set must repeat.
+struct ExpectedHeader {
+  const std::vector<std::string>* names = nullptr;  // null for the first file
+  std::string file;                                 // the first file's name
+};
+
+// Refuses a file of a set whose header is not the first file's, naming both files and the first
+// column that differs (before any record of the file is read).
+void CheckSameHeader(const ExpectedHeader& expected, const std::vector<std::string>& header, const std::string& name) {
+  if (expected.names == nullptr) return;
+  const std::vector<std::string>& first = *expected.names;
+  if (header == first) return;
+  std::size_t column = 0;
+  while (column < first.size() && column < header.size() && first[column] == header[column]) ++column;
+  std::string detail;
+  if (column < first.size() && column < header.size()) {
+    detail = "column " + std::to_string(column + 1) + " is '" + QuoteForMessage(header[column]) + "' here and '" +
+             QuoteForMessage(first[column]) + "' in '" + expected.file + "'";
+  } else if (column < first.size()) {
+    detail = "column " + std::to_string(column + 1) + " ('" + QuoteForMessage(first[column]) + "' in '" + expected.file +
+             "') is missing here (" + std::to_string(header.size()) + " columns, '" + expected.file + "' has " +
+             std::to_string(first.size()) + ")";
+  } else {
+    detail = "column " + std::to_string(column + 1) + " ('" + QuoteForMessage(header[column]) + "') is extra here (" +
+             std::to_string(header.size()) + " columns, '" + expected.file + "' has " + std::to_string(first.size()) + ")";
+  }
+  throw InputError(FormatLocation(name, 1, 0) + ": the header differs from the header of '" + expected.file + "': " +
+                   detail + "; every file of a data set must have the same header");
 }
 
 // One reader over the whole stream: pipes, FIFOs, compressed files, one thread, small files.
-ScanResult ScanWhole(const std::filesystem::path& path, Descriptor& file, const FileIdentity& identity,
-                     const ScanOptions& options) {
-  ScanResult result;
+FileScan ScanWhole(const std::filesystem::path& path, Descriptor& file, const FileIdentity& identity,
+                   const ScanOptions& options, LazySpillFolder& spill, const std::string& spill_prefix,
+                   const ExpectedHeader& expected) {
+  FileScan result;
   DataFingerprint fingerprint;
   const int fd = file.get();
   const std::string name = path.string();
@@ -420,37 +475,32 @@ ScanResult ScanWhole(const std::filesystem::path& path, Descriptor& file, const 
   CsvReader reader(path, [&source](char* buffer, std::size_t capacity) { return source.Read(buffer, capacity); },
                    options.csv);
   result.header = reader.header();
+  CheckSameHeader(expected, result.header, name);
+  SpillFolder* folder = spill.Get();
 
-  std::unique_ptr<SpillFolder> folder;
   std::unique_ptr<SpillWriter> writer;
-  std::vector<RangeScan> scans(1);
-  if (options.spill) {
-    folder = std::make_unique<SpillFolder>(options.work_dir);
-    scans[0].spill_file = folder->NewFile("range-0.bin");
-    writer = std::make_unique<SpillWriter>(scans[0].spill_file, folder->work_dir(), result.header.size());
+  result.ranges.resize(1);
+  if (folder != nullptr) {
+    result.ranges[0].spill_file = folder->NewFile(spill_prefix + "range-0.bin");
+    writer = std::make_unique<SpillWriter>(result.ranges[0].spill_file, folder->work_dir(), result.header.size());
   }
-  ScanRecords(reader, options, writer.get(), 0, identity.regular ? identity.size : 0, scans[0]);
+  ScanRecords(reader, options, writer.get(), 0, identity.regular ? identity.size : 0, result.ranges[0]);
   CheckUnchanged(fd, identity, name);
   result.stored_bytes = fingerprint.total_bytes();
   result.sha256 = fingerprint.Finish();
   result.encoding = std::string(source.encoding());
-  const bool plain = source.encoding_kind() == ByteEncoding::kPlain;
-  const std::vector<std::uint64_t> lines_before = {0};  // a whole-file reader counts from line 1
-  result.profile = MergeProfile(path, result.header, scans, lines_before, options);
-  if (options.spill) {
-    result.spill = std::make_shared<Spill>(std::move(folder), MakeSpillRanges(scans, lines_before),
-                                           result.header.size(),
-                                           MakeSource(path, identity, plain, result.header, options.csv));
-  }
+  result.plain = source.encoding_kind() == ByteEncoding::kPlain;
+  result.lines_before = {0};  // a whole-file reader counts from line 1
   return result;
 }
 
-ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, const FileIdentity& identity,
-                        const ScanOptions& options) {
+FileScan ScanInRanges(const std::filesystem::path& path, Descriptor& file, const FileIdentity& identity,
+                      const ScanOptions& options, LazySpillFolder& spill, const std::string& spill_prefix,
+                      const ExpectedHeader& expected) {
   const int fd = file.get();
   const std::string name = path.string();
   const std::uint64_t size = identity.size;
-  ScanResult result;
+  FileScan result;
   std::uint64_t header_end = 0, header_lines = 0;
   {
     std::uint64_t next = 0;
@@ -463,6 +513,8 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
     header_end = header_reader.bytes_read();
     header_lines = header_reader.line_ends_read();
   }
+  CheckSameHeader(expected, result.header, name);
+  SpillFolder* folder = spill.Get();
 
   // The guessed cuts: after the first line end at or after each even share of the bytes (or at
   // the places the caller chose).
@@ -483,8 +535,8 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
   }
   auto end_of = [&](std::size_t r) { return r + 1 < range_count ? starts[r + 1] : UINT64_MAX; };
 
-  auto folder = options.spill ? std::make_unique<SpillFolder>(options.work_dir) : nullptr;
-  std::vector<RangeScan> scans(range_count);
+  std::vector<RangeScan>& scans = result.ranges;
+  scans.resize(range_count);
   const std::size_t blocks = static_cast<std::size_t>((size + DataFingerprint::kBlockBytes - 1) / DataFingerprint::kBlockBytes);
   std::vector<Sha256Digest> digests(blocks);
   std::vector<std::exception_ptr> hash_errors(range_count);
@@ -493,7 +545,7 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
     scan = RangeScan{};
     try {
       std::unique_ptr<SpillWriter> writer;
-      if (folder) {
+      if (folder != nullptr) {
         scan.spill_file = folder->NewFile(file_name);
         writer = std::make_unique<SpillWriter>(scan.spill_file, folder->work_dir(), result.header.size());
       }
@@ -509,7 +561,7 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
       range_count,
       [&](std::size_t r) {
         try {
-          scan_range(r, starts[r], "range-" + std::to_string(r) + ".bin");
+          scan_range(r, starts[r], spill_prefix + "range-" + std::to_string(r) + ".bin");
         } catch (...) {
           scans[r].error = std::current_exception();  // the file name could not be made
         }
@@ -522,7 +574,8 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
       "reading the data");
   // Check the guessed cuts in file order; read a range again from the true boundary when the
   // range before ends elsewhere (a quoted field held the guessed line end).
-  std::vector<std::uint64_t> lines_before(range_count);
+  std::vector<std::uint64_t>& lines_before = result.lines_before;
+  lines_before.assign(range_count, 0);
   lines_before[0] = header_lines;
   for (std::size_t r = 0; r < range_count; ++r) {
     if (r > 0) {
@@ -530,7 +583,7 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
       lines_before[r] = lines_before[r - 1] + previous.line_ends;
       if (previous.stop != starts[r]) {
         starts[r] = previous.stop;
-        scan_range(r, starts[r], "range-" + std::to_string(r) + "-again.bin");
+        scan_range(r, starts[r], spill_prefix + "range-" + std::to_string(r) + "-again.bin");
       }
     }
     if (scans[r].error) {
@@ -547,14 +600,24 @@ ScanResult ScanInRanges(const std::filesystem::path& path, Descriptor& file, con
   CheckUnchanged(fd, identity, name);
   result.stored_bytes = size;
   result.sha256 = DataFingerprint::Combine(digests, size);
-  result.ranges = static_cast<int>(range_count);
-  result.profile = MergeProfile(path, result.header, scans, lines_before, options);
-  if (folder) {
-    result.spill = std::make_shared<Spill>(std::move(folder), MakeSpillRanges(scans, lines_before),
-                                           result.header.size(),
-                                           MakeSource(path, identity, true, result.header, options.csv));
-  }
+  result.plain = true;
   return result;
+}
+
+// Scans one file of the set: in byte ranges on several threads when it is a plain regular file
+// and more than one thread (or cuts) are asked for, else with one reader.
+FileScan ScanFile(const std::filesystem::path& path, const ScanOptions& options, LazySpillFolder& spill,
+                  const std::string& spill_prefix, const ExpectedHeader& expected, FileIdentity& identity) {
+  Descriptor file(path);
+  identity = IdentityOf(file.get(), path.string());
+  bool parallel = (options.threads > 1 || !options.range_cuts.empty()) && identity.regular;
+  if (parallel) {
+    char magic[4] = {};
+    const std::size_t got = PreadSome(file.get(), magic, sizeof magic, 0, path.string());
+    parallel = !StartsCompressed(magic, got);
+  }
+  return parallel ? ScanInRanges(path, file, identity, options, spill, spill_prefix, expected)
+                  : ScanWhole(path, file, identity, options, spill, spill_prefix, expected);
 }
 
 }  // namespace
@@ -565,17 +628,67 @@ void ScanOptions::Validate() const {
   if (min_range_bytes < 1) throw InputError("min_range_bytes: expected an integer >= 1, found 0");
 }
 
-ScanResult ScanData(const std::filesystem::path& path, const ScanOptions& options) {
+ScanResult ScanData(const DataSet& data, const ScanOptions& options) {
   options.Validate();
-  Descriptor file(path);
-  const FileIdentity identity = IdentityOf(file.get(), path.string());
-  bool parallel = (options.threads > 1 || !options.range_cuts.empty()) && identity.regular;
-  if (parallel) {
-    char magic[4] = {};
-    const std::size_t got = PreadSome(file.get(), magic, sizeof magic, 0, path.string());
-    parallel = !StartsCompressed(magic, got);
+  const std::vector<std::filesystem::path> files = DataSetFiles(data);
+  ScanResult result;
+  // One folder for the spill of every file; removed with everything in it when the scan fails.
+  LazySpillFolder spill(options.spill, options.work_dir);
+  const std::size_t max_levels = options.profile.max_levels;
+  std::vector<std::string> file_names;
+  std::vector<ColumnTally> merged;
+  std::vector<SpillRange> spill_ranges;
+  std::vector<SpillSource> sources;
+  std::vector<std::string> fingerprints;
+  std::uint64_t rows_before = 0;
+  result.ranges = 0;
+  for (std::size_t index = 0; index < files.size(); ++index) {
+    const std::filesystem::path& path = files[index];
+    file_names.push_back(path.string());
+    const ExpectedHeader expected{index == 0 ? nullptr : &result.header, file_names.front()};
+    // The first file's spill keeps the names a single file always had.
+    const std::string prefix = index == 0 ? std::string() : "file-" + std::to_string(index) + "-";
+    FileIdentity identity;
+    FileScan scan = ScanFile(path, options, spill, prefix, expected, identity);
+    if (index == 0) {
+      result.header = scan.header;
+      merged.resize(result.header.size());
+    }
+    // Each file's ranges join the running tallies at once, so that what the scan keeps grows with
+    // the columns and levels, not with the files.
+    std::uint64_t file_rows = 0;
+    for (std::size_t r = 0; r < scan.ranges.size(); ++r) {
+      file_rows += scan.ranges[r].rows;
+      for (std::size_t c = 0; c < merged.size() && c < scan.ranges[r].tallies.size(); ++c) {
+        MergeTally(merged[c], std::move(scan.ranges[r].tallies[c]), scan.lines_before[r], index, max_levels);
+      }
+    }
+    if (options.spill) {
+      AppendSpillRanges(scan.ranges, scan.lines_before, rows_before, index, spill_ranges);
+      sources.push_back(MakeSource(path, identity, scan.plain, result.header, options.csv));
+    }
+    rows_before += file_rows;
+    result.ranges += static_cast<int>(scan.ranges.size());
+    result.stored_bytes += scan.stored_bytes;
+    fingerprints.push_back(scan.sha256);
+    result.files.push_back(ScannedFile{path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows});
   }
-  return parallel ? ScanInRanges(path, file, identity, options) : ScanWhole(path, file, identity, options);
+  result.sha256 = CombineMemberFingerprints(fingerprints);
+  result.encoding = result.files.front().encoding;
+  for (const ScannedFile& file : result.files) {
+    if (file.encoding != result.encoding) result.encoding = "mixed";
+  }
+  result.profile.path = DescribeDataSet(data);
+  result.profile.rows = rows_before;
+  result.profile.columns.reserve(result.header.size());
+  for (std::size_t c = 0; c < result.header.size(); ++c) {
+    result.profile.columns.push_back(FinishColumn(result.header[c], c, merged[c], max_levels, file_names));
+  }
+  if (options.spill) {
+    result.spill = std::make_shared<Spill>(spill.Release(), std::move(spill_ranges), result.header.size(),
+                                           std::move(sources));
+  }
+  return result;
 }
 
 }  // namespace stepledger

@@ -11,7 +11,7 @@
 
 namespace stepledger {
 
-ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::filesystem::path& data,
+ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const DataSet& data,
                                     std::string_view audit_name,
                                     const std::function<void(std::string_view)>& stand_out_csv,
                                     const DataReadOptions& read_options) {
@@ -45,7 +45,7 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const std::file
   // The fingerprint before any row is used: diagnostics of other rows than the audited ones
   // would mislead.
   if (scan.sha256 != expected) {
-    throw InputError(data.string() + ": not the data of " + std::string(audit_name) + ": its SHA-256 is " +
+    throw InputError(DescribeDataSet(data) + ": not the data of " + std::string(audit_name) + ": its SHA-256 is " +
                      scan.sha256 + ", the audit's data.sha256 is " + expected);
   }
   DiagnosticsOptions options;

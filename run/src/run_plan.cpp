@@ -39,7 +39,24 @@ std::string FingerprintFile(const std::filesystem::path& path) {
   return fingerprint.Finish();
 }
 
-RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
+DataSetFingerprints FingerprintDataSet(const DataSet& data) {
+  DataSetFingerprints result;
+  std::vector<std::string> fingerprints;
+  for (const std::filesystem::path& file : DataSetFiles(data)) {
+    DataFileRecord record;
+    record.name = file.filename().string();
+    record.sha256 = FingerprintFile(file);
+    std::error_code error;
+    const auto size = std::filesystem::file_size(file, error);
+    record.bytes = error ? 0 : static_cast<std::uint64_t>(size);
+    fingerprints.push_back(record.sha256);
+    result.files.push_back(std::move(record));
+  }
+  result.sha256 = CombineMemberFingerprints(fingerprints);
+  return result;
+}
+
+RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
                   const RunOptions& options, SearchObserver* observer) {
   const auto started = std::chrono::steady_clock::now();
   options.Validate();
@@ -48,7 +65,7 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   run.options = options;
   run.options.csv.missing_tokens = plan.plan.missing_tokens;
   run.options.csv.max_columns = options.limits.columns;
-  run.data_file_name = data.filename().string();
+  run.data_file_name = DataSetFileName(data);
 
   ScanOptions scan_options;
   scan_options.csv = run.options.csv;
@@ -62,6 +79,12 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
   run.data_bytes = scan.stored_bytes;
   run.data_sha256 = scan.sha256;
   run.data_encoding = scan.encoding;
+  run.data_is_set = scan.files.size() > 1 || data.inputs.size() > 1 ||
+                    (scan.files.size() == 1 && scan.files.front().path != data.inputs.front());
+  for (const ScannedFile& file : scan.files) {
+    run.data_files.push_back(
+        DataFileRecord{file.path.filename().string(), file.stored_bytes, file.sha256, file.encoding, file.rows});
+  }
   run.design = BuildDesign(plan.plan.design, run.profile, options.limits);
   // Before the factor pass, so that a plan error costs no pass over the rows.
   ValidateSearchOptions(plan.plan.search, run.design);
@@ -86,7 +109,7 @@ RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
                                  " MB of fold factors; use fewer folds, fewer terms or --threads 1, or another criterion");
   }
   PassResult pass = RunFactorPass(*scan.spill, run.design, pass_options);
-  RequireSomethingToFit(pass, run.design, data.string());
+  RequireSomethingToFit(pass, run.design, DescribeDataSet(data));
   run.accounting = pass.accounting;
   std::optional<CrossValidation> cross_validation;
   if (folds_in_pass) cross_validation.emplace(std::move(pass.fold_factors), options.fit.kernel);

@@ -37,6 +37,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/data_set.h"
 
 namespace stepledger {
 
@@ -234,8 +235,9 @@ AuditComparison CompareAudits(const nlohmann::json& old_audit, const nlohmann::j
 /// predict does. Errors are observed minus predicted on the scale the model was fitted on,
 /// weighted by the plan's weights. new_model_rmse is sqrt(RSS / sum w) of the new audit.
 /// One pass over the rows; memory does not grow with them. Returns {"available": false,
-/// "reason": ...} when the old model cannot be rebuilt or the data lack its columns.
+/// "reason": ...} when the old model cannot be rebuilt or the data lack its columns. new_data may
+/// be a data set (engine/data_set.h): its files are priced in reading order.
 nlohmann::json PredictionComparison(const nlohmann::json& old_audit, const nlohmann::json& new_audit,
-                                    const std::filesystem::path& new_data, const CsvOptions& csv);
+                                    const DataSet& new_data, const CsvOptions& csv);
 
 }  // namespace stepledger

@@ -27,21 +27,24 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/audit/audit_document.h"
+#include "stepledger/engine/data_set.h"
 #include "stepledger/engine/limits.h"
 
 namespace stepledger {
 
 /// How to check what verify without data leaves unchecked (printed by FullReport and noted).
 inline constexpr const char* kHowToCheckData =
-    "give --data FILE, the data the audit was made from, to check its fingerprint and replay the plan";
+    "give --data FILE (or the files or folder of a data set), the data the audit was made from, to check its fingerprint and replay the plan";
 
 struct VerifyOptions {
   /// Ed25519 public key file the signature must verify against, PEM or a JWK (audit/jws.h,
   /// ReadEd25519PublicKeyFile); empty: the signature, when present, is checked against the key
   /// recorded in the audit (integrity only, not identity).
   std::filesystem::path public_key;
-  /// Data file to fingerprint and replay on; empty: no replay.
-  std::filesystem::path data;
+  /// Data file, files or folder (engine/data_set.h) to fingerprint and replay on; no input: no
+  /// replay. A data set given in another order than the recorded one fails the fingerprint check
+  /// with a message that says so.
+  DataSet data;
   /// Threads of the replay's data pass (0: as recorded in settings).
   int threads = 0;
   /// Where the replay's typed spill goes; empty: the system temporary folder.

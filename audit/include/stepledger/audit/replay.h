@@ -35,7 +35,7 @@ int CoresAvailable();
 /// CoresAvailable() unless overrides.threads says how many. audit_name (the audit's file name) starts messages. Throws InputError when
 /// the recorded plan is missing or unusable (naming the key) or the data cannot be read.
 /// observer (optional) sees the search's events (progress).
-RunResult ReplayRecordedPlan(const nlohmann::json& audit, const std::filesystem::path& data,
+RunResult ReplayRecordedPlan(const nlohmann::json& audit, const DataSet& data,
                              std::string_view audit_name, const ReplayOverrides& overrides = {},
                              SearchObserver* observer = nullptr);
 

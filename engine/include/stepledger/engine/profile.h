@@ -30,7 +30,15 @@ struct CellLocation {
   std::uint64_t line = 0;
   std::uint64_t column = 0;
   std::string text;
+  /// The file the cell is in, as messages name it (a data set has several; line and column are
+  /// that file's own). Set by the scan; empty in locations made elsewhere: then the profile's
+  /// path (LocationFile).
+  std::string file;
 };
+
+struct DataProfile;
+/// The file a location lies in: location.file, or the profile's path when that is empty.
+std::string LocationFile(const DataProfile& profile, const CellLocation& location);
 
 struct ColumnProfile {
   std::string name;
@@ -75,6 +83,7 @@ struct ProfileOptions {
 };
 
 struct DataProfile {
+  /// The data as people see it: the file, or the data set (DescribeDataSet, engine/data_set.h).
   std::filesystem::path path;
   std::vector<ColumnProfile> columns;  ///< header order
   std::uint64_t rows = 0;              ///< data records read

@@ -65,7 +65,10 @@ struct SpillRange {
   std::filesystem::path file;
   std::uint64_t rows = 0;
   std::uint64_t rows_before = 0;   ///< data records in the ranges before this one
-  std::uint64_t lines_before = 0;  ///< line ends before this range's first record
+  std::uint64_t lines_before = 0;  ///< line ends of its file before this range's first record
+  /// The data file the range was read from: an index into Spill::sources() (0 for a single file;
+  /// a data set of several files has ranges of each file in file order).
+  std::size_t source = 0;
   /// Per column: the texts of the range's level codes (code i is levels[column][i]); empty for
   /// a column whose codes were not kept.
   std::vector<std::vector<std::string>> levels;
@@ -114,16 +117,25 @@ class SpillFolder {
 /// paths prepared in advance), for handlers of SIGINT and SIGTERM; also safe to call twice.
 void RemoveSpillFilesNow() noexcept;
 
-/// The rows of one data file, written by the first pass (engine/table_scan.h).
+/// The rows of one data file, or of the files of a data set in order (engine/data_set.h),
+/// written by the first pass (engine/table_scan.h).
 class Spill {
  public:
   Spill(std::unique_ptr<SpillFolder> folder, std::vector<SpillRange> ranges, std::size_t columns,
         SpillSource source);
+  /// A data set: one source per file, in reading order (every SpillRange::source indexes it);
+  /// at least one, all with the same header.
+  Spill(std::unique_ptr<SpillFolder> folder, std::vector<SpillRange> ranges, std::size_t columns,
+        std::vector<SpillSource> sources);
   const std::vector<SpillRange>& ranges() const { return ranges_; }
   std::size_t column_count() const { return columns_; }
   std::uint64_t rows() const;
   std::uint64_t chunk_count() const;
-  const SpillSource& source() const { return source_; }
+  /// The first file (its header is every file's header).
+  const SpillSource& source() const { return sources_.front(); }
+  /// The file range `range` was read from (for a message naming the file and its line).
+  const SpillSource& source_of_range(std::size_t range) const { return sources_.at(ranges_.at(range).source); }
+  const std::vector<SpillSource>& sources() const { return sources_; }
   const std::filesystem::path& folder() const { return folder_->path(); }
   /// Bytes on disk.
   std::uint64_t bytes() const;
@@ -132,7 +144,7 @@ class Spill {
   std::unique_ptr<SpillFolder> folder_;
   std::vector<SpillRange> ranges_;
   std::size_t columns_ = 0;
-  SpillSource source_;
+  std::vector<SpillSource> sources_;
 };
 
 /// Writes one range's chunks. Throws InputError naming the folder and the room needed when the

@@ -15,6 +15,11 @@
 // time. Errors are reported for the first range, in file order, that holds one, with lines
 // counted from the file's start. Compressed files, pipes and FIFOs are read by one thread.
 // The fingerprint's 1 MiB blocks (engine/fingerprint.h) are hashed by the same threads.
+//
+// Data sets. Several files or a folder (engine/data_set.h) are read file after file, each as
+// above (its own byte ranges, its own fingerprint), into one profile and one spill whose ranges
+// follow the files' order; nothing kept grows with the number of files but the list of files and
+// their ranges. Every file must repeat the first file's header.
 
 #include <cstdint>
 #include <filesystem>
@@ -23,6 +28,7 @@
 #include <vector>
 
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/data_set.h"
 #include "stepledger/engine/profile.h"
 #include "stepledger/engine/spill.h"
 
@@ -60,20 +66,35 @@ struct ScanOptions {
   void Validate() const;
 };
 
+/// One file of the data as read.
+struct ScannedFile {
+  std::filesystem::path path;
+  std::uint64_t stored_bytes = 0;  ///< the file as stored
+  std::string sha256;              ///< DataFingerprint of this file alone
+  std::string encoding = "plain";  ///< plain, gzip, zstd
+  std::uint64_t rows = 0;          ///< data records it holds
+};
+
 struct ScanResult {
   DataProfile profile;
   std::vector<std::string> header;
-  std::string sha256;          ///< DataFingerprint over the bytes as stored
-  std::uint64_t stored_bytes = 0;
-  std::string encoding = "plain";  ///< how the file is stored: plain, gzip, zstd
-  int ranges = 1;              ///< byte ranges read in parallel
+  /// The fingerprint of the data: of the file (DataFingerprint over its bytes as stored), or of
+  /// the set (CombineMemberFingerprints over files[i].sha256).
+  std::string sha256;
+  std::uint64_t stored_bytes = 0;  ///< every file's bytes as stored
+  std::string encoding = "plain";  ///< how the files are stored: plain, gzip, zstd, or "mixed"
+  int ranges = 1;              ///< byte ranges read (in parallel within a file), over all files
+  /// The files in reading order (one for a single file).
+  std::vector<ScannedFile> files;
   /// The rows, for every later pass; null when ScanOptions::spill is false.
   std::shared_ptr<const Spill> spill;
 };
 
-/// Reads the file once (see above). Throws InputError naming file:line:column for any cell that
-/// parses as a non-finite number and for the reader's errors, and naming the folder for a spill
-/// that cannot be written; nothing is left in the working folder then.
-ScanResult ScanData(const std::filesystem::path& path, const ScanOptions& options);
+/// Reads the file, or every file of the set in order, once (see above). Throws InputError naming
+/// file:line:column for any cell that parses as a non-finite number and for the reader's errors,
+/// naming both files for a header that differs from the first file's, naming the input for a set
+/// that cannot be formed (DataSetFiles), and naming the folder for a spill that cannot be
+/// written; nothing is left in the working folder then.
+ScanResult ScanData(const DataSet& data, const ScanOptions& options);
 
 }  // namespace stepledger

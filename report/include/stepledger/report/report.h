@@ -278,7 +278,7 @@ inline constexpr std::string_view kStandOutCsvHeader =
 /// trip), undefined ones empty, the reasons in words.
 std::string StandOutRowCsv(const RowDiagnostic& row, const StandOutThresholds& thresholds);
 
-/// The diagnostics of an audit's final model on its data file, for the report: checks that the
+/// The diagnostics of an audit's final model on its data file or data set, for the report: checks that the
 /// file's fingerprint equals the audit's data.sha256 (else InputError naming both digests and
 /// the file), rebuilds the model (FittedModelFromAudit) and makes one pass over the rows with
 /// the audit's recorded reader settings. audit_name (the audit's file name) starts messages.
@@ -287,7 +287,7 @@ std::string StandOutRowCsv(const RowDiagnostic& row, const StandOutThresholds& t
 /// stand_out_csv, when set, receives kStandOutCsvHeader and then, during the pass and in file
 /// order, StandOutRowCsv of every row that stands out (nothing is kept per row).
 ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit,
-                                    const std::filesystem::path& data,
+                                    const DataSet& data,
                                     std::string_view audit_name,
                                     const std::function<void(std::string_view)>& stand_out_csv = {},
                                     const DataReadOptions& read_options = {});

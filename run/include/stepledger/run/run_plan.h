@@ -14,6 +14,7 @@
 #include <string>
 
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/data_set.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
@@ -54,13 +55,26 @@ struct RunOptions {
   void Validate() const;
 };
 
+/// One file of a data set as the audit lists it.
+struct DataFileRecord {
+  std::string name;                ///< the file's name (no folder)
+  std::uint64_t bytes = 0;         ///< as stored
+  std::string sha256;              ///< its own fingerprint (engine/fingerprint.h)
+  std::string encoding = "plain";  ///< plain, gzip or zstd
+  std::uint64_t rows = 0;          ///< data records it holds
+};
+
 /// Everything one run produced.
 struct RunResult {
   LoadedPlan plan;
-  std::string data_file_name;       ///< the data file's name (no folder), for readers
-  std::string data_sha256;          ///< DataFingerprint over every byte read
-  std::uint64_t data_bytes = 0;    ///< bytes of the file as stored
-  std::string data_encoding = "plain";  ///< plain, gzip or zstd
+  std::string data_file_name;       ///< DataSetFileName: the file's name (no folder), for readers
+  std::string data_sha256;          ///< the fingerprint of the file, or of the set (engine/data_set.h)
+  std::uint64_t data_bytes = 0;    ///< bytes of the files as stored
+  std::string data_encoding = "plain";  ///< plain, gzip or zstd ("mixed" for a set of several)
+  /// True when the data were given as several files or a folder: the audit then lists data_files.
+  bool data_is_set = false;
+  /// The files read, in reading order (one for a single file).
+  std::vector<DataFileRecord> data_files;
   DataProfile profile;
   Design design;
   RowAccounting accounting;
@@ -79,13 +93,21 @@ struct RunResult {
   double duration_seconds = 0;      ///< wall time of the run
 };
 
-/// Runs a plan on a data file (the pipeline above). observer (optional) sees the search's
-/// events as they happen. Throws InputError/PlanError for bad input.
-RunResult RunPlan(const std::filesystem::path& data, const LoadedPlan& plan,
+/// Runs a plan on a data file or data set (the pipeline above). observer (optional) sees the
+/// search's events as they happen. Throws InputError/PlanError for bad input.
+RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
                   const RunOptions& options, SearchObserver* observer = nullptr);
 
 /// The fingerprint of a file (engine/fingerprint.h) computed by reading it; throws InputError
 /// naming the file when it cannot be read.
 std::string FingerprintFile(const std::filesystem::path& path);
+
+/// The fingerprints of a data set's files in reading order (DataSetFiles) and of the set, by
+/// reading the bytes only (no parsing): for verify when a replay could not run.
+struct DataSetFingerprints {
+  std::vector<DataFileRecord> files;  ///< name, bytes and sha256 of each
+  std::string sha256;                 ///< of the set (of the file, for one)
+};
+DataSetFingerprints FingerprintDataSet(const DataSet& data);
 
 }  // namespace stepledger
