@@ -46,9 +46,7 @@ class SubsetSearch {
   }
 
   static std::size_t MaxFree(const SearchContext& ctx, std::size_t free_count) {
-    if (!ctx.options().max_terms) return free_count;
-    const std::size_t keep = ctx.keep_terms().size();
-    return std::min(free_count, *ctx.options().max_terms - std::min(keep, *ctx.options().max_terms));
+    return MostFreeTermsInModel(ctx.options(), ctx.keep_terms().size(), free_count);
   }
 
   /// Branch and bound; the state must hold base + keep + every free term.

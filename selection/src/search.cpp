@@ -102,8 +102,7 @@ void CheckAllSubsetsWork(const SearchOptions& options, const Design& design) {
   // Candidates: the terms neither kept nor never used (names checked, listed once).
   const std::size_t keep = options.keep.size();
   const std::size_t candidates = design.terms.size() - keep - options.never.size();
-  const std::size_t max_free =
-      options.max_terms ? *options.max_terms - std::min(keep, *options.max_terms) : candidates;
+  const std::size_t max_free = selection_detail::MostFreeTermsInModel(options, keep, candidates);
   // The tree keeps a triangle of the free terms' design columns at every depth of its path, in
   // every thread: (m + 1) q^2 doubles per thread, q the free columns plus y.
   std::size_t free_columns = 1;

@@ -10,6 +10,11 @@ namespace stepledger::selection_detail {
 
 std::string Num(double value) { return FormatQuantity(value, 6); }
 
+std::size_t MostFreeTermsInModel(const SearchOptions& options, std::size_t keep_count, std::size_t free_count) {
+  if (!options.max_terms) return free_count;
+  return std::min(free_count, *options.max_terms - std::min(keep_count, *options.max_terms));
+}
+
 std::string Threshold(double value) {
   // A plan setting as the plan states it (0.05, not 0.05000): the shortest text that reads back
   // (17 significant digits always do).

@@ -19,6 +19,11 @@
 
 namespace stepledger::selection_detail {
 
+/// The most free (neither kept nor never) terms an all-subsets model may hold: every free term,
+/// or what max_terms leaves beside the kept ones. One rule for the work check before the pass
+/// (search.cpp) and the search's board (all_subsets.cpp).
+std::size_t MostFreeTermsInModel(const SearchOptions& options, std::size_t keep_count, std::size_t free_count);
+
 /// A scored candidate move.
 struct Move {
   std::size_t term = 0;
