@@ -287,7 +287,7 @@ json BuildAuditDocument(const RunResult& run, const AuditDocumentOptions& option
   }
   document["model"] = ModelToJson(run.fit);
   document["numerics"] = NumericsJson(run);
-  document["prediction"] = PredictionSectionJson(run.fit, run.design, run.prediction_support);
+  document["prediction"] = PredictionSectionJson(run.fit, run.design, run.prediction_support, SetFileNames(run));
   document["validation"] = ValidationToJson(run.validation);
   document["cautions"] = CautionsToJson(ComputeCautions(run));
   if (options.parent) document["parent"] = *options.parent;

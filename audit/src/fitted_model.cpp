@@ -103,7 +103,8 @@ CoefficientEstimate CoefficientFromJson(const AuditReader& reader, const json& e
 
 }  // namespace
 
-json PredictionSectionJson(const FitResult& fit, const Design& design, const PredictionSupport& support) {
+json PredictionSectionJson(const FitResult& fit, const Design& design, const PredictionSupport& support,
+                           const std::vector<std::string>& set_files) {
   json columns = json::array();
   for (std::size_t column : fit.columns) columns.push_back(design.columns[column].name);
   json triangle = json::array();
@@ -122,13 +123,19 @@ json PredictionSectionJson(const FitResult& fit, const Design& design, const Pre
                       {"min", NumberOrNull(range.min)},
                       {"max", NumberOrNull(range.max)}});
   }
-  return {{"columns", std::move(columns)},
-          {"triangle", std::move(triangle)},
-          {"scales", fit.model_scales},
-          {"ranges", std::move(ranges)},
-          {"max_unit_leverage", NumberOrNull(support.max_unit_leverage)},
-          {"max_unit_leverage_line", support.max_unit_leverage_line},
-          {"smearing_factor", NumberOrNull(support.smearing_factor)}};
+  json section = {{"columns", std::move(columns)},
+                  {"triangle", std::move(triangle)},
+                  {"scales", fit.model_scales},
+                  {"ranges", std::move(ranges)},
+                  {"max_unit_leverage", NumberOrNull(support.max_unit_leverage)},
+                  {"max_unit_leverage_line", support.max_unit_leverage_line},
+                  {"smearing_factor", NumberOrNull(support.smearing_factor)}};
+  // A data set's lines start again in every file: name the row's file (an optional key, so a
+  // single file's audit keeps its shape).
+  if (!set_files.empty() && support.max_unit_leverage && support.max_unit_leverage_file < set_files.size()) {
+    section["max_unit_leverage_file"] = set_files[support.max_unit_leverage_file];
+  }
+  return section;
 }
 
 namespace {

@@ -19,6 +19,7 @@
 #include "stepledger/run/run_plan.h"
 #include "stepledger/io/plan_file.h"
 #include "stepledger/engine/data_pass.h"
+#include "stepledger/engine/data_set.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fit.h"
@@ -37,11 +38,17 @@ struct FitArgs {
   double vif_caution = 10;
 };
 
+/// Where a row is: its line, and its file of a data set (RowDiagnostic::file).
+struct RowPlace {
+  std::uint64_t line = 0;
+  std::size_t file = 0;
+};
+
 struct DiagnosticsSummary {
   std::optional<double> max_leverage, max_cooks_distance, press;
-  std::uint64_t max_leverage_line = 0, max_cooks_line = 0;
+  RowPlace max_leverage_at, max_cooks_at;
   std::uint64_t large_residuals = 0;  ///< rows with |standardized residual| > 3
-  std::vector<std::uint64_t> large_residual_lines;  ///< the lines of the largest few
+  std::vector<RowPlace> large_residuals_at;  ///< where the largest few are
 };
 
 DiagnosticsSummary Summarize(const DiagnosticsResult& diagnostics) {
@@ -49,19 +56,19 @@ DiagnosticsSummary Summarize(const DiagnosticsResult& diagnostics) {
   summary.press = diagnostics.press;
   if (diagnostics.rows > 0) {
     summary.max_leverage = diagnostics.max_leverage;
-    summary.max_leverage_line = diagnostics.max_leverage_line;
+    summary.max_leverage_at = {diagnostics.max_leverage_line, diagnostics.max_leverage_file};
   }
   // The lists put undefined values (leverage 1) first: the first defined one is the largest.
   for (const RowDiagnostic& row : diagnostics.largest_cooks_distance) {
     if (!row.cooks_distance) continue;
     summary.max_cooks_distance = row.cooks_distance;
-    summary.max_cooks_line = row.line;
+    summary.max_cooks_at = {row.line, row.file};
     break;
   }
   summary.large_residuals = diagnostics.standardized_residual_above;
   for (const RowDiagnostic& row : diagnostics.largest_standardized_residual) {
-    if (summary.large_residual_lines.size() == 5) break;
-    if (diagnostics.thresholds.StandardizedResidualAbove(row)) summary.large_residual_lines.push_back(row.line);
+    if (summary.large_residuals_at.size() == 5) break;
+    if (diagnostics.thresholds.StandardizedResidualAbove(row)) summary.large_residuals_at.push_back({row.line, row.file});
   }
   return summary;
 }
@@ -84,38 +91,47 @@ std::string RowsText(const RowAccounting& accounting) {
   return text.str();
 }
 
-std::string DiagnosticsText(const DiagnosticsSummary& summary, const FitResult& fit) {
+// set_files: SetFileNames(run); a data set's rows are named with their file.
+std::string DiagnosticsText(const DiagnosticsSummary& summary, const FitResult& fit,
+                            const std::vector<std::string>& set_files) {
+  const auto place = [&](const RowPlace& at) { return RowPlaceText(at.line, at.file, set_files); };
   std::ostringstream text;
   text << "Diagnostics:\n";
   if (summary.max_leverage) {
-    text << "  largest leverage         " << FormatQuantity(summary.max_leverage) << " (line "
-         << summary.max_leverage_line << "; average k/n = "
+    text << "  largest leverage         " << FormatQuantity(summary.max_leverage) << " ("
+         << place(summary.max_leverage_at) << "; average k/n = "
          << FormatQuantity(fit.n > 0 ? static_cast<double>(fit.k) / static_cast<double>(fit.n) : 0.0)
          << ")\n";
   }
   if (summary.max_cooks_distance) {
     text << "  largest Cook's distance  " << FormatQuantity(summary.max_cooks_distance)
-         << " (line " << summary.max_cooks_line << ")\n";
+         << " (" << place(summary.max_cooks_at) << ")\n";
   }
   text << "  PRESS                    "
        << (summary.press ? FormatQuantity(summary.press) : std::string("undefined (some leverage is 1)"))
        << " (RSS " << FormatQuantity(fit.rss) << ")\n";
   text << "  |standardized residual| > 3: " << summary.large_residuals << " rows";
-  if (!summary.large_residual_lines.empty()) {
-    text << " (largest at lines ";
-    for (std::size_t i = 0; i < summary.large_residual_lines.size(); ++i) {
-      text << (i > 0 ? ", " : "") << summary.large_residual_lines[i];
+  if (!summary.large_residuals_at.empty()) {
+    // One file: "lines 3, 17"; a data set: "line 3 of a.csv, line 17 of c.csv".
+    text << " (largest at " << (set_files.empty() ? "lines " : "");
+    for (std::size_t i = 0; i < summary.large_residuals_at.size(); ++i) {
+      const RowPlace& at = summary.large_residuals_at[i];
+      text << (i > 0 ? ", " : "") << (set_files.empty() ? std::to_string(at.line) : place(at));
     }
-    if (summary.large_residuals > summary.large_residual_lines.size()) text << ", ...";
+    if (summary.large_residuals > summary.large_residuals_at.size()) text << ", ...";
     text << ")";
   }
   text << "\n";
   return text.str();
 }
 
-nlohmann::json NullableLine(const std::optional<double>& value, std::uint64_t line) {
+// {value, line}, and the file's name for a data set (set_files: SetFileNames(run)).
+nlohmann::json NullableLine(const std::optional<double>& value, const RowPlace& at,
+                            const std::vector<std::string>& set_files) {
   if (!value) return nullptr;
-  return nlohmann::json{{"value", NumberOrNull(value)}, {"line", line}};
+  nlohmann::json json{{"value", NumberOrNull(value)}, {"line", at.line}};
+  if (!set_files.empty() && at.file < set_files.size()) json["file"] = set_files[at.file];
+  return json;
 }
 
 int RunFit(const FitArgs& args, CommandContext& context) {
@@ -159,8 +175,8 @@ int RunFit(const FitArgs& args, CommandContext& context) {
                       {"rows_dropped", RowsDroppedJson(run.accounting)},
                       {"ranges", std::move(column_ranges)}};
     result["diagnostics"] = {
-        {"max_leverage", NullableLine(summary.max_leverage, summary.max_leverage_line)},
-        {"max_cooks_distance", NullableLine(summary.max_cooks_distance, summary.max_cooks_line)},
+        {"max_leverage", NullableLine(summary.max_leverage, summary.max_leverage_at, SetFileNames(run))},
+        {"max_cooks_distance", NullableLine(summary.max_cooks_distance, summary.max_cooks_at, SetFileNames(run))},
         {"press", NumberOrNull(summary.press)},
         {"large_standardized_residuals", summary.large_residuals}};
     if (run.plan.plan.search.holdout) result["data"]["rows_held_out"] = run.accounting.rows_held_out;
@@ -178,7 +194,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
     context.out << "\n" << detail;
   }
   if (!context.common.quiet) {
-    context.out << "\n" << DiagnosticsText(summary, fit) << "\nCautions:\n";
+    context.out << "\n" << DiagnosticsText(summary, fit, SetFileNames(run)) << "\nCautions:\n";
     for (const Caution& caution : cautions) context.out << "  - " << caution.message << "\n";
   }
   return 0;

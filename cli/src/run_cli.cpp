@@ -259,7 +259,9 @@ Criterion ParseCriterionOption(const std::string& text) {
 void WriteAuditWithReport(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
                           const RunResult& run, bool overwrite) {
   std::optional<ReportDiagnostics> diagnostics;
-  if (run.diagnostics) diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma};
+  if (run.diagnostics) {
+    diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma, SetFileNames(run)};
+  }
   std::string report = RenderHtmlReport(sealed_document, diagnostics ? &*diagnostics : nullptr);
   WriteAuditFolder(folder, sealed_document, {{std::string(kReportFileName), std::move(report)}}, overwrite);
 }

@@ -158,6 +158,7 @@ class SpillCells {
     return spill_.ranges()[chunk_->range].rows_before + chunk_->first_row + row_;
   }
   std::uint64_t Line() const { return spill_.ranges()[chunk_->range].lines_before + chunk_->lines[row_]; }
+  std::size_t File() const { return spill_.ranges()[chunk_->range].source; }
 
  private:
   std::size_t HeaderIndex(std::size_t cell) const {
@@ -387,6 +388,7 @@ void ForEachUsedRow(const Spill& spill, const Design& design, const std::functio
                if (!CountAndSelect(accounting, outcome, record, holdout, set)) return;
                row.row_index = record;
                row.line = cells.Line();
+               row.file = cells.File();
                row.x = x;
                row.x_low = x_low;
                row.y = y;

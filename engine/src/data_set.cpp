@@ -164,4 +164,10 @@ std::string CombineMemberFingerprints(const std::vector<std::string>& member_fin
   return ToHex(Sha256(material));
 }
 
+std::string RowPlaceText(std::uint64_t line, std::size_t file, const std::vector<std::string>& set_files) {
+  std::string text = "line " + std::to_string(line);
+  if (!set_files.empty()) text += " of " + (file < set_files.size() ? set_files[file] : "file " + std::to_string(file + 1));
+  return text;
+}
+
 }  // namespace stepledger

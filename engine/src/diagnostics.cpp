@@ -151,14 +151,18 @@ void GrowingDensity::Add(double x_value, double y_value) {
   ++total;
 }
 
-LineBinnedCooks::LineBinnedCooks(std::size_t bins) : largest(bins) {
+LineBinnedCooks::LineBinnedCooks(std::size_t bins, bool by_record) : largest(bins), by_record(by_record) {
   assert(bins >= 2 && bins % 2 == 0);
   lines.bins = bins;
 }
 
+double LineBinnedCooks::PositionOf(const RowDiagnostic& row) const {
+  return static_cast<double>(by_record ? row.row_index + 1 : row.line);
+}
+
 void LineBinnedCooks::Add(const RowDiagnostic& row) {
   if (!row.cooks_distance || !std::isfinite(*row.cooks_distance)) return;
-  const double line = static_cast<double>(row.line);
+  const double line = PositionOf(row);
   std::vector<std::optional<RowDiagnostic>> merged;
   FitValue(lines, line, [&](Growth growth) {
     merged.assign(largest.size(), std::nullopt);
@@ -235,8 +239,10 @@ struct DiagnosticsAccumulator::State {
   bool finished = false;
 };
 
-DiagnosticsAccumulator::DiagnosticsAccumulator(StandOutThresholds thresholds) : state_(std::make_unique<State>()) {
+DiagnosticsAccumulator::DiagnosticsAccumulator(StandOutThresholds thresholds, bool by_record)
+    : state_(std::make_unique<State>()) {
   state_->result.thresholds = thresholds;
+  state_->result.cooks_by_line = LineBinnedCooks(kLineAxisBins, by_record);
   state_->result.standardized_histogram.assign(kStandardizedHistogramBins, 0);
 }
 
@@ -249,6 +255,7 @@ void DiagnosticsAccumulator::Add(const RowDiagnostic& row, double weight) {
   if (result.rows == 0 || row.leverage > result.max_leverage) {
     result.max_leverage = row.leverage;
     result.max_leverage_line = row.line;
+    result.max_leverage_file = row.file;
   }
   ++result.rows;
   result.weighted_residual_sum_of_squares += weight * row.residual * row.residual;
@@ -325,13 +332,14 @@ DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design,
   if (fit.model_triangle.n_rows != k || fit.model_scales.size() != k + 1) {
     throw std::invalid_argument("ComputeDiagnostics: the fit carries no model factor (not made by FitModel)");
   }
-  DiagnosticsAccumulator accumulator(StandOutThresholds::CommonPractice(fit.n, fit.k));
+  DiagnosticsAccumulator accumulator(StandOutThresholds::CommonPractice(fit.n, fit.k), options.rows_by_record);
   const std::optional<double> sigma = fit.criteria.sigma;
   std::vector<double> model_x(k), scratch(k);
   replay([&](const UsedRow& row) {
     RowDiagnostic diagnostic;
     diagnostic.row_index = row.row_index;
     diagnostic.line = row.line;
+    diagnostic.file = row.file;
     for (std::size_t j = 0; j < k; ++j) model_x[j] = row.x[fit.columns[j]];
     const FittedRow fitted = FitRow(fit, model_x, row.y);
     diagnostic.fitted = fitted.fitted;

@@ -59,12 +59,14 @@ DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& de
   };
   double smearing_sum = 0;
   DiagnosticsOptions learning;
+  learning.rows_by_record = options.rows_by_record;
   learning.row_observer = [&](const RowDiagnostic& row) {
     if (weight > 0) {
       const double unit_leverage = row.leverage / weight;
       if (!support.max_unit_leverage || unit_leverage > *support.max_unit_leverage) {
         support.max_unit_leverage = unit_leverage;
         support.max_unit_leverage_line = row.line;
+        support.max_unit_leverage_file = row.file;
       }
     }
     smearing_sum += std::exp(std::sqrt(weight) * row.residual);

@@ -48,16 +48,21 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit, const DataSet& 
     throw InputError(DescribeDataSet(data) + ": not the data of " + std::string(audit_name) + ": its SHA-256 is " +
                      scan.sha256 + ", the audit's data.sha256 is " + expected);
   }
+  ReportDiagnostics diagnostics;
+  // The audit of a data set lists its files (data.files); its rows are named with their file.
+  if (audit["data"].contains("files")) {
+    for (const ScannedFile& file : scan.files) diagnostics.set_files.push_back(file.path.filename().string());
+  }
   DiagnosticsOptions options;
+  options.rows_by_record = !diagnostics.set_files.empty();
   if (stand_out_csv) {
     // The thresholds depend on n and k alone, so the rows are written as the pass meets them.
     const StandOutThresholds thresholds = StandOutThresholds::CommonPractice(model.fit.n, model.fit.k);
-    stand_out_csv(kStandOutCsvHeader);
-    options.row_observer = [&stand_out_csv, thresholds](const RowDiagnostic& row) {
-      if (thresholds.StandsOut(row)) stand_out_csv(StandOutRowCsv(row, thresholds));
+    stand_out_csv(diagnostics.set_files.empty() ? kStandOutCsvHeader : kStandOutSetCsvHeader);
+    options.row_observer = [&stand_out_csv, thresholds, &diagnostics](const RowDiagnostic& row) {
+      if (thresholds.StandsOut(row)) stand_out_csv(StandOutRowCsv(row, thresholds, diagnostics.set_files));
     };
   }
-  ReportDiagnostics diagnostics;
   diagnostics.result =
       ComputeDiagnostics(model.fit, model.design, SpillRowReplay(scan.spill, model.design), options);
   diagnostics.k = model.fit.k;

@@ -13,6 +13,7 @@
 #include <numbers>
 
 #include "report_internal.h"
+#include "stepledger/engine/data_set.h"
 #include "stepledger/engine/number_format.h"
 
 namespace stepledger {
@@ -23,8 +24,9 @@ using V = ReportValue;
 
 std::string CountText(std::uint64_t count) { return FormatCount(static_cast<std::int64_t>(count)); }
 
-std::string RowTitle(const RowDiagnostic& row) {
-  return "line " + CountText(row.line) + ": fitted " + FormatQuantity(row.fitted, 6) + ", residual " +
+// "line 12: ..." or, in a data set, "line 12 of b.csv: ...".
+std::string RowTitle(const RowDiagnostic& row, const std::vector<std::string>& set_files) {
+  return RowPlaceText(row.line, row.file, set_files) + ": fitted " + FormatQuantity(row.fitted, 6) + ", residual " +
          FormatQuantity(row.residual) + ", std. residual " + FormatStatistic(row.standardized_residual) +
          ", leverage " + FormatQuantity(row.leverage, 3) + ", Cook's D " + FormatQuantity(row.cooks_distance, 3);
 }
@@ -58,15 +60,18 @@ Coarsening Coarsen(std::size_t bins, std::size_t most, Occupied occupied) {
   return coarsening;
 }
 
-ReportChart CooksChart(const DiagnosticsResult& result, const ReportOptions& options) {
+ReportChart CooksChart(const DiagnosticsResult& result, const ReportOptions& options,
+                       const std::vector<std::string>& set_files) {
   const LineBinnedCooks& binned = result.cooks_by_line;
+  // A data set's lines start again in every file: its axis is the record number across the set.
+  const std::string unit = binned.by_record ? "record" : "line";
   const Coarsening coarse =
       Coarsen(binned.lines.bins, options.cooks_bins, [&](std::size_t bin) { return binned.largest[bin].has_value(); });
   ReportChart chart;
   chart.id = "cooks-chart";
   chart.kind = ChartKind::kScatter;
-  chart.title = "Cook's distance by line number";
-  chart.x_label = "line number in the data file";
+  chart.title = "Cook's distance by " + unit + " number";
+  chart.x_label = binned.by_record ? "record number across the data set's files" : "line number in the data file";
   chart.y_label = "Cook's distance";
   const double threshold = result.thresholds.cooks;
   chart.y_include = {0, threshold};
@@ -86,12 +91,12 @@ ReportChart CooksChart(const DiagnosticsResult& result, const ReportOptions& opt
     const double first = binned.lines.lo + binned.lines.width * static_cast<double>(coarse.first) +
                          width * static_cast<double>(index);
     ChartPoint point;
-    point.x = static_cast<double>(row.line);
+    point.x = binned.PositionOf(row);
     point.y = *row.cooks_distance;
     point.css_class = "cooks-bin";
-    point.title = "lines " + FormatCount(static_cast<std::int64_t>(std::max(1.0, std::ceil(first)))) + " to " +
+    point.title = unit + "s " + FormatCount(static_cast<std::int64_t>(std::max(1.0, std::ceil(first)))) + " to " +
                   FormatCount(static_cast<std::int64_t>(std::ceil(first + width) - 1)) + ": largest Cook's D " +
-                  FormatQuantity(row.cooks_distance, 3) + " (line " + CountText(row.line) + ")";
+                  FormatQuantity(row.cooks_distance, 3) + " (" + RowPlaceText(row.line, row.file, set_files) + ")";
     largest.points.push_back(std::move(point));
   }
   const std::size_t ranges = largest.points.size();
@@ -100,11 +105,11 @@ ReportChart CooksChart(const DiagnosticsResult& result, const ReportOptions& opt
   for (const RowDiagnostic& row : result.largest_cooks_distance) {
     if (flagged.points.size() >= options.max_flagged_points) break;
     if (!result.thresholds.CooksAbove(row)) continue;  // also skips leverage 1: no distance to draw
-    flagged.points.push_back({static_cast<double>(row.line), *row.cooks_distance, "cooks-flagged", RowTitle(row),
+    flagged.points.push_back({binned.PositionOf(row), *row.cooks_distance, "cooks-flagged", RowTitle(row, set_files),
                               "", std::nullopt, std::nullopt, "", true});
   }
   chart.caption = "Each ● is the largest Cook's distance of a range of " + FormatQuantity(std::max(1.0, width), 3) +
-                  " lines (" + FormatCount(static_cast<std::int64_t>(ranges)) +
+                  " " + unit + "s (" + FormatCount(static_cast<std::int64_t>(ranges)) +
                   " ranges with a distance); ▲ the largest distances above the dashed 4/n line, the "
                   "threshold of the table below (" + CountText(result.cooks_above) + " rows)." +
                   NotDrawn(result.cooks_above, flagged.points.size(), "such rows");
@@ -113,7 +118,7 @@ ReportChart CooksChart(const DiagnosticsResult& result, const ReportOptions& opt
 }
 
 ReportChart DensityChart(const json& audit, const DiagnosticsResult& result, const ReportOptions& options,
-                         const std::vector<RowDiagnostic>& stand_out_rows) {
+                         const std::vector<RowDiagnostic>& stand_out_rows, const std::vector<std::string>& set_files) {
   const std::string response = ResponseLabel(audit);
   const GrowingDensity& density = result.fitted_residual_density;
   const std::size_t columns_in = density.x.bins, rows_in = density.y.bins;
@@ -162,7 +167,7 @@ ReportChart DensityChart(const json& audit, const DiagnosticsResult& result, con
   ChartSeries flagged{"rows that stand out", false, true, {}, {}};
   for (const RowDiagnostic& row : stand_out_rows) {
     if (flagged.points.size() >= options.max_flagged_points) break;
-    flagged.points.push_back({row.fitted, row.residual, "resid-flagged", RowTitle(row), "", std::nullopt,
+    flagged.points.push_back({row.fitted, row.residual, "resid-flagged", RowTitle(row, set_files), "", std::nullopt,
                               std::nullopt, "", true});
   }
   chart.caption = CountText(density.total) + " rows binned on a " + CountText(shown_columns) + " by " + CountText(shown_rows) +
@@ -291,8 +296,9 @@ ReportSection DiagnosticsSection(const json& audit, const ReportDiagnostics* dia
       {"Residual SD", V::Quantity(diagnostics->sigma)},
       {"Rows that stand out", V::Count(static_cast<std::int64_t>(result.stand_out))},
   }});
-  section.blocks.push_back(CooksChart(result, options));
-  section.blocks.push_back(DensityChart(audit, result, options, stand_out_rows));
+  const std::vector<std::string>& set_files = diagnostics->set_files;
+  section.blocks.push_back(CooksChart(result, options, set_files));
+  section.blocks.push_back(DensityChart(audit, result, options, stand_out_rows, set_files));
   section.blocks.push_back(HistogramChart(result, options));
   if (!result.normal_quantiles.empty()) section.blocks.push_back(QuantileChart(result));
 
@@ -312,12 +318,16 @@ ReportSection DiagnosticsSection(const json& audit, const ReportDiagnostics* dia
                      {"residual", ValueKind::kQuantity},   {"std. residual", ValueKind::kStatistic},
                      {"leverage", ValueKind::kQuantity},   {"Cook's D", ValueKind::kQuantity},
                      {"why", ValueKind::kText}};
+    // A data set's lines start again in every file: the file comes first.
+    if (!set_files.empty()) table.columns.insert(table.columns.begin(), {"file", ValueKind::kText});
     for (std::size_t index = 0; index < stand_out_rows.size() && index < options.max_outlier_rows; ++index) {
       const RowDiagnostic& row = stand_out_rows[index];
-      table.rows.push_back({V::Count(static_cast<std::int64_t>(row.line)), V::Quantity(row.fitted, 6),
-                            V::Quantity(row.residual), V::Statistic(row.standardized_residual),
-                            V::Quantity(row.leverage, 3), V::Quantity(row.cooks_distance, 3),
-                            V::Text(StandOutReasons(row, thresholds))});
+      std::vector<ReportValue> cells{V::Count(static_cast<std::int64_t>(row.line)), V::Quantity(row.fitted, 6),
+                                     V::Quantity(row.residual), V::Statistic(row.standardized_residual),
+                                     V::Quantity(row.leverage, 3), V::Quantity(row.cooks_distance, 3),
+                                     V::Text(StandOutReasons(row, thresholds))};
+      if (!set_files.empty()) cells.insert(cells.begin(), V::Text(row.file < set_files.size() ? set_files[row.file] : ""));
+      table.rows.push_back(std::move(cells));
     }
     table.rows_not_listed = static_cast<std::size_t>(result.stand_out) - table.rows.size();
     section.blocks.push_back(std::move(table));
@@ -346,8 +356,11 @@ std::string QuotedCsvField(const std::string& text) {
 
 }  // namespace
 
-std::string StandOutRowCsv(const RowDiagnostic& row, const StandOutThresholds& thresholds) {
-  return std::to_string(row.line) + "," + ExactNumber(row.fitted) + "," + ExactNumber(row.residual) + "," +
+std::string StandOutRowCsv(const RowDiagnostic& row, const StandOutThresholds& thresholds,
+                           const std::vector<std::string>& set_files) {
+  const std::string file =
+      set_files.empty() ? std::string() : QuotedCsvField(row.file < set_files.size() ? set_files[row.file] : "") + ",";
+  return file + std::to_string(row.line) + "," + ExactNumber(row.fitted) + "," + ExactNumber(row.residual) + "," +
          ExactNumber(row.standardized_residual) + "," + ExactNumber(row.leverage) + "," +
          ExactNumber(row.cooks_distance) + "," + QuotedCsvField(report_detail::StandOutReasons(row, thresholds)) +
          "\n";

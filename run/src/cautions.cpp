@@ -4,6 +4,7 @@
 #include <cmath>
 #include <utility>
 
+#include "stepledger/engine/data_set.h"
 #include "stepledger/engine/number_format.h"
 #include "stepledger/selection/criterion.h"
 
@@ -107,7 +108,7 @@ Caution Extrapolation(const RunResult& run) {
   if (!range_text.empty()) caution.message += " (" + range_text + ")";
   if (run.max_leverage) {
     caution.message += " or with leverage above " + FormatQuantity(run.max_leverage) +
-                       " (the largest here, line " + std::to_string(run.max_leverage_line) + ")";
+                       " (the largest here, " + RowPlaceText(run.max_leverage_line, run.max_leverage_file, SetFileNames(run)) + ")";
   }
   caution.message += " are extrapolations and are flagged.";
   caution.max_leverage = run.max_leverage;

@@ -128,11 +128,14 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   // A holdout needs the ranges and the largest leverage of the model's rows to count its own
   // extrapolations, so it learns them even when the diagnostics are not asked for.
   if ((options.diagnostics || search.holdout) && run.fit.n > 0) {
+    DiagnosticsOptions diagnostics_options;
+    diagnostics_options.rows_by_record = run.data_is_set;
     std::optional<DiagnosticsResult> diagnostics =
-        DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support);
+        DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support, diagnostics_options);
     if (diagnostics->rows > 0) {
       run.max_leverage = diagnostics->max_leverage;
       run.max_leverage_line = diagnostics->max_leverage_line;
+      run.max_leverage_file = diagnostics->max_leverage_file;
     }
     if (options.diagnostics) run.diagnostics = std::move(diagnostics);
   }
@@ -150,6 +153,13 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   run.duration_seconds =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
   return run;
+}
+
+std::vector<std::string> SetFileNames(const RunResult& run) {
+  std::vector<std::string> names;
+  if (!run.data_is_set) return names;
+  for (const DataFileRecord& file : run.data_files) names.push_back(file.name);
+  return names;
 }
 
 }  // namespace stepledger

@@ -299,5 +299,79 @@ TEST(DataSetCommandTest, CompressedMembersRerunAndReportLikeThePlainSet) {
   EXPECT_NE(wrong.err.find("not the data of"), std::string::npos) << wrong.err;
 }
 
+// Where the row of the whole file's line `line` is in the set of files of 700, 700 and 600 rows:
+// {file index, its own line} (laptops.csv has one line per record after its header).
+std::pair<std::size_t, std::uint64_t> PlaceInSet(std::uint64_t line) {
+  const std::uint64_t record = line - 2;
+  const std::size_t file = static_cast<std::size_t>(std::min<std::uint64_t>(record / 700, 2));
+  return {file, record - 700 * file + 2};
+}
+
+TEST(DataSetCommandTest, RowsNamedByLineAlsoNameTheirFile) {
+  SplitData split;
+  const auto whole = RunStepledger({"fit", split.whole.string(), "--plan", split.plan.string(), "--json",
+                                    "--threads", "1"});
+  const auto set = RunStepledger({"fit", split.folder.string(), "--plan", split.plan.string(), "--json",
+                                  "--threads", "1"});
+  ASSERT_EQ(whole.status, 0) << whole.err;
+  ASSERT_EQ(set.status, 0) << set.err;
+  const nlohmann::json a = nlohmann::json::parse(whole.out)["diagnostics"];
+  const nlohmann::json b = nlohmann::json::parse(set.out)["diagnostics"];
+  for (const char* measure : {"max_leverage", "max_cooks_distance"}) {
+    ASSERT_TRUE(a[measure].is_object()) << a.dump();
+    EXPECT_FALSE(a[measure].contains("file")) << "one file: its line alone";
+    const auto [file, line] = PlaceInSet(a[measure]["line"].get<std::uint64_t>());
+    EXPECT_EQ(b[measure]["file"], "part-" + std::to_string(file + 1) + ".csv") << measure;
+    EXPECT_EQ(b[measure]["line"], line) << measure;
+  }
+  const auto [file, line] = PlaceInSet(a["max_leverage"]["line"].get<std::uint64_t>());
+  const std::string place = "line " + std::to_string(line) + " of part-" + std::to_string(file + 1) + ".csv";
+  const auto text = RunStepledger({"fit", split.folder.string(), "--plan", split.plan.string(), "--threads", "1"});
+  ASSERT_EQ(text.status, 0) << text.err;
+  EXPECT_NE(text.out.find("(" + place + "; average k/n"), std::string::npos) << text.out;
+
+  // The audit's prediction section and the extrapolation caution name the file too.
+  const std::string out = (split.dir.path() / "set-audit").string();
+  const auto selected = RunStepledger({"select", split.folder.string(), "--plan", split.plan.string(), "--out", out,
+                                       "--threads", "1"});
+  ASSERT_EQ(selected.status, 0) << selected.err;
+  const nlohmann::json audit = ReadJson(std::filesystem::path(out) / "audit.json");
+  const std::string& leverage_file = audit["prediction"]["max_unit_leverage_file"].get_ref<const std::string&>();
+  EXPECT_EQ(leverage_file.rfind("part-", 0), 0u) << leverage_file;
+  EXPECT_NE(audit.dump().find(" of part-"), std::string::npos) << "the extrapolation caution names the file";
+  const std::string problems = testing::ValidateAuditAgainstSchema(std::filesystem::path(out) / "audit.json");
+  if (problems != "skip") {
+    EXPECT_EQ(problems, "") << "schema (Draft 2020-12, Debian python3-jsonschema)";
+  }
+
+  // report --rows-out: the file's name comes first; the rows are the whole file's, placed.
+  const std::filesystem::path whole_rows = split.dir.path() / "whole-rows.csv", set_rows = split.dir.path() / "set-rows.csv";
+  const std::string whole_out = (split.dir.path() / "whole-audit").string();
+  ASSERT_EQ(RunStepledger({"select", split.whole.string(), "--plan", split.plan.string(), "--out", whole_out,
+                           "--threads", "1"}).status, 0);
+  const auto whole_report = RunStepledger({"report", (std::filesystem::path(whole_out) / "audit.json").string(),
+                                           "--data", split.whole.string(), "--rows-out", whole_rows.string()});
+  ASSERT_EQ(whole_report.status, 0) << whole_report.err;
+  const auto set_report = RunStepledger({"report", (std::filesystem::path(out) / "audit.json").string(), "--data",
+                                         split.folder.string(), "--rows-out", set_rows.string(), "--json"});
+  ASSERT_EQ(set_report.status, 0) << set_report.err;
+  EXPECT_NE(set_report.out.find("record number across the data set's files"), std::string::npos);
+  std::istringstream whole_lines(ReadText(whole_rows)), set_lines(ReadText(set_rows));
+  std::string whole_line, set_line;
+  std::getline(whole_lines, whole_line);
+  std::getline(set_lines, set_line);
+  EXPECT_EQ(whole_line.rfind("line,fitted,", 0), 0u) << whole_line;
+  EXPECT_EQ(set_line.rfind("file,line,fitted,", 0), 0u) << set_line;
+  std::size_t rows = 0;
+  while (std::getline(whole_lines, whole_line)) {
+    ASSERT_TRUE(std::getline(set_lines, set_line)) << "the set lists as many rows";
+    const auto [row_file, row_line] = PlaceInSet(std::stoull(whole_line.substr(0, whole_line.find(','))));
+    EXPECT_EQ(set_line.rfind("part-" + std::to_string(row_file + 1) + ".csv," + std::to_string(row_line) + ",", 0), 0u)
+        << set_line << " for " << whole_line;
+    ++rows;
+  }
+  EXPECT_GT(rows, 0u);
+}
+
 }  // namespace
 }  // namespace stepledger

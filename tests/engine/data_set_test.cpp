@@ -51,6 +51,12 @@ std::vector<std::string> Names(const std::vector<std::filesystem::path>& paths) 
   return names;
 }
 
+TEST(RowPlaceText, OneFileByLineASetByLineAndFile) {
+  EXPECT_EQ(RowPlaceText(12, 0, {}), "line 12");
+  EXPECT_EQ(RowPlaceText(12, 1, {"a.csv", "b.csv"}), "line 12 of b.csv");
+  EXPECT_EQ(RowPlaceText(3, 0, {"a.csv", "b.csv"}), "line 3 of a.csv");
+}
+
 TEST(DataSetFingerprint, WorkedExampleOfTheReadme) {
   TempDir dir;
   std::filesystem::create_directory(dir.path() / "sales");

@@ -14,6 +14,8 @@
 //                value (the value, its natural log, its power) over the rows used;
 //     max_unit_leverage, max_unit_leverage_line: the largest x_i'(X'WX)^-1 x_i over the rows
 //                used (the leverage at unit weight: h_ii / w_i) and the line of that row;
+//     max_unit_leverage_file: for a data set of several files only, the name of that row's file
+//                (its lines start again in every file); absent for one file;
 //     smearing_factor: with a logged response, the mean over the rows used of
 //                exp(sqrt(w_i) e_i) (the smearing estimate of E[exp(error)]); else null
 //   }
@@ -38,8 +40,10 @@
 namespace stepledger {
 
 /// The `prediction` section for a run (the shape above).
+/// set_files: a data set's file names in reading order (SetFileNames), empty for one file.
 nlohmann::json PredictionSectionJson(const FitResult& fit, const Design& design,
-                                     const PredictionSupport& support);
+                                     const PredictionSupport& support,
+                                     const std::vector<std::string>& set_files = {});
 
 /// The final model of an audit, rebuilt.
 struct FittedModel {

@@ -106,7 +106,9 @@ void RequireSomethingToFit(const PassResult& pass, const Design& design, const s
 /// A used row seen again: x unscaled (design.column_count() values).
 struct UsedRow {
   std::uint64_t row_index = 0;  ///< 0-based data record index in the file
-  std::uint64_t line = 0;       ///< 1-based line where the record starts
+  std::uint64_t line = 0;       ///< 1-based line where the record starts, in its own file
+  /// The file of a data set the record is in: an index into Spill::sources() (0 for one file).
+  std::size_t file = 0;
   std::span<const double> x;
   /// Optional low-order parts of x (empty, or design.column_count() values): the exact value of
   /// column j is x[j] + x_low[j]. A power computed in long double can pass its rounding error

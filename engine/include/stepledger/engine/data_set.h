@@ -72,4 +72,9 @@ std::string DataSetFileName(const DataSet& data);
 /// (the formula above). A single fingerprint is returned as it is.
 std::string CombineMemberFingerprints(const std::vector<std::string>& member_fingerprints);
 
+/// How people see where a row is: "line 12" for one file; for a data set of several files (its
+/// lines restart in every file) "line 12 of b.csv". set_files: the set's file names in reading
+/// order (UsedRow::file indexes it), empty for one file.
+std::string RowPlaceText(std::uint64_t line, std::size_t file, const std::vector<std::string>& set_files);
+
 }  // namespace stepledger

@@ -50,7 +50,8 @@ inline constexpr std::size_t kStandardizedHistogramBins = 256;
 
 struct RowDiagnostic {
   std::uint64_t row_index = 0;  ///< 0-based data record index in the file
-  std::uint64_t line = 0;       ///< 1-based line where the record starts
+  std::uint64_t line = 0;       ///< 1-based line where the record starts, in its own file
+  std::size_t file = 0;         ///< the data set's file it is in (UsedRow::file; 0 for one file)
   double fitted = 0;
   double residual = 0;        ///< y - fitted (unweighted)
   double leverage = 0;        ///< h_ii = w_i x_i' (X'WX)^-1 x_i
@@ -103,11 +104,16 @@ struct GrowingDensity {
   void Add(double x_value, double y_value);
 };
 
-/// The largest Cook's distance in each range of line numbers (rows with a defined distance).
+/// The largest Cook's distance in each range of line numbers (rows with a defined distance), or
+/// of record numbers (1-based, across the files) for a data set of several files, whose lines
+/// restart in every file.
 struct LineBinnedCooks {
   GrowingAxis lines;
   std::vector<std::optional<RowDiagnostic>> largest;
-  explicit LineBinnedCooks(std::size_t bins);
+  bool by_record = false;
+  explicit LineBinnedCooks(std::size_t bins, bool by_record = false);
+  /// Where a row sits on the axis: its line, or its record number when by_record.
+  double PositionOf(const RowDiagnostic& row) const;
   void Add(const RowDiagnostic& row);
 };
 
@@ -126,6 +132,7 @@ struct DiagnosticsResult {
   std::optional<double> press;      ///< sum w (e / (1 - h))^2; undefined when some h = 1
   double max_leverage = 0;
   std::uint64_t max_leverage_line = 0;  ///< its line (the first such row); 0 without rows
+  std::size_t max_leverage_file = 0;    ///< its file of a data set (RowDiagnostic::file)
   std::uint64_t leverage_one_rows = 0;  ///< rows with h = 1 (no standardised residual)
   double weighted_residual_sum_of_squares = 0;  ///< sum w e^2 (a check against the fit's RSS)
 
@@ -156,7 +163,8 @@ struct DiagnosticsResult {
 /// ComputeDiagnostics uses it; tests and simulations can feed rows of their own.
 class DiagnosticsAccumulator {
  public:
-  explicit DiagnosticsAccumulator(StandOutThresholds thresholds);
+  /// by_record: the Cook's distance chart by record number (a data set of several files).
+  explicit DiagnosticsAccumulator(StandOutThresholds thresholds, bool by_record = false);
   ~DiagnosticsAccumulator();
   DiagnosticsAccumulator(const DiagnosticsAccumulator&) = delete;
   DiagnosticsAccumulator& operator=(const DiagnosticsAccumulator&) = delete;
@@ -174,6 +182,9 @@ struct DiagnosticsOptions {
   /// Called with every row, in file order, as soon as it is diagnosed (`report --rows-out`
   /// streams through it). Default: none.
   std::function<void(const RowDiagnostic&)> row_observer;
+  /// The data are a set of several files: Cook's distances are binned by record number across
+  /// the set (cooks_by_line.by_record), since each file's lines start again at 1. Default: no.
+  bool rows_by_record = false;
 };
 
 /// One more pass over the rows for the diagnostics of a fitted model; the stand-out

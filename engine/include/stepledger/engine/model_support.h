@@ -32,6 +32,7 @@ struct PredictionSupport {
   std::vector<TermRange> ranges;
   std::optional<double> max_unit_leverage;
   std::uint64_t max_unit_leverage_line = 0;
+  std::size_t max_unit_leverage_file = 0;  ///< its file of a data set (UsedRow::file)
   std::optional<double> smearing_factor;
 };
 

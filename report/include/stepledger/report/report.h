@@ -56,6 +56,9 @@ struct ReportDiagnostics {
   std::size_t k = 0;
   /// Residual standard deviation of the final model; undefined when n <= k.
   std::optional<double> sigma;
+  /// A data set's file names in reading order (RowDiagnostic::file indexes them), so that rows
+  /// are named "line 12 of b.csv"; empty for one file (SetFileNames, run/run_plan.h).
+  std::vector<std::string> set_files;
 };
 
 struct ReportOptions {
@@ -274,9 +277,15 @@ std::string RenderHtmlReport(const nlohmann::json& audit, const ReportDiagnostic
 /// while the rows are diagnosed (DiagnoseAuditRows).
 inline constexpr std::string_view kStandOutCsvHeader =
     "line,fitted,residual,standardized_residual,leverage,cooks_distance,reasons\n";
+/// The header for a data set of several files: the file's name first (each file's lines start
+/// at 1 again).
+inline constexpr std::string_view kStandOutSetCsvHeader =
+    "file,line,fitted,residual,standardized_residual,leverage,cooks_distance,reasons\n";
 /// One record of that CSV (ending in a newline): numbers at full precision (shortest round
-/// trip), undefined ones empty, the reasons in words.
-std::string StandOutRowCsv(const RowDiagnostic& row, const StandOutThresholds& thresholds);
+/// trip), undefined ones empty, the reasons in words; for a data set (set_files not empty) the
+/// file's name first.
+std::string StandOutRowCsv(const RowDiagnostic& row, const StandOutThresholds& thresholds,
+                           const std::vector<std::string>& set_files = {});
 
 /// The diagnostics of an audit's final model on its data file or data set, for the report: checks that the
 /// file's fingerprint equals the audit's data.sha256 (else InputError naming both digests and

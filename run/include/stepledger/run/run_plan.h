@@ -82,6 +82,7 @@ struct RunResult {
   FitResult fit;
   std::optional<double> max_leverage;  ///< from the diagnostics pass, when run
   std::uint64_t max_leverage_line = 0;
+  std::size_t max_leverage_file = 0;  ///< its file in data_files (a data set's lines restart per file)
   /// What pricing new rows needs (ranges, largest unit leverage, smearing factor); filled by
   /// the diagnostics pass, empty without it.
   PredictionSupport prediction_support;
@@ -92,6 +93,10 @@ struct RunResult {
   RunOptions options;
   double duration_seconds = 0;      ///< wall time of the run
 };
+
+/// The names of a data set's files in reading order, for RowPlaceText (engine/data_set.h):
+/// empty for a single file, whose rows are named by their line alone.
+std::vector<std::string> SetFileNames(const RunResult& run);
 
 /// Runs a plan on a data file or data set (the pipeline above). observer (optional) sees the
 /// search's events as they happen. Throws InputError/PlanError for bad input.
