@@ -18,13 +18,6 @@ std::string Padded(const std::string& text, std::size_t width) {
   return text.size() >= width ? text : std::string(width - text.size(), ' ') + text;
 }
 
-std::string TermsText(const std::vector<std::string>& terms) {
-  if (terms.empty()) return "no terms, the intercept alone";
-  std::string text;
-  for (const std::string& term : terms) text += (text.empty() ? "" : ", ") + term;
-  return text;
-}
-
 void HoldoutText(const HoldoutValidation& holdout, std::ostringstream& text) {
   text << "Held-out rows (" << FormatPercent(holdout.settings.fraction) << " drawn with seed "
        << holdout.settings.seed << "; errors are observed minus predicted):\n";
@@ -61,7 +54,7 @@ void BootstrapText(const BootstrapValidation& bootstrap, std::ostringstream& tex
   }
   text << "\n  most frequent models:\n";
   for (const ModelFrequency& model : bootstrap.models) {
-    text << "    " << Padded(FormatPercent(model.frequency), 6) << "  " << TermsText(model.terms)
+    text << "    " << Padded(FormatPercent(model.frequency), 6) << "  " << ModelTermsText(model.terms)
          << (model.chosen ? "  (the chosen model)" : "") << "\n";
   }
   text << "  the chosen model is " << (bootstrap.chosen_among_top ? "" : "not ") << "among them\n";

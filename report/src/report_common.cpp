@@ -141,9 +141,9 @@ std::optional<std::int64_t> Count(const json& value) {
 }
 
 std::string JoinTerms(const json& terms) {
-  std::string text;
-  for (const json& term : terms) text += (text.empty() ? "" : ", ") + Text(term);
-  return text.empty() ? "(intercept only)" : text;
+  std::vector<std::string> names;
+  for (const json& term : terms) names.push_back(Text(term));
+  return ModelTermsText(names);
 }
 
 std::string LevelsSummary(const json& column, std::size_t max_listed, bool with_counts) {

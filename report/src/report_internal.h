@@ -14,6 +14,7 @@
 #include <nlohmann/json.hpp>
 
 #include "stepledger/report/report.h"
+#include "stepledger/run/validation.h"
 
 namespace stepledger::report_detail {
 
@@ -31,7 +32,7 @@ std::optional<double> Number(const json& value);
 std::optional<std::int64_t> Count(const json& value);
 /// A string as it is, a number or bool as JSON text, null as "".
 std::string Text(const json& value);
-/// "a, b, c"; "(intercept only)" for no terms.
+/// "a, b, c"; "the intercept alone" for no terms (ModelTermsText, run/validation.h).
 std::string JoinTerms(const json& terms);
 
 /// A data column's levels: "3 levels", and when there are at most max_listed, ": A B C"

@@ -228,14 +228,13 @@ std::optional<ReportSection> SubsetsSection(const json& audit) {
                     "for its terms.";
     ChartSeries series{"best by size", true, true, {}, {}};
     for (const SubsetBest& entry : best) {
-      std::string terms;
-      for (const std::string& term : entry.terms) terms += (terms.empty() ? "" : ", ") + term;
+      const std::string terms = ModelTermsText(entry.terms);
       const bool chosen = static_cast<std::size_t>(entry.size) == final_size;
       ChartPoint point;
       point.x = static_cast<double>(entry.size);
       point.y = entry.score;
       point.css_class = chosen ? "subset-best chosen" : "subset-best";
-      point.title = FormatCount(entry.size) + " terms: " + (terms.empty() ? "(intercept only)" : terms) + "; " +
+      point.title = FormatCount(entry.size) + " terms: " + terms + "; " +
                     value_name + " " + V::CriterionValue(criterion, entry.score).text;
       series.points.push_back(std::move(point));
     }

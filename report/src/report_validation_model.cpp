@@ -14,13 +14,6 @@ namespace {
 
 using V = ReportValue;
 
-std::string TermsText(const std::vector<std::string>& terms) {
-  if (terms.empty()) return "(intercept only)";
-  std::string text;
-  for (const std::string& term : terms) text += (text.empty() ? "" : ", ") + term;
-  return text;
-}
-
 void FoldsBlocks(const FoldValidation& folds, const json& model, ReportSection& section) {
   // The residual SD recorded beside the folds, else the model's sigma.
   const std::optional<double> sd = folds.residual_sd ? folds.residual_sd : Number(Get(model, "sigma"));
@@ -170,7 +163,7 @@ void BootstrapBlocks(const BootstrapValidation& bootstrap, const json& audit, Re
   models.caption = "The most frequent final models";
   models.columns = {{"share", ValueKind::kPercent}, {"terms", ValueKind::kText}};
   for (const ModelFrequency& model : bootstrap.models) {
-    models.rows.push_back({V::Percent(model.frequency), V::Text(TermsText(model.terms))});
+    models.rows.push_back({V::Percent(model.frequency), V::Text(ModelTermsText(model.terms))});
     models.row_styles.push_back(model.chosen ? "chosen" : "");
   }
   section.blocks.push_back(std::move(models));

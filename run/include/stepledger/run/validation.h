@@ -19,6 +19,15 @@
 
 namespace stepledger {
 
+/// A model's terms for people, one wording everywhere (terminal, report): "a, b, c", or "the
+/// intercept alone" for a model without terms.
+inline std::string ModelTermsText(const std::vector<std::string>& terms) {
+  if (terms.empty()) return "the intercept alone";
+  std::string text;
+  for (const std::string& term : terms) text += (text.empty() ? "" : ", ") + term;
+  return text;
+}
+
 /// One fold of the final model's k-fold error.
 struct FoldOutcome {
   std::size_t fold = 0;        ///< 0-based
