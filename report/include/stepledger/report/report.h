@@ -45,6 +45,7 @@
 #include "stepledger/engine/diagnostics.h"
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/table_scan.h"
+#include "stepledger/run/run_plan.h"
 
 namespace stepledger {
 
@@ -294,5 +295,11 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit,
 
 /// File name of the HTML report that `select --out DIR` writes beside the audit.
 inline constexpr std::string_view kReportFileName = "report.html";
+
+/// Writes DIR/audit.json (the sealed document) and DIR/report.html, rendered from that very
+/// document with the run's own diagnostics (no second pass), as one unit (WriteAuditFolder):
+/// what `select --out` and `rerun --out` write, and the Python module's `out=`.
+void WriteAuditWithReport(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
+                          const RunResult& run, bool overwrite);
 
 }  // namespace stepledger
