@@ -80,3 +80,23 @@ def test_no_used_row_is_an_input_error():
     frame = pandas.DataFrame({"y": [float("nan")] * 3, "x": [1.0, 2.0, 3.0]})
     with pytest.raises(stepledger.InputError):
         stepledger.select(frame, {"response": "y", "terms": "all"})
+
+
+def test_numerical_error_when_the_typed_copy_is_damaged(tmp_path, laptops_frame):
+    # The spill cut short while the run goes on (a failing disk): the refinement's read-back is a
+    # NumericalError, exit 3 on the command line; it has no place in the input to name.
+    damaged = []
+
+    def progress(phase, done, total):
+        if phase == "search" and not damaged:
+            for path in tmp_path.rglob("*.bin"):
+                with open(path, "r+b") as spill:
+                    spill.truncate(16)
+                damaged.append(path)
+
+    with pytest.raises(stepledger.NumericalError) as caught:
+        stepledger.select(laptops_frame, STEPWISE_BIC, threads=1, work_dir=tmp_path, progress=progress)
+    assert damaged
+    assert "typed copy of the rows" in str(caught.value)
+    assert (caught.value.file, caught.value.line, caught.value.column, caught.value.key) == (None, None, None, None)
+    assert list(tmp_path.iterdir()) == []
