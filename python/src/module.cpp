@@ -32,6 +32,8 @@
 #include "stepledger/report/report.h"
 #include "stepledger/run/cautions.h"
 #include "stepledger/run/run_plan.h"
+#include "stepledger/run/starter_plan.h"
+#include "stepledger/engine/table_scan.h"
 #include "stepledger/selection/observer.h"
 #include "stepledger/selection/plan.h"
 
@@ -325,6 +327,32 @@ py::tuple Predict(const std::string& audit_path, const std::string& rows_path, d
   return py::make_tuple(rows_text, warning);
 }
 
+/// `profile --json` for Python: the columns, the fingerprint and, with a response, the starter plan.
+std::string Profile(const py::object& data, const std::string& response, int threads) {
+  DataArgument argument = MakeData(data);
+  const InputLimits limits;
+  ScanOptions scan;
+  scan.threads = threads;
+  scan.spill = false;  // the profile is all it needs
+  scan.profile.max_levels = static_cast<std::size_t>(limits.levels);
+  scan.csv.max_columns = limits.columns;
+  PythonHooks hooks{py::object(py::none())};
+  const ScanResult scanned = WithoutGil(hooks, &argument, [&] { return ScanData(argument.set, scan); });
+  const StarterPlan starter = MakeStarterPlan(scanned.profile, response, limits, "response");
+  nlohmann::ordered_json result;
+  result["file"] = scanned.profile.path.string();
+  result["rows"] = scanned.profile.rows;
+  result["sha256"] = scanned.sha256;
+  nlohmann::ordered_json columns = nlohmann::ordered_json::array();
+  for (const ColumnProfile& column : scanned.profile.columns) columns.push_back(ColumnProfileJson(column));
+  result["columns"] = std::move(columns);
+  result["starter_plan"] = starter.plan;
+  result["starter_plan_text"] = starter.plan.is_null() ? nlohmann::ordered_json(nullptr)
+                                                        : nlohmann::ordered_json(StarterPlanText(starter.plan));
+  result["notes"] = starter.notes;
+  return result.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
+}
+
 std::string Fingerprint(const py::object& data) {
   DataArgument argument = MakeData(data);
   PythonHooks hooks{py::object(py::none())};
@@ -385,5 +413,6 @@ PYBIND11_MODULE(_stepledger, module) {
   module.def("predict", &Predict, py::arg("audit"), py::arg("rows"), py::arg("level"), py::arg("id"),
              py::arg("allow_unverified"));
   module.def("compare", &Compare, py::arg("old"), py::arg("new"));
+  module.def("profile", &Profile, py::arg("data"), py::arg("response"), py::arg("threads"));
   module.def("fingerprint", &Fingerprint, py::arg("data"));
 }

@@ -25,7 +25,7 @@ except ImportError:  # pragma: no cover - Debian's python3-pandas is installed b
 
 import numpy as _numpy
 
-__all__ = ["select", "fit", "verify", "compare", "rerun", "predict", "fingerprint", "Result", "Verification", "Comparison",
+__all__ = ["profile", "select", "fit", "verify", "compare", "rerun", "predict", "fingerprint", "Profile", "Result", "Verification", "Comparison",
            "InputError", "PlanError", "NumericalError", "AuditError"]
 
 for _error in (InputError, PlanError, NumericalError, AuditError):
@@ -252,6 +252,28 @@ class Result:
         return f"<stepledger.Result {self.audit['plan']['normalised'].get('method')}: {', '.join(self.terms) or '(no terms)'}>"
 
 
+class Profile:
+    """What `profile` found: each column, the fingerprint and, with a response, a starter plan."""
+
+    def __init__(self, document):
+        self.document = json.loads(document)
+        self.rows = self.document["rows"]
+        self.fingerprint = self.document["sha256"]
+        #: The starter plan as a dict with the plan file's keys (None without a response): select takes it.
+        self.starter_plan = self.document["starter_plan"]
+        #: The same as the text of a plan file, one term per line (None without a response).
+        self.starter_plan_text = self.document["starter_plan_text"]
+        self.notes = list(self.document["notes"])
+
+    @property
+    def columns(self):
+        """One row per column: name, kind, present, missing, min, max, mean, sd, levels, too_many_levels."""
+        return _table(self.document["columns"])
+
+    def __repr__(self):
+        return f"<stepledger.Profile {self.rows} rows, {len(self.document['columns'])} columns>"
+
+
 class Verification:
     """What `verify` found: holds, the report text, and the checks as JSON."""
 
@@ -289,6 +311,12 @@ def _run(data, plan, *, fit_only, method=None, criterion=None, threads=None, wor
         _default_threads() if threads is None else int(threads), os.fspath(work_dir) if work_dir else "",
         float(level), int(refine), os.fspath(sign_key) if sign_key else "", progress)
     return Result(handle)
+
+
+def profile(data, response=None, *, threads=None):
+    """Each column's kind, counts, range and levels, and with response a starter plan (as `stepledger profile`)."""
+    return Profile(_stepledger.profile(_data_argument(data), response or "",
+                                       _default_threads() if threads is None else int(threads)))
 
 
 def select(data, plan=None, *, response=None, method=None, criterion=None, out=None, force=False, threads=None,

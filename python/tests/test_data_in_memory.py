@@ -135,3 +135,23 @@ def test_predict_prices_and_flags_the_rows(tmp_path):
         stepledger.predict(tampered, LAPTOPS.parent / "laptops_to_price.csv")
     with pytest.warns(UserWarning):
         stepledger.predict(tampered, LAPTOPS.parent / "laptops_to_price.csv", allow_unverified=True)
+
+
+def test_profile_of_a_file_and_a_frame(tmp_path, stepledger_exe, laptops_frame):
+    import subprocess
+    cli = json.loads(subprocess.run([stepledger_exe, "profile", str(LAPTOPS), "--response", "resale_price", "--json"],
+                                    check=True, capture_output=True, text=True).stdout)
+    from_file = stepledger.profile(LAPTOPS, response="resale_price")
+    assert from_file.document["columns"] == cli["columns"]
+    assert from_file.starter_plan == cli["starter_plan"] and from_file.notes == cli["notes"]
+    assert from_file.rows == 2000 and from_file.fingerprint == stepledger.fingerprint(LAPTOPS)
+    from_frame = stepledger.profile(laptops_frame, response="resale_price")
+    assert from_frame.fingerprint == stepledger.fingerprint(laptops_frame)
+    assert from_frame.starter_plan == from_file.starter_plan
+    assert list(from_frame.columns["kind"]) == list(from_file.columns["kind"])
+    assert from_file.starter_plan_text.startswith("{\n")
+    result = stepledger.select(laptops_frame, from_frame.starter_plan, threads=1)
+    assert result.terms
+    assert stepledger.profile(laptops_frame).starter_plan is None
+    with pytest.raises(stepledger.InputError, match="response: column 'grade' is categorical"):
+        stepledger.profile(laptops_frame, response="grade")
