@@ -38,7 +38,7 @@ tests=OFF
 grep -qs '^STEPLEDGER_BUILD_TESTS:BOOL=ON' "$build/CMakeCache.txt" && tests=ON
 cmake -S "$root" -B "$build" -DCMAKE_CXX_COMPILER=clang++ -DCMAKE_BUILD_TYPE=Debug \
   -DCMAKE_CXX_FLAGS_DEBUG="-O1 -g" -DSTEPLEDGER_BUILD_FUZZ=ON -DSTEPLEDGER_BUILD_TESTS="$tests" \
-  -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF >/dev/null
+  -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF -DSTEPLEDGER_BUILD_PYTHON=OFF >/dev/null
 start=$SECONDS
 cmake --build "$build" -j"$jobs" --target "${targets[@]/#/fuzz_}"
 echo "fuzz: built in $((SECONDS - start)) s"

@@ -22,7 +22,7 @@ jobs="${SANITIZE_JOBS:-$(nproc)}"
 # instrumented tests reasonably fast.
 cmake -S "$root" -B "$build" -DCMAKE_CXX_COMPILER="${SANITIZE_CXX:-clang++}" \
   -DCMAKE_BUILD_TYPE=Debug -DCMAKE_CXX_FLAGS_DEBUG="-O1 -g" -DSTEPLEDGER_SANITIZE=ON \
-  -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF \
+  -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF -DSTEPLEDGER_BUILD_PYTHON=OFF \
   -DSTEPLEDGER_BUILD_FUZZ="$([[ "${SANITIZE_WITH_FUZZ:-0}" == 1 ]] && echo ON || echo OFF)" >/dev/null
 start=$SECONDS
 cmake --build "$build" -j"$jobs"

@@ -23,6 +23,9 @@ packages=(
   python3 python3-numpy python3-scipy python3-statsmodels python3-jsonschema
   # tests/audit/jws_interop_test.py: the audit's JWS signature against a general-purpose JOSE library
   python3-jwcrypto
+  # python/: the Python module (pybind11 and Python's headers) and its pytest suite, a ctest
+  # (pandas for data frames; a missing one fails the test rather than skipping it)
+  pybind11-dev python3-pybind11 python3-dev python3-pytest python3-pandas
   # scripts/sanitize.sh and scripts/fuzz.sh: Clang, its sanitizer runtimes (only recommended by
   # clang, and recommendations are not installed here) and libFuzzer
   clang libclang-rt-14-dev libfuzzer-14-dev

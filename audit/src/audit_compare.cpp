@@ -509,6 +509,11 @@ json AuditComparison::ToJson() const {
 
 json PredictionComparison(const json& old_as_read, const json& new_as_read,
                           const DataSet& new_data, const CsvOptions& csv_in) {
+  if (new_data.columns) {
+    return {{"available", false},
+            {"reason", "the new data are columns in memory; the old model prices rows of data files (give the new "
+                       "data as a file to compare its prices)"}};
+  }
   const json old_audit = AuditInCurrentShape(old_as_read);
   const json new_audit = AuditInCurrentShape(new_as_read);
   try {

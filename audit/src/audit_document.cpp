@@ -107,6 +107,8 @@ json DataJson(const RunResult& run) {
   // Only a plan with a holdout sets rows aside: without one the key is absent, as in audits
   // made before holdouts existed.
   if (run.plan.plan.search.holdout) data["rows_held_out"] = run.accounting.rows_held_out;
+  // Data in memory (the Python module's data frames): an optional key, absent for files.
+  if (run.data_in_memory) data["source"] = "memory";
   // A data set (several files or a folder) lists its files in reading order; a single file's
   // audit has no such key, as before data sets existed.
   if (run.data_is_set) {

@@ -162,12 +162,6 @@ inline std::string JsonText(const nlohmann::json& value) {
   return value.dump(2, ' ', false, nlohmann::json::error_handler_t::replace);
 }
 
-/// Writes DIR/audit.json (the sealed document) and DIR/report.html, rendered from that very
-/// document with the run's own diagnostics (no second pass), as one unit (WriteAuditFolder):
-/// what `select --out` and `rerun --out` write.
-void WriteAuditWithReport(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
-                          const RunResult& run, bool overwrite);
-
 /// Writes text to a file atomically (refusing to overwrite without --force), or to out when
 /// path is "-".
 void WriteOutput(CommandContext& context, const std::string& path, const std::string& text);

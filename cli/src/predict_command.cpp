@@ -20,6 +20,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/fitted_model.h"
+#include "stepledger/audit/prediction_json.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/prediction.h"
@@ -141,58 +142,8 @@ void AppendCsvRow(std::string& out, const Priced& priced, bool with_id, bool log
   out += '\n';
 }
 
-nlohmann::json IntervalJson(const std::optional<PredictionInterval>& interval, bool low) {
-  if (!interval) return nullptr;
-  return Json(low ? interval->low : interval->high);
-}
-
 nlohmann::json RowJson(const Priced& priced, bool with_id) {
-  const PredictedRow& row = priced.row;
-  nlohmann::json json = {{"row", row.row_index + 1}, {"line", row.line}};
-  if (with_id) json["id"] = priced.id;
-  json["prediction"] = Json(row.prediction);
-  json["se_mean"] = Json(row.se_mean);
-  json["ci_low"] = IntervalJson(row.ci, true);
-  json["ci_high"] = IntervalJson(row.ci, false);
-  json["pi_low"] = IntervalJson(row.pi, true);
-  json["pi_high"] = IntervalJson(row.pi, false);
-  if (row.back) {
-    json["back_transformed"] = {{"median", Json(row.back->median)},
-                                {"ci_low", IntervalJson(row.back->ci, true)},
-                                {"ci_high", IntervalJson(row.back->ci, false)},
-                                {"pi_low", IntervalJson(row.back->pi, true)},
-                                {"pi_high", IntervalJson(row.back->pi, false)},
-                                {"mean", Json(row.back->mean)}};
-  } else {
-    json["back_transformed"] = nullptr;
-  }
-  json["leverage"] = Json(row.leverage);
-  json["weight"] = row.weight;
-  nlohmann::json flags = nlohmann::json::array();
-  for (const PredictionFlag flag : row.flags) flags.push_back(ToString(flag));
-  json["flags"] = std::move(flags);
-  nlohmann::json outside = nlohmann::json::array();
-  for (const OutsideRange& range : row.outside_range) {
-    outside.push_back({{"column", range.column},
-                       {"term", range.term},
-                       {"kind", ToString(range.kind)},
-                       {"value", Json(range.value)},
-                       {"min", Json(range.min)},
-                       {"max", Json(range.max)}});
-  }
-  json["outside_range"] = std::move(outside);
-  nlohmann::json problems = nlohmann::json::array();
-  for (const RowProblem& problem : row.problems) {
-    problems.push_back({{"flag", ToString(problem.flag)},
-                        {"column", problem.column},
-                        {"term", problem.term.empty() ? nlohmann::json(nullptr) : nlohmann::json(problem.term)},
-                        {"text", problem.text},
-                        {"where", problem.where},
-                        {"reason", problem.reason}});
-  }
-  json["problems"] = std::move(problems);
-  json["detail"] = row.Detail();
-  return json;
+  return PredictedRowJson(priced.row, with_id ? &priced.id : nullptr);
 }
 
 // Whether the audit may be used to price. An empty warning when its digests hold; the warning

@@ -15,6 +15,7 @@
 #include "stepledger/audit/audit_document.h"
 #include "stepledger/audit/audit_verify.h"
 #include "stepledger/audit/replay.h"
+#include "stepledger/audit/rerun.h"
 #include "stepledger/report/report.h"
 #include "stepledger/cli/run_cli.h"
 #include "stepledger/engine/errors.h"
@@ -58,24 +59,11 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   const DataSet data = MakeDataSet(args.data);
   const std::unique_ptr<ProgressPrinter> progress =
       MakeProgressPrinter(*context.terminal_err, context.common.quiet, "rerun");
-  const RunResult run = ReplayRecordedPlan(parent, data, args.audit, overrides, progress.get());
-
-  const nlohmann::json unsealed = BuildAuditDocument(run);
-  CompareOptions compare_options;
-  compare_options.old_name = args.audit;
-  compare_options.new_name = "the new audit";
-  AuditComparison comparison = CompareAudits(parent, unsealed, compare_options);
-  comparison.prediction = PredictionComparison(parent, unsealed, data, run.options.csv);
-
-  AuditDocumentOptions document_options;
-  document_options.parent = nlohmann::json{
-      {"seal", parent.at("seal")},
-      {"created_at", parent.value("created_at", nlohmann::json(nullptr))},
-      {"data_sha256", parent.at("data").value("sha256", nlohmann::json(nullptr))},
-      {"data_file", parent.at("data").value("file", nlohmann::json(nullptr))}};
-  document_options.comparison = comparison.ToJson();
+  const RerunResult rerun = RerunRecordedPlan(parent, data, args.audit, overrides, progress.get(), args.sign_key);
+  const RunResult& run = rerun.run;
+  const AuditComparison& comparison = rerun.comparison;
+  const nlohmann::json& written = rerun.audit;
   // The new audit and its reviewer's report, written as one unit (as select writes them).
-  const nlohmann::json written = BuildSealedAudit(run, document_options, args.sign_key);
   WriteAuditWithReport(folder, written, run, context.common.force);
 
   if (context.common.json) {

@@ -256,16 +256,6 @@ Criterion ParseCriterionOption(const std::string& text) {
   return *criterion;
 }
 
-void WriteAuditWithReport(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
-                          const RunResult& run, bool overwrite) {
-  std::optional<ReportDiagnostics> diagnostics;
-  if (run.diagnostics) {
-    diagnostics = ReportDiagnostics{*run.diagnostics, run.fit.k, run.fit.criteria.sigma, SetFileNames(run)};
-  }
-  std::string report = RenderHtmlReport(sealed_document, diagnostics ? &*diagnostics : nullptr);
-  WriteAuditFolder(folder, sealed_document, {{std::string(kReportFileName), std::move(report)}}, overwrite);
-}
-
 std::string ModelStatement(const Design& design, const FitResult& fit) {
   std::string text = design.response_transform == ResponseTransform::kLog
                          ? "log(" + design.response + ")"

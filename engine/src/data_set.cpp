@@ -7,6 +7,7 @@
 #include <cstring>
 #include <system_error>
 
+#include "stepledger/engine/column_source.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/fingerprint.h"
 
@@ -97,6 +98,7 @@ std::string JoinShort(const std::vector<std::string>& names) {
 }  // namespace
 
 std::vector<std::filesystem::path> DataSetFiles(const DataSet& data) {
+  if (data.columns) throw InputError(data.columns->description() + ": data in memory has no files to read");
   if (data.inputs.empty()) throw InputError("no data file given");
   if (data.inputs.size() == 1) {
     const std::filesystem::path& only = data.inputs.front();
@@ -133,6 +135,7 @@ std::vector<std::filesystem::path> DataSetFiles(const DataSet& data) {
 }
 
 std::string DescribeDataSet(const DataSet& data) {
+  if (data.columns) return data.columns->description();
   if (data.inputs.size() == 1) return data.inputs.front().string();
   std::vector<std::string> names;
   names.reserve(data.inputs.size());
@@ -141,6 +144,7 @@ std::string DescribeDataSet(const DataSet& data) {
 }
 
 std::string DataSetFileName(const DataSet& data) {
+  if (data.columns) return data.columns->description();
   auto name_of = [](const std::filesystem::path& path) {
     // "data/" names the folder "data".
     const std::filesystem::path name = path.has_filename() ? path.filename() : path.parent_path().filename();

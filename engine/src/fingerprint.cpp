@@ -41,6 +41,26 @@ std::string ToHex(const Sha256Digest& digest) {
   return text;
 }
 
+Sha256Stream::Sha256Stream() {
+  EVP_MD_CTX* md = EVP_MD_CTX_new();
+  if (md == nullptr) throw NumericalError("OpenSSL could not allocate a digest context");
+  context_ = md;
+  Check(EVP_DigestInit_ex(md, EVP_sha256(), nullptr), "EVP_DigestInit_ex");
+}
+
+Sha256Stream::~Sha256Stream() { EVP_MD_CTX_free(static_cast<EVP_MD_CTX*>(context_)); }
+
+void Sha256Stream::Update(std::string_view bytes) {
+  Check(EVP_DigestUpdate(static_cast<EVP_MD_CTX*>(context_), bytes.data(), bytes.size()), "EVP_DigestUpdate");
+}
+
+Sha256Digest Sha256Stream::Finish() {
+  Sha256Digest digest{};
+  unsigned int length = 0;
+  Check(EVP_DigestFinal_ex(static_cast<EVP_MD_CTX*>(context_), digest.data(), &length), "EVP_DigestFinal_ex");
+  return digest;
+}
+
 DataFingerprint::DataFingerprint() : context_(new Context) {
   context_->md = EVP_MD_CTX_new();
   if (context_->md == nullptr) throw NumericalError("OpenSSL could not allocate a digest context");

@@ -16,6 +16,7 @@
 #include "file_identity.h"
 #include "thread_start.h"
 #include "stepledger/engine/byte_source.h"
+#include "stepledger/engine/column_source.h"
 #include "stepledger/engine/data_set.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/utf8.h"
@@ -620,6 +621,203 @@ FileScan ScanFile(const std::filesystem::path& path, const ScanOptions& options,
                   : ScanWhole(path, file, identity, options, spill, spill_prefix, expected);
 }
 
+// ---- data in memory (engine/column_source.h) ---------------------------------------------------
+
+void AppendU64(std::string& bytes, std::uint64_t value) {
+  for (int shift = 0; shift < 64; shift += 8) bytes.push_back(static_cast<char>((value >> shift) & 0xFF));
+}
+
+// Counts one level text of a cell into the tally (the CSV scan's rule) and returns its code.
+std::uint32_t TallyLevel(ColumnTally& tally, std::string_view text, std::size_t max_levels) {
+  if (tally.levels_overflowed) return kSpillNoCode;
+  const auto found = tally.levels.find(text);
+  if (found != tally.levels.end()) {
+    ++found->second.count;
+    return found->second.code;
+  }
+  if (tally.levels.size() < max_levels) {
+    const auto code = static_cast<std::uint32_t>(tally.level_texts.size());
+    tally.levels.emplace(std::string(text), LevelEntry{code, 1});
+    tally.level_texts.emplace_back(text);
+    return code;
+  }
+  DropLevels(tally);
+  return kSpillNoCode;
+}
+
+ScanResult ScanColumns(ColumnSource& source, const ScanOptions& options) {
+  const std::vector<MemoryColumn>& columns = source.columns();
+  const std::string name = source.description();
+  const std::size_t width = columns.size();
+  const std::uint64_t rows = source.rows();
+  if (width == 0) throw InputError(name + ": the data have no columns");
+  if (options.csv.max_columns > 0 && width > options.csv.max_columns) {
+    throw LimitError(LimitKind::kColumns, options.csv.max_columns, name, std::to_string(width) + " columns",
+                     "select the columns the plan uses before the run");
+  }
+  ScanResult result;
+  result.in_memory = true;
+  for (std::size_t c = 0; c < width; ++c) {
+    const std::string& column = columns[c].name;
+    if (column.empty()) throw InputError(FormatLocation(name, 0, c + 1) + ": column " + std::to_string(c + 1) + " has no name");
+    if (FirstInvalidUtf8(column) || FirstNulByte(column)) {
+      throw InputError(name + ": the name of column " + std::to_string(c + 1) + " is not UTF-8 text without NUL bytes");
+    }
+    for (std::size_t before = 0; before < c; ++before) {
+      if (columns[before].name == column) {
+        throw InputError(name + ": column " + std::to_string(c + 1) + " repeats the name '" + QuoteForMessage(column) +
+                         "' of column " + std::to_string(before + 1));
+      }
+    }
+    result.header.push_back(column);
+  }
+  const std::size_t max_levels = options.profile.max_levels;
+  std::unique_ptr<SpillFolder> folder;
+  std::unique_ptr<SpillWriter> writer;
+  std::filesystem::path spill_file;
+  if (options.spill) {
+    folder = std::make_unique<SpillFolder>(options.work_dir);
+    spill_file = folder->NewFile("range-0.bin");
+    writer = std::make_unique<SpillWriter>(spill_file, folder->work_dir(), width);
+    writer->SetEstimatedTotalRows(rows);
+  }
+  std::vector<ColumnTally> tallies(width);
+  std::vector<Sha256Stream> digests;
+  digests.reserve(width);
+  for (std::size_t c = 0; c < width; ++c) digests.emplace_back();
+  const std::size_t chunk_rows = SpillChunkRowsFor(width);
+  // One chunk of cells at a time, column by column (the caller's columns are read in slices).
+  std::vector<std::uint64_t> bits(width * chunk_rows);
+  std::vector<std::uint32_t> codes(width * chunk_rows);
+  std::vector<double> numbers(chunk_rows);
+  std::vector<std::string> texts;
+  std::vector<char> missing;
+  std::string canonical;
+  for (std::uint64_t first = 0; first < rows; first += chunk_rows) {
+    const auto count = static_cast<std::size_t>(std::min<std::uint64_t>(chunk_rows, rows - first));
+    for (std::size_t c = 0; c < width; ++c) {
+      ColumnTally& tally = tallies[c];
+      std::uint64_t* column_bits = bits.data() + c * chunk_rows;
+      std::uint32_t* column_codes = codes.data() + c * chunk_rows;
+      canonical.clear();
+      if (columns[c].kind == MemoryColumnKind::kNumber) {
+        source.ReadNumbers(c, first, count, numbers.data());
+        canonical.resize(count * 8);
+        for (std::size_t i = 0; i < count; ++i) {
+          const double value = numbers[i];
+          const std::uint64_t row = first + i + 1;
+          column_codes[i] = kSpillNoCode;
+          std::uint64_t canonical_bits = SpillBits(value);
+          if (std::isnan(value)) {
+            ++tally.missing;
+            column_bits[i] = kSpillMissingBits;
+            canonical_bits = kCanonicalMissingBits;
+          } else if (!std::isfinite(value)) {
+            throw LocatedInputError(name, row, c + 1,
+                                    "column '" + QuoteForMessage(columns[c].name) + "' holds " +
+                                        (value > 0 ? "inf" : "-inf") + ", which is not a finite number");
+          } else {
+            ++tally.numeric_cells;
+            ++tally.present;
+            const double delta = value - tally.mean;
+            tally.mean += delta / static_cast<double>(tally.numeric_cells);
+            tally.squared_deviations += delta * (value - tally.mean);
+            if (value < tally.min) {
+              tally.min = value;
+              tally.min_line = row;
+              tally.min_column = c + 1;
+            }
+            if (value > tally.max) {
+              tally.max = value;
+              tally.max_line = row;
+              tally.max_column = c + 1;
+            }
+            column_bits[i] = SpillBits(value);
+            if (!tally.levels_overflowed) column_codes[i] = TallyLevel(tally, ShortestText(value), max_levels);
+          }
+          for (int shift = 0; shift < 64; shift += 8) {
+            canonical[i * 8 + static_cast<std::size_t>(shift / 8)] = static_cast<char>((canonical_bits >> shift) & 0xFF);
+          }
+        }
+      } else {
+        texts.assign(count, std::string());
+        missing.assign(count, 0);
+        source.ReadTexts(c, first, count, texts, missing);
+        for (std::size_t i = 0; i < count; ++i) {
+          const std::uint64_t row = first + i + 1;
+          column_codes[i] = kSpillNoCode;
+          if (missing[i] != 0) {
+            ++tally.missing;
+            column_bits[i] = kSpillMissingBits;
+            AppendU64(canonical, kCanonicalMissingText);
+            continue;
+          }
+          const std::string& text = texts[i];
+          if (FirstInvalidUtf8(text)) {
+            throw LocatedInputError(name, row, c + 1, "column '" + QuoteForMessage(columns[c].name) +
+                                                          "' holds text that is not UTF-8 (" + DescribeInvalidUtf8(text) + ")");
+          }
+          if (FirstNulByte(text)) {
+            throw LocatedInputError(name, row, c + 1, "column '" + QuoteForMessage(columns[c].name) + "' holds a NUL byte");
+          }
+          ++tally.present;
+          if (!tally.first_text) tally.first_text = CellLocation{row, c + 1, text, std::string()};
+          column_bits[i] = kSpillTextBits;
+          column_codes[i] = TallyLevel(tally, text, max_levels);
+          AppendU64(canonical, text.size());
+          canonical += text;
+        }
+      }
+      digests[c].Update(canonical);
+      result.stored_bytes += canonical.size();
+    }
+    if (writer) {
+      for (std::size_t i = 0; i < count; ++i) {
+        writer->BeginRow(first + i + 1, first + i);
+        for (std::size_t c = 0; c < width; ++c) writer->Set(c, bits[c * chunk_rows + i], codes[c * chunk_rows + i]);
+        writer->EndRow();
+      }
+    }
+    source.OnRowsRead(first + count, rows);
+  }
+  std::string material(kColumnFingerprintTag);
+  AppendU64(material, rows);
+  AppendU64(material, width);
+  for (std::size_t c = 0; c < width; ++c) {
+    AppendU64(material, columns[c].name.size());
+    material += columns[c].name;
+    material.push_back(columns[c].kind == MemoryColumnKind::kNumber ? 'n' : 't');
+    const Sha256Digest digest = digests[c].Finish();
+    material.append(reinterpret_cast<const char*>(digest.data()), digest.size());
+  }
+  result.stored_bytes += material.size();
+  result.sha256 = ToHex(Sha256(material));
+  result.encoding = "memory";
+  result.ranges = 1;
+  result.profile.path = name;
+  result.profile.rows = rows;
+  const std::vector<std::string> file_names{name};
+  for (std::size_t c = 0; c < width; ++c) {
+    result.profile.columns.push_back(FinishColumn(result.header[c], c, tallies[c], max_levels, file_names));
+  }
+  if (writer) {
+    std::vector<SpillRange> ranges(1);
+    ranges[0].file = spill_file;
+    ranges[0].rows = rows;
+    ranges[0].chunks = writer->Finish();
+    ranges[0].levels.resize(width);
+    for (std::size_t c = 0; c < width; ++c) {
+      if (!tallies[c].levels_overflowed) ranges[0].levels[c] = std::move(tallies[c].level_texts);
+    }
+    SpillSource spill_source;
+    spill_source.path = name;
+    spill_source.display_name = name;
+    spill_source.header = result.header;
+    result.spill = std::make_shared<Spill>(std::move(folder), std::move(ranges), width, std::move(spill_source));
+  }
+  return result;
+}
+
 }  // namespace
 
 void ScanOptions::Validate() const {
@@ -630,6 +828,7 @@ void ScanOptions::Validate() const {
 
 ScanResult ScanData(const DataSet& data, const ScanOptions& options) {
   options.Validate();
+  if (data.columns) return ScanColumns(*data.columns, options);
   const std::vector<std::filesystem::path> files = DataSetFiles(data);
   ScanResult result;
   // One folder for the spill of every file; removed with everything in it when the scan fails.

@@ -41,6 +41,12 @@ std::string FingerprintFile(const std::filesystem::path& path) {
 
 DataSetFingerprints FingerprintDataSet(const DataSet& data) {
   DataSetFingerprints result;
+  if (data.columns) {  // data in memory: the fingerprint of the canonical form, no spill
+    ScanOptions scan_options;
+    scan_options.spill = false;
+    result.sha256 = ScanData(data, scan_options).sha256;
+    return result;
+  }
   std::vector<std::string> fingerprints;
   for (const std::filesystem::path& file : DataSetFiles(data)) {
     DataFileRecord record;
@@ -79,6 +85,7 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   run.data_bytes = scan.stored_bytes;
   run.data_sha256 = scan.sha256;
   run.data_encoding = scan.encoding;
+  run.data_in_memory = scan.in_memory;
   run.data_is_set = scan.files.size() > 1 || data.inputs.size() > 1 ||
                     (scan.files.size() == 1 && scan.files.front().path != data.inputs.front());
   for (const ScannedFile& file : scan.files) {

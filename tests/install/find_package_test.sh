@@ -4,7 +4,8 @@
 #   1. tests/install/consumer: a selection on an in-memory factor;
 #   2. examples/api: the example program, run on the bundled demo data with the stepwise BIC
 #      plan; its chosen terms must be the demo data's true model (examples/laptop_listings.h,
-#      kLaptopTrueTerms: invented data whose true model the test knows).
+#      kLaptopTrueTerms: invented data whose true model the test knows);
+#   3. the Python package (when built), imported from the prefix alone.
 set -euo pipefail
 build_dir="$1"
 source_dir="$(cd "$(dirname "${BASH_SOURCE[0]}")" && pwd)"
@@ -42,3 +43,16 @@ if [[ "$chosen" != "$expected" ]]; then
 fi
 grep -q '^Final model' <<<"$output" || { echo "examples/api: no final model printed" >&2; exit 1; }
 echo "examples/api: recovered the true model"
+
+# 3. The Python package, when the build made it (STEPLEDGER_BUILD_PYTHON): imported from the prefix
+#    by the path README "Python module" names, with nothing from the build tree on the path.
+python_dir="$(cache_value STEPLEDGER_PYTHON_INSTALL_DIR)"
+if [[ -n "$python_dir" && -f "$build_dir/python/stepledger/__init__.py" ]]; then
+  python="$(cache_value STEPLEDGER_PYTHON_EXECUTABLE)"
+  PYTHONPATH="$work/prefix/$python_dir" "$python" -c "
+import stepledger, sys
+assert stepledger.__file__.startswith('$work/prefix/'), stepledger.__file__
+result = stepledger.select('$repo_dir/examples/data/laptops.csv', '$repo_dir/examples/plans/stepwise_bic.json', threads=1)
+print('python: chose', ' '.join(result.terms))
+"
+fi

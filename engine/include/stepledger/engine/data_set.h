@@ -32,10 +32,13 @@
 
 #include <cstdint>
 #include <filesystem>
+#include <memory>
 #include <string>
 #include <vector>
 
 namespace stepledger {
+
+class ColumnSource;  // engine/column_source.h
 
 /// The inputs of a data set as given (command line or API); converts implicitly from one path,
 /// so that every single-file call reads as before.
@@ -46,8 +49,14 @@ struct DataSet {
   DataSet(const char* path) : inputs{path} {}                       // NOLINT
   explicit DataSet(std::vector<std::filesystem::path> paths) : inputs(std::move(paths)) {}
 
+  /// Columns held in memory (engine/column_source.h) instead of files: then inputs is empty,
+  /// the scan reads the columns, and the set has no files (DataSetFiles refuses it).
+  explicit DataSet(std::shared_ptr<ColumnSource> in_memory) : columns(std::move(in_memory)) {}
+
   /// Files in reading order, or one folder.
   std::vector<std::filesystem::path> inputs;
+  /// Data in memory, or null.
+  std::shared_ptr<ColumnSource> columns;
 };
 
 /// Which files a folder may hold as members (name endings, compared in any case).

@@ -23,6 +23,23 @@ Sha256Digest Sha256(std::string_view bytes);
 /// Lower-case hexadecimal of a digest.
 std::string ToHex(const Sha256Digest& digest);
 
+/// A running SHA-256 of bytes fed in pieces (the column digests of data in memory,
+/// engine/column_source.h).
+class Sha256Stream {
+ public:
+  Sha256Stream();
+  ~Sha256Stream();
+  Sha256Stream(const Sha256Stream&) = delete;
+  Sha256Stream& operator=(const Sha256Stream&) = delete;
+  Sha256Stream(Sha256Stream&& other) noexcept : context_(other.context_) { other.context_ = nullptr; }
+  void Update(std::string_view bytes);
+  /// The digest of everything fed; further Update() is a bug.
+  Sha256Digest Finish();
+
+ private:
+  void* context_ = nullptr;  // EVP_MD_CTX
+};
+
 class DataFingerprint {
  public:
   static constexpr std::size_t kBlockBytes = 1 << 20;

@@ -84,8 +84,11 @@ struct ScanResult {
   std::uint64_t stored_bytes = 0;  ///< every file's bytes as stored
   std::string encoding = "plain";  ///< how the files are stored: plain, gzip, zstd, or "mixed"
   int ranges = 1;              ///< byte ranges read (in parallel within a file), over all files
-  /// The files in reading order (one for a single file).
+  /// The files in reading order (one for a single file; none for data in memory).
   std::vector<ScannedFile> files;
+  /// The data were columns in memory (DataSet::columns): sha256 is the fingerprint of their
+  /// canonical binary form and stored_bytes its length (engine/column_source.h).
+  bool in_memory = false;
   /// The rows, for every later pass; null when ScanOptions::spill is false.
   std::shared_ptr<const Spill> spill;
 };
@@ -95,6 +98,9 @@ struct ScanResult {
 /// naming both files for a header that differs from the first file's, naming the input for a set
 /// that cannot be formed (DataSetFiles), and naming the folder for a spill that cannot be
 /// written; nothing is left in the working folder then.
+/// Data in memory (DataSet::columns) are read by the columns' own rules (engine/column_source.h)
+/// on the calling thread, into the same profile and spill; a message names the cell as
+/// "memory:ROW:COLUMN".
 ScanResult ScanData(const DataSet& data, const ScanOptions& options);
 
 }  // namespace stepledger

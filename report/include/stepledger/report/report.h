@@ -45,6 +45,7 @@
 #include "stepledger/engine/diagnostics.h"
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/table_scan.h"
+#include "stepledger/run/run_plan.h"
 
 namespace stepledger {
 
@@ -301,7 +302,17 @@ ReportDiagnostics DiagnoseAuditRows(const nlohmann::json& audit,
                                     const std::function<void(std::string_view)>& stand_out_csv = {},
                                     const DataReadOptions& read_options = {});
 
+/// The report's diagnostics from a run's own diagnostics pass (no second pass; with the set's
+/// file names, SetFileNames); nullopt when the run made none.
+std::optional<ReportDiagnostics> RunReportDiagnostics(const RunResult& run);
+
 /// File name of the HTML report that `select --out DIR` writes beside the audit.
 inline constexpr std::string_view kReportFileName = "report.html";
+
+/// Writes DIR/audit.json (the sealed document) and DIR/report.html, rendered from that very
+/// document with the run's own diagnostics (no second pass), as one unit (WriteAuditFolder):
+/// what `select --out` and `rerun --out` write, and the Python module's `out=`.
+void WriteAuditWithReport(const std::filesystem::path& folder, const nlohmann::json& sealed_document,
+                          const RunResult& run, bool overwrite);
 
 }  // namespace stepledger

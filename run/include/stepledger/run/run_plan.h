@@ -73,8 +73,11 @@ struct RunResult {
   std::string data_encoding = "plain";  ///< plain, gzip or zstd ("mixed" for a set of several)
   /// True when the data were given as several files or a folder: the audit then lists data_files.
   bool data_is_set = false;
-  /// The files read, in reading order (one for a single file).
+  /// The files read, in reading order (one for a single file; none for data in memory).
   std::vector<DataFileRecord> data_files;
+  /// The data were columns in memory (DataSet::columns, engine/column_source.h): data_sha256 is
+  /// the fingerprint of their canonical binary form; the audit records data.source "memory".
+  bool data_in_memory = false;
   DataProfile profile;
   Design design;
   RowAccounting accounting;

@@ -1,0 +1,17 @@
+"""examples/python/price_laptops.py runs end to end (the laptop scenario from Python)."""
+
+import os
+import subprocess
+import sys
+
+from conftest import EXAMPLES
+
+
+def test_price_laptops_example(tmp_path):
+    completed = subprocess.run([sys.executable, str(EXAMPLES / "python" / "price_laptops.py"), str(tmp_path)],
+                               capture_output=True, text=True, env=dict(os.environ), timeout=300)
+    assert completed.returncode == 0, completed.stderr
+    out = completed.stdout
+    assert "holds: fingerprint" in out and "replay holds" in out
+    assert "TP-001:" in out and "outside-range" in out
+    assert (tmp_path / "month1" / "audit.json").exists() and (tmp_path / "month2" / "report.html").exists()
