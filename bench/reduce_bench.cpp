@@ -58,7 +58,7 @@ int main(int argc, char** argv) {
       best = std::min(best, seconds);
     }
     const double ms = best * 1e3;
-    std::printf("| %zu | %.1f MB | %.2f ms | %.2f ms | %.2f ms | %.2f ms | %.2f ms |\n", columns, bytes / 1e6, ms,
+    std::printf("| %zu | %.2f MB | %.2f ms | %.2f ms | %.2f ms | %.2f ms | %.2f ms |\n", columns, bytes / 1e6, ms,
                 ms * Levels(2), ms * Levels(3), ms * Levels(4), ms * Levels(64));
   }
   return 0;

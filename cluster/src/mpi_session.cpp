@@ -3,11 +3,13 @@
 #include <mpi.h>
 
 #include <algorithm>
+#include <chrono>
 #include <climits>
 #include <cstdint>
 #include <cstdlib>
 #include <stdexcept>
 #include <string>
+#include <thread>
 
 namespace stepledger {
 namespace {
@@ -26,6 +28,25 @@ void Check(int code, const char* what) {
   throw std::runtime_error(std::string(what) + " failed: " + std::string(text, static_cast<std::size_t>(length)));
 }
 
+// Waits for a request without holding a core: Open MPI's blocking calls poll without pause, and a
+// process that waits (the others while process 0 runs the search, process 0 while the others
+// scan) would take a core from the processes and threads that work. A short spin first keeps the
+// latency of a quick answer; then sleeps growing to 0.1 ms (a stream of replayed rows must not wait long between batches).
+void Wait(MPI_Request& request, const char* what) {
+  int done = 0;
+  for (int spin = 0; spin < 2000; ++spin) {
+    Check(MPI_Test(&request, &done, MPI_STATUS_IGNORE), what);
+    if (done) return;
+  }
+  auto pause = std::chrono::microseconds(5);
+  for (;;) {
+    Check(MPI_Test(&request, &done, MPI_STATUS_IGNORE), what);
+    if (done) return;
+    std::this_thread::sleep_for(pause);
+    pause = std::min<std::chrono::microseconds>(pause * 2, std::chrono::microseconds(100));
+  }
+}
+
 class MpiExchange : public ShareExchange {
  public:
   MpiExchange() {
@@ -39,20 +60,26 @@ class MpiExchange : public ShareExchange {
   // replayed rows never piles up at the receiver (one batch in flight per process).
   void Send(int to, const std::string& bytes) override {
     std::uint64_t size = bytes.size();
-    Check(MPI_Ssend(&size, 1, MPI_UINT64_T, to, kTag, MPI_COMM_WORLD), "MPI_Ssend");
+    MPI_Request request;
+    Check(MPI_Issend(&size, 1, MPI_UINT64_T, to, kTag, MPI_COMM_WORLD, &request), "MPI_Issend");
+    Wait(request, "MPI_Issend");
     for (std::size_t at = 0; at < bytes.size(); at += kPieceBytes) {
       const int piece = static_cast<int>(std::min(kPieceBytes, bytes.size() - at));
-      Check(MPI_Ssend(bytes.data() + at, piece, MPI_BYTE, to, kTag, MPI_COMM_WORLD), "MPI_Ssend");
+      Check(MPI_Issend(bytes.data() + at, piece, MPI_BYTE, to, kTag, MPI_COMM_WORLD, &request), "MPI_Issend");
+      Wait(request, "MPI_Issend");
     }
   }
 
   std::string Receive(int from) override {
     std::uint64_t size = 0;
-    Check(MPI_Recv(&size, 1, MPI_UINT64_T, from, kTag, MPI_COMM_WORLD, MPI_STATUS_IGNORE), "MPI_Recv");
+    MPI_Request request;
+    Check(MPI_Irecv(&size, 1, MPI_UINT64_T, from, kTag, MPI_COMM_WORLD, &request), "MPI_Irecv");
+    Wait(request, "MPI_Irecv");
     std::string bytes(size, '\0');
     for (std::size_t at = 0; at < bytes.size(); at += kPieceBytes) {
       const int piece = static_cast<int>(std::min(kPieceBytes, bytes.size() - at));
-      Check(MPI_Recv(bytes.data() + at, piece, MPI_BYTE, from, kTag, MPI_COMM_WORLD, MPI_STATUS_IGNORE), "MPI_Recv");
+      Check(MPI_Irecv(bytes.data() + at, piece, MPI_BYTE, from, kTag, MPI_COMM_WORLD, &request), "MPI_Irecv");
+      Wait(request, "MPI_Irecv");
     }
     return bytes;
   }
