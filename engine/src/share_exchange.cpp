@@ -95,8 +95,7 @@ void RethrowPart(std::string_view part) {
       throw LocatedInputError(std::move(file), line, column, in.Text());
     }
     case ErrorKind::kPlan: {
-      const std::string key = in.Text();
-      // The message is already whole; PlanError would prefix it again.
+      in.Text();  // the key path: the message already names it, and PlanError would prefix it again
       throw InputError(in.Text());
     }
     case ErrorKind::kInput:

@@ -166,7 +166,7 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
                   : BuildFoldFactors(*scan.spill, run.design, columns, folds, search.holdout);
   };
   run.validation.folds = run_detail::FinalModelFolds(cross_validation ? &*cross_validation : nullptr, build_folds,
-                                                     run.design, run.fit, folds, search.holdout, options.fit.kernel);
+                                                     run.fit, folds, options.fit.kernel);
   if (search.holdout && run.fit.n > 0) {
     const RowReplay held_out = shared ? shared->Replay(RowSet::kHeldOutRows)
                                       : SpillRowReplay(scan.spill, run.design, search.holdout, RowSet::kHeldOutRows);

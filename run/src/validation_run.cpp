@@ -14,9 +14,7 @@
 namespace stepledger::run_detail {
 
 FoldValidation FinalModelFolds(const CrossValidation* cross_validation, const FoldFactorBuilder& build_folds,
-                               const Design& design,
-                               const FitResult& fit, const FoldSettings& settings,
-                               const std::optional<HoldoutSettings>& holdout, const KernelOptions& kernel) {
+                               const FitResult& fit, const FoldSettings& settings, const KernelOptions& kernel) {
   FoldValidation result;
   result.settings = settings;
   result.residual_sd = fit.criteria.sigma;

@@ -23,9 +23,7 @@ namespace stepledger::run_detail {
 /// every process's spill in a shared run), one more replay of the rows.
 using FoldFactorBuilder = std::function<std::vector<Factor>(std::span<const std::size_t> columns)>;
 FoldValidation FinalModelFolds(const CrossValidation* cross_validation, const FoldFactorBuilder& build_folds,
-                               const Design& design,
-                               const FitResult& fit, const FoldSettings& settings,
-                               const std::optional<HoldoutSettings>& holdout, const KernelOptions& kernel);
+                               const FitResult& fit, const FoldSettings& settings, const KernelOptions& kernel);
 
 /// The final model judged on the held-out rows: two replays of them (the first learns the
 /// deciles of the predictions with a quantile sketch, the second fills the calibration bins).
