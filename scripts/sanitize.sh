@@ -21,7 +21,7 @@ jobs="${SANITIZE_JOBS:-$(nproc)}"
 # Debug with -O1: assertions stay on (NDEBUG unset), and -O1 keeps both the build and the
 # instrumented tests reasonably fast.
 cmake -S "$root" -B "$build" -DCMAKE_CXX_COMPILER="${SANITIZE_CXX:-clang++}" \
-  -DCMAKE_BUILD_TYPE=Debug -DCMAKE_CXX_FLAGS_DEBUG="-O1 -g" -DSTEPLEDGER_SANITIZE=ON \
+  -DCMAKE_BUILD_TYPE=Debug -DCMAKE_CXX_FLAGS_DEBUG="-O1 -g" -DSTEPLEDGER_SANITIZE=ON -DSTEPLEDGER_WITH_MPI=OFF \
   -DSTEPLEDGER_BUILD_BENCH=OFF -DSTEPLEDGER_BUILD_EXAMPLES=OFF -DSTEPLEDGER_BUILD_PYTHON=OFF \
   -DSTEPLEDGER_BUILD_FUZZ="$([[ "${SANITIZE_WITH_FUZZ:-0}" == 1 ]] && echo ON || echo OFF)" >/dev/null
 start=$SECONDS

@@ -29,6 +29,8 @@ packages=(
   # scripts/sanitize.sh and scripts/fuzz.sh: Clang, its sanitizer runtimes (only recommended by
   # clang, and recommendations are not installed here) and libFuzzer
   clang libclang-rt-14-dev libfuzzer-14-dev
+  # cluster runs (mpirun -np K stepledger select ...; STEPLEDGER_WITH_MPI) and their test, cli.mpi_ranks
+  openmpi-bin libopenmpi-dev
 )
 if [[ $with_chromium -eq 1 ]]; then
   packages+=(chromium)

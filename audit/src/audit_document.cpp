@@ -278,6 +278,9 @@ json BuildAuditDocument(const RunResult& run, const AuditDocumentOptions& option
   document["plan"] = {{"verbatim", run.plan.verbatim},
                       {"normalised", PlanToJson(run.plan.plan, &run.design)}};
   document["settings"] = SettingsJson(run.options);
+  // A cluster run names its processes and how they shared the data (an optional key: a replay
+  // does not compare it, since any number of processes gives the same route and numbers).
+  if (run.processes > 1) document["cluster"] = {{"processes", run.processes}, {"layout", run.layout}};
   document["data"] = DataJson(run);
   document["design"] = DesignJson(run.design);
   document["search"] = SearchJson(run.search);

@@ -15,6 +15,7 @@
 #include <spdlog/logger.h>
 
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/share_exchange.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/limits.h"
@@ -110,6 +111,9 @@ struct CommandContext {
   /// stderr without the escaping of err: only for the progress line, whose cursor controls are
   /// meant for the terminal (it escapes the names it shows itself).
   std::ostream* terminal_err = nullptr;
+  /// The processes sharing a cluster run (null: this process alone); `select` and `fit` pass it
+  /// to RunPlan.
+  ShareExchange* shares = nullptr;
 };
 
 /// The common options a command can take; a command offers only those it uses.

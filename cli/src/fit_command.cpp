@@ -145,6 +145,7 @@ int RunFit(const FitArgs& args, CommandContext& context) {
   options.threads = context.common.threads;
   options.work_dir = context.common.work_dir;
   options.limits = context.common.limits;
+  options.shares = context.shares;
   options.fit.confidence_level = args.confidence_level;
   options.fit.max_refinement_passes = args.refinement_passes;
   options.vif_caution = args.vif_caution;

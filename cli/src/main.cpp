@@ -9,6 +9,12 @@
 #include "stepledger/cli/printable_text.h"
 #include "stepledger/cli/run_cli.h"
 #include "stepledger/engine/spill.h"
+#ifdef STEPLEDGER_WITH_MPI
+#include <optional>
+#include <sstream>
+
+#include "stepledger/cluster/mpi_session.h"
+#endif
 
 namespace {
 
@@ -34,8 +40,45 @@ void RemoveSpillOnSignals() {
 
 }  // namespace
 
+#ifdef STEPLEDGER_WITH_MPI
+// Under mpirun: process 0 prints and writes as a plain run does; the others print nothing (their
+// errors are process 0's too, learnt in the exchanges), except an internal failure of their own,
+// which could leave process 0 waiting: it is printed and the job aborted.
+int RunUnderMpirun(int argc, char** argv) {
+  std::optional<stepledger::MpiSession> session;
+  try {
+    session.emplace(&argc, &argv);
+  } catch (const std::exception& error) {
+    std::cerr << "stepledger: cannot start MPI: " << error.what() << "\n";
+    return 3;
+  }
+  std::vector<std::string> args(argv + (argc > 0 ? 1 : 0), argv + argc);
+  stepledger::ShareExchange& shares = session->shares();
+  int status = 0;
+  if (shares.index() == 0) {
+    if (::isatty(STDOUT_FILENO)) {
+      stepledger::PrintableTextStream out(std::cout);
+      status = stepledger::RunCli(args, out, std::cerr, &shares);
+    } else {
+      status = stepledger::RunCli(args, std::cout, std::cerr, &shares);
+    }
+  } else {
+    std::ostringstream out, err;
+    status = stepledger::RunCli(args, out, err, &shares);
+    if (status == 3) {
+      std::cerr << "stepledger (process " << shares.index() << "): " << err.str();
+      session->Abort(status);
+    }
+  }
+  return status;
+}
+#endif
+
 int main(int argc, char** argv) {
   RemoveSpillOnSignals();
+#ifdef STEPLEDGER_WITH_MPI
+  if (stepledger::MpiSession::LaunchedByMpirun()) return RunUnderMpirun(argc, argv);
+#endif
   std::vector<std::string> args(argv + (argc > 0 ? 1 : 0), argv + argc);
   // On a terminal, tables and reports are escaped like the messages (printable_text.h); into a
   // file or a pipe, stdout carries the bytes as they are (a CSV of prices keeps its fields).

@@ -29,6 +29,7 @@
 #include "stepledger/report/report.h"
 #include "stepledger/io/atomic_file.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/run/run_plan.h"
 #include "stepledger/engine/limits.h"
 #include "stepledger/engine/notice.h"
 #include "stepledger/engine/number_format.h"
@@ -312,11 +313,24 @@ std::shared_ptr<spdlog::logger> MakeLogger(std::ostream& err, const CommonOption
 }  // namespace cli
 
 int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream& raw_err) {
+  return RunCli(args, out, raw_err, nullptr);
+}
+
+int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream& raw_err, ShareExchange* shares) {
   using cli::CommandContext;
+  // Only select and fit share their data among the processes of a cluster run; any other
+  // command is process 0's alone.
+  if (shares != nullptr && shares->count() > 1) {
+    const bool shared_command = !args.empty() && (args[0] == "select" || args[0] == "fit");
+    if (!shared_command) {
+      if (shares->index() > 0) return static_cast<int>(ExitStatus::kDone);
+      shares = nullptr;
+    }
+  }
   // Messages quote file names, column names, levels and JSON values: escape what a terminal
   // would act on (printable_text.h).
   PrintableTextStream err(raw_err);
-  CommandContext context{out, err, {}, nullptr, {}, &raw_err};
+  CommandContext context{out, err, {}, nullptr, {}, &raw_err, shares};
 
   CLI::App app{
       "stepledger chooses the terms of a linear pricing or valuation model and records every "
@@ -400,6 +414,8 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
 int RunCommandAction(const std::function<int()>& action, std::ostream& err) {
   try {
     return action();
+  } catch (const ShareServed&) {
+    return static_cast<int>(ExitStatus::kDone);
   } catch (const LimitError& error) {
     // The limits are the command line's: say how to raise the one that refused.
     err << "stepledger: " << cli::OneLineText(error.what()) << "; to allow more, add --limit "

@@ -86,6 +86,7 @@ int RunSelect(const SelectArgs& args, CommandContext& context) {
   run_options.threads = context.common.threads;
   run_options.work_dir = context.common.work_dir;
   run_options.limits = context.common.limits;
+  run_options.shares = context.shares;
   run_options.fit.max_refinement_passes = args.refinement_passes;
   run_options.diagnostics = !args.out_dir.empty();  // the audit's extrapolation caution needs it
   const std::unique_ptr<ProgressPrinter> progress =

@@ -8,6 +8,7 @@
 #include <charconv>
 #include <cmath>
 #include <exception>
+#include <stdexcept>
 #include <optional>
 #include <utility>
 #include <vector>
@@ -389,6 +390,36 @@ void ForEachUsedRow(const Spill& spill, const Design& design, const std::functio
                row.row_index = record;
                row.line = cells.Line();
                row.file = cells.File();
+               row.x = x;
+               row.x_low = x_low;
+               row.y = y;
+               row.weight = w;
+               visit(row);
+             });
+}
+
+void ForEachUsedRowInRanges(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
+                            const std::optional<HoldoutSettings>& holdout, RowSet set, std::size_t first_range,
+                            std::size_t last_range) {
+  if (first_range > last_range || last_range > spill.ranges().size()) {
+    throw std::invalid_argument("ForEachUsedRowInRanges: ranges out of the spill (a bug)");
+  }
+  std::uint64_t first_chunk = 0;
+  for (std::size_t r = 0; r < first_range; ++r) first_chunk += spill.ranges()[r].chunks.size();
+  std::uint64_t last_chunk = first_chunk;
+  for (std::size_t r = first_range; r < last_range; ++r) last_chunk += spill.ranges()[r].chunks.size();
+  if (first_chunk == last_chunk) return;
+  design.CheckHeader(spill.source().header, spill.source().display_name);
+  const LevelTables tables = MakeLevelTables(spill, design);
+  UsedRow row;
+  RowAccounting accounting;
+  ForEachRow(spill, design, tables, first_chunk, last_chunk, true,
+             [&](const SpillCells& cells, const RowOutcome& outcome, std::span<const double> x, double y, double w,
+                 std::span<const double> x_low) {
+               const std::uint64_t record = cells.RowIndex();
+               if (!CountAndSelect(accounting, outcome, record, holdout, set)) return;
+               row.row_index = record;
+               row.line = cells.Line();
                row.x = x;
                row.x_low = x_low;
                row.y = y;

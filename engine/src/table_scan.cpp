@@ -818,6 +818,419 @@ ScanResult ScanColumns(ColumnSource& source, const ScanOptions& options) {
   return result;
 }
 
+// ---- Shares: several processes reading one data set (table_scan.h, "Shares") ----
+
+void WriteTally(ByteWriter& out, const ColumnTally& tally) {
+  out.U64(tally.present);
+  out.U64(tally.missing);
+  out.U64(tally.numeric_cells);
+  out.F64(tally.mean);
+  out.F64(tally.squared_deviations);
+  out.F64(tally.min);
+  out.F64(tally.max);
+  out.U64(tally.min_line);
+  out.U64(tally.min_column);
+  out.U64(tally.max_line);
+  out.U64(tally.max_column);
+  out.U64(tally.levels_overflowed ? 1 : 0);
+  out.U64(tally.levels.size());
+  for (const auto& level : tally.levels) {
+    out.Text(level.first);
+    out.U64(level.second.code);
+    out.U64(level.second.count);
+  }
+  out.U64(tally.first_text ? 1 : 0);
+  if (tally.first_text) {
+    out.U64(tally.first_text->line);
+    out.U64(tally.first_text->column);
+    out.Text(tally.first_text->text);
+  }
+}
+
+ColumnTally ReadTally(ByteReader& in) {
+  ColumnTally tally;
+  tally.present = in.U64();
+  tally.missing = in.U64();
+  tally.numeric_cells = in.U64();
+  tally.mean = in.F64();
+  tally.squared_deviations = in.F64();
+  tally.min = in.F64();
+  tally.max = in.F64();
+  tally.min_line = in.U64();
+  tally.min_column = in.U64();
+  tally.max_line = in.U64();
+  tally.max_column = in.U64();
+  tally.levels_overflowed = in.U64() != 0;
+  const std::uint64_t levels = in.U64();
+  for (std::uint64_t l = 0; l < levels; ++l) {
+    std::string text = in.Text();
+    LevelEntry entry;
+    entry.code = static_cast<std::uint32_t>(in.U64());
+    entry.count = in.U64();
+    tally.levels.emplace(std::move(text), entry);
+  }
+  if (in.U64() != 0) {
+    CellLocation location;
+    location.line = in.U64();
+    location.column = in.U64();
+    location.text = in.Text();
+    tally.first_text = std::move(location);
+  }
+  return tally;
+}
+
+// What every process knows of a range, whoever read it.
+struct RangeSummary {
+  std::uint64_t rows = 0;
+  std::uint64_t line_ends = 0;
+  std::uint64_t stop = 0;
+  std::string error;  // an encoded error (share_exchange.h), or empty
+  std::vector<ColumnTally> tallies;
+};
+
+void WriteRange(ByteWriter& out, const RangeScan& scan) {
+  out.U64(scan.rows);
+  out.U64(scan.line_ends);
+  out.U64(scan.stop);
+  out.Text(scan.error ? EncodeError(scan.error) : std::string());
+  out.U64(scan.error ? 0 : scan.tallies.size());
+  if (!scan.error) {
+    for (const ColumnTally& tally : scan.tallies) WriteTally(out, tally);
+  }
+}
+
+RangeSummary ReadRange(ByteReader& in) {
+  RangeSummary range;
+  range.rows = in.U64();
+  range.line_ends = in.U64();
+  range.stop = in.U64();
+  range.error = in.Text();
+  range.tallies.resize(in.U64());
+  for (ColumnTally& tally : range.tallies) tally = ReadTally(in);
+  return range;
+}
+
+void WriteHeader(ByteWriter& out, const std::vector<std::string>& header) {
+  out.U64(header.size());
+  for (const std::string& name : header) out.Text(name);
+}
+
+std::vector<std::string> ReadHeader(ByteReader& in) {
+  std::vector<std::string> header(in.U64());
+  for (std::string& name : header) name = in.Text();
+  return header;
+}
+
+// Runs `work` (which returns this process's part) and exchanges the parts; every process throws
+// the first error (in process order) when any process failed.
+template <typename Work>
+std::vector<std::string> ExchangeParts(ShareExchange& exchange, Work&& work) {
+  std::string part;
+  try {
+    part = EncodeValue(work());
+  } catch (...) {
+    part = EncodeError(std::current_exception());
+  }
+  std::vector<std::string> parts = AllGather(exchange, part);
+  RethrowFirstError(parts);
+  return parts;
+}
+
+// One file as the processes share it.
+struct SharedFileScan {
+  std::vector<std::string> header;
+  std::vector<RangeSummary> ranges;          // every range of the file, in order
+  std::vector<std::uint64_t> lines_before;   // per range
+  std::vector<std::size_t> own_ranges;       // indices of this process's ranges
+  std::vector<RangeScan> own;                // their scans (spill file, chunks, level texts)
+  std::string sha256;
+  std::uint64_t stored_bytes = 0;
+  std::string encoding = "plain";
+  bool plain = true;
+  FileIdentity identity;                     // as this process saw it (when it opened the file)
+};
+
+SharedFileScan ScanFileShared(const std::filesystem::path& path, std::size_t file_index, const ScanOptions& options,
+                              LazySpillFolder& spill, const std::string& spill_prefix, const ExpectedHeader& expected,
+                              ShareExchange& exchange) {
+  const int me = exchange.index();
+  const int count = exchange.count();
+  const std::string name = path.string();
+  SharedFileScan result;
+  std::error_code status_error;
+  const bool regular = std::filesystem::is_regular_file(path, status_error) && !status_error;
+  std::unique_ptr<Descriptor> file;
+  bool compressed = false;
+  // Every process opens a regular file (to read its header and its ranges); a pipe or FIFO is
+  // opened by process 0 alone, since a second reader would take bytes from the first.
+  ExchangeParts(exchange, [&]() {
+    if (regular) {
+      file = std::make_unique<Descriptor>(path);
+      result.identity = IdentityOf(file->get(), name);
+      char magic[4] = {};
+      const std::size_t got = PreadSome(file->get(), magic, sizeof magic, 0, name);
+      compressed = StartsCompressed(magic, got);
+    }
+    return std::string();
+  });
+
+  if (!regular || compressed) {
+    // One reader: process 0 for a stream, process (file index mod K) for a compressed file.
+    const int owner = regular ? static_cast<int>(file_index % static_cast<std::size_t>(count)) : 0;
+    FileScan whole;
+    const std::vector<std::string> parts = ExchangeParts(exchange, [&]() -> std::string {
+      if (me != owner) return std::string();
+      if (!file) {
+        file = std::make_unique<Descriptor>(path);
+        result.identity = IdentityOf(file->get(), name);
+      }
+      whole = ScanWhole(path, *file, result.identity, options, spill, spill_prefix, expected);
+      ByteWriter out;
+      WriteHeader(out, whole.header);
+      WriteRange(out, whole.ranges[0]);
+      out.Text(whole.sha256);
+      out.U64(whole.stored_bytes);
+      out.Text(whole.encoding);
+      out.U64(whole.plain ? 1 : 0);
+      return out.Take();
+    });
+    ByteReader in(ValueOf(parts[static_cast<std::size_t>(owner)]));
+    result.header = ReadHeader(in);
+    result.ranges.push_back(ReadRange(in));
+    result.sha256 = in.Text();
+    result.stored_bytes = in.U64();
+    result.encoding = in.Text();
+    result.plain = in.U64() != 0;
+    result.lines_before = {0};
+    if (me == owner) {
+      result.own_ranges = {0};
+      result.own.push_back(std::move(whole.ranges[0]));
+    }
+    return result;
+  }
+
+  // Byte ranges: K x T of them, T per process (fewer for a small file; at least one each).
+  const int fd = file->get();
+  const std::uint64_t size = result.identity.size;
+  std::uint64_t header_end = 0, header_lines = 0;
+  std::vector<std::uint64_t> starts;
+  std::size_t per_process = 1;
+  std::vector<Sha256Digest> own_digests;
+  std::string hash_error;
+  auto own_first = [&](int process) { return static_cast<std::size_t>(process) * per_process; };
+  auto owner_of = [&](std::size_t range) { return static_cast<int>(range / per_process); };
+  std::size_t range_count = 0, blocks = 0;
+  auto end_of = [&](std::size_t r) { return r + 1 < range_count ? starts[r + 1] : UINT64_MAX; };
+  auto scan_range = [&](RangeScan& scan, std::size_t r, const std::string& file_name) {
+    scan = RangeScan{};
+    try {
+      SpillFolder* folder = spill.Get();
+      std::unique_ptr<SpillWriter> writer;
+      if (folder != nullptr) {
+        scan.spill_file = folder->NewFile(file_name);
+        writer = std::make_unique<SpillWriter>(scan.spill_file, folder->work_dir(), result.header.size());
+      }
+      CsvReader reader(path, fd, CsvRange{starts[r], end_of(r), result.header}, options.csv);
+      const std::uint64_t range_bytes = end_of(r) == UINT64_MAX ? size - std::min(size, starts[r])
+                                                                : end_of(r) - std::min(end_of(r), starts[r]);
+      ScanRecords(reader, options, writer.get(), starts[r], range_bytes, scan);
+    } catch (...) {
+      scan.error = std::current_exception();
+    }
+  };
+  const std::vector<std::string> parts = ExchangeParts(exchange, [&]() {
+    {
+      std::uint64_t next = 0;
+      CsvReader header_reader(path, [&](char* buffer, std::size_t capacity) {
+        const std::size_t got = PreadSome(fd, buffer, capacity, next, name);
+        next += got;
+        return got;
+      }, options.csv);
+      result.header = header_reader.header();
+      header_end = header_reader.bytes_read();
+      header_lines = header_reader.line_ends_read();
+    }
+    CheckSameHeader(expected, result.header, name);
+    spill.Get();
+    const std::uint64_t body = size - header_end;
+    const std::uint64_t by_size = std::max<std::uint64_t>(1, body / std::max<std::uint64_t>(1, options.min_range_bytes));
+    per_process = static_cast<std::size_t>(
+        std::max<std::uint64_t>(1, std::min<std::uint64_t>(options.threads, by_size / static_cast<std::uint64_t>(count))));
+    range_count = per_process * static_cast<std::size_t>(count);
+    std::vector<std::uint64_t> cuts;
+    for (std::size_t r = 1; r < range_count; ++r) cuts.push_back(header_end + body * r / range_count);
+    starts.assign(range_count, header_end);
+    for (std::size_t r = 1; r < range_count; ++r) {
+      const std::uint64_t cut = std::max(cuts[r - 1], header_end);
+      starts[r] = std::max(starts[r - 1], cut == 0 ? 0 : NextLineStart(fd, cut - 1, size, name));
+    }
+    blocks = static_cast<std::size_t>((size + DataFingerprint::kBlockBytes - 1) / DataFingerprint::kBlockBytes);
+    const std::size_t first = own_first(me);
+    result.own.resize(per_process);
+    for (std::size_t t = 0; t < per_process; ++t) result.own_ranges.push_back(first + t);
+    std::vector<Sha256Digest> digests(blocks);
+    std::vector<std::exception_ptr> hash_errors(per_process);
+    detail::RunTasks(
+        per_process,
+        [&](std::size_t t) {
+          const std::size_t r = first + t;
+          scan_range(result.own[t], r, spill_prefix + "range-" + std::to_string(r) + ".bin");
+          try {
+            HashBlocks(fd, size, blocks * r / range_count, blocks * (r + 1) / range_count, digests, name);
+          } catch (...) {
+            hash_errors[t] = std::current_exception();
+          }
+        },
+        "reading the data");
+    CheckUnchanged(fd, result.identity, name);
+    ByteWriter out;
+    WriteHeader(out, result.header);
+    out.U64(header_end);
+    out.U64(header_lines);
+    for (const RangeScan& scan : result.own) WriteRange(out, scan);
+    const std::size_t block_first = blocks * first / range_count;
+    const std::size_t block_last = blocks * (first + per_process) / range_count;
+    for (std::size_t b = block_first; b < block_last; ++b) out.Raw(digests[b].data(), digests[b].size());
+    std::string first_hash_error;
+    for (const auto& error : hash_errors) {
+      if (error && first_hash_error.empty()) first_hash_error = EncodeError(error);
+    }
+    out.Text(first_hash_error);
+    return out.Take();
+  });
+  // Every process now reads every process's ranges, in file order.
+  std::vector<Sha256Digest> digests(blocks);
+  result.ranges.resize(range_count);
+  std::vector<std::string> hash_errors;
+  for (int process = 0; process < count; ++process) {
+    ByteReader in(ValueOf(parts[static_cast<std::size_t>(process)]));
+    ReadHeader(in);
+    in.U64();
+    in.U64();
+    const std::size_t first = own_first(process);
+    for (std::size_t t = 0; t < per_process; ++t) result.ranges[first + t] = ReadRange(in);
+    const std::size_t block_first = blocks * first / range_count;
+    const std::size_t block_last = blocks * (first + per_process) / range_count;
+    for (std::size_t b = block_first; b < block_last; ++b) in.Raw(digests[b].data(), digests[b].size());
+    hash_errors.push_back(in.Text());
+  }
+  // The guessed cuts checked in file order, as one process checks them (ScanInRanges).
+  std::vector<std::uint64_t>& lines_before = result.lines_before;
+  lines_before.assign(range_count, 0);
+  lines_before[0] = header_lines;
+  for (std::size_t r = 0; r < range_count; ++r) {
+    if (r > 0) {
+      lines_before[r] = lines_before[r - 1] + result.ranges[r - 1].line_ends;
+      if (result.ranges[r - 1].stop != starts[r]) {
+        starts[r] = result.ranges[r - 1].stop;
+        const int owner = owner_of(r);
+        const std::vector<std::string> again = ExchangeParts(exchange, [&]() -> std::string {
+          if (owner != me) return std::string();
+          RangeScan& scan = result.own[r - own_first(me)];
+          scan_range(scan, r, spill_prefix + "range-" + std::to_string(r) + "-again.bin");
+          ByteWriter out;
+          WriteRange(out, scan);
+          return out.Take();
+        });
+        ByteReader in(ValueOf(again[static_cast<std::size_t>(owner)]));
+        result.ranges[r] = ReadRange(in);
+      }
+    }
+    if (!result.ranges[r].error.empty()) {
+      try {
+        RethrowPart(result.ranges[r].error);
+      } catch (const LocatedInputError& error) {
+        throw error.WithLinesBefore(lines_before[r]);
+      }
+    }
+  }
+  for (const std::string& error : hash_errors) {
+    if (!error.empty()) RethrowPart(error);
+  }
+  result.stored_bytes = size;
+  result.sha256 = DataFingerprint::Combine(digests, size);
+  result.plain = true;
+  return result;
+}
+
+ScanResult ScanDataShared(const DataSet& data, const ScanOptions& options, ShareExchange& exchange) {
+  std::vector<std::filesystem::path> files;
+  ExchangeParts(exchange, [&]() {
+    files = DataSetFiles(data);
+    return std::string();
+  });
+  ScanResult result;
+  LazySpillFolder spill(options.spill, options.work_dir);
+  const std::size_t max_levels = options.profile.max_levels;
+  std::vector<std::string> file_names;
+  std::vector<ColumnTally> merged;
+  std::vector<SpillRange> spill_ranges;
+  std::vector<SpillSource> sources;
+  std::vector<std::string> fingerprints;
+  std::uint64_t rows_before = 0;
+  result.ranges = 0;
+  for (std::size_t index = 0; index < files.size(); ++index) {
+    const std::filesystem::path& path = files[index];
+    file_names.push_back(path.string());
+    const ExpectedHeader expected{index == 0 ? nullptr : &result.header, file_names.front()};
+    const std::string prefix = index == 0 ? std::string() : "file-" + std::to_string(index) + "-";
+    SharedFileScan scan = ScanFileShared(path, index, options, spill, prefix, expected, exchange);
+    if (index == 0) {
+      result.header = scan.header;
+      merged.resize(result.header.size());
+    }
+    std::uint64_t file_rows = 0;
+    std::size_t own = 0;
+    for (std::size_t r = 0; r < scan.ranges.size(); ++r) {
+      if (options.spill && own < scan.own_ranges.size() && scan.own_ranges[own] == r) {
+        RangeScan& mine = scan.own[own++];
+        SpillRange range;
+        range.file = mine.spill_file;
+        range.rows = mine.rows;
+        range.rows_before = rows_before + file_rows;
+        range.lines_before = scan.lines_before[r];
+        range.source = index;
+        range.chunks = std::move(mine.chunks);
+        range.levels.resize(mine.tallies.size());
+        for (std::size_t c = 0; c < mine.tallies.size(); ++c) {
+          if (!mine.tallies[c].levels_overflowed) range.levels[c] = std::move(mine.tallies[c].level_texts);
+        }
+        spill_ranges.push_back(std::move(range));
+      }
+      file_rows += scan.ranges[r].rows;
+      for (std::size_t c = 0; c < merged.size() && c < scan.ranges[r].tallies.size(); ++c) {
+        MergeTally(merged[c], std::move(scan.ranges[r].tallies[c]), scan.lines_before[r], index, max_levels);
+      }
+    }
+    if (options.spill) {
+      sources.push_back(MakeSource(path, scan.identity, scan.plain && scan.identity.regular, result.header, options.csv));
+    }
+    rows_before += file_rows;
+    result.ranges += static_cast<int>(scan.ranges.size());
+    result.stored_bytes += scan.stored_bytes;
+    fingerprints.push_back(scan.sha256);
+    result.files.push_back(ScannedFile{path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows});
+  }
+  result.sha256 = CombineMemberFingerprints(fingerprints);
+  result.encoding = result.files.front().encoding;
+  for (const ScannedFile& file : result.files) {
+    if (file.encoding != result.encoding) result.encoding = "mixed";
+  }
+  result.profile.path = DescribeDataSet(data);
+  result.profile.rows = rows_before;
+  result.profile.columns.reserve(result.header.size());
+  for (std::size_t c = 0; c < result.header.size(); ++c) {
+    result.profile.columns.push_back(FinishColumn(result.header[c], c, merged[c], max_levels, file_names));
+  }
+  if (options.spill) {
+    // A process that read nothing still has a (empty) folder: the later passes expect one.
+    spill.Get();
+    result.spill = std::make_shared<Spill>(spill.Release(), std::move(spill_ranges), result.header.size(),
+                                           std::move(sources));
+  }
+  return result;
+}
+
 }  // namespace
 
 void ScanOptions::Validate() const {
@@ -829,6 +1242,7 @@ void ScanOptions::Validate() const {
 ScanResult ScanData(const DataSet& data, const ScanOptions& options) {
   options.Validate();
   if (data.columns) return ScanColumns(*data.columns, options);
+  if (options.shares != nullptr && options.shares->count() > 1) return ScanDataShared(data, options, *options.shares);
   const std::vector<std::filesystem::path> files = DataSetFiles(data);
   ScanResult result;
   // One folder for the spill of every file; removed with everything in it when the scan fails.

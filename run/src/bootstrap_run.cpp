@@ -141,7 +141,8 @@ BootstrapValidation SummariseReplicates(const std::vector<ReplicateOutcome>& out
   return result;
 }
 
-BootstrapValidation RunBootstrap(const Spill& spill, const Design& design, const SearchOptions& search,
+BootstrapValidation RunBootstrap(const BootstrapFactorBuilder& build_factors, const Design& design,
+                                 const SearchOptions& search,
                                  const FitOptions& fit_options, int threads, const SearchResult& chosen,
                                  SearchObserver* observer) {
   const BootstrapSettings settings = search.bootstrap.value();
@@ -155,7 +156,7 @@ BootstrapValidation RunBootstrap(const Spill& spill, const Design& design, const
       observer->OnProgress({"bootstrap rows", rows_done, std::max(rows_total, rows_done)});
     };
   }
-  std::vector<Factor> factors = BuildBootstrapFactors(spill, design, pass);
+  std::vector<Factor> factors = build_factors(pass);
 
   // Each replicate's selection and final fit from its factor alone (no refinement: the rows are
   // not replayed per replicate), in replicate order per thread; results land by index.

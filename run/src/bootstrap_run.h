@@ -4,8 +4,10 @@
 // each, and the summaries the audit records. Not installed.
 
 #include <cstdint>
+#include <functional>
 #include <vector>
 
+#include "stepledger/engine/bootstrap_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/spill.h"
@@ -37,7 +39,11 @@ BootstrapValidation SummariseReplicates(const std::vector<ReplicateOutcome>& out
 
 /// Runs the bootstrap: threads fold the replicate factors and run their selections; the result
 /// is identical bit for bit for any thread count. observer (optional) gets progress events.
-BootstrapValidation RunBootstrap(const Spill& spill, const Design& design, const SearchOptions& search,
+/// build_factors: BuildBootstrapFactors over the spill (or over every process's spill in a
+/// shared run, run/src/shared_run.h).
+using BootstrapFactorBuilder = std::function<std::vector<Factor>(const BootstrapPassOptions&)>;
+BootstrapValidation RunBootstrap(const BootstrapFactorBuilder& build_factors, const Design& design,
+                                 const SearchOptions& search,
                                  const FitOptions& fit_options, int threads, const SearchResult& chosen,
                                  SearchObserver* observer);
 

@@ -10,6 +10,7 @@
 #include "stepledger/engine/fingerprint.h"
 #include "stepledger/engine/table_scan.h"
 #include "bootstrap_run.h"
+#include "shared_run.h"
 #include "validation_run.h"
 
 namespace stepledger {
@@ -77,6 +78,8 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   scan_options.csv = run.options.csv;
   scan_options.threads = options.threads;
   scan_options.work_dir = options.work_dir;
+  scan_options.shares = options.shares;
+  const bool sharing = options.shares != nullptr && options.shares->count() > 1;
   // The levels limit, not the plan's max_levels: a plan must not decide how much memory a scan
   // may take (a column past the limit cannot be a categorical term; BuildDesign says which rule).
   scan_options.profile.max_levels = static_cast<std::size_t>(options.limits.levels);
@@ -86,6 +89,13 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   run.data_sha256 = scan.sha256;
   run.data_encoding = scan.encoding;
   run.data_in_memory = scan.in_memory;
+  if (sharing) {
+    run.processes = options.shares->count();
+    run.layout = std::to_string(scan.ranges) + " ranges of " + std::to_string(scan.files.size()) +
+                 (scan.files.size() == 1 ? " file" : " files") + " shared by " + std::to_string(run.processes) +
+                 " processes (every plain file cut into byte ranges, an even share each; a compressed file or "
+                 "a stream read whole by one)";
+  }
   run.data_is_set = scan.files.size() > 1 || data.inputs.size() > 1 ||
                     (scan.files.size() == 1 && scan.files.front().path != data.inputs.front());
   for (const ScannedFile& file : scan.files) {
@@ -115,7 +125,21 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
                                  " design columns needs more than " + std::to_string(kFoldFactorBudget >> 20) +
                                  " MB of fold factors; use fewer folds, fewer terms or --threads 1, or another criterion");
   }
-  PassResult pass = RunFactorPass(*scan.spill, run.design, pass_options);
+  std::optional<run_detail::SharedRun> shared;
+  if (sharing) shared.emplace(*options.shares, scan.spill, run.design, search.holdout);
+  PassResult pass = shared ? shared->FactorPass(pass_options) : RunFactorPass(*scan.spill, run.design, pass_options);
+  if (shared && !shared->driving()) {
+    // The search and everything after it run on process 0; this one answers its requests.
+    std::optional<BootstrapPassOptions> bootstrap;
+    if (search.bootstrap) {
+      bootstrap.emplace();
+      bootstrap->settings = *search.bootstrap;
+      bootstrap->holdout = search.holdout;
+      bootstrap->threads = options.threads;
+    }
+    shared->Serve(folds, bootstrap);
+    throw ShareServed();
+  }
   RequireSomethingToFit(pass, run.design, DescribeDataSet(data));
   run.accounting = pass.accounting;
   std::optional<CrossValidation> cross_validation;
@@ -130,7 +154,8 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   FitOptions fit_options = options.fit;
   fit_options.cp_sigma2 = run.search.cp_sigma2;
   // Refinement and diagnostics replay the model's rows: the held-out rows stay out of both.
-  const RowReplay replay = SpillRowReplay(scan.spill, run.design, search.holdout);
+  const RowReplay replay =
+      shared ? shared->Replay(RowSet::kModelRows) : SpillRowReplay(scan.spill, run.design, search.holdout);
   run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
   // A holdout needs the ranges and the largest leverage of the model's rows to count its own
   // extrapolations, so it learns them even when the diagnostics are not asked for.
@@ -146,16 +171,24 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
     }
     if (options.diagnostics) run.diagnostics = std::move(diagnostics);
   }
-  run.validation.folds =
-      run_detail::FinalModelFolds(cross_validation ? &*cross_validation : nullptr, *scan.spill, run.design, run.fit,
-                                  folds, search.holdout, options.fit.kernel);
+  const run_detail::FoldFactorBuilder build_folds = [&](std::span<const std::size_t> columns) {
+    return shared ? shared->FoldFactors(columns, folds)
+                  : BuildFoldFactors(*scan.spill, run.design, columns, folds, search.holdout);
+  };
+  run.validation.folds = run_detail::FinalModelFolds(cross_validation ? &*cross_validation : nullptr, build_folds,
+                                                     run.fit, folds, options.fit.kernel);
   if (search.holdout && run.fit.n > 0) {
+    const RowReplay held_out = shared ? shared->Replay(RowSet::kHeldOutRows)
+                                      : SpillRowReplay(scan.spill, run.design, search.holdout, RowSet::kHeldOutRows);
     run.validation.holdout =
-        run_detail::EvaluateHoldout(*scan.spill, run.design, run.fit, run.prediction_support, *search.holdout);
+        run_detail::EvaluateHoldout(held_out, run.design, run.fit, run.prediction_support, *search.holdout);
   }
   if (search.bootstrap) {
-    run.validation.bootstrap = run_detail::RunBootstrap(*scan.spill, run.design, search, options.fit, options.threads,
-                                                        run.search, observer);
+    const run_detail::BootstrapFactorBuilder build_factors = [&](const BootstrapPassOptions& pass) {
+      return shared ? shared->BootstrapFactors(pass) : BuildBootstrapFactors(*scan.spill, run.design, pass);
+    };
+    run.validation.bootstrap = run_detail::RunBootstrap(build_factors, run.design, search, options.fit,
+                                                        options.threads, run.search, observer);
   }
   run.duration_seconds =
       std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();

@@ -13,16 +13,15 @@
 
 namespace stepledger::run_detail {
 
-FoldValidation FinalModelFolds(const CrossValidation* cross_validation, const Spill& spill, const Design& design,
-                               const FitResult& fit, const FoldSettings& settings,
-                               const std::optional<HoldoutSettings>& holdout, const KernelOptions& kernel) {
+FoldValidation FinalModelFolds(const CrossValidation* cross_validation, const FoldFactorBuilder& build_folds,
+                               const FitResult& fit, const FoldSettings& settings, const KernelOptions& kernel) {
   FoldValidation result;
   result.settings = settings;
   result.residual_sd = fit.criteria.sigma;
   std::optional<CrossValidation> own;
   std::vector<std::size_t> columns = fit.columns;
   if (cross_validation == nullptr) {
-    own.emplace(BuildFoldFactors(spill, design, fit.columns, settings, holdout), kernel);
+    own.emplace(build_folds(fit.columns), kernel);
     cross_validation = &*own;
     std::iota(columns.begin(), columns.end(), std::size_t{0});
   }
@@ -62,7 +61,7 @@ struct RangeCheck {
 
 }  // namespace
 
-HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, const FitResult& fit,
+HoldoutValidation EvaluateHoldout(const RowReplay& held_out, const Design& design, const FitResult& fit,
                                   const PredictionSupport& support, const HoldoutSettings& holdout) {
   HoldoutValidation result;
   result.settings = holdout;
@@ -83,8 +82,7 @@ HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, cons
   // A few rows are too few for the P^2 sketch (it needs 2 * 9 + 3 values to place its markers):
   // the first kExactRows predictions are kept and their deciles taken exactly when no more come.
   std::vector<double> first_predictions;
-  ForEachUsedRow(
-      spill, design,
+  held_out(
       [&](const UsedRow& row) {
         const std::span<const double> values = ModelValues(fit, row, model_x);
         const double prediction = LinearPredictor(fit, values);
@@ -107,8 +105,7 @@ HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, cons
         if (leverage_known && UnitLeverage(fit, values, scratch) > *support.max_unit_leverage) {
           ++result.rows_high_leverage;
         }
-      },
-      holdout, RowSet::kHeldOutRows);
+      });
   result.weight = weight;
   if (result.rows == 0) return result;
   result.rmse = std::sqrt(sse / weight);
@@ -129,8 +126,7 @@ HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, cons
   }
   std::array<double, kDeciles> bin_weight{}, bin_prediction{}, bin_observed{};
   std::array<std::uint64_t, kDeciles> bin_rows{};
-  ForEachUsedRow(
-      spill, design,
+  held_out(
       [&](const UsedRow& row) {
         const double prediction = LinearPredictor(fit, ModelValues(fit, row, model_x));
         const std::size_t bin = static_cast<std::size_t>(
@@ -139,8 +135,7 @@ HoldoutValidation EvaluateHoldout(const Spill& spill, const Design& design, cons
         bin_weight[bin] += row.weight;
         bin_prediction[bin] += row.weight * prediction;
         bin_observed[bin] += row.weight * row.y;
-      },
-      holdout, RowSet::kHeldOutRows);
+      });
   for (std::size_t bin = 0; bin < kDeciles; ++bin) {
     if (bin_rows[bin] == 0) continue;
     result.calibration.push_back(CalibrationBin{bin + 1, bin_rows[bin], bin_prediction[bin] / bin_weight[bin],

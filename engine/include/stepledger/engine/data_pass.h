@@ -131,6 +131,13 @@ enum class RowSet {
 void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
                     const std::optional<HoldoutSettings>& holdout = std::nullopt, RowSet set = RowSet::kModelRows);
 
+/// The same for the rows of the spill's ranges [first_range, last_range) only: a process of a
+/// cluster run (engine/share_exchange.h) replays its ranges one at a time, so that the driving
+/// process sees every process's rows in record order.
+void ForEachUsedRowInRanges(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
+                            const std::optional<HoldoutSettings>& holdout, RowSet set, std::size_t first_range,
+                            std::size_t last_range);
+
 /// Something that can replay the used rows of the data a factor was built from.
 /// (A spill, or rows kept in memory by tests.)
 using RowReplay = std::function<void(const std::function<void(const UsedRow&)>&)>;

@@ -30,6 +30,7 @@
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/data_set.h"
 #include "stepledger/engine/profile.h"
+#include "stepledger/engine/share_exchange.h"
 #include "stepledger/engine/spill.h"
 
 namespace stepledger {
@@ -62,9 +63,24 @@ struct ScanOptions {
   bool spill = true;
   /// Where the spill's private folder is made; empty: the system temporary folder.
   std::filesystem::path work_dir;
+  /// Several processes reading the data, each its share (a cluster run; null: this process reads
+  /// everything). See "Shares" below.
+  ShareExchange* shares = nullptr;
   /// Throws InputError naming the field when a value is out of range.
   void Validate() const;
 };
+
+// Shares. With ScanOptions::shares of K > 1 processes, every process calls ScanData at once.
+// A plain regular file is cut into K x T byte ranges (T: the threads, fewer for a small file),
+// process p reading ranges p T to (p + 1) T - 1 and the fingerprint blocks under them; a
+// compressed file is read whole by process (file index mod K), a pipe or FIFO by process 0.
+// The processes then exchange what each range holds (rows, line ends, where it stopped, its
+// column tallies or its error) and every process checks the guessed cuts in file order as one
+// process does: a range whose guessed start is not where the range before stopped is read again
+// by its owner and its summary sent to all. Every process ends with the same profile, header,
+// fingerprint and file list (the bits of one process's scan: the tallies merge in range order),
+// and a spill holding its own ranges only, with the record indices and line counts of the whole
+// data set; an error in any range reaches every process, the first in reading order.
 
 /// One file of the data as read.
 struct ScannedFile {

@@ -9,6 +9,7 @@
 // audit, the report and the terminal output render; none of them recomputes it.
 
 #include <cstdint>
+#include <exception>
 #include <filesystem>
 #include <optional>
 #include <string>
@@ -20,6 +21,7 @@
 #include "stepledger/engine/fit.h"
 #include "stepledger/engine/model_support.h"
 #include "stepledger/engine/profile.h"
+#include "stepledger/engine/share_exchange.h"
 #include "stepledger/io/plan_file.h"
 #include "stepledger/run/validation.h"
 #include "stepledger/selection/search.h"
@@ -51,6 +53,12 @@ struct RunOptions {
   /// leverage, Cook's distance and residual summaries, the term ranges over the rows used and the
   /// largest leverage (for predict and the extrapolation caution). Default: yes.
   bool diagnostics = true;
+  /// Several processes sharing the run (a cluster run under mpirun; engine/share_exchange.h), or
+  /// null for a run of this process alone. Every process calls RunPlan with the same plan and
+  /// options; process 0 returns the result, the others throw ShareServed once process 0 no
+  /// longer needs them (run/src/shared_run.h). Not recorded in the settings (it cannot change a
+  /// result beyond rounding); the audit's `cluster` section names the processes and the layout.
+  ShareExchange* shares = nullptr;
   /// Throws InputError naming the field when a value is out of range.
   void Validate() const;
 };
@@ -95,6 +103,19 @@ struct RunResult {
   ValidationResult validation;
   RunOptions options;
   double duration_seconds = 0;      ///< wall time of the run
+  /// The processes that read the data (1 without RunOptions::shares) and how they shared it, in
+  /// words ("3 processes, 2 byte ranges each of every plain file; compressed files whole"), for
+  /// the audit's `cluster` section (written only for more than one process).
+  int processes = 1;
+  std::string layout;  ///< e.g. "6 ranges of 1 file shared by 3 processes (...)"
+};
+
+/// Not an error: thrown by RunPlan on every process of a shared run but process 0, once process 0
+/// no longer needs it. Process 0 holds the result and writes every output; a command that
+/// catches this ends quietly with status 0.
+class ShareServed : public std::exception {
+ public:
+  const char* what() const noexcept override { return "this process served its share of a shared run"; }
 };
 
 /// The names of a data set's files in reading order, for RowPlaceText (engine/data_set.h):
