@@ -376,28 +376,6 @@ PassResult RunFactorPass(const std::filesystem::path& path, const Design& design
   return RunFactorPass(*scan.spill, design, options);
 }
 
-void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
-                    const std::optional<HoldoutSettings>& holdout, RowSet set) {
-  design.CheckHeader(spill.source().header, spill.source().display_name);
-  const LevelTables tables = MakeLevelTables(spill, design);
-  UsedRow row;
-  RowAccounting accounting;
-  ForEachRow(spill, design, tables, 0, spill.chunk_count(), true,
-             [&](const SpillCells& cells, const RowOutcome& outcome, std::span<const double> x, double y, double w,
-                 std::span<const double> x_low) {
-               const std::uint64_t record = cells.RowIndex();
-               if (!CountAndSelect(accounting, outcome, record, holdout, set)) return;
-               row.row_index = record;
-               row.line = cells.Line();
-               row.file = cells.File();
-               row.x = x;
-               row.x_low = x_low;
-               row.y = y;
-               row.weight = w;
-               visit(row);
-             });
-}
-
 void ForEachUsedRowInRanges(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
                             const std::optional<HoldoutSettings>& holdout, RowSet set, std::size_t first_range,
                             std::size_t last_range) {
@@ -420,12 +398,18 @@ void ForEachUsedRowInRanges(const Spill& spill, const Design& design, const std:
                if (!CountAndSelect(accounting, outcome, record, holdout, set)) return;
                row.row_index = record;
                row.line = cells.Line();
+               row.file = cells.File();
                row.x = x;
                row.x_low = x_low;
                row.y = y;
                row.weight = w;
                visit(row);
              });
+}
+
+void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,
+                    const std::optional<HoldoutSettings>& holdout, RowSet set) {
+  ForEachUsedRowInRanges(spill, design, visit, holdout, set, 0, spill.ranges().size());
 }
 
 RowReplay SpillRowReplay(std::shared_ptr<const Spill> spill, const Design& design,

@@ -211,6 +211,7 @@ void SharedRun::Serve(const std::optional<FoldSettings>& folds, const std::optio
               [&](const UsedRow& row) {
                 batch.U64(row.row_index);
                 batch.U64(row.line);
+                batch.U64(row.file);
                 batch.Raw(row.x.data(), columns * sizeof(double));
                 batch.U64(row.x_low.empty() ? 0 : 1);
                 if (!row.x_low.empty()) batch.Raw(row.x_low.data(), columns * sizeof(double));
@@ -277,6 +278,7 @@ void SharedRun::ReplayRange(const RangeOwner& owner, RowSet set, const std::func
     for (std::uint64_t i = 0; i < rows; ++i) {
       row.row_index = in.U64();
       row.line = in.U64();
+      row.file = static_cast<std::size_t>(in.U64());
       in.Raw(x.data(), columns * sizeof(double));
       const bool has_low = in.U64() != 0;
       if (has_low) in.Raw(x_low.data(), columns * sizeof(double));
