@@ -420,6 +420,49 @@ class LazySpillFolder {
   std::unique_ptr<SpillFolder> folder_;
 };
 
+// What a scan of a data set gathers file by file, and the ScanResult made of it once every file
+// is read: shared by the scan in one process (ScanData) and the scan shared by processes.
+struct SetScan {
+  ScanResult result;
+  std::vector<std::string> file_names;  // as the profile names them, in reading order
+  std::vector<ColumnTally> merged;      // the running tallies of every column
+  std::vector<SpillRange> spill_ranges;
+  std::vector<SpillSource> sources;
+  std::vector<std::string> fingerprints;
+  std::uint64_t rows_before = 0;  // records of the files added so far
+
+  SetScan() { result.ranges = 0; }
+
+  void AddFile(const std::filesystem::path& path, std::uint64_t stored_bytes, const std::string& sha256,
+               const std::string& encoding, std::uint64_t rows, std::size_t ranges) {
+    rows_before += rows;
+    result.ranges += static_cast<int>(ranges);
+    result.stored_bytes += stored_bytes;
+    fingerprints.push_back(sha256);
+    result.files.push_back(ScannedFile{path, stored_bytes, sha256, encoding, rows});
+  }
+
+  ScanResult Finish(const DataSet& data, const ScanOptions& options, LazySpillFolder& spill) {
+    result.sha256 = CombineMemberFingerprints(fingerprints);
+    result.encoding = result.files.front().encoding;
+    for (const ScannedFile& file : result.files) {
+      if (file.encoding != result.encoding) result.encoding = "mixed";
+    }
+    result.profile.path = DescribeDataSet(data);
+    result.profile.rows = rows_before;
+    result.profile.columns.reserve(result.header.size());
+    for (std::size_t c = 0; c < result.header.size(); ++c) {
+      result.profile.columns.push_back(
+          FinishColumn(result.header[c], c, merged[c], options.profile.max_levels, file_names));
+    }
+    if (options.spill) {
+      result.spill = std::make_shared<Spill>(spill.Release(), std::move(spill_ranges), result.header.size(),
+                                             std::move(sources));
+    }
+    return std::move(result);
+  }
+};
+
 // What the scan of one file gives before it joins the set's profile and spill.
 struct FileScan {
   std::vector<std::string> header;
@@ -1159,16 +1202,15 @@ ScanResult ScanDataShared(const DataSet& data, const ScanOptions& options, Share
     files = DataSetFiles(data);
     return std::string();
   });
-  ScanResult result;
   LazySpillFolder spill(options.spill, options.work_dir);
   const std::size_t max_levels = options.profile.max_levels;
-  std::vector<std::string> file_names;
-  std::vector<ColumnTally> merged;
-  std::vector<SpillRange> spill_ranges;
-  std::vector<SpillSource> sources;
-  std::vector<std::string> fingerprints;
-  std::uint64_t rows_before = 0;
-  result.ranges = 0;
+  SetScan set;
+  ScanResult& result = set.result;
+  std::vector<std::string>& file_names = set.file_names;
+  std::vector<ColumnTally>& merged = set.merged;
+  std::vector<SpillRange>& spill_ranges = set.spill_ranges;
+  std::vector<SpillSource>& sources = set.sources;
+  const std::uint64_t& rows_before = set.rows_before;
   for (std::size_t index = 0; index < files.size(); ++index) {
     const std::filesystem::path& path = files[index];
     file_names.push_back(path.string());
@@ -1205,30 +1247,11 @@ ScanResult ScanDataShared(const DataSet& data, const ScanOptions& options, Share
     if (options.spill) {
       sources.push_back(MakeSource(path, scan.identity, scan.plain && scan.identity.regular, result.header, options.csv));
     }
-    rows_before += file_rows;
-    result.ranges += static_cast<int>(scan.ranges.size());
-    result.stored_bytes += scan.stored_bytes;
-    fingerprints.push_back(scan.sha256);
-    result.files.push_back(ScannedFile{path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows});
+    set.AddFile(path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows, scan.ranges.size());
   }
-  result.sha256 = CombineMemberFingerprints(fingerprints);
-  result.encoding = result.files.front().encoding;
-  for (const ScannedFile& file : result.files) {
-    if (file.encoding != result.encoding) result.encoding = "mixed";
-  }
-  result.profile.path = DescribeDataSet(data);
-  result.profile.rows = rows_before;
-  result.profile.columns.reserve(result.header.size());
-  for (std::size_t c = 0; c < result.header.size(); ++c) {
-    result.profile.columns.push_back(FinishColumn(result.header[c], c, merged[c], max_levels, file_names));
-  }
-  if (options.spill) {
-    // A process that read nothing still has a (empty) folder: the later passes expect one.
-    spill.Get();
-    result.spill = std::make_shared<Spill>(spill.Release(), std::move(spill_ranges), result.header.size(),
-                                           std::move(sources));
-  }
-  return result;
+  // A process that read nothing still has a (empty) folder: the later passes expect one.
+  if (options.spill) spill.Get();
+  return set.Finish(data, options, spill);
 }
 
 }  // namespace
@@ -1244,17 +1267,16 @@ ScanResult ScanData(const DataSet& data, const ScanOptions& options) {
   if (data.columns) return ScanColumns(*data.columns, options);
   if (options.shares != nullptr && options.shares->count() > 1) return ScanDataShared(data, options, *options.shares);
   const std::vector<std::filesystem::path> files = DataSetFiles(data);
-  ScanResult result;
   // One folder for the spill of every file; removed with everything in it when the scan fails.
   LazySpillFolder spill(options.spill, options.work_dir);
   const std::size_t max_levels = options.profile.max_levels;
-  std::vector<std::string> file_names;
-  std::vector<ColumnTally> merged;
-  std::vector<SpillRange> spill_ranges;
-  std::vector<SpillSource> sources;
-  std::vector<std::string> fingerprints;
-  std::uint64_t rows_before = 0;
-  result.ranges = 0;
+  SetScan set;
+  ScanResult& result = set.result;
+  std::vector<std::string>& file_names = set.file_names;
+  std::vector<ColumnTally>& merged = set.merged;
+  std::vector<SpillRange>& spill_ranges = set.spill_ranges;
+  std::vector<SpillSource>& sources = set.sources;
+  const std::uint64_t& rows_before = set.rows_before;
   for (std::size_t index = 0; index < files.size(); ++index) {
     const std::filesystem::path& path = files[index];
     file_names.push_back(path.string());
@@ -1280,28 +1302,9 @@ ScanResult ScanData(const DataSet& data, const ScanOptions& options) {
       AppendSpillRanges(scan.ranges, scan.lines_before, rows_before, index, spill_ranges);
       sources.push_back(MakeSource(path, identity, scan.plain, result.header, options.csv));
     }
-    rows_before += file_rows;
-    result.ranges += static_cast<int>(scan.ranges.size());
-    result.stored_bytes += scan.stored_bytes;
-    fingerprints.push_back(scan.sha256);
-    result.files.push_back(ScannedFile{path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows});
+    set.AddFile(path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows, scan.ranges.size());
   }
-  result.sha256 = CombineMemberFingerprints(fingerprints);
-  result.encoding = result.files.front().encoding;
-  for (const ScannedFile& file : result.files) {
-    if (file.encoding != result.encoding) result.encoding = "mixed";
-  }
-  result.profile.path = DescribeDataSet(data);
-  result.profile.rows = rows_before;
-  result.profile.columns.reserve(result.header.size());
-  for (std::size_t c = 0; c < result.header.size(); ++c) {
-    result.profile.columns.push_back(FinishColumn(result.header[c], c, merged[c], max_levels, file_names));
-  }
-  if (options.spill) {
-    result.spill = std::make_shared<Spill>(spill.Release(), std::move(spill_ranges), result.header.size(),
-                                           std::move(sources));
-  }
-  return result;
+  return set.Finish(data, options, spill);
 }
 
 }  // namespace stepledger
