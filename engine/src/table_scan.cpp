@@ -380,24 +380,30 @@ void CheckUnchanged(int fd, const FileIdentity& before, const std::string& name)
   }
 }
 
-// The spill ranges of one file of the set: its rows come after rows_before records of the files
-// before it; source is the file's index in the set.
+// One range of the scan as the spill keeps it (its chunks and level texts moved out of the scan):
+// its rows come after rows_before records of the set, its lines after lines_before line ends of
+// its file; source is the file's index in the set.
+SpillRange SpillRangeOf(RangeScan& scan, std::uint64_t rows_before, std::uint64_t lines_before, std::size_t source) {
+  SpillRange range;
+  range.file = scan.spill_file;
+  range.rows = scan.rows;
+  range.rows_before = rows_before;
+  range.lines_before = lines_before;
+  range.source = source;
+  range.chunks = std::move(scan.chunks);
+  range.levels.resize(scan.tallies.size());
+  for (std::size_t c = 0; c < scan.tallies.size(); ++c) {
+    if (!scan.tallies[c].levels_overflowed) range.levels[c] = std::move(scan.tallies[c].level_texts);
+  }
+  return range;
+}
+
+// The spill ranges of one file of the set (SpillRangeOf, in file order).
 void AppendSpillRanges(std::vector<RangeScan>& scans, const std::vector<std::uint64_t>& lines_before,
                        std::uint64_t rows_before, std::size_t source, std::vector<SpillRange>& ranges) {
   for (std::size_t r = 0; r < scans.size(); ++r) {
-    SpillRange range;
-    range.file = scans[r].spill_file;
-    range.rows = scans[r].rows;
-    range.rows_before = rows_before;
-    range.lines_before = lines_before[r];
-    range.source = source;
-    range.chunks = std::move(scans[r].chunks);
-    range.levels.resize(scans[r].tallies.size());
-    for (std::size_t c = 0; c < scans[r].tallies.size(); ++c) {
-      if (!scans[r].tallies[c].levels_overflowed) range.levels[c] = std::move(scans[r].tallies[c].level_texts);
-    }
-    rows_before += range.rows;
-    ranges.push_back(std::move(range));
+    ranges.push_back(SpillRangeOf(scans[r], rows_before, lines_before[r], source));
+    rows_before += scans[r].rows;
   }
 }
 
@@ -420,6 +426,12 @@ class LazySpillFolder {
   std::unique_ptr<SpillFolder> folder_;
 };
 
+// The first file's header, which every later file of a set must repeat.
+struct ExpectedHeader {
+  const std::vector<std::string>* names = nullptr;  // null for the first file
+  std::string file;                                 // the first file's name
+};
+
 // What a scan of a data set gathers file by file, and the ScanResult made of it once every file
 // is read: shared by the scan in one process (ScanData) and the scan shared by processes.
 struct SetScan {
@@ -432,6 +444,31 @@ struct SetScan {
   std::uint64_t rows_before = 0;  // records of the files added so far
 
   SetScan() { result.ranges = 0; }
+
+  // File `index` of the set is about to be read at `path`: what its header must equal (the first
+  // file's) and the prefix of its spill files (the first file keeps the names a single file
+  // always had).
+  std::pair<ExpectedHeader, std::string> BeginFile(const std::filesystem::path& path, std::size_t index) {
+    file_names.push_back(path.string());
+    return {ExpectedHeader{index == 0 ? nullptr : &result.header, file_names.front()},
+            index == 0 ? std::string() : "file-" + std::to_string(index) + "-"};
+  }
+
+  // The first file's header names the set's columns.
+  void TakeHeader(std::size_t index, const std::vector<std::string>& header) {
+    if (index != 0) return;
+    result.header = header;
+    merged.resize(result.header.size());
+  }
+
+  // One range's tallies join the running ones at once, so that what the scan keeps grows with the
+  // columns and levels, not with the files.
+  void MergeRange(std::vector<ColumnTally>& tallies, std::uint64_t lines_before, std::size_t index,
+                  std::size_t max_levels) {
+    for (std::size_t c = 0; c < merged.size() && c < tallies.size(); ++c) {
+      MergeTally(merged[c], std::move(tallies[c]), lines_before, index, max_levels);
+    }
+  }
 
   void AddFile(const std::filesystem::path& path, std::uint64_t stored_bytes, const std::string& sha256,
                const std::string& encoding, std::uint64_t rows, std::size_t ranges) {
@@ -472,12 +509,6 @@ struct FileScan {
   std::uint64_t stored_bytes = 0;
   std::string encoding = "plain";
   bool plain = true;
-};
-
-// The first file's header, which every later file of a set must repeat.
-struct ExpectedHeader {
-  const std::vector<std::string>* names = nullptr;  // null for the first file
-  std::string file;                                 // the first file's name
 };
 
 // Refuses a file of a set whose header is not the first file's, naming both files and the first
@@ -1203,49 +1234,25 @@ ScanResult ScanDataShared(const DataSet& data, const ScanOptions& options, Share
     return std::string();
   });
   LazySpillFolder spill(options.spill, options.work_dir);
-  const std::size_t max_levels = options.profile.max_levels;
   SetScan set;
-  ScanResult& result = set.result;
-  std::vector<std::string>& file_names = set.file_names;
-  std::vector<ColumnTally>& merged = set.merged;
-  std::vector<SpillRange>& spill_ranges = set.spill_ranges;
-  std::vector<SpillSource>& sources = set.sources;
-  const std::uint64_t& rows_before = set.rows_before;
   for (std::size_t index = 0; index < files.size(); ++index) {
     const std::filesystem::path& path = files[index];
-    file_names.push_back(path.string());
-    const ExpectedHeader expected{index == 0 ? nullptr : &result.header, file_names.front()};
-    const std::string prefix = index == 0 ? std::string() : "file-" + std::to_string(index) + "-";
+    const auto [expected, prefix] = set.BeginFile(path, index);
     SharedFileScan scan = ScanFileShared(path, index, options, spill, prefix, expected, exchange);
-    if (index == 0) {
-      result.header = scan.header;
-      merged.resize(result.header.size());
-    }
+    set.TakeHeader(index, scan.header);
     std::uint64_t file_rows = 0;
     std::size_t own = 0;
     for (std::size_t r = 0; r < scan.ranges.size(); ++r) {
       if (options.spill && own < scan.own_ranges.size() && scan.own_ranges[own] == r) {
-        RangeScan& mine = scan.own[own++];
-        SpillRange range;
-        range.file = mine.spill_file;
-        range.rows = mine.rows;
-        range.rows_before = rows_before + file_rows;
-        range.lines_before = scan.lines_before[r];
-        range.source = index;
-        range.chunks = std::move(mine.chunks);
-        range.levels.resize(mine.tallies.size());
-        for (std::size_t c = 0; c < mine.tallies.size(); ++c) {
-          if (!mine.tallies[c].levels_overflowed) range.levels[c] = std::move(mine.tallies[c].level_texts);
-        }
-        spill_ranges.push_back(std::move(range));
+        set.spill_ranges.push_back(
+            SpillRangeOf(scan.own[own++], set.rows_before + file_rows, scan.lines_before[r], index));
       }
       file_rows += scan.ranges[r].rows;
-      for (std::size_t c = 0; c < merged.size() && c < scan.ranges[r].tallies.size(); ++c) {
-        MergeTally(merged[c], std::move(scan.ranges[r].tallies[c]), scan.lines_before[r], index, max_levels);
-      }
+      set.MergeRange(scan.ranges[r].tallies, scan.lines_before[r], index, options.profile.max_levels);
     }
     if (options.spill) {
-      sources.push_back(MakeSource(path, scan.identity, scan.plain && scan.identity.regular, result.header, options.csv));
+      set.sources.push_back(
+          MakeSource(path, scan.identity, scan.plain && scan.identity.regular, set.result.header, options.csv));
     }
     set.AddFile(path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows, scan.ranges.size());
   }
@@ -1269,38 +1276,21 @@ ScanResult ScanData(const DataSet& data, const ScanOptions& options) {
   const std::vector<std::filesystem::path> files = DataSetFiles(data);
   // One folder for the spill of every file; removed with everything in it when the scan fails.
   LazySpillFolder spill(options.spill, options.work_dir);
-  const std::size_t max_levels = options.profile.max_levels;
   SetScan set;
-  ScanResult& result = set.result;
-  std::vector<std::string>& file_names = set.file_names;
-  std::vector<ColumnTally>& merged = set.merged;
-  std::vector<SpillRange>& spill_ranges = set.spill_ranges;
-  std::vector<SpillSource>& sources = set.sources;
-  const std::uint64_t& rows_before = set.rows_before;
   for (std::size_t index = 0; index < files.size(); ++index) {
     const std::filesystem::path& path = files[index];
-    file_names.push_back(path.string());
-    const ExpectedHeader expected{index == 0 ? nullptr : &result.header, file_names.front()};
-    // The first file's spill keeps the names a single file always had.
-    const std::string prefix = index == 0 ? std::string() : "file-" + std::to_string(index) + "-";
+    const auto [expected, prefix] = set.BeginFile(path, index);
     FileIdentity identity;
     FileScan scan = ScanFile(path, options, spill, prefix, expected, identity);
-    if (index == 0) {
-      result.header = scan.header;
-      merged.resize(result.header.size());
-    }
-    // Each file's ranges join the running tallies at once, so that what the scan keeps grows with
-    // the columns and levels, not with the files.
+    set.TakeHeader(index, scan.header);
     std::uint64_t file_rows = 0;
     for (std::size_t r = 0; r < scan.ranges.size(); ++r) {
       file_rows += scan.ranges[r].rows;
-      for (std::size_t c = 0; c < merged.size() && c < scan.ranges[r].tallies.size(); ++c) {
-        MergeTally(merged[c], std::move(scan.ranges[r].tallies[c]), scan.lines_before[r], index, max_levels);
-      }
+      set.MergeRange(scan.ranges[r].tallies, scan.lines_before[r], index, options.profile.max_levels);
     }
     if (options.spill) {
-      AppendSpillRanges(scan.ranges, scan.lines_before, rows_before, index, spill_ranges);
-      sources.push_back(MakeSource(path, identity, scan.plain, result.header, options.csv));
+      AppendSpillRanges(scan.ranges, scan.lines_before, set.rows_before, index, set.spill_ranges);
+      set.sources.push_back(MakeSource(path, identity, scan.plain, set.result.header, options.csv));
     }
     set.AddFile(path, scan.stored_bytes, scan.sha256, scan.encoding, file_rows, scan.ranges.size());
   }
