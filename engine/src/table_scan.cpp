@@ -569,6 +569,26 @@ FileScan ScanWhole(const std::filesystem::path& path, Descriptor& file, const Fi
   return result;
 }
 
+// The header of a file read with positioned reads from its start: the names, the bytes it takes
+// and the line ends in it (a quoted name may hold one). Shared by the scan in one process and the
+// scan shared by processes.
+struct HeaderAtStart {
+  std::vector<std::string> names;
+  std::uint64_t end = 0;
+  std::uint64_t lines = 0;
+};
+
+HeaderAtStart ReadHeaderAtStart(const std::filesystem::path& path, int fd, const std::string& name,
+                                const CsvOptions& csv) {
+  std::uint64_t next = 0;
+  CsvReader header_reader(path, [&](char* buffer, std::size_t capacity) {
+    const std::size_t got = PreadSome(fd, buffer, capacity, next, name);
+    next += got;
+    return got;
+  }, csv);
+  return HeaderAtStart{header_reader.header(), header_reader.bytes_read(), header_reader.line_ends_read()};
+}
+
 FileScan ScanInRanges(const std::filesystem::path& path, Descriptor& file, const FileIdentity& identity,
                       const ScanOptions& options, LazySpillFolder& spill, const std::string& spill_prefix,
                       const ExpectedHeader& expected) {
@@ -576,18 +596,9 @@ FileScan ScanInRanges(const std::filesystem::path& path, Descriptor& file, const
   const std::string name = path.string();
   const std::uint64_t size = identity.size;
   FileScan result;
-  std::uint64_t header_end = 0, header_lines = 0;
-  {
-    std::uint64_t next = 0;
-    CsvReader header_reader(path, [&](char* buffer, std::size_t capacity) {
-      const std::size_t got = PreadSome(fd, buffer, capacity, next, name);
-      next += got;
-      return got;
-    }, options.csv);
-    result.header = header_reader.header();
-    header_end = header_reader.bytes_read();
-    header_lines = header_reader.line_ends_read();
-  }
+  const HeaderAtStart head = ReadHeaderAtStart(path, fd, name, options.csv);
+  result.header = head.names;
+  const std::uint64_t header_end = head.end, header_lines = head.lines;
   CheckSameHeader(expected, result.header, name);
   SpillFolder* folder = spill.Get();
 
@@ -1114,15 +1125,10 @@ SharedFileScan ScanFileShared(const std::filesystem::path& path, std::size_t fil
   };
   const std::vector<std::string> parts = ExchangeParts(exchange, [&]() {
     {
-      std::uint64_t next = 0;
-      CsvReader header_reader(path, [&](char* buffer, std::size_t capacity) {
-        const std::size_t got = PreadSome(fd, buffer, capacity, next, name);
-        next += got;
-        return got;
-      }, options.csv);
-      result.header = header_reader.header();
-      header_end = header_reader.bytes_read();
-      header_lines = header_reader.line_ends_read();
+      const HeaderAtStart head = ReadHeaderAtStart(path, fd, name, options.csv);
+      result.header = head.names;
+      header_end = head.end;
+      header_lines = head.lines;
     }
     CheckSameHeader(expected, result.header, name);
     spill.Get();
