@@ -45,10 +45,14 @@ CriteriaValues ComputeCriteria(const CriteriaInputs& in) {
 // Degenerate cases: d <= 0 or n - k1 <= 0: undefined. RSS1 = 0: +inf (p = 0) when RSS0 > 0,
 // undefined when RSS0 = 0 too (0/0). A drop that rounding made slightly negative counts as 0.
 PartialF ComputePartialF(double rss_without, double rss_with, double d, double n, double k_with) {
+  return ComputePartialFFromChange(rss_without - rss_with, rss_with, d, n, k_with);
+}
+
+PartialF ComputePartialFFromChange(double rss_change, double rss_with, double d, double n, double k_with) {
   PartialF out;
   const double df_residual = n - k_with;
   if (!(d > 0) || !(df_residual > 0)) return out;
-  const double drop = std::max(0.0, rss_without - rss_with);
+  const double drop = std::max(0.0, rss_change);
   if (rss_with <= 0) {
     if (drop > 0) {
       out.f = std::numeric_limits<double>::infinity();

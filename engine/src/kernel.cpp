@@ -105,7 +105,7 @@ bool ModelState::IsAliased(std::size_t column) const {
 // RSS after adding the column at `position` alone: the residual of r2y after its projection on
 // v = R22[:, j], formed explicitly (||r2y - alpha v||^2) rather than as ||r2y||^2 - (v'r2y)^2/v'v,
 // which cancels when the column explains nearly all of the remaining RSS.
-double ModelState::SingleAddRssScaled(std::size_t position) const {
+GroupScore ModelState::SingleAddScaled(std::size_t position) const {
   const std::size_t s = model_.size();
   double vv = 0, vr = 0;
   for (std::size_t row = s; row <= position; ++row) {
@@ -113,21 +113,28 @@ double ModelState::SingleAddRssScaled(std::size_t position) const {
     vr += r_(row, position) * r_(row, columns_);
   }
   const double alpha = vr / vv;
-  double rss = 0;
+  GroupScore score;
+  score.df = 1;
   for (std::size_t row = s; row <= position; ++row) {
     const double residual = r_(row, columns_) - alpha * r_(row, position);
-    rss += residual * residual;
+    score.rss += residual * residual;
   }
-  for (std::size_t row = position + 1; row <= columns_; ++row) rss += r_(row, columns_) * r_(row, columns_);
-  return rss;
+  for (std::size_t row = position + 1; row <= columns_; ++row) score.rss += r_(row, columns_) * r_(row, columns_);
+  // The drop (v'r2y)^2 / v'v: products and a quotient, so as accurate as vr itself.
+  score.rss_change = alpha * vr;
+  return score;
 }
 
-std::vector<std::optional<double>> ModelState::ScoreAllSingleAdds() const {
-  std::vector<std::optional<double>> scores(columns_);
+std::vector<std::optional<GroupScore>> ModelState::ScoreAllSingleAdds() const {
+  std::vector<std::optional<GroupScore>> scores(columns_);
   const double y_scale2 = scales_.back() * scales_.back();
   for (std::size_t column = 0; column < columns_; ++column) {
     if (Contains(column) || IsAliased(column)) continue;
-    scores[column] = SingleAddRssScaled(column_position_[column]) / y_scale2;
+    GroupScore score = SingleAddScaled(column_position_[column]);
+    score.rss /= y_scale2;
+    score.rss_change /= y_scale2;
+    score.min_relative_norm = RelativeResidualNorm(column);
+    scores[column] = std::move(score);
   }
   return scores;
 }
@@ -160,7 +167,9 @@ GroupScore ModelState::ScoreAdd(std::span<const std::size_t> columns) const {
       score.aliased_columns.push_back(columns[0]);
       return score;
     }
-    score.rss = SingleAddRssScaled(column_position_[columns[0]]) / y_scale2;
+    const GroupScore scaled = SingleAddScaled(column_position_[columns[0]]);
+    score.rss = scaled.rss / y_scale2;
+    score.rss_change = scaled.rss_change / y_scale2;
     return score;
   }
   // Small QR of [R22[:, G] | r2y]: the diagonal gives each column's norm after projection on the
@@ -188,6 +197,11 @@ GroupScore ModelState::ScoreAdd(std::span<const std::size_t> columns) const {
   const double remaining = rows > d ? block(d, d) : 0.0;
   const double rho = r_(columns_, columns_);
   score.rss = (remaining * remaining + rho * rho) / y_scale2;
+  // The drop: the response's components along the group's directions (the first d entries of
+  // the last column of the small factor).
+  double drop = 0;
+  for (std::size_t index = 0; index < d && index < rows; ++index) drop += block(index, d) * block(index, d);
+  score.rss_change = drop / y_scale2;
   return score;
 }
 
@@ -204,6 +218,15 @@ GroupScore ModelState::ScoreRemove(std::span<const std::size_t> columns) const {
   GroupScore score;
   score.df = columns.size();
   score.rss = reduced.Rss();
+  // The rise: the rotations that moved the removed columns out of the model leave the response's
+  // components along them in rows s' .. s - 1 (s' = the smaller model's size); the rows from s
+  // on are untouched, so the rise is those components' squares, no difference of two RSS.
+  const double y_scale = scales_.back();
+  double rise = 0;
+  for (std::size_t row = reduced.model_.size(); row < model_.size(); ++row) {
+    rise += reduced.r_(row, columns_) * reduced.r_(row, columns_);
+  }
+  score.rss_change = rise / (y_scale * y_scale);
   return score;
 }
 

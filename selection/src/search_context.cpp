@@ -161,7 +161,7 @@ std::vector<Move> SearchContext::ScoreAdditions() {
   for (std::size_t term : candidates_) {
     if (!in_model_[term] && term_columns_[term].size() == 1) any_single = true;
   }
-  std::vector<std::optional<double>> single_rss;
+  std::vector<std::optional<GroupScore>> single_rss;
   if (any_single) single_rss = state_.ScoreAllSingleAdds();
   const double rss_now = state_.Rss();
   const double n = criterion_context_.n;
@@ -173,13 +173,16 @@ std::vector<Move> SearchContext::ScoreAdditions() {
     Move move = StartMove(term, MoveAction::kAdd);
     CandidateScore& view = move.view;
     std::optional<double> rss_after;
+    double rss_drop = 0;
     std::string alias_reason;
     if (columns.size() == 1 && single_rss[columns[0]]) {
-      rss_after = single_rss[columns[0]];
+      rss_after = single_rss[columns[0]]->rss;
+      rss_drop = single_rss[columns[0]]->rss_change;
     } else {
       const GroupScore group = state_.ScoreAdd(columns);
       if (group.aliased) alias_reason = AliasReason(design_, group, run_.kernel.alias_tolerance);
       else rss_after = group.rss;
+      rss_drop = group.rss_change;
     }
     if (!rss_after) {
       FinishCandidate(std::move(move), PartialF{}, 0, "aliased: " + alias_reason, moves);
@@ -192,7 +195,8 @@ std::vector<Move> SearchContext::ScoreAdditions() {
     move.score = criterion_->ScoreModel({columns_after, *rss_after, k_after});
     view.score = Reported(move.score);
     view.fold_sse = move.score.fold_sse;
-    const PartialF partial = ComputePartialF(rss_now, *rss_after, static_cast<double>(columns.size()), n, k_after);
+    const PartialF partial =
+        ComputePartialFFromChange(rss_drop, *rss_after, static_cast<double>(columns.size()), n, k_after);
     FinishCandidate(std::move(move), partial, k_after, AddBlockedReason(term), moves);
   }
   return moves;
@@ -220,7 +224,8 @@ std::vector<Move> SearchContext::ScoreRemovals() {
     move.score = criterion_->ScoreModel({columns_after, group.rss, k_after});
     view.score = Reported(move.score);
     view.fold_sse = move.score.fold_sse;
-    const PartialF partial = ComputePartialF(group.rss, rss_now, static_cast<double>(columns.size()), n, k_now);
+    const PartialF partial =
+        ComputePartialFFromChange(group.rss_change, rss_now, static_cast<double>(columns.size()), n, k_now);
     FinishCandidate(std::move(move), partial, k_now, RemoveBlockedReason(term), moves);
   }
   return moves;

@@ -9,6 +9,7 @@
 #include <cmath>
 #include <random>
 
+#include "stepledger/engine/criteria.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/kernel.h"
 #include "support/dense_design.h"
@@ -96,9 +97,11 @@ TEST(Kernel, EverySingleAndGroupScoreEqualsDirectRefit) {
       with.push_back(j);
       const double direct = DirectRss(problem, with);
       ASSERT_TRUE(single[j].has_value());
-      EXPECT_LT(Relative(*single[j], direct), 1e-10) << "add " << j;
+      EXPECT_LT(Relative(single[j]->rss, direct), 1e-10) << "add " << j;
+      EXPECT_LT(Relative(single[j]->rss_change, rss_before - direct), 1e-8) << "drop of adding " << j;
       const std::size_t one[] = {j};
-      EXPECT_EQ(state.ScoreAdd(one).rss, *single[j]) << "ScoreAdd and ScoreAllSingleAdds agree exactly";
+      EXPECT_EQ(state.ScoreAdd(one).rss, single[j]->rss) << "ScoreAdd and ScoreAllSingleAdds agree exactly";
+      EXPECT_EQ(state.ScoreAdd(one).rss_change, single[j]->rss_change);
     }
     if (outside.size() >= 2) {
       const std::vector<std::size_t> group(outside.begin(), outside.begin() + 2 + trial % (outside.size() - 1));
@@ -108,6 +111,7 @@ TEST(Kernel, EverySingleAndGroupScoreEqualsDirectRefit) {
       EXPECT_FALSE(score.aliased);
       EXPECT_EQ(score.df, group.size());
       EXPECT_LT(Relative(score.rss, DirectRss(problem, with)), 1e-10) << "group add";
+      EXPECT_LT(Relative(score.rss_change, rss_before - DirectRss(problem, with)), 1e-8) << "group add's drop";
       EXPECT_GT(score.min_relative_norm, 0.0);
       EXPECT_LE(score.min_relative_norm, 1.0);
     }
@@ -116,11 +120,15 @@ TEST(Kernel, EverySingleAndGroupScoreEqualsDirectRefit) {
       without.erase(std::find(without.begin(), without.end(), j));
       const std::size_t one[] = {j};
       EXPECT_LT(Relative(state.ScoreRemove(one).rss, DirectRss(problem, without)), 1e-10) << "remove " << j;
+      EXPECT_LT(Relative(state.ScoreRemove(one).rss_change, DirectRss(problem, without) - rss_before), 1e-8)
+          << "rise of removing " << j;
     }
     if (model.size() >= 2) {
       const std::vector<std::size_t> group = {model.back(), model.front()};
       std::vector<std::size_t> without(model.begin() + 1, model.end() - 1);
       EXPECT_LT(Relative(state.ScoreRemove(group).rss, DirectRss(problem, without)), 1e-10) << "group remove";
+      EXPECT_LT(Relative(state.ScoreRemove(group).rss_change, DirectRss(problem, without) - rss_before), 1e-8)
+          << "group remove's rise";
     }
     EXPECT_EQ(state.Rss(), rss_before) << "scoring leaves the state unchanged";
   }
@@ -264,6 +272,57 @@ TEST(Kernel, ProgrammerErrorsAndBadOptions) {
   EXPECT_LT(Relative(empty.Rss(), arma::dot(problem.y, problem.y)), 1e-12);
   EXPECT_EQ(empty.TotalSumOfSquaresAboutZero(), empty.Rss());
   EXPECT_EQ(empty.Solve().beta.n_elem, 0u);
+}
+
+// A term of no effect among many rows: its RSS drop is tiny beside the RSS, so RSS0 - RSS1 keeps
+// only the digits the factor's rounding leaves (the rounding changes with the thread count or
+// the machine's BLAS kernels, and with it a partial F formed that way). The drop formed from the
+// factor keeps its digits: factors folded in different orders (blocks of 1, 7 and 256 rows)
+// give the same drop and partial F to 1e-9, and the drop matches the projection of y's
+// residual on the column's residual, (x_r' y_r)^2 / (x_r' x_r), computed from a direct solve
+// (common practice: the extra sum of squares of one column).
+TEST(Kernel, RssChangeKeepsItsDigitsBesideALargeRss) {
+  arma::arma_rng::set_seed(20261203);
+  const std::size_t n = 20000;
+  arma::mat x(n, 3);
+  x.col(0).ones();
+  x.col(1) = 100 + 10 * arma::randn(n);
+  x.col(2) = arma::randn(n);  // no effect on y
+  arma::vec y = 5000 + 3 * x.col(1) + 1000 * arma::randn(n);
+  // The drop's reference: residuals of y and of column 2 on columns 0 and 1 (LAPACK QR solves).
+  // y is then moved almost orthogonal to column 2's residual, so that the drop is about 1e-10 of
+  // the RSS: a difference of two RSS would keep about 6 of its digits.
+  const arma::mat base = x.cols(0, 1);
+  arma::vec b_y, b_x;
+  ASSERT_TRUE(arma::solve(b_x, base, arma::vec(x.col(2)), arma::solve_opts::no_approx));
+  const arma::vec x_r = x.col(2) - base * b_x;
+  ASSERT_TRUE(arma::solve(b_y, base, y, arma::solve_opts::no_approx));
+  y -= 0.99 * (arma::dot(x_r, arma::vec(y - base * b_y)) / arma::dot(x_r, x_r)) * x_r;
+  ASSERT_TRUE(arma::solve(b_y, base, y, arma::solve_opts::no_approx));
+  const arma::vec y_r = y - base * b_y;
+  const double reference = std::pow(arma::dot(x_r, y_r), 2) / arma::dot(x_r, x_r);
+  ASSERT_LT(reference, 1e-8 * arma::dot(y_r, y_r)) << "the drop must be small beside the RSS for this test";
+
+  std::vector<GroupScore> adds, removes;
+  for (std::size_t block_rows : {1, 7, 256}) {
+    const Factor factor = testing::BuildFactor(x, y, {}, block_rows);
+    ModelState state(factor);
+    const std::size_t base_columns[] = {0, 1}, candidate[] = {2};
+    ASSERT_TRUE(state.Add(base_columns));
+    adds.push_back(state.ScoreAdd(candidate));
+    ModelState full(factor);
+    const std::size_t all[] = {0, 1, 2};
+    ASSERT_TRUE(full.Add(all));
+    removes.push_back(full.ScoreRemove(candidate));
+    EXPECT_LT(Relative(adds.back().rss_change, reference), 1e-8) << block_rows << " rows a block";
+    EXPECT_LT(Relative(removes.back().rss_change, reference), 1e-8) << block_rows << " rows a block";
+  }
+  for (std::size_t i = 1; i < adds.size(); ++i) {
+    EXPECT_LT(Relative(adds[i].rss_change, adds[0].rss_change), 1e-9);
+    const PartialF a = ComputePartialFFromChange(adds[i].rss_change, adds[i].rss, 1, n, 3);
+    const PartialF b = ComputePartialFFromChange(adds[0].rss_change, adds[0].rss, 1, n, 3);
+    EXPECT_LT(Relative(*a.f, *b.f), 1e-9);
+  }
 }
 
 }  // namespace

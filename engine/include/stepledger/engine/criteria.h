@@ -44,6 +44,9 @@ struct PartialF {
 
 /// Partial F of d columns: RSS0 without them, RSS1 with them, k1 coefficients with them.
 PartialF ComputePartialF(double rss_without, double rss_with, double d, double n, double k_with);
+/// The same from the change RSS0 - RSS1 given directly (GroupScore::rss_change: formed from the
+/// factor, not as a difference, so a small drop beside a large RSS keeps its digits).
+PartialF ComputePartialFFromChange(double rss_change, double rss_with, double d, double n, double k_with);
 
 /// Upper-tail probabilities and quantiles (Boost.Math; upper tails through complement(), never
 /// 1 - cdf). Each returns NaN when a degree of freedom is not > 0 or an argument is NaN.

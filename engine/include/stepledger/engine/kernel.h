@@ -41,6 +41,12 @@ struct KernelOptions {
 /// Outcome of scoring a change of the model by one group of columns.
 struct GroupScore {
   double rss = 0;              ///< RSS of the model after the change (data units)
+  /// How much the change moves the RSS: the drop when adding, the rise when removing (data
+  /// units, >= 0). Formed directly from the factor (the squared components of the response
+  /// along the group's directions), never as the difference of two RSS, which loses the
+  /// drop's digits when it is small beside the RSS (a term of no effect among millions of rows:
+  /// its partial F would then follow the rounding of the factor, e.g. the thread count).
+  double rss_change = 0;
   std::size_t df = 0;          ///< columns added or removed
   bool aliased = false;        ///< adding: some column of the group is aliased (rss unset)
   std::vector<std::size_t> aliased_columns;  ///< which ones
@@ -80,9 +86,9 @@ class ModelState {
 
   /// Scores adding the group (columns not in the model), without changing the state.
   GroupScore ScoreAdd(std::span<const std::size_t> columns) const;
-  /// Scores adding each single column not in the model at once: entry j is the RSS after
-  /// adding column j alone (nullopt for model columns and aliased columns). O(m^2) in all.
-  std::vector<std::optional<double>> ScoreAllSingleAdds() const;
+  /// Scores adding each single column not in the model at once: entry j scores adding column j
+  /// alone, as ScoreAdd would (nullopt for model columns and aliased columns). O(m^2) in all.
+  std::vector<std::optional<GroupScore>> ScoreAllSingleAdds() const;
   /// Scores removing the group (columns in the model), without changing the state.
   GroupScore ScoreRemove(std::span<const std::size_t> columns) const;
 
@@ -109,7 +115,7 @@ class ModelState {
  private:
   void MoveColumn(std::size_t from_position, std::size_t to_position);
   void SwapAdjacent(std::size_t position);           // positions position, position+1
-  double SingleAddRssScaled(std::size_t position) const;  // factor units
+  GroupScore SingleAddScaled(std::size_t position) const;  // rss and rss_change in factor units
   double RssScaled() const;
   void CheckColumn(std::size_t column, const char* caller) const;
   std::size_t columns_;        // m
