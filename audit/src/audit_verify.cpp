@@ -692,6 +692,7 @@ std::optional<json> ReplayedDocument(const json& document, const VerifyOptions& 
     if (options.threads > 0) overrides.threads = options.threads;
     overrides.work_dir = options.work_dir;
     overrides.limits = options.limits;
+    overrides.shares = options.shares;
     const RunResult run = ReplayRecordedPlan(document, options.data, "audit", overrides);
     AuditDocumentOptions document_options;
     document_options.created_at = document.value("created_at", std::string("unknown"));

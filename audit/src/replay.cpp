@@ -38,6 +38,7 @@ RunResult ReplayRecordedPlan(const nlohmann::json& audit, const DataSet& data,
   if (overrides.delimiter) options.csv.delimiter = *overrides.delimiter;
   options.work_dir = overrides.work_dir;
   options.limits = overrides.limits;
+  options.shares = overrides.shares;
   return RunPlan(data, loaded, options, observer);
 }
 

@@ -55,6 +55,7 @@ int RunRerun(const RerunArgs& args, CommandContext& context) {
   if (context.common.threads_given) overrides.threads = context.common.threads;
   overrides.work_dir = context.common.work_dir;
   overrides.limits = context.common.limits;
+  overrides.shares = context.shares;
   if (context.log) context.log->info("running the plan of {} on {}", args.audit, DataInputsText(args.data));
   const DataSet data = MakeDataSet(args.data);
   const std::unique_ptr<ProgressPrinter> progress =

@@ -318,10 +318,11 @@ int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream
 
 int RunCli(const std::vector<std::string>& args, std::ostream& out, std::ostream& raw_err, ShareExchange* shares) {
   using cli::CommandContext;
-  // Only select and fit share their data among the processes of a cluster run; any other
-  // command is process 0's alone.
+  // The commands that run a plan (select, fit, and the replays of verify --data and rerun) share
+  // their data among the processes of a cluster run; any other command is process 0's alone.
   if (shares != nullptr && shares->count() > 1) {
-    const bool shared_command = !args.empty() && (args[0] == "select" || args[0] == "fit");
+    const bool shared_command =
+        !args.empty() && (args[0] == "select" || args[0] == "fit" || args[0] == "verify" || args[0] == "rerun");
     if (!shared_command) {
       if (shares->index() > 0) return static_cast<int>(ExitStatus::kDone);
       shares = nullptr;

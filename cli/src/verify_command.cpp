@@ -28,6 +28,7 @@ int RunVerify(const VerifyArgs& args, CommandContext& context) {
   options.threads = context.common.threads_given ? context.common.threads : 0;
   options.work_dir = context.common.work_dir;
   options.limits = context.common.limits;
+  options.shares = context.shares;
   if (!args.data.empty() && context.log) context.log->info("replaying the plan on {}", DataInputsText(args.data));
   const VerifyReport report = VerifyAudit(document, options);
   if (context.common.json) {

@@ -12,6 +12,8 @@
 #include <boost/accumulators/statistics/stats.hpp>
 #include <boost/math/distributions/normal.hpp>
 
+#include "stepledger/engine/share_exchange.h"
+
 namespace stepledger {
 
 StandOutThresholds StandOutThresholds::CommonPractice(std::uint64_t n, std::size_t k) {
@@ -325,34 +327,132 @@ DiagnosticsResult DiagnosticsAccumulator::Finish() {
 
 // ---- the pass --------------------------------------------------------------------------------
 
-DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design, const RowReplay& replay,
-                                     const DiagnosticsOptions& options) {
-  (void)design;
+RowDiagnoser::RowDiagnoser(const FitResult& fit) {
   const std::size_t k = fit.columns.size();
   if (fit.model_triangle.n_rows != k || fit.model_scales.size() != k + 1) {
     throw std::invalid_argument("ComputeDiagnostics: the fit carries no model factor (not made by FitModel)");
   }
+  model_.columns = fit.columns;
+  model_.k = k;
+  model_.beta = fit.beta;
+  model_.model_triangle = fit.model_triangle;
+  model_.model_scales = fit.model_scales;
+  model_.criteria.sigma = fit.criteria.sigma;
+  model_x_.resize(k);
+  scratch_.resize(k);
+}
+
+RowDiagnostic RowDiagnoser::Diagnose(const UsedRow& row) {
+  const std::size_t k = model_.columns.size();
+  const std::optional<double> sigma = model_.criteria.sigma;
+  RowDiagnostic diagnostic;
+  diagnostic.row_index = row.row_index;
+  diagnostic.line = row.line;
+  diagnostic.file = row.file;
+  ModelValues(row);
+  const FittedRow fitted = FitRow(model_, model_x_, row.y);
+  diagnostic.fitted = fitted.fitted;
+  diagnostic.residual = fitted.residual;
+  diagnostic.leverage = row.weight * UnitLeverage(model_, model_x_, scratch_);
+  if (diagnostic.leverage < 1 - kLeverageOneTolerance && sigma && *sigma > 0 && k > 0) {
+    const double one_minus_h = 1 - diagnostic.leverage;
+    const double standardized = std::sqrt(row.weight) * diagnostic.residual / (*sigma * std::sqrt(one_minus_h));
+    diagnostic.standardized_residual = standardized;
+    diagnostic.cooks_distance = standardized * standardized * diagnostic.leverage / (static_cast<double>(k) * one_minus_h);
+  }
+  return diagnostic;
+}
+
+std::span<const double> RowDiagnoser::ModelValues(const UsedRow& row) {
+  for (std::size_t j = 0; j < model_.columns.size(); ++j) model_x_[j] = row.x[model_.columns[j]];
+  return model_x_;
+}
+
+double RowDiagnoser::Prediction(const UsedRow& row) { return LinearPredictor(model_, ModelValues(row)); }
+
+std::optional<double> RowDiagnoser::UnitLeverageOf(const UsedRow& row) {
+  if (model_.model_triangle.is_empty()) return std::nullopt;
+  return UnitLeverage(model_, ModelValues(row), scratch_);
+}
+
+std::string RowDiagnoser::Write() const {
+  const std::size_t k = model_.columns.size();
+  ByteWriter out;
+  out.U64(k);
+  for (std::size_t column : model_.columns) out.U64(column);
+  out.Raw(model_.beta.memptr(), k * sizeof(double));
+  out.Raw(model_.model_triangle.memptr(), k * k * sizeof(double));
+  out.Raw(model_.model_scales.data(), (k + 1) * sizeof(double));
+  out.U64(model_.criteria.sigma ? 1 : 0);
+  out.F64(model_.criteria.sigma.value_or(0));
+  return out.Take();
+}
+
+RowDiagnoser RowDiagnoser::Read(std::string_view bytes) {
+  ByteReader in(bytes);
+  RowDiagnoser diagnoser;
+  FitResult& model = diagnoser.model_;
+  const std::uint64_t k = in.U64();
+  if (k > bytes.size()) throw std::logic_error("RowDiagnoser::Read: message shorter than its contents (a bug)");
+  for (std::uint64_t j = 0; j < k; ++j) model.columns.push_back(static_cast<std::size_t>(in.U64()));
+  model.k = model.columns.size();
+  model.beta.set_size(k);
+  in.Raw(model.beta.memptr(), k * sizeof(double));
+  model.model_triangle.set_size(k, k);
+  in.Raw(model.model_triangle.memptr(), k * k * sizeof(double));
+  model.model_scales.resize(k + 1);
+  in.Raw(model.model_scales.data(), (k + 1) * sizeof(double));
+  const bool has_sigma = in.U64() != 0;
+  const double sigma = in.F64();
+  if (has_sigma) model.criteria.sigma = sigma;
+  diagnoser.model_x_.resize(k);
+  diagnoser.scratch_.resize(k);
+  return diagnoser;
+}
+
+ColumnExtents::ColumnExtents(std::size_t columns)
+    : low(columns, std::numeric_limits<double>::infinity()), high(columns, -std::numeric_limits<double>::infinity()) {}
+
+void ColumnExtents::Widen(std::span<const std::size_t> columns, std::span<const double> x) {
+  for (std::size_t i = 0; i < columns.size(); ++i) {
+    const double value = x[columns[i]];
+    low[i] = std::min(low[i], value);
+    high[i] = std::max(high[i], value);
+  }
+}
+
+void ColumnExtents::Widen(const ColumnExtents& other) {
+  for (std::size_t i = 0; i < low.size(); ++i) {
+    low[i] = std::min(low[i], other.low[i]);
+    high[i] = std::max(high[i], other.high[i]);
+  }
+}
+
+DiagnosingReplay DiagnoseHere(RowReplay replay) {
+  return [replay = std::move(replay)](const RowDiagnoser& diagnoser, std::span<const std::size_t> extent_columns,
+                                      const std::function<void(const RowDiagnostic&, double)>& visit) {
+    RowDiagnoser diagnosing = diagnoser;
+    ColumnExtents extents(extent_columns.size());
+    replay([&](const UsedRow& row) {
+      extents.Widen(extent_columns, row.x);
+      visit(diagnosing.Diagnose(row), row.weight);
+    });
+    return extents;
+  };
+}
+
+DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design, const RowReplay& replay,
+                                     const DiagnosticsOptions& options) {
+  (void)design;
+  return ComputeDiagnostics(fit, DiagnoseHere(replay), options);
+}
+
+DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const DiagnosingReplay& rows,
+                                     const DiagnosticsOptions& options) {
+  const RowDiagnoser diagnoser(fit);
   DiagnosticsAccumulator accumulator(StandOutThresholds::CommonPractice(fit.n, fit.k), options.rows_by_record);
-  const std::optional<double> sigma = fit.criteria.sigma;
-  std::vector<double> model_x(k), scratch(k);
-  replay([&](const UsedRow& row) {
-    RowDiagnostic diagnostic;
-    diagnostic.row_index = row.row_index;
-    diagnostic.line = row.line;
-    diagnostic.file = row.file;
-    for (std::size_t j = 0; j < k; ++j) model_x[j] = row.x[fit.columns[j]];
-    const FittedRow fitted = FitRow(fit, model_x, row.y);
-    diagnostic.fitted = fitted.fitted;
-    diagnostic.residual = fitted.residual;
-    diagnostic.leverage = row.weight * UnitLeverage(fit, model_x, scratch);
-    if (diagnostic.leverage < 1 - kLeverageOneTolerance && sigma && *sigma > 0 && k > 0) {
-      const double one_minus_h = 1 - diagnostic.leverage;
-      const double standardized = std::sqrt(row.weight) * diagnostic.residual / (*sigma * std::sqrt(one_minus_h));
-      diagnostic.standardized_residual = standardized;
-      diagnostic.cooks_distance =
-          standardized * standardized * diagnostic.leverage / (static_cast<double>(k) * one_minus_h);
-    }
-    accumulator.Add(diagnostic, row.weight);
+  rows(diagnoser, {}, [&](const RowDiagnostic& diagnostic, double weight) {
+    accumulator.Add(diagnostic, weight);
     if (options.row_observer) options.row_observer(diagnostic);
   });
   return accumulator.Finish();

@@ -143,7 +143,7 @@ SequentialSolve SolveFromFactor(const Factor& factor, const Design& design,
 // the factor alone leaves digits to cancellation when the design is ill-conditioned. Converts
 // to the factor's scaled units and back.
 void RefineAgainstRows(const Factor& factor, const Design& design, const FitOptions& options,
-                       const RowReplay& replay, FitResult& fit) {
+                       const SummingReplay& replay, FitResult& fit) {
   const std::size_t k = fit.k;
   const double y_scale = factor.scales.back();
   arma::vec beta_scaled(k);
@@ -290,11 +290,10 @@ void FillAnova(const Design& design, std::vector<AnovaRow> term_rows, FitResult&
   fit.anova.push_back(total);
 }
 
-}  // namespace
-
-FitResult FitModel(const Factor& factor, const Design& design,
-                   std::span<const std::size_t> term_indices, const FitOptions& options,
-                   const RowReplay* replay) {
+// FitModel with refinement through sums (replay: none, or one whose sums may come from parts).
+FitResult FitModelSummed(const Factor& factor, const Design& design,
+                         std::span<const std::size_t> term_indices, const FitOptions& options,
+                         const SummingReplay* replay) {
   options.Validate();
   if (factor.column_count() != design.column_count()) {
     throw std::invalid_argument("FitModel: the factor has " + std::to_string(factor.column_count()) +
@@ -316,6 +315,22 @@ FitResult FitModel(const Factor& factor, const Design& design,
   FillCoefficientTable(design, solve.column_terms, options, fit);
   FillAnova(design, std::move(solve.term_rows), fit);
   return fit;
+}
+
+}  // namespace
+
+FitResult FitModel(const Factor& factor, const Design& design,
+                   std::span<const std::size_t> term_indices, const FitOptions& options,
+                   const RowReplay* replay) {
+  if (replay == nullptr || !*replay) return FitModelSummed(factor, design, term_indices, options, nullptr);
+  const SummingReplay sums = SumOverReplay(*replay);
+  return FitModelSummed(factor, design, term_indices, options, &sums);
+}
+
+FitResult FitModel(const Factor& factor, const Design& design,
+                   std::span<const std::size_t> term_indices, const FitOptions& options,
+                   const SummingReplay& sums) {
+  return FitModelSummed(factor, design, term_indices, options, &sums);
 }
 
 namespace {

@@ -34,33 +34,29 @@ std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResul
 DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
                                           const RowReplay& replay, PredictionSupport& support,
                                           const DiagnosticsOptions& options) {
+  return DiagnoseAndLearnSupport(fit, design, DiagnoseHere(replay), support, options);
+}
+
+DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
+                                          const DiagnosingReplay& rows, PredictionSupport& support,
+                                          const DiagnosticsOptions& options) {
   support = PredictionSupport{};
-  std::vector<std::size_t> ranged_terms;
+  std::vector<std::size_t> ranged_terms, ranged_columns;
   for (std::size_t term : TermsNeededByModel(design, fit)) {
-    if (IsRangedKind(design.terms[term].kind)) ranged_terms.push_back(term);
+    if (!IsRangedKind(design.terms[term].kind)) continue;
+    ranged_terms.push_back(term);
+    ranged_columns.push_back(design.terms[term].first_column);
   }
-  std::vector<double> low(ranged_terms.size(), std::numeric_limits<double>::infinity());
-  std::vector<double> high(ranged_terms.size(), -std::numeric_limits<double>::infinity());
-  // The replay hands ComputeDiagnostics one row at a time and the row observer sees that row's
-  // diagnostic straight after, so the weight of the row being diagnosed is all there is to keep.
-  double weight = 1;
-  std::uint64_t rows = 0;
-  const RowReplay observing = [&](const std::function<void(const UsedRow&)>& visit) {
-    replay([&](const UsedRow& row) {
-      for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
-        const double value = row.x[design.terms[ranged_terms[i]].first_column];
-        low[i] = std::min(low[i], value);
-        high[i] = std::max(high[i], value);
-      }
-      weight = row.weight;
-      ++rows;
-      visit(row);
-    });
-  };
+  // The rows' diagnostics come in record order, each with its row's weight: the largest unit
+  // leverage and the smearing sum follow them here (nothing kept per row); the ranges come back
+  // with the rows' extents.
   double smearing_sum = 0;
-  DiagnosticsOptions learning;
-  learning.rows_by_record = options.rows_by_record;
-  learning.row_observer = [&](const RowDiagnostic& row) {
+  std::uint64_t rows_seen = 0;
+  const RowDiagnoser diagnoser(fit);
+  DiagnosticsAccumulator accumulator(StandOutThresholds::CommonPractice(fit.n, fit.k), options.rows_by_record);
+  const ColumnExtents extents = rows(diagnoser, ranged_columns, [&](const RowDiagnostic& row, double weight) {
+    ++rows_seen;
+    accumulator.Add(row, weight);
     if (weight > 0) {
       const double unit_leverage = row.leverage / weight;
       if (!support.max_unit_leverage || unit_leverage > *support.max_unit_leverage) {
@@ -71,13 +67,13 @@ DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& de
     }
     smearing_sum += std::exp(std::sqrt(weight) * row.residual);
     if (options.row_observer) options.row_observer(row);
-  };
-  DiagnosticsResult diagnostics = ComputeDiagnostics(fit, design, observing, learning);
+  });
+  DiagnosticsResult diagnostics = accumulator.Finish();
 
-  if (rows > 0) {
+  if (rows_seen > 0) {
     for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
       const DesignTerm& term = design.terms[ranged_terms[i]];
-      support.ranges.push_back({term.name, term.source_column, term.kind, low[i], high[i]});
+      support.ranges.push_back({term.name, term.source_column, term.kind, extents.low[i], extents.high[i]});
     }
   }
   if (design.response_transform == ResponseTransform::kLog && diagnostics.rows > 0) {

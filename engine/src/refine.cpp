@@ -9,6 +9,7 @@
 #include "double_double.h"
 #include "lapack.h"
 #include "stepledger/engine/errors.h"
+#include "stepledger/engine/share_exchange.h"
 
 namespace stepledger::detail {
 namespace {
@@ -88,19 +89,33 @@ DoubleDouble Reduce(const double* lanes) {
   return total;
 }
 
+// Where each sum of a pass sits in its RowSums (and its lanes): rss, the totals, the Gram's upper
+// triangle by rows, then the gradient.
+struct SumLayout {
+  static constexpr std::size_t kRss = 0, kWeightSum = 1, kShiftedSum = 2, kShiftedSquares = 3, kFirstGram = 4;
+  std::size_t k = 0;
+  bool gram = false;
+  std::size_t GramEntry(std::size_t i, std::size_t j) const {  // i <= j
+    return kFirstGram + i * k - i * (i + 1) / 2 + j;
+  }
+  std::size_t FirstGradient() const { return kFirstGram + (gram ? k * (k + 1) / 2 : 0); }
+  std::size_t Count() const { return FirstGradient() + k; }
+};
+
 // One pass: r = y - X b per row and the sums over the rows of X'W r and W r^2; with totals
 // also sum w, sum w (y - shift) and sum w (y - shift)^2; with gram also X'WX (upper triangle).
-class PassKernel {
+class PassKernel final : public RowSumKernel {
  public:
-  PassKernel(const RefineProblem& problem, const arma::vec& beta, bool totals, bool gram)
-      : problem_(problem), k_(problem.columns.size()), totals_(totals), gram_(gram),
+  explicit PassKernel(RefinePass pass)
+      : pass_(std::move(pass)), k_(pass_.columns.size()), layout_{k_, pass_.gram},
         x_(k_ * kBlockRows), x_low_(k_ * kBlockRows), x_hi_(k_ * kBlockRows), x_lo_(k_ * kBlockRows),
-        u_(gram ? 4 * k_ * kBlockRows : 0),
-        first_gradient_(kFirstGram + (gram ? k_ * (k_ + 1) / 2 : 0)),
-        lanes_((first_gradient_ + k_) * 2 * kLanes, 0.0) {
+        u_(pass_.gram ? 4 * k_ * kBlockRows : 0), lanes_(layout_.Count() * 2 * kLanes, 0.0) {
+    if (pass_.column_scales.size() != k_ || pass_.beta.size() != k_) {
+      throw std::invalid_argument("refinement pass: columns, scales and estimates differ in number");
+    }
     beta_.resize(k_);
     for (std::size_t j = 0; j < k_; ++j) {
-      const double b = beta(j);
+      const double b = pass_.beta[j];
       const double c = kSplitter * b;
       const double h = c - (c - b);
       beta_[j] = {b, h, b - h};
@@ -111,44 +126,40 @@ class PassKernel {
     ++rows_;
     const bool has_low = !row.x_low.empty();
     for (std::size_t j = 0; j < k_; ++j) {
-      const std::size_t column = problem_.columns[j];
+      const std::size_t column = pass_.columns[j];
       // Scaling by a power of two is exact.
-      x_[j * kBlockRows + filled_] = row.x[column] * problem_.column_scales[j];
-      x_low_[j * kBlockRows + filled_] = has_low ? row.x_low[column] * problem_.column_scales[j] : 0.0;
+      x_[j * kBlockRows + filled_] = row.x[column] * pass_.column_scales[j];
+      x_low_[j * kBlockRows + filled_] = has_low ? row.x_low[column] * pass_.column_scales[j] : 0.0;
     }
-    y_[filled_] = row.y * problem_.y_scale;
+    y_[filled_] = row.y * pass_.y_scale;
     w_[filled_] = row.weight;
     if (++filled_ == kBlockRows) ProcessBlock();
   }
 
-  // Pads the last block with rows of weight 0 and values 0: their terms are exact zeros.
-  void Finish() {
-    if (filled_ == 0) return;
-    for (std::size_t i = filled_; i < kBlockRows; ++i) {
-      for (std::size_t j = 0; j < k_; ++j) x_[j * kBlockRows + i] = x_low_[j * kBlockRows + i] = 0;
-      y_[i] = w_[i] = 0;
+  // Pads the last block with rows of weight 0 and values 0 (their terms are exact zeros), then
+  // reduces every sum's lanes to one double-double value.
+  RowSums Finish() override {
+    if (filled_ > 0) {
+      for (std::size_t i = filled_; i < kBlockRows; ++i) {
+        for (std::size_t j = 0; j < k_; ++j) x_[j * kBlockRows + i] = x_low_[j * kBlockRows + i] = 0;
+        y_[i] = w_[i] = 0;
+      }
+      ProcessBlock();
     }
-    ProcessBlock();
+    RowSums sums;
+    sums.rows = rows_;
+    for (std::size_t sum = 0; sum < layout_.Count(); ++sum) {
+      const DoubleDouble value = Reduce(Lanes(sum));
+      sums.hi.push_back(value.hi);
+      sums.lo.push_back(value.lo);
+    }
+    return sums;
   }
-
-  std::uint64_t rows() const { return rows_; }
-  DoubleDouble Gradient(std::size_t j) const { return Reduce(Lanes(first_gradient_ + j)); }
-  DoubleDouble Rss() const { return Reduce(Lanes(kRss)); }
-  DoubleDouble WeightSum() const { return Reduce(Lanes(kWeightSum)); }
-  DoubleDouble ShiftedSum() const { return Reduce(Lanes(kShiftedSum)); }
-  DoubleDouble ShiftedSquares() const { return Reduce(Lanes(kShiftedSquares)); }
-  DoubleDouble Gram(std::size_t i, std::size_t j) const { return Reduce(Lanes(GramEntry(i, j))); }
 
  private:
   struct SplitValue {
     double value, hi, lo;
   };
-  // Order of the sums in lanes_: rss, the totals, the Gram's upper triangle by rows, gradient.
-  static constexpr std::size_t kRss = 0, kWeightSum = 1, kShiftedSum = 2, kShiftedSquares = 3,
-                               kFirstGram = 4;
-  std::size_t GramEntry(std::size_t i, std::size_t j) const {  // i <= j
-    return kFirstGram + i * k_ - i * (i + 1) / 2 + j;
-  }
   double* Lanes(std::size_t sum) { return lanes_.data() + sum * 2 * kLanes; }
   const double* Lanes(std::size_t sum) const { return lanes_.data() + sum * 2 * kLanes; }
 
@@ -199,18 +210,18 @@ class PassKernel {
     Split(wr, wr_hi, wr_lo);
 
     Product(wr, wr_hi, wr_lo, wr_low, r, r_hi, r_lo, r_low, p, e);
-    Accumulate(Lanes(kRss), p, e);
+    Accumulate(Lanes(SumLayout::kRss), p, e);
     for (std::size_t j = 0; j < k_; ++j) {
       Product(wr, wr_hi, wr_lo, wr_low, X(j), XHi(j), XLo(j), XLow(j), p, e);
-      Accumulate(Lanes(first_gradient_ + j), p, e);
+      Accumulate(Lanes(layout_.FirstGradient() + j), p, e);
     }
 
-    if (totals_) {
-      Accumulate(Lanes(kWeightSum), w_, zero);
+    if (pass_.totals) {
+      Accumulate(Lanes(SumLayout::kWeightSum), w_, zero);
       // y - shift, then w (y - shift) and w (y - shift)^2.
       double d[B], d_low[B], d_hi[B], d_lo[B], wd[B], wd_low[B], wd_hi[B], wd_lo[B];
       for (std::size_t i = 0; i < B; ++i) {
-        const double t = -problem_.y_shift;
+        const double t = -pass_.y_shift;
         const double sum = y_[i] + t;
         const double bb = sum - y_[i];
         d[i] = sum;
@@ -218,13 +229,13 @@ class PassKernel {
       }
       Split(d, d_hi, d_lo);
       Product(w_, w_hi, w_lo, zero, d, d_hi, d_lo, d_low, wd, wd_low);
-      Accumulate(Lanes(kShiftedSum), wd, wd_low);
+      Accumulate(Lanes(SumLayout::kShiftedSum), wd, wd_low);
       Split(wd, wd_hi, wd_lo);
       Product(wd, wd_hi, wd_lo, wd_low, d, d_hi, d_lo, d_low, p, e);
-      Accumulate(Lanes(kShiftedSquares), p, e);
+      Accumulate(Lanes(SumLayout::kShiftedSquares), p, e);
     }
 
-    if (gram_) {
+    if (pass_.gram) {
       // u_i = w x_i (with its low part), split; then A_ij += u_i x_j for j >= i.
       double* u = u_.data();
       for (std::size_t i = 0; i < k_; ++i) {
@@ -236,19 +247,18 @@ class PassKernel {
         const double* ui = u + 4 * i * B;
         for (std::size_t j = i; j < k_; ++j) {
           Product(ui, ui + 2 * B, ui + 3 * B, ui + B, X(j), XHi(j), XLo(j), XLow(j), p, e);
-          Accumulate(Lanes(GramEntry(i, j)), p, e);
+          Accumulate(Lanes(layout_.GramEntry(i, j)), p, e);
         }
       }
     }
   }
 
-  const RefineProblem& problem_;
+  RefinePass pass_;
   std::size_t k_;
-  bool totals_, gram_;
+  SumLayout layout_;
   std::vector<SplitValue> beta_;
   std::vector<double> x_, x_low_, x_hi_, x_lo_, u_;
   double y_[kBlockRows] = {}, w_[kBlockRows] = {};
-  std::size_t first_gradient_;  // the gradient's sums follow the Gram's
   std::vector<double> lanes_;
   std::size_t filled_ = 0;
   std::uint64_t rows_ = 0;
@@ -296,13 +306,48 @@ arma::mat RefineInverse(const arma::mat& triangle, const std::vector<DoubleDoubl
 
 }  // namespace
 
+std::string RefinePass::Write() const {
+  ByteWriter out;
+  out.U64(kRefinePassRecipe);
+  out.U64(columns.size());
+  for (std::size_t j = 0; j < columns.size(); ++j) {
+    out.U64(columns[j]);
+    out.F64(column_scales[j]);
+    out.F64(beta[j]);
+  }
+  out.F64(y_scale);
+  out.F64(y_shift);
+  out.U64((totals ? 1 : 0) | (gram ? 2 : 0));
+  return out.Take();
+}
+
+RefinePass RefinePass::Read(ByteReader& in) {
+  RefinePass pass;
+  const std::uint64_t k = in.U64();
+  for (std::uint64_t j = 0; j < k; ++j) {
+    pass.columns.push_back(static_cast<std::size_t>(in.U64()));
+    pass.column_scales.push_back(in.F64());
+    pass.beta.push_back(in.F64());
+  }
+  pass.y_scale = in.F64();
+  pass.y_shift = in.F64();
+  const std::uint64_t flags = in.U64();
+  pass.totals = (flags & 1) != 0;
+  pass.gram = (flags & 2) != 0;
+  return pass;
+}
+
+std::unique_ptr<RowSumKernel> MakeRefinePassKernel(RefinePass pass) {
+  return std::make_unique<PassKernel>(std::move(pass));
+}
+
 double EstimatedContraction(std::size_t k, double rcond) {
   if (!(rcond > 0)) return 1;
   return std::min(1.0, static_cast<double>(k) * 0x1p-53 / rcond);
 }
 
 Refinement Refine(const RefineProblem& problem, arma::vec beta, arma::mat inverse,
-                  const FitOptions& options, const RowReplay& replay) {
+                  const FitOptions& options, const SummingReplay& replay) {
   const std::size_t k = problem.columns.size();
   Refinement out;
   const double contraction = EstimatedContraction(k, problem.rcond);
@@ -311,31 +356,43 @@ Refinement Refine(const RefineProblem& problem, arma::vec beta, arma::mat invers
   double previous_correction = std::numeric_limits<double>::infinity();
   for (int pass = 1; pass <= options.max_refinement_passes; ++pass) {
     const bool first = pass == 1;
-    PassKernel kernel(problem, beta, first, first && out.gram);
-    replay([&kernel](const UsedRow& row) { kernel.Add(row); });
-    kernel.Finish();
-    if (kernel.rows() != problem.factor_rows) {
-      throw NumericalError("fit: the rows replayed for refinement (" + std::to_string(kernel.rows()) +
+    RefinePass recipe;
+    recipe.columns = problem.columns;
+    recipe.column_scales = problem.column_scales;
+    recipe.y_scale = problem.y_scale;
+    recipe.y_shift = problem.y_shift;
+    recipe.beta.assign(beta.begin(), beta.end());
+    recipe.totals = first;
+    recipe.gram = first && out.gram;
+    const SumLayout layout{k, recipe.gram};
+    const RowSums sums = replay(recipe.Write());
+    if (sums.hi.size() != layout.Count() || sums.lo.size() != layout.Count()) {
+      throw std::logic_error("Refine: the replay returned " + std::to_string(sums.hi.size()) + " sums for " +
+                             std::to_string(layout.Count()) + " (a bug)");
+    }
+    const auto sum = [&sums](std::size_t i) { return DoubleDouble{sums.hi[i], sums.lo[i]}; };
+    if (sums.rows != problem.factor_rows) {
+      throw NumericalError("fit: the rows replayed for refinement (" + std::to_string(sums.rows) +
                            ") are not the rows of the factor (" + std::to_string(problem.factor_rows) + ")");
     }
     if (first) {
       // Sum of squares about the weighted mean, shifted by an estimate of the mean so that the
       // subtraction below cancels little; about zero without an intercept (shift 0).
-      const DoubleDouble weight_sum = kernel.WeightSum();
-      const DoubleDouble shifted_sum = kernel.ShiftedSum();
+      const DoubleDouble weight_sum = sum(SumLayout::kWeightSum);
+      const DoubleDouble shifted_sum = sum(SumLayout::kShiftedSum);
       const DoubleDouble correction_term =
           problem.intercept && weight_sum.hi > 0 ? shifted_sum * shifted_sum * (1.0 / weight_sum.value())
                                                  : DoubleDouble{};
-      out.tss = std::max(0.0, (kernel.ShiftedSquares() + (-correction_term)).value());
+      out.tss = std::max(0.0, (sum(SumLayout::kShiftedSquares) + (-correction_term)).value());
       if (out.gram) {
         gram.resize(k * k);
         for (std::size_t i = 0; i < k; ++i) {
-          for (std::size_t j = i; j < k; ++j) gram[i * k + j] = gram[j * k + i] = kernel.Gram(i, j);
+          for (std::size_t j = i; j < k; ++j) gram[i * k + j] = gram[j * k + i] = sum(layout.GramEntry(i, j));
         }
       }
     }
     arma::mat gradient(k, 1), delta(k, 1);
-    for (std::size_t j = 0; j < k; ++j) gradient(j, 0) = kernel.Gradient(j).value();
+    for (std::size_t j = 0; j < k; ++j) gradient(j, 0) = sum(layout.FirstGradient() + j).value();
     delta = gradient;
     SolveThroughFactor(problem.triangle, delta);
     double correction = 0;
@@ -344,7 +401,7 @@ Refinement Refine(const RefineProblem& problem, arma::vec beta, arma::mat invers
       if (size > 0) correction = std::max(correction, std::abs(delta(j, 0)) / size);
     }
     out.passes = pass;
-    const double rss = kernel.Rss().value();  // of beta before this pass's correction
+    const double rss = sum(SumLayout::kRss).value();  // of beta before this pass's correction
     if (!first && correction > previous_correction) {
       // The rounding floor is reached: keep the better estimate (the one this pass started from).
       out.rss = rss;

@@ -12,6 +12,8 @@
 
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/row_sums.h"
+#include "stepledger/engine/share_exchange.h"
 
 namespace stepledger::detail {
 
@@ -37,6 +39,28 @@ struct Refinement {
   bool gram = false;   // whether the first pass accumulated X'WX for the inverse
 };
 
+/// The first u64 of a refinement pass's recipe (MakeRowSumKernel).
+inline constexpr std::uint64_t kRefinePassRecipe = 1;
+
+/// What one refinement pass sums, enough for any process to build its kernel: the model's
+/// design columns and their scales, the response's scale and shift, the estimates (all scaled
+/// units); totals: also sum w, sum w (y - shift), sum w (y - shift)^2; gram: also X'WX.
+struct RefinePass {
+  std::vector<std::size_t> columns;
+  std::vector<double> column_scales;
+  std::vector<double> beta;
+  double y_scale = 1;
+  double y_shift = 0;
+  bool totals = false;
+  bool gram = false;
+  /// The recipe (starts with kRefinePassRecipe).
+  std::string Write() const;
+  /// The rest of a recipe after its first u64.
+  static RefinePass Read(ByteReader& in);
+};
+
+std::unique_ptr<RowSumKernel> MakeRefinePassKernel(RefinePass pass);
+
 /// k u / rcond: the estimated contraction of one pass and relative error of the factor's
 /// inverse (1 at most; 1 when rcond is not positive).
 double EstimatedContraction(std::size_t k, double rcond);
@@ -44,6 +68,6 @@ double EstimatedContraction(std::size_t k, double rcond);
 /// Refines beta and inverse (the factor's, scaled units) against the rows. Requires
 /// options.max_refinement_passes >= 1 and a non-empty model.
 Refinement Refine(const RefineProblem& problem, arma::vec beta, arma::mat inverse,
-                  const FitOptions& options, const RowReplay& replay);
+                  const FitOptions& options, const SummingReplay& replay);
 
 }  // namespace stepledger::detail

@@ -154,16 +154,22 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   FitOptions fit_options = options.fit;
   fit_options.cp_sigma2 = run.search.cp_sigma2;
   // Refinement and diagnostics replay the model's rows: the held-out rows stay out of both.
-  const RowReplay replay =
-      shared ? shared->Replay(RowSet::kModelRows) : SpillRowReplay(scan.spill, run.design, search.holdout);
-  run.fit = FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
+  // This process's model rows (a plain run); a shared run reaches every process's rows through
+  // `shared` (sums for the refinement, diagnosed rows for the diagnostics).
+  const RowReplay replay = SpillRowReplay(scan.spill, run.design, search.holdout);
+  // Refinement sums rows where they are: a shared run's processes each sum their own.
+  run.fit = shared ? FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options,
+                              shared->Sums(RowSet::kModelRows))
+                   : FitModel(pass.factor, run.design, run.search.final_term_indices, fit_options, &replay);
   // A holdout needs the ranges and the largest leverage of the model's rows to count its own
   // extrapolations, so it learns them even when the diagnostics are not asked for.
   if ((options.diagnostics || search.holdout) && run.fit.n > 0) {
     DiagnosticsOptions diagnostics_options;
     diagnostics_options.rows_by_record = run.data_is_set;
     std::optional<DiagnosticsResult> diagnostics =
-        DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support, diagnostics_options);
+        shared ? DiagnoseAndLearnSupport(run.fit, run.design, shared->Diagnosing(RowSet::kModelRows),
+                                         run.prediction_support, diagnostics_options)
+               : DiagnoseAndLearnSupport(run.fit, run.design, replay, run.prediction_support, diagnostics_options);
     if (diagnostics->rows > 0) {
       run.max_leverage = diagnostics->max_leverage;
       run.max_leverage_line = diagnostics->max_leverage_line;
@@ -178,10 +184,11 @@ RunResult RunPlan(const DataSet& data, const LoadedPlan& plan,
   run.validation.folds = run_detail::FinalModelFolds(cross_validation ? &*cross_validation : nullptr, build_folds,
                                                      run.fit, folds, options.fit.kernel);
   if (search.holdout && run.fit.n > 0) {
-    const RowReplay held_out = shared ? shared->Replay(RowSet::kHeldOutRows)
-                                      : SpillRowReplay(scan.spill, run.design, search.holdout, RowSet::kHeldOutRows);
-    run.validation.holdout =
-        run_detail::EvaluateHoldout(held_out, run.design, run.fit, run.prediction_support, *search.holdout);
+    const run_detail::HeldOutEvaluator evaluator(run.design, run.fit, run.prediction_support);
+    const run_detail::HeldOutReplay held_out =
+        shared ? shared->EvaluatingHeldOut()
+               : run_detail::EvaluateHere(SpillRowReplay(scan.spill, run.design, search.holdout, RowSet::kHeldOutRows));
+    run.validation.holdout = run_detail::EvaluateHoldout(held_out, evaluator, *search.holdout);
   }
   if (search.bootstrap) {
     const run_detail::BootstrapFactorBuilder build_factors = [&](const BootstrapPassOptions& pass) {

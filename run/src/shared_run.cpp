@@ -11,11 +11,11 @@ namespace stepledger::run_detail {
 namespace {
 
 // What process 0 asks of the others (the first u64 of a request).
-enum class Request : std::uint64_t { kStop = 1, kReplayRange, kFoldFactors, kBootstrap };
+enum class Request : std::uint64_t { kStop = 1, kFoldFactors, kBootstrap, kSums, kDiagnoseRange, kEvaluateRange };
 
-// Rows per message of a streamed replay: a few MB for a hundred columns, so that neither side
-// holds more than one batch.
-constexpr std::size_t kReplayBatchRows = 2048;
+// Records per message of a streamed range (80 bytes or fewer each): neither side holds more than
+// one batch.
+constexpr std::size_t kStreamBatchRecords = 4096;
 
 void WriteAccounting(ByteWriter& out, const RowAccounting& accounting) {
   out.U64(accounting.rows_read);
@@ -85,6 +85,60 @@ std::string Guarded(Work&& work) {
   } catch (...) {
     return EncodeError(std::current_exception());
   }
+}
+
+// One row's diagnostic and weight, exactly (optional values with a flag each).
+void WriteDiagnostic(ByteWriter& out, const RowDiagnostic& row, double weight) {
+  out.U64(row.row_index);
+  out.U64(row.line);
+  out.U64(row.file);
+  out.F64(row.fitted);
+  out.F64(row.residual);
+  out.F64(row.leverage);
+  out.U64((row.standardized_residual ? 1 : 0) | (row.cooks_distance ? 2 : 0));
+  out.F64(row.standardized_residual.value_or(0));
+  out.F64(row.cooks_distance.value_or(0));
+  out.F64(weight);
+}
+
+RowDiagnostic ReadDiagnostic(ByteReader& in, double& weight) {
+  RowDiagnostic row;
+  row.row_index = in.U64();
+  row.line = in.U64();
+  row.file = static_cast<std::size_t>(in.U64());
+  row.fitted = in.F64();
+  row.residual = in.F64();
+  row.leverage = in.F64();
+  const std::uint64_t defined = in.U64();
+  const double standardized = in.F64();
+  const double cooks = in.F64();
+  if ((defined & 1) != 0) row.standardized_residual = standardized;
+  if ((defined & 2) != 0) row.cooks_distance = cooks;
+  weight = in.F64();
+  return row;
+}
+
+void WriteExtents(ByteWriter& out, const ColumnExtents& extents) {
+  for (std::size_t i = 0; i < extents.low.size(); ++i) {
+    out.F64(extents.low[i]);
+    out.F64(extents.high[i]);
+  }
+}
+
+ColumnExtents ReadExtents(ByteReader& in, std::size_t columns) {
+  ColumnExtents extents(columns);
+  for (std::size_t i = 0; i < columns; ++i) {
+    extents.low[i] = in.F64();
+    extents.high[i] = in.F64();
+  }
+  return extents;
+}
+
+// Sums of neighbouring groups of processes (RowSums::Add: double-double).
+std::string MergeSums(std::string_view lower, std::string_view upper) {
+  RowSums sums = RowSums::Read(lower);
+  sums.Add(RowSums::Read(upper));
+  return sums.Write();
 }
 
 std::string Value(const std::string& part) {
@@ -191,39 +245,43 @@ void SharedRun::Serve(const std::optional<FoldSettings>& folds, const std::optio
     switch (kind) {
       case Request::kStop:
         return;
-      case Request::kReplayRange: {
+      case Request::kDiagnoseRange: {
         const std::size_t range = static_cast<std::size_t>(in.U64());
         const auto set = static_cast<RowSet>(in.U64());
-        const std::size_t columns = design_.column_count();
-        ByteWriter batch;
-        std::size_t rows = 0;
-        auto flush = [&](bool more) {
-          ByteWriter head;
-          head.U64(more ? 1 : 0);
-          head.U64(rows);
-          exchange_.Send(0, EncodeValue(head.bytes() + batch.bytes()));
-          batch = ByteWriter();
-          rows = 0;
-        };
-        try {
-          ForEachUsedRowInRanges(
-              *spill_, design_,
-              [&](const UsedRow& row) {
-                batch.U64(row.row_index);
-                batch.U64(row.line);
-                batch.U64(row.file);
-                batch.Raw(row.x.data(), columns * sizeof(double));
-                batch.U64(row.x_low.empty() ? 0 : 1);
-                if (!row.x_low.empty()) batch.Raw(row.x_low.data(), columns * sizeof(double));
-                batch.F64(row.y);
-                batch.F64(row.weight);
-                if (++rows == kReplayBatchRows) flush(true);
-              },
-              holdout_, set, range, range + 1);
-          flush(false);
-        } catch (...) {
-          exchange_.Send(0, EncodeError(std::current_exception()));
-        }
+        std::optional<RowDiagnoser> diagnoser;
+        std::vector<std::size_t> extent_columns;
+        const std::string diagnoser_bytes = in.Text();
+        extent_columns.resize(in.U64());
+        for (std::size_t& column : extent_columns) column = static_cast<std::size_t>(in.U64());
+        ColumnExtents extents(extent_columns.size());
+        StreamRange(
+            range, set,
+            [&](const UsedRow& row, ByteWriter& batch) {
+              if (!diagnoser) diagnoser.emplace(RowDiagnoser::Read(diagnoser_bytes));
+              extents.Widen(extent_columns, row.x);
+              WriteDiagnostic(batch, diagnoser->Diagnose(row), row.weight);
+            },
+            [&](ByteWriter& tail) { WriteExtents(tail, extents); });
+        break;
+      }
+      case Request::kEvaluateRange: {
+        const std::size_t range = static_cast<std::size_t>(in.U64());
+        const auto set = static_cast<RowSet>(in.U64());
+        const std::string evaluator_bytes = in.Text();
+        std::optional<HeldOutEvaluator> evaluator;
+        StreamRange(
+            range, set,
+            [&](const UsedRow& row, ByteWriter& batch) {
+              if (!evaluator) evaluator.emplace(HeldOutEvaluator::Read(evaluator_bytes));
+              WriteHeldOutRow(batch, evaluator->Evaluate(row));
+            },
+            [](ByteWriter&) {});
+        break;
+      }
+      case Request::kSums: {
+        const auto set = static_cast<RowSet>(in.U64());
+        const std::string recipe = in.Text();
+        ReduceToFirst(exchange_, Guarded([&]() { return OwnSums(recipe, set).Write(); }), MergeSums);
         break;
       }
       case Request::kFoldFactors: {
@@ -250,24 +308,40 @@ void SharedRun::Serve(const std::optional<FoldSettings>& folds, const std::optio
   }
 }
 
-void SharedRun::ReplayRange(const RangeOwner& owner, RowSet set, const std::function<void(const UsedRow&)>& visit) {
-  if (owner.process == 0) {
-    ForEachUsedRowInRanges(*spill_, design_, visit, holdout_, set, owner.local_range, owner.local_range + 1);
-    return;
+void SharedRun::StreamRange(std::size_t range, RowSet set, const std::function<void(const UsedRow&, ByteWriter&)>& write,
+                            const std::function<void(ByteWriter&)>& tail) {
+  ByteWriter batch;
+  std::size_t rows = 0;
+  auto flush = [&](bool more) {
+    ByteWriter head;
+    head.U64(more ? 1 : 0);
+    head.U64(rows);
+    if (!more) tail(batch);
+    exchange_.Send(0, EncodeValue(head.bytes() + batch.bytes()));
+    batch = ByteWriter();
+    rows = 0;
+  };
+  try {
+    ForEachUsedRowInRanges(
+        *spill_, design_,
+        [&](const UsedRow& row) {
+          write(row, batch);
+          if (++rows == kStreamBatchRecords) flush(true);
+        },
+        holdout_, set, range, range + 1);
+    flush(false);
+  } catch (...) {
+    exchange_.Send(0, EncodeError(std::current_exception()));
   }
-  ByteWriter request;
-  request.U64(static_cast<std::uint64_t>(Request::kReplayRange));
-  request.U64(owner.local_range);
-  request.U64(static_cast<std::uint64_t>(set));
-  exchange_.Send(owner.process, request.bytes());
-  const std::size_t columns = design_.column_count();
-  std::vector<double> x(columns), x_low(columns);
-  UsedRow row;
-  // Every batch is received, even after the visit failed, so that the other process ends its
+}
+
+void SharedRun::ReceiveRange(int process, const std::function<void(ByteReader&, bool visit)>& read,
+                             const std::function<void(ByteReader&)>& read_tail) {
+  // Every batch is received, even after a visit failed, so that the other process ends its
   // stream; the first failure is thrown once the stream is over.
   std::exception_ptr failure;
   for (bool more = true; more;) {
-    const std::string part = exchange_.Receive(owner.process);
+    const std::string part = exchange_.Receive(process);
     if (HoldsError(part)) {
       if (failure) std::rethrow_exception(failure);
       RethrowPart(part);
@@ -276,30 +350,105 @@ void SharedRun::ReplayRange(const RangeOwner& owner, RowSet set, const std::func
     more = in.U64() != 0;
     const std::uint64_t rows = in.U64();
     for (std::uint64_t i = 0; i < rows; ++i) {
-      row.row_index = in.U64();
-      row.line = in.U64();
-      row.file = static_cast<std::size_t>(in.U64());
-      in.Raw(x.data(), columns * sizeof(double));
-      const bool has_low = in.U64() != 0;
-      if (has_low) in.Raw(x_low.data(), columns * sizeof(double));
-      row.x = x;
-      row.x_low = has_low ? std::span<const double>(x_low) : std::span<const double>();
-      row.y = in.F64();
-      row.weight = in.F64();
-      if (failure) continue;
+      if (failure) {
+        read(in, false);  // past the records of a stream whose visits are over
+        continue;
+      }
       try {
-        visit(row);
+        read(in, true);
       } catch (...) {
         failure = std::current_exception();
       }
     }
+    if (!more && !failure) read_tail(in);
   }
   if (failure) std::rethrow_exception(failure);
 }
 
-RowReplay SharedRun::Replay(RowSet set) {
-  return [this, set](const std::function<void(const UsedRow&)>& visit) {
-    for (const RangeOwner& owner : layout_) ReplayRange(owner, set, visit);
+
+RowSums SharedRun::OwnSums(std::string_view recipe, RowSet set) const {
+  const std::unique_ptr<RowSumKernel> kernel = MakeRowSumKernel(recipe);
+  ForEachUsedRow(*spill_, design_, [&kernel](const UsedRow& row) { kernel->Add(row); }, holdout_, set);
+  return kernel->Finish();
+}
+
+SummingReplay SharedRun::Sums(RowSet set) {
+  return [this, set](std::string_view recipe) {
+    ByteWriter request;
+    request.U64(static_cast<std::uint64_t>(Request::kSums));
+    request.U64(static_cast<std::uint64_t>(set));
+    request.Text(recipe);
+    SendToOthers(request.bytes());
+    std::string part = Guarded([&]() { return OwnSums(recipe, set).Write(); });
+    return RowSums::Read(Value(ReduceToFirst(exchange_, std::move(part), MergeSums)));
+  };
+}
+
+void SharedRun::InRecordOrder(std::uint64_t request_kind, RowSet set, const std::string& request_body,
+                              const std::function<void(std::size_t local_range)>& own,
+                              const std::function<void(ByteReader&, bool visit)>& read,
+                              const std::function<void(ByteReader&)>& read_tail) {
+  for (const RangeOwner& owner : layout_) {
+    if (owner.process == 0) {
+      own(owner.local_range);
+      continue;
+    }
+    ByteWriter request;
+    request.U64(request_kind);
+    request.U64(owner.local_range);
+    request.U64(static_cast<std::uint64_t>(set));
+    exchange_.Send(owner.process, request.bytes() + request_body);
+    ReceiveRange(owner.process, read, read_tail);
+  }
+}
+
+DiagnosingReplay SharedRun::Diagnosing(RowSet set) {
+  return [this, set](const RowDiagnoser& diagnoser, std::span<const std::size_t> extent_columns,
+                     const std::function<void(const RowDiagnostic&, double)>& visit) {
+    ColumnExtents extents(extent_columns.size());
+    ByteWriter body;
+    body.Text(diagnoser.Write());
+    body.U64(extent_columns.size());
+    for (std::size_t column : extent_columns) body.U64(column);
+    RowDiagnoser diagnosing = diagnoser;
+    InRecordOrder(
+        static_cast<std::uint64_t>(Request::kDiagnoseRange), set, body.bytes(),
+        [&](std::size_t range) {
+          ForEachUsedRowInRanges(
+              *spill_, design_,
+              [&](const UsedRow& row) {
+                extents.Widen(extent_columns, row.x);
+                visit(diagnosing.Diagnose(row), row.weight);
+              },
+              holdout_, set, range, range + 1);
+        },
+        [&](ByteReader& in, bool visiting) {
+          double weight = 0;
+          const RowDiagnostic diagnostic = ReadDiagnostic(in, weight);
+          if (visiting) visit(diagnostic, weight);
+        },
+        [&](ByteReader& in) { extents.Widen(ReadExtents(in, extent_columns.size())); });
+    return extents;
+  };
+}
+
+HeldOutReplay SharedRun::EvaluatingHeldOut() {
+  return [this](const HeldOutEvaluator& evaluator, const std::function<void(const HeldOutRow&)>& visit) {
+    ByteWriter body;
+    body.Text(evaluator.Write());
+    HeldOutEvaluator evaluating = evaluator;
+    InRecordOrder(
+        static_cast<std::uint64_t>(Request::kEvaluateRange), RowSet::kHeldOutRows, body.bytes(),
+        [&](std::size_t range) {
+          ForEachUsedRowInRanges(
+              *spill_, design_, [&](const UsedRow& row) { visit(evaluating.Evaluate(row)); }, holdout_,
+              RowSet::kHeldOutRows, range, range + 1);
+        },
+        [&](ByteReader& in, bool visiting) {
+          const HeldOutRow row = ReadHeldOutRow(in);
+          if (visiting) visit(row);
+        },
+        [](ByteReader&) {});
   };
 }
 

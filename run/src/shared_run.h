@@ -6,10 +6,13 @@
 // (process p takes the part of p + 2^i at step i, lower processes first, so the merge order is a
 // function of the layout only). Process 0 then runs the search and everything after it; the
 // other processes serve its requests until it is done:
-//   - a replay (refinement, diagnostics, prediction support, holdout): process 0 visits the used
-//     rows of every range in record order, its own from its spill, another process's streamed
-//     to it one bounded batch at a time (this moves rows, not sums: the visit is the very one a
-//     single process makes, so the results are the same bits);
+//   - a refinement pass: every process sums its own rows (engine/row_sums.h), the tree adds the
+//     parts in double-double;
+//   - the diagnostics (and prediction support): every process diagnoses its own rows and streams
+//     the rows' diagnostics (a fixed record each) to process 0 in record order, which folds them
+//     as a single process would (binned views and quantile sketches depend on the order);
+//   - the holdout: every process evaluates its own held-out rows (prediction, flags) and streams
+//     a record per row to process 0 in record order, as for the diagnostics;
 //   - the fold factors of the final model's columns (when the factor pass could not keep every
 //     column's) and the bootstrap's replicate factors: each process folds its rows, the tree
 //     merges them.
@@ -26,8 +29,11 @@
 #include "stepledger/engine/bootstrap_pass.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
+#include "stepledger/engine/diagnostics.h"
+#include "stepledger/engine/row_sums.h"
 #include "stepledger/engine/share_exchange.h"
 #include "stepledger/engine/spill.h"
+#include "validation_run.h"
 
 namespace stepledger::run_detail {
 
@@ -58,8 +64,15 @@ class SharedRun {
   /// On processes other than 0, after FactorPass: answers process 0's requests until it is done.
   void Serve(const std::optional<FoldSettings>& folds, const std::optional<BootstrapPassOptions>& bootstrap);
 
-  /// Process 0: replays the used rows of every process in record order.
-  RowReplay Replay(RowSet set);
+  /// Process 0: the held-out rows evaluated by the processes that hold them, in record order (a
+  /// record of 32 bytes a row travels).
+  HeldOutReplay EvaluatingHeldOut();
+  /// Process 0: the used rows diagnosed by the processes that hold them, in record order (the
+  /// diagnostics, not the rows, travel: a fixed record of 80 bytes a row).
+  DiagnosingReplay Diagnosing(RowSet set);
+  /// Process 0: sums over the used rows of every process, each process summing its own rows
+  /// with its own kernel, the parts added through the tree (engine/row_sums.h).
+  SummingReplay Sums(RowSet set);
   /// Process 0: the fold factors of `columns` over every process's rows (BuildFoldFactors).
   std::vector<Factor> FoldFactors(std::span<const std::size_t> columns, const FoldSettings& folds);
   /// Process 0: the bootstrap's replicate factors over every process's rows (BuildBootstrapFactors).
@@ -71,8 +84,24 @@ class SharedRun {
     int process = 0;
     std::size_t local_range = 0;
   };
-  void ReplayRange(const RangeOwner& owner, RowSet set, const std::function<void(const UsedRow&)>& visit);
+  /// Process 0: every range in record order, its own through `own`, another process's by a
+  /// request (kind, range, set, then `request_body`) answered by a stream (ReceiveRange).
+  void InRecordOrder(std::uint64_t request_kind, RowSet set, const std::string& request_body,
+                     const std::function<void(std::size_t local_range)>& own,
+                     const std::function<void(ByteReader&, bool visit)>& read,
+                     const std::function<void(ByteReader&)>& read_tail);
+  /// Serving: streams one of this process's ranges to process 0 in batches of kStreamBatchRecords
+  /// records (`write` appends a row's record), the last batch ending with `tail`; an error is
+  /// sent in place of the batch it stopped.
+  void StreamRange(std::size_t range, RowSet set, const std::function<void(const UsedRow&, ByteWriter&)>& write,
+                   const std::function<void(ByteWriter&)>& tail);
+  /// Process 0: receives a range streamed by `process`, `read` decoding one record (and visiting it
+  /// while `visit`), `read_tail` the last batch's tail. After a visit failed, the rest of the
+  /// stream is still taken (read with visit false), then the failure is thrown.
+  void ReceiveRange(int process, const std::function<void(ByteReader&, bool visit)>& read,
+                    const std::function<void(ByteReader&)>& read_tail);
   void SendToOthers(const std::string& request);
+  RowSums OwnSums(std::string_view recipe, RowSet set) const;
 
   ShareExchange& exchange_;
   std::shared_ptr<const Spill> spill_;

@@ -11,6 +11,8 @@
 #include <boost/accumulators/statistics/extended_p_square.hpp>
 #include <boost/accumulators/statistics/stats.hpp>
 
+#include "stepledger/engine/share_exchange.h"
+
 namespace stepledger::run_detail {
 
 FoldValidation FinalModelFolds(const CrossValidation* cross_validation, const FoldFactorBuilder& build_folds,
@@ -47,65 +49,119 @@ using DecileSketch = acc::accumulator_set<double, acc::stats<acc::tag::extended_
 constexpr std::size_t kDeciles = 10;
 constexpr std::size_t kExactRows = 64;
 
-// The model's values of a used row (fit.columns, model order), the input of LinearPredictor
-// and UnitLeverage.
-std::span<const double> ModelValues(const FitResult& fit, const UsedRow& row, std::vector<double>& model_x) {
-  for (std::size_t j = 0; j < fit.columns.size(); ++j) model_x[j] = row.x[fit.columns[j]];
-  return model_x;
-}
-
-struct RangeCheck {
-  std::size_t column = 0;
-  double min = 0, max = 0;
-};
-
 }  // namespace
 
-HoldoutValidation EvaluateHoldout(const RowReplay& held_out, const Design& design, const FitResult& fit,
-                                  const PredictionSupport& support, const HoldoutSettings& holdout) {
-  HoldoutValidation result;
-  result.settings = holdout;
-  std::vector<RangeCheck> ranges;
+HeldOutEvaluator::HeldOutEvaluator(const Design& design, const FitResult& fit, const PredictionSupport& support)
+    : model_(fit) {
   for (const TermRange& range : support.ranges) {
     const std::size_t term = design.FindTerm(range.term);
     if (term == kNoTerm) continue;
-    ranges.push_back(RangeCheck{design.terms[term].first_column, range.min, range.max});
+    ranges_.push_back(RangeCheck{design.terms[term].first_column, range.min, range.max});
   }
+  if (support.max_unit_leverage && !fit.model_triangle.is_empty()) max_unit_leverage_ = support.max_unit_leverage;
+}
+
+HeldOutRow HeldOutEvaluator::Evaluate(const UsedRow& row) {
+  HeldOutRow evaluated;
+  evaluated.prediction = model_.Prediction(row);
+  evaluated.y = row.y;
+  evaluated.weight = row.weight;
+  for (const RangeCheck& range : ranges_) {
+    const double value = row.x[range.column];
+    if (value < range.min || value > range.max) evaluated.outside_ranges = true;
+  }
+  if (max_unit_leverage_) {
+    const std::optional<double> leverage = model_.UnitLeverageOf(row);
+    evaluated.high_leverage = leverage && *leverage > *max_unit_leverage_;
+  }
+  return evaluated;
+}
+
+std::string HeldOutEvaluator::Write() const {
+  ByteWriter out;
+  out.Text(model_.Write());
+  out.U64(ranges_.size());
+  for (const RangeCheck& range : ranges_) {
+    out.U64(range.column);
+    out.F64(range.min);
+    out.F64(range.max);
+  }
+  out.U64(max_unit_leverage_ ? 1 : 0);
+  out.F64(max_unit_leverage_.value_or(0));
+  return out.Take();
+}
+
+HeldOutEvaluator HeldOutEvaluator::Read(std::string_view bytes) {
+  ByteReader in(bytes);
+  HeldOutEvaluator evaluator(RowDiagnoser::Read(in.Text()));
+  const std::uint64_t ranges = in.U64();
+  for (std::uint64_t i = 0; i < ranges; ++i) {
+    RangeCheck range;
+    range.column = static_cast<std::size_t>(in.U64());
+    range.min = in.F64();
+    range.max = in.F64();
+    evaluator.ranges_.push_back(range);
+  }
+  const bool known = in.U64() != 0;
+  const double leverage = in.F64();
+  if (known) evaluator.max_unit_leverage_ = leverage;
+  return evaluator;
+}
+
+void WriteHeldOutRow(ByteWriter& out, const HeldOutRow& row) {
+  out.F64(row.prediction);
+  out.F64(row.y);
+  out.F64(row.weight);
+  out.U64((row.outside_ranges ? 1 : 0) | (row.high_leverage ? 2 : 0));
+}
+
+HeldOutRow ReadHeldOutRow(ByteReader& in) {
+  HeldOutRow row;
+  row.prediction = in.F64();
+  row.y = in.F64();
+  row.weight = in.F64();
+  const std::uint64_t flags = in.U64();
+  row.outside_ranges = (flags & 1) != 0;
+  row.high_leverage = (flags & 2) != 0;
+  return row;
+}
+
+HeldOutReplay EvaluateHere(RowReplay held_out) {
+  return [held_out = std::move(held_out)](const HeldOutEvaluator& evaluator,
+                                          const std::function<void(const HeldOutRow&)>& visit) {
+    HeldOutEvaluator evaluating = evaluator;
+    held_out([&](const UsedRow& row) { visit(evaluating.Evaluate(row)); });
+  };
+}
+
+HoldoutValidation EvaluateHoldout(const HeldOutReplay& held_out, const HeldOutEvaluator& evaluator,
+                                  const HoldoutSettings& holdout) {
+  HoldoutValidation result;
+  result.settings = holdout;
   // Pass 1: error sums (weighted; the mean and SS about it by West's weighted update) and the
   // deciles of the predictions.
   std::array<double, kDeciles - 1> probabilities{};
   for (std::size_t d = 0; d < probabilities.size(); ++d) probabilities[d] = static_cast<double>(d + 1) / kDeciles;
   DecileSketch sketch{acc::tag::extended_p_square::probabilities = probabilities};
   double sse = 0, error_sum = 0, weight = 0, mean = 0, about_mean = 0;
-  std::vector<double> model_x(fit.columns.size()), scratch(fit.columns.size());
-  const bool leverage_known = support.max_unit_leverage.has_value() && !fit.model_triangle.is_empty();
   // A few rows are too few for the P^2 sketch (it needs 2 * 9 + 3 values to place its markers):
   // the first kExactRows predictions are kept and their deciles taken exactly when no more come.
   std::vector<double> first_predictions;
-  held_out(
-      [&](const UsedRow& row) {
-        const std::span<const double> values = ModelValues(fit, row, model_x);
-        const double prediction = LinearPredictor(fit, values);
-        const double error = row.y - prediction;
-        ++result.rows;
-        weight += row.weight;
-        sse += row.weight * error * error;
-        error_sum += row.weight * error;
-        const double delta = row.y - mean;
-        mean += delta * (row.weight / weight);
-        about_mean += row.weight * delta * (row.y - mean);
-        sketch(prediction);
-        if (first_predictions.size() < kExactRows) first_predictions.push_back(prediction);
-        bool outside = false;
-        for (const RangeCheck& range : ranges) {
-          const double value = row.x[range.column];
-          if (value < range.min || value > range.max) outside = true;
-        }
-        if (outside) ++result.rows_outside_ranges;
-        if (leverage_known && UnitLeverage(fit, values, scratch) > *support.max_unit_leverage) {
-          ++result.rows_high_leverage;
-        }
-      });
+  held_out(evaluator, [&](const HeldOutRow& row) {
+    const double prediction = row.prediction;
+    const double error = row.y - prediction;
+    ++result.rows;
+    weight += row.weight;
+    sse += row.weight * error * error;
+    error_sum += row.weight * error;
+    const double delta = row.y - mean;
+    mean += delta * (row.weight / weight);
+    about_mean += row.weight * delta * (row.y - mean);
+    sketch(prediction);
+    if (first_predictions.size() < kExactRows) first_predictions.push_back(prediction);
+    if (row.outside_ranges) ++result.rows_outside_ranges;
+    if (row.high_leverage) ++result.rows_high_leverage;
+  });
   result.weight = weight;
   if (result.rows == 0) return result;
   result.rmse = std::sqrt(sse / weight);
@@ -126,16 +182,14 @@ HoldoutValidation EvaluateHoldout(const RowReplay& held_out, const Design& desig
   }
   std::array<double, kDeciles> bin_weight{}, bin_prediction{}, bin_observed{};
   std::array<std::uint64_t, kDeciles> bin_rows{};
-  held_out(
-      [&](const UsedRow& row) {
-        const double prediction = LinearPredictor(fit, ModelValues(fit, row, model_x));
-        const std::size_t bin = static_cast<std::size_t>(
-            std::lower_bound(bounds.begin(), bounds.end(), prediction) - bounds.begin());
-        ++bin_rows[bin];
-        bin_weight[bin] += row.weight;
-        bin_prediction[bin] += row.weight * prediction;
-        bin_observed[bin] += row.weight * row.y;
-      });
+  held_out(evaluator, [&](const HeldOutRow& row) {
+    const std::size_t bin = static_cast<std::size_t>(
+        std::lower_bound(bounds.begin(), bounds.end(), row.prediction) - bounds.begin());
+    ++bin_rows[bin];
+    bin_weight[bin] += row.weight;
+    bin_prediction[bin] += row.weight * row.prediction;
+    bin_observed[bin] += row.weight * row.y;
+  });
   for (std::size_t bin = 0; bin < kDeciles; ++bin) {
     if (bin_rows[bin] == 0) continue;
     result.calibration.push_back(CalibrationBin{bin + 1, bin_rows[bin], bin_prediction[bin] / bin_weight[bin],

@@ -123,6 +123,16 @@ def compare(base, other, label):
     model_a.pop("refinement_correction", None)
     model_b.pop("refinement_correction", None)
     close(model_a, model_b, "model", problems)
+    # The prediction support comes from the diagnostics, computed where the rows lie: the term
+    # ranges exactly (they are data values), the largest leverage to 1e-12 and its line exactly.
+    support_a, support_b = base.get("prediction", {}), other.get("prediction", {})
+    if support_a.get("ranges") != support_b.get("ranges"):
+        problems.append("prediction.ranges differ: %s vs %s" % (support_a.get("ranges"), support_b.get("ranges")))
+    for key in ("max_unit_leverage_line", "max_unit_leverage_file", "columns"):
+        if support_a.get(key) != support_b.get(key):
+            problems.append("prediction.%s differs: %r vs %r" % (key, support_a.get(key), support_b.get(key)))
+    close(support_a.get("max_unit_leverage"), support_b.get("max_unit_leverage"), "prediction.max_unit_leverage",
+          problems)
     validation_a = base["validation"]
     validation_b = other["validation"]
     close(validation_a["folds"], validation_b["folds"], "validation.folds", problems)
@@ -199,6 +209,39 @@ def main():
                 fail("%s under %d ranks: verify --data of its audit: exit %d: %s%s" %
                      (label, ranks, verified.returncode, verified.stdout, verified.stderr))
             compare(base, audit, "%s, %d rank(s)" % (label, ranks))
+            # verify --data shares its replay among the ranks too: the same verdict and text.
+            if ranks > 1:
+                base_audit = os.path.join(base_dir, "audit.json")
+                alone = run([program, "verify", base_audit, "--data", data, "--threads", "2"])
+                spread = run(launcher + [str(ranks), program, "verify", base_audit, "--data", data, "--threads", "2"])
+                if spread.returncode != 0 or spread.stdout != alone.stdout:
+                    fail("%s: verify --data under %d ranks: exit %d, text %s (plain: exit %d, %s) %s" %
+                         (label, ranks, spread.returncode, spread.stdout, alone.returncode, alone.stdout,
+                          spread.stderr))
+        print("ok: %s, verify --data under 2 and 3 ranks" % label)
+
+    # rerun shares its replay: the recorded plan of the set's audit on the single file under 2 ranks
+    # gives the plain rerun's new audit (route, model, folds, holdout, bootstrap) and comparison.
+    parent = os.path.join(work, "plain-plan-bic.json", "audit.json")
+    plain_rerun_dir = os.path.join(work, "rerun-plain")
+    shared_rerun_dir = os.path.join(work, "rerun-ranks2")
+    plain = run([program, "rerun", parent, single, "--out", plain_rerun_dir, "--quiet", "--threads", "2"])
+    shared = run(launcher + ["2", program, "rerun", parent, single, "--out", shared_rerun_dir, "--quiet",
+                             "--threads", "2"])
+    if plain.returncode != 0 or shared.returncode != 0:
+        fail("rerun: plain exit %d, 2 ranks exit %d: %s %s" % (plain.returncode, shared.returncode, plain.stderr,
+                                                             shared.stderr))
+    with open(os.path.join(plain_rerun_dir, "audit.json")) as handle:
+        rerun_base = json.load(handle)
+    with open(os.path.join(shared_rerun_dir, "audit.json")) as handle:
+        rerun_shared = json.load(handle)
+    if rerun_shared.get("cluster", {}).get("processes") != 2:
+        fail("rerun under 2 ranks: the new audit's cluster section is %r" % rerun_shared.get("cluster"))
+    compare(rerun_base, rerun_shared, "rerun of the set's plan on one file, 2 ranks")
+    problems = []
+    close(rerun_base["comparison"], rerun_shared["comparison"], "comparison", problems)
+    if problems:
+        fail("rerun under 2 ranks: the comparison differs: " + "; ".join(problems[:10]))
 
     # Two records under three ranks: the same outcome as the plain run (here exit status and text).
     tiny_plan = os.path.join(work, "plan-tiny.json")

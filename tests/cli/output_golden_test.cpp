@@ -47,6 +47,9 @@ std::string JsonDifference(const nlohmann::json& golden, const nlohmann::json& a
   if (golden.is_number_float() || actual.is_number_float()) {
     if (!golden.is_number() || !actual.is_number()) return path + ": " + golden.dump() + " against " + actual.dump();
     const double a = golden.get<double>(), b = actual.get<double>();
+    // The refinement's last correction is rounding itself (as the text goldens mask it): its bits
+    // follow the BLAS kernels the machine's CPU selects; both below 1e-10 is the same.
+    if (path.ends_with(".refinement_correction") && std::abs(a) < 1e-10 && std::abs(b) < 1e-10) return {};
     if (std::abs(a - b) <= 1e-12 * std::max(std::abs(a), std::abs(b))) return {};
     return path + ": " + golden.dump() + " against " + actual.dump();
   }

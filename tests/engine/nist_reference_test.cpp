@@ -15,6 +15,7 @@
 #include <sstream>
 
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/row_sums.h"
 #include "support/dense_design.h"
 #include "support/nist.h"
 #include "support/test_paths.h"
@@ -192,6 +193,47 @@ TEST_P(NistReference, SameDigitsWhateverTheRowOrderAndBlockSize) {
   // Reversed order, one row per fold.
   const FitResult reversed = FitProblem(problem, 1, arma::regspace<arma::uvec>(n - 1, 0));
   ExpectDigits(Score(reversed, data), expected, "reversed rows");
+}
+
+// A run shared by processes refines with sums that each process adds over its own rows
+// (engine/row_sums.h): the parts' double-double sums added give the certified digits too, and
+// the single part's fit to 1e-13 relative (the sums differ near 2^-100 only).
+TEST_P(NistReference, RefinementSummedInPartsKeepsTheDigits) {
+  const NistCase& expected = GetParam();
+  const auto data = Load(expected.name);
+  const NistProblem problem = BuildProblem(data);
+  const arma::uword n = data.y.n_elem;
+  const Factor factor = testing::BuildFactor(problem.x, problem.y, {}, 256, problem.design.scales());
+  const FitResult whole = FitProblem(problem, 256, arma::regspace<arma::uvec>(0, n - 1));
+  // Parts as processes would hold them: an empty one, then uneven thirds.
+  const std::vector<arma::uword> cuts{0, 0, n / 3, n / 3 + n / 4, n};
+  const SummingReplay parted = [&](std::string_view recipe) {
+    RowSums total;
+    for (std::size_t part = 0; part + 1 < cuts.size(); ++part) {
+      const std::unique_ptr<RowSumKernel> kernel = MakeRowSumKernel(recipe);
+      if (cuts[part + 1] > cuts[part]) {
+        const arma::uvec rows = arma::regspace<arma::uvec>(cuts[part], cuts[part + 1] - 1);
+        testing::MemoryRowReplay(problem.x.rows(rows), problem.y.elem(rows), {},
+                                 problem.x_low.rows(rows))([&](const UsedRow& row) { kernel->Add(row); });
+      }
+      RowSums sums = kernel->Finish();
+      if (part == 0) {
+        EXPECT_EQ(sums.rows, 0u);
+        total = std::move(sums);
+      } else {
+        total.Add(RowSums::Read(sums.Write()));  // through the bytes processes exchange
+      }
+    }
+    return total;
+  };
+  const FitResult fit = FitModel(factor, problem.design, testing::AllTerms(problem.design), FitOptions{}, parted);
+  ASSERT_EQ(fit.status, FitStatus::kCompleted);
+  ExpectDigits(Score(fit, data), expected, "refinement summed in four parts");
+  for (std::size_t j = 0; j < fit.k; ++j) {
+    EXPECT_NEAR(fit.beta(j), whole.beta(j), 1e-13 * std::max(std::abs(whole.beta(j)), 1e-12)) << expected.name << " coefficient " << j;
+  }
+  EXPECT_NEAR(fit.rss, whole.rss, 1e-13 * whole.tss) << expected.name;
+  EXPECT_NEAR(fit.tss, whole.tss, 1e-13 * whole.tss) << expected.name;
 }
 
 INSTANTIATE_TEST_SUITE_P(StRD, NistReference, ::testing::ValuesIn(kCases),

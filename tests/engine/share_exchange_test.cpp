@@ -8,11 +8,7 @@
 #include "stepledger/engine/share_exchange.h"
 
 #include <algorithm>
-#include <condition_variable>
-#include <deque>
 #include <filesystem>
-#include <map>
-#include <mutex>
 #include <optional>
 #include <string>
 #include <thread>
@@ -25,50 +21,14 @@
 #include "stepledger/engine/factor.h"
 #include "stepledger/engine/table_scan.h"
 #include "support/test_paths.h"
+#include "support/thread_exchange.h"
 
 namespace stepledger {
 namespace {
 
+using testing::Mailboxes;
 using testing::TempDir;
-
-// Mailboxes between numbered threads: the exchange the cluster library gives over MPI.
-class Mailboxes {
- public:
-  void Put(int from, int to, std::string bytes) {
-    {
-      std::lock_guard<std::mutex> lock(mutex_);
-      boxes_[{from, to}].push_back(std::move(bytes));
-    }
-    changed_.notify_all();
-  }
-  std::string Take(int from, int to) {
-    std::unique_lock<std::mutex> lock(mutex_);
-    auto& box = boxes_[{from, to}];
-    changed_.wait(lock, [&box] { return !box.empty(); });
-    std::string bytes = std::move(box.front());
-    box.pop_front();
-    return bytes;
-  }
-
- private:
-  std::mutex mutex_;
-  std::condition_variable changed_;
-  std::map<std::pair<int, int>, std::deque<std::string>> boxes_;
-};
-
-class ThreadExchange : public ShareExchange {
- public:
-  ThreadExchange(Mailboxes& boxes, int index, int count) : boxes_(boxes), index_(index), count_(count) {}
-  int index() const override { return index_; }
-  int count() const override { return count_; }
-  void Send(int to, const std::string& bytes) override { boxes_.Put(index_, to, bytes); }
-  std::string Receive(int from) override { return boxes_.Take(from, index_); }
-
- private:
-  Mailboxes& boxes_;
-  int index_;
-  int count_;
-};
+using testing::ThreadExchange;
 
 // What a scan gives that must not depend on the processes: per process the profile and
 // fingerprint; over all processes every row (index, line, cells).

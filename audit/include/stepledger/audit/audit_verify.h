@@ -55,6 +55,9 @@ struct VerifyOptions {
   /// Numbers in a replay agree when |a - b| <= relative_tolerance * max(|a|, |b|).
   /// Default 1e-9 (the contract); actions, terms and texts must match exactly.
   double relative_tolerance = 1e-9;
+  /// The processes of a cluster run that share the replay's data (ReplayOverrides::shares);
+  /// on all but process 0 VerifyAudit throws ShareServed once process 0 is done.
+  ShareExchange* shares = nullptr;
 };
 
 /// The outcome of each check: a value type that starts at "not run".

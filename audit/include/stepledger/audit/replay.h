@@ -25,6 +25,10 @@ struct ReplayOverrides {
   /// The limits of the replaying command (never recorded: an audit cannot lift them); they also
   /// apply to the recorded plan's text and terms.
   InputLimits limits;
+  /// The processes of a cluster run (mpirun) that share the data (RunOptions::shares); null: this
+  /// process alone. Every process calls the replay; on all but process 0 it throws ShareServed
+  /// once process 0 is done.
+  ShareExchange* shares = nullptr;
 };
 
 /// The cores this process may run on (sched_getaffinity), from 1 to kMaxRecordedThreads.

@@ -29,6 +29,9 @@
 #include <functional>
 #include <memory>
 #include <optional>
+#include <span>
+#include <string>
+#include <string_view>
 #include <vector>
 
 #include "stepledger/engine/data_pass.h"
@@ -187,10 +190,60 @@ struct DiagnosticsOptions {
   bool rows_by_record = false;
 };
 
+/// The per-row part of the diagnostics: what one row's diagnostic needs of the fit (the model's
+/// design columns, estimates, factor and scales, the residual SD), copied so that it can travel
+/// as bytes to the process that holds the row. Throws std::invalid_argument when the fit carries
+/// no model factor (not made by FitModel).
+class RowDiagnoser {
+ public:
+  explicit RowDiagnoser(const FitResult& fit);
+  /// The row's fitted value, residual, leverage, standardised residual and Cook's distance.
+  RowDiagnostic Diagnose(const UsedRow& row);
+  /// The row's prediction x'b (LinearPredictor) and, when the model has terms, its leverage at
+  /// unit weight x'(X'WX)^-1 x (UnitLeverage; nullopt for an empty model).
+  double Prediction(const UsedRow& row);
+  std::optional<double> UnitLeverageOf(const UsedRow& row);
+  std::string Write() const;
+  /// Bytes that Write made (a short message is a std::logic_error: a bug).
+  static RowDiagnoser Read(std::string_view bytes);
+
+ private:
+  RowDiagnoser() = default;
+  std::span<const double> ModelValues(const UsedRow& row);
+  FitResult model_;  // only columns, beta, model_triangle, model_scales and criteria.sigma are set
+  std::vector<double> model_x_, scratch_;
+};
+
+/// The smallest and largest values of some design columns over the rows visited (infinite
+/// bounds, low > high, before the first row).
+struct ColumnExtents {
+  std::vector<double> low, high;
+  explicit ColumnExtents(std::size_t columns = 0);
+  /// Widens by one row's values of `columns` (design column indices, one per extent).
+  void Widen(std::span<const std::size_t> columns, std::span<const double> x);
+  /// Widens by another part's extents (the order of parts does not matter).
+  void Widen(const ColumnExtents& other);
+};
+
+/// The used rows diagnosed where they lie, handed to `visit` in record order with their weights:
+/// the plain form diagnoses this process's replay; a run shared by processes has every process
+/// diagnose its own rows and sends process 0 the diagnostics, not the rows (run/src/shared_run.h).
+/// Returns the extents of `extent_columns` over the rows.
+using DiagnosingReplay = std::function<ColumnExtents(const RowDiagnoser& diagnoser,
+                                                     std::span<const std::size_t> extent_columns,
+                                                     const std::function<void(const RowDiagnostic&, double weight)>& visit)>;
+
+/// The rows of `replay`, diagnosed by this process.
+DiagnosingReplay DiagnoseHere(RowReplay replay);
+
 /// One more pass over the rows for the diagnostics of a fitted model; the stand-out
 /// thresholds are StandOutThresholds::CommonPractice(fit.n, fit.k). Throws
 /// std::invalid_argument when the fit carries no model factor (not made by FitModel).
 DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const Design& design, const RowReplay& replay,
+                                     const DiagnosticsOptions& options = {});
+/// The same over rows diagnosed wherever they lie (the accumulation runs here, in record order,
+/// so the result is the same bits whoever diagnosed the rows).
+DiagnosticsResult ComputeDiagnostics(const FitResult& fit, const DiagnosingReplay& rows,
                                      const DiagnosticsOptions& options = {});
 
 }  // namespace stepledger

@@ -49,6 +49,7 @@
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/factor.h"
 #include "stepledger/engine/kernel.h"
+#include "stepledger/engine/row_sums.h"
 
 namespace stepledger {
 
@@ -157,6 +158,11 @@ struct FitResult {
 FitResult FitModel(const Factor& factor, const Design& design,
                    std::span<const std::size_t> term_indices, const FitOptions& options,
                    const RowReplay* replay = nullptr);
+/// The same fit, refined (when options.max_refinement_passes > 0) with the sums of `sums`
+/// (engine/row_sums.h): a run shared by processes has every process sum its own rows.
+FitResult FitModel(const Factor& factor, const Design& design,
+                   std::span<const std::size_t> term_indices, const FitOptions& options,
+                   const SummingReplay& sums);
 
 /// h_ii at or above 1 - kLeverageOneTolerance counts as 1 (the row fits itself exactly):
 /// its standardised residual, Cook's distance and PRESS are undefined.

@@ -47,6 +47,11 @@ std::vector<std::size_t> TermsNeededByModel(const Design& design, const FitResul
 DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
                                           const RowReplay& replay, PredictionSupport& support,
                                           const DiagnosticsOptions& options = {});
+/// The same over rows diagnosed wherever they lie (DiagnosingReplay: a shared run's processes
+/// diagnose their own rows; everything kept is learnt here in record order: the same bits).
+DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& design,
+                                          const DiagnosingReplay& rows, PredictionSupport& support,
+                                          const DiagnosticsOptions& options = {});
 
 /// True for the term kinds whose design value has a range worth checking (numeric, log, power).
 bool IsRangedKind(TermKind kind);
