@@ -18,6 +18,7 @@
 #include "stepledger/audit/fitted_model.h"
 #include "stepledger/audit/model_json.h"
 #include "stepledger/audit/validation_json.h"
+#include "stepledger/engine/column_source.h"
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/number_format.h"
@@ -509,11 +510,6 @@ json AuditComparison::ToJson() const {
 
 json PredictionComparison(const json& old_as_read, const json& new_as_read,
                           const DataSet& new_data, const CsvOptions& csv_in) {
-  if (new_data.columns) {
-    return {{"available", false},
-            {"reason", "the new data are columns in memory; the old model prices rows of data files (give the new "
-                       "data as a file to compare its prices)"}};
-  }
   const json old_audit = AuditInCurrentShape(old_as_read);
   const json new_audit = AuditInCurrentShape(new_as_read);
   try {
@@ -528,37 +524,49 @@ json PredictionComparison(const json& old_as_read, const json& new_as_read,
     double weighted_squares = 0, weighted_errors = 0, weight_sum = 0;
     std::uint64_t rows_read = 0, rows = 0, response_unusable = 0;
     std::map<PredictionFlag, std::uint64_t> not_priced;
-    // Every file of a data set in reading order, each read by its own reader bound to its header.
-    for (const std::filesystem::path& file : DataSetFiles(new_data)) {
-      CsvReader reader(file, csv);
-      const PredictionRowEvaluator evaluator(design, reader);
-      const std::ptrdiff_t response_index = reader.ColumnIndex(design.response);
-      if (response_index < 0) {
-        return {{"available", false},
-                {"reason", file.string() + ": no column '" + design.response + "' (the response) in the header"}};
+    // One row, read through RowCells (a CSV record or a row of columns in memory).
+    const auto price = [&](const PredictionRowEvaluator& evaluator, const RowCells& cells, std::size_t response_index) {
+      ++rows_read;
+      const PredictedRow row = predictor.Predict(evaluator.Evaluate(cells));
+      if (!row.priced()) {
+        // Counted under the first problem, as predict lists them.
+        ++not_priced[row.problems.empty() ? PredictionFlag::kInvalidValue : row.problems.front().flag];
+        return;
       }
-      CsvRecord record;
-      while (reader.Next(record)) {
-        ++rows_read;
-        const PredictedRow row = predictor.Predict(evaluator.Evaluate(record));
-        if (!row.priced()) {
-          // Counted under the first problem, as predict lists them.
-          ++not_priced[row.problems.empty() ? PredictionFlag::kInvalidValue : row.problems.front().flag];
-          continue;
+      const RowCell response = cells.Cell(response_index);
+      double observed = response.number;
+      if (response.kind != CellKind::kNumber || (logged && !(observed > 0))) {
+        ++response_unusable;
+        return;
+      }
+      if (logged) observed = std::log(observed);
+      const double error = observed - *row.prediction;
+      weighted_squares += row.weight * error * error;
+      weighted_errors += row.weight * error;
+      weight_sum += row.weight;
+      ++rows;
+    };
+    const auto no_response = [&](const std::string& name) -> json {
+      return {{"available", false}, {"reason", name + ": no column '" + design.response + "' (the response) in the header"}};
+    };
+    if (new_data.columns) {
+      // Columns in memory: the same evaluator, a chunk of rows at a time.
+      ColumnRows rows_in_memory(*new_data.columns);
+      const PredictionRowEvaluator evaluator(design, rows_in_memory);
+      const std::ptrdiff_t response_index = rows_in_memory.ColumnIndex(design.response);
+      if (response_index < 0) return no_response(rows_in_memory.display_name());
+      while (rows_in_memory.Next()) price(evaluator, rows_in_memory, static_cast<std::size_t>(response_index));
+    } else {
+      // Every file of a data set in reading order, each read by its own reader bound to its header.
+      for (const std::filesystem::path& file : DataSetFiles(new_data)) {
+        CsvReader reader(file, csv);
+        const PredictionRowEvaluator evaluator(design, reader);
+        const std::ptrdiff_t response_index = reader.ColumnIndex(design.response);
+        if (response_index < 0) return no_response(file.string());
+        CsvRecord record;
+        while (reader.Next(record)) {
+          price(evaluator, CsvRowCells(reader, record), static_cast<std::size_t>(response_index));
         }
-        double observed = 0;
-        const CellKind kind = ClassifyCell(record.fields[static_cast<std::size_t>(response_index)].text,
-                                           csv.missing_tokens, observed);
-        if (kind != CellKind::kNumber || (logged && !(observed > 0))) {
-          ++response_unusable;
-          continue;
-        }
-        if (logged) observed = std::log(observed);
-        const double error = observed - *row.prediction;
-        weighted_squares += row.weight * error * error;
-        weighted_errors += row.weight * error;
-        weight_sum += row.weight;
-        ++rows;
       }
     }
     json not_priced_counts = json::object();

@@ -5,6 +5,7 @@
 #include <unistd.h>
 
 #include <algorithm>
+#include <atomic>
 #include <charconv>
 #include <cmath>
 #include <exception>
@@ -172,17 +173,38 @@ class SpillCells {
   std::size_t row_ = 0;
 };
 
+// The check of the passes this thread runs (PassCheckScope), or null.
+thread_local const PassCheck* current_pass_check = nullptr;
+
 // Reads chunks [first, last) and calls on_row(cells, outcome, x, y, w, x_low) for every row.
+// Before each chunk: returns when *stop is set (a check stopped another share of the pass), and
+// calls this thread's PassCheck; when that throws, sets *stop and lets the error go on. Other
+// errors do not set it, so that the first error in file order is the one reported whatever the
+// timing of the threads.
 template <typename OnRow>
 void ForEachRow(const Spill& spill, const Design& design, const LevelTables& tables, std::uint64_t first,
-                std::uint64_t last, bool low_parts, const OnRow& on_row) {
+                std::uint64_t last, bool low_parts, const OnRow& on_row, const char* pass,
+                std::atomic<bool>* stop = nullptr) {
+  const PassCheck* check = current_pass_check;
   SpillReader reader(spill, first, last);
   SpillCells cells(design, spill, tables);
   SpillChunk chunk;
   std::vector<double> x(design.column_count());
   std::vector<double> x_low(low_parts && design.HasLowOrderParts() ? design.column_count() : 0);
   double y = 0, w = 1;
-  while (reader.Next(chunk)) {
+  std::uint64_t done = 0;
+  while (true) {
+    if (stop != nullptr && stop->load(std::memory_order_relaxed)) return;
+    if (check != nullptr) {
+      try {
+        (*check)(PassProgress{pass, done, last - first});
+      } catch (...) {
+        if (stop != nullptr) stop->store(true, std::memory_order_relaxed);
+        throw;
+      }
+    }
+    if (!reader.Next(chunk)) break;
+    ++done;
     for (std::size_t row = 0; row < chunk.rows; ++row) {
       cells.Point(chunk, row);
       const RowOutcome outcome = design_detail::ExpandRow(design, cells, x, y, w, x_low);
@@ -192,6 +214,12 @@ void ForEachRow(const Spill& spill, const Design& design, const LevelTables& tab
 }
 
 }  // namespace
+
+PassCheckScope::PassCheckScope(PassCheck check) : check_(std::move(check)), previous_(current_pass_check) {
+  current_pass_check = check_ ? &check_ : nullptr;
+}
+
+PassCheckScope::~PassCheckScope() { current_pass_check = previous_; }
 
 void RowAccounting::Add(const RowAccounting& other) {
   rows_read += other.rows_read;
@@ -247,6 +275,7 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
   }
   std::vector<RowAccounting> accounting(workers);
   std::vector<std::exception_ptr> errors(workers);
+  std::atomic<bool> stop{false};  // the check stopped a share: the others stop too
   auto fold_share = [&](std::size_t t) {
     try {
       ForEachRow(spill, design, tables, chunks * t / workers, chunks * (t + 1) / workers, false,
@@ -257,7 +286,8 @@ PassResult RunFactorPass(const Spill& spill, const Design& design, const PassOpt
                    const std::size_t fold =
                        options.folds ? FoldOfRecord(options.folds->seed, record, options.folds->k) : 0;
                    builders[t][fold].AddRow(x, y, w);
-                 });
+                 },
+                 "factor pass", &stop);
     } catch (...) {
       errors[t] = std::current_exception();
     }
@@ -404,7 +434,8 @@ void ForEachUsedRowInRanges(const Spill& spill, const Design& design, const std:
                row.y = y;
                row.weight = w;
                visit(row);
-             });
+             },
+             "replay");
 }
 
 void ForEachUsedRow(const Spill& spill, const Design& design, const std::function<void(const UsedRow&)>& visit,

@@ -100,7 +100,18 @@ std::string PredictedRow::Detail() const {
 // ---- the row evaluator ----------------------------------------------------------------------
 
 PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const CsvReader& reader)
-    : design_(&design), reader_(&reader) {
+    : PredictionRowEvaluator(design, reader.header(), reader.display_name(), &reader) {}
+
+PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const ColumnRows& rows)
+    : PredictionRowEvaluator(design, rows.header(), rows.display_name(), nullptr) {}
+
+PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const std::vector<std::string>& header,
+                                               const std::string& name, const CsvReader* reader)
+    : design_(&design), reader_(reader), display_name_(&name) {
+  const auto column_index = [&header](std::string_view column) -> std::ptrdiff_t {
+    const auto found = std::find(header.begin(), header.end(), column);
+    return found == header.end() ? -1 : found - header.begin();
+  };
   const auto& cells = design.source.cells;
   cell_header_.assign(cells.size(), -1);
   cell_term_.assign(cells.size(), std::string());
@@ -111,82 +122,84 @@ PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const CsvRe
     const auto c = static_cast<std::size_t>(cell);
     if (!cell_term_[c].empty()) continue;
     cell_term_[c] = design.terms[t].name;
-    const std::ptrdiff_t header_index = reader.ColumnIndex(cells[c].column_name);
+    const std::ptrdiff_t header_index = column_index(cells[c].column_name);
     if (header_index < 0) {
+      // A file read with the wrong delimiter has one long column: say so.
       const std::optional<std::string> separator_hint =
-          SeparatorHint(reader.header().size(), reader.header().empty() ? "" : reader.header().front());
-      throw InputError(reader.path().string() + ": no column " + Quote(cells[c].column_name) +
-                       " in the header; term " + Quote(design.terms[t].name) + " of the model needs it" +
+          reader == nullptr ? std::nullopt : SeparatorHint(header.size(), header.empty() ? "" : header.front());
+      throw InputError(name + ": no column " + Quote(cells[c].column_name) + " in the header; term " +
+                       Quote(design.terms[t].name) + " of the model needs it" +
                        (separator_hint ? "; " + *separator_hint : std::string()));
     }
     cell_header_[c] = header_index;
   }
-  if (design.weights) weights_header_ = reader.ColumnIndex(*design.weights);
+  if (design.weights) weights_header_ = column_index(*design.weights);
 }
 
 EvaluatedRow PredictionRowEvaluator::Evaluate(const CsvRecord& record) const {
+  if (reader_ == nullptr) {
+    throw std::logic_error("PredictionRowEvaluator: a CSV record given to an evaluator bound to columns (a bug)");
+  }
+  return Evaluate(CsvRowCells(*reader_, record));
+}
+
+EvaluatedRow PredictionRowEvaluator::Evaluate(const RowCells& source) const {
   const Design& design = *design_;
   const auto& cells = design.source.cells;
-  const std::vector<std::string>& missing_tokens = reader_->options().missing_tokens;
   EvaluatedRow row;
-  row.row_index = record.row_index;
-  row.line = record.line;
+  row.row_index = source.row_index();
+  row.line = source.line();
   row.cell_values.assign(cells.size(), 0.0);
   row.cell_places.assign(cells.size(), CellPlace{});
-  row.file = reader_->display_name();
+  row.file = *display_name_;
   std::vector<std::size_t> cell_levels(cells.size(), kNoTerm);
 
-  auto problem = [&](PredictionFlag flag, const std::string& column, const std::string& term,
-                     const CsvField& field, std::string reason) {
+  auto problem = [&](PredictionFlag flag, const std::string& column, const std::string& term, const RowCell& cell,
+                     std::string reason) {
     row.problems.push_back({flag, column, term,
-                            flag == PredictionFlag::kMissing ? std::string() : std::string(field.text),
-                            reader_->Where(field), std::move(reason)});
+                            flag == PredictionFlag::kMissing ? std::string() : std::string(cell.text),
+                            FormatLocation(*display_name_, cell.place.line, cell.place.column), std::move(reason)});
   };
 
   for (std::size_t c = 0; c < cells.size(); ++c) {
     if (cell_header_[c] < 0) continue;
-    const Design::Source::Cell& cell = cells[c];
-    const CsvField& field = record.fields[static_cast<std::size_t>(cell_header_[c])];
-    double value = 0;
-    const CellKind kind = ClassifyCell(field.text, missing_tokens, value);
-    if (kind == CellKind::kMissing) {
+    const Design::Source::Cell& design_cell = cells[c];
+    const RowCell cell = source.Cell(static_cast<std::size_t>(cell_header_[c]));
+    if (cell.kind == CellKind::kMissing) {
       // A column read both as numbers and as levels is missing once.
       const bool listed = std::any_of(row.problems.begin(), row.problems.end(), [&](const RowProblem& p) {
-        return p.flag == PredictionFlag::kMissing && p.column == cell.column_name;
+        return p.flag == PredictionFlag::kMissing && p.column == design_cell.column_name;
       });
-      if (!listed) problem(PredictionFlag::kMissing, cell.column_name, cell_term_[c], field, "");
+      if (!listed) problem(PredictionFlag::kMissing, design_cell.column_name, cell_term_[c], cell, "");
       continue;
     }
-    if (cell.categorical) {
-      const auto& levels = design.source.level_index[cell.term];
-      const auto level = levels.find(field.text);
+    if (design_cell.categorical) {
+      const auto& levels = design.source.level_index[design_cell.term];
+      const auto level = levels.find(cell.text);
       if (level == levels.end()) {
-        problem(PredictionFlag::kUnknownLevel, cell.column_name, cell_term_[c], field, "");
+        problem(PredictionFlag::kUnknownLevel, design_cell.column_name, cell_term_[c], cell, "");
       } else {
         cell_levels[c] = level->second;
       }
       continue;
     }
-    if (kind != CellKind::kNumber) {
-      problem(PredictionFlag::kInvalidValue, cell.column_name, cell_term_[c], field,
-              kind == CellKind::kNonFinite ? "is not a finite number" : "is not a number");
+    if (cell.kind != CellKind::kNumber) {
+      problem(PredictionFlag::kInvalidValue, design_cell.column_name, cell_term_[c], cell,
+              cell.kind == CellKind::kNonFinite ? "is not a finite number" : "is not a number");
       continue;
     }
-    row.cell_values[c] = value;
-    row.cell_places[c] = CellPlace{field.line, field.column};
+    row.cell_values[c] = cell.number;
+    row.cell_places[c] = cell.place;
   }
 
   if (weights_header_ >= 0) {
-    const CsvField& field = record.fields[static_cast<std::size_t>(weights_header_)];
-    double value = 0;
-    const CellKind kind = ClassifyCell(field.text, missing_tokens, value);
-    if (kind == CellKind::kNumber && value > 0) {
-      row.weight = value;
-    } else if (kind != CellKind::kMissing) {
+    const RowCell cell = source.Cell(static_cast<std::size_t>(weights_header_));
+    if (cell.kind == CellKind::kNumber && cell.number > 0) {
+      row.weight = cell.number;
+    } else if (cell.kind != CellKind::kMissing) {
       // A zero weight would make the prediction interval infinite; text or a negative
       // weight is a mistake in the file.
-      problem(PredictionFlag::kInvalidValue, *design.weights, "", field,
-              "is not a positive weight");
+      problem(PredictionFlag::kInvalidValue, *design.weights, "", cell, "is not a positive weight");
     }
   }
 
@@ -204,8 +217,7 @@ EvaluatedRow PredictionRowEvaluator::Evaluate(const CsvRecord& record) const {
                                     [&](const RowProblem& p) { return p.column == cells[c].column_name; });
     if (listed) continue;
     problem(PredictionFlag::kInvalidValue, cells[c].column_name, term.name,
-            record.fields[static_cast<std::size_t>(cell_header_[c])],
-            "is not positive, and a log term needs a value > 0");
+            source.Cell(static_cast<std::size_t>(cell_header_[c])), "is not positive, and a log term needs a value > 0");
   }
   row.x.clear();
   return row;

@@ -13,6 +13,7 @@
 #include <malloc.h>
 #endif
 
+#include <algorithm>
 #include <cstddef>
 #include <mutex>
 #include <new>
@@ -41,8 +42,9 @@ inline void ShareOneMallocArenaUnderAnAddressLimit() {
   });
 }
 
-/// Runs task(0) ... task(count - 1), each on its own thread when the system gives one; those
-/// that get none run on the calling thread, in order, while the started ones run. Returns when
+/// Runs task(0) ... task(count - 1): the first count - 1 each on its own thread when the system
+/// gives one, the last one (and those that get no thread) on the calling thread, in order, while
+/// the started ones run. Returns when
 /// every task has finished. Tasks must be independent (their order of running is not fixed) and
 /// should catch their own errors; an exception that escapes a task run on the calling thread
 /// propagates once every started thread has been joined (one escaping a started thread ends
@@ -51,7 +53,8 @@ inline void ShareOneMallocArenaUnderAnAddressLimit() {
 ///
 /// max_at_once (>= 1) bounds how many tasks run at the same time (a pass whose threads each
 /// need a large buffer under an address-space limit): below count, only max_at_once - 1 threads
-/// are started and the calling thread runs the other tasks, with a notice giving `why`. The
+/// are started and the calling thread runs the other tasks, with a notice giving `why` (at or
+/// above count, count - 1 threads and the calling thread, without a notice). The
 /// tasks and their order of results are the same either way, so the results are too.
 template <typename Task>
 void RunTasks(std::size_t count, const Task& task, std::string_view what, std::size_t max_at_once,
@@ -73,7 +76,11 @@ void RunTasks(std::size_t count, const Task& task, std::string_view what, std::s
       // A note that cannot be written (no memory for it) must not stop the work.
     }
   };
-  const std::size_t to_start = max_at_once >= count ? count : (max_at_once == 0 ? 0 : max_at_once - 1);
+  // The calling thread runs a task itself (the last ones) rather than wait idle: one thread fewer,
+  // and whatever the calling thread checks between blocks of its work (a PassCheck,
+  // engine/data_pass.h) goes on while the pass runs.
+  const std::size_t at_once = std::min(count, std::max<std::size_t>(max_at_once, 1));
+  const std::size_t to_start = at_once == 0 ? 0 : at_once - 1;
   if (to_start < count && max_at_once < count) {
     notice(std::string(what) + " runs " + std::to_string(max_at_once) + " of its " + std::to_string(count) +
            " parts at a time instead of all at once: " + std::string(why));

@@ -8,8 +8,9 @@
 2. prints the route, the coefficients, the criteria and the cautions, and writes the audit and
    the reviewer's report (OUT_DIR, default build/python-example);
 3. verifies the audit against the frame (fingerprint of the frame's canonical form and a replay);
-4. prices the listings waiting for a price (predictions, intervals and flags);
-5. reruns the recorded plan on next month's listings and says what changed.
+4. prices the listings waiting for a price, read into a frame (predictions, intervals and flags);
+5. reruns the recorded plan on next month's listings (a frame) and says what changed, the old
+   model's error on the new listings included.
 """
 
 import pathlib
@@ -74,7 +75,8 @@ def main():
           f"(the frame's canonical form), replay {check.checks['checks']['replay']}")
 
     print("\n4. Pricing the listings waiting for a price")
-    prices = stepledger.predict(OUT / "month1" / "audit.json", DATA / "laptops_to_price.csv", id="listing_id")
+    waiting = pandas.read_csv(DATA / "laptops_to_price.csv", float_precision="round_trip")
+    prices = stepledger.predict(OUT / "month1" / "audit.json", waiting, id="listing_id")
     for _, row in prices.iterrows():
         if row["prediction"] is None or row["prediction"] != row["prediction"]:
             print(f"  {row['id']}: not priced ({row['detail']})")
@@ -84,8 +86,8 @@ def main():
                   f"{row['pi_low']:.2f} to {row['pi_high']:.2f}){flags}")
 
     print("\n5. Next month: the recorded plan on the new listings")
-    month2 = stepledger.rerun(OUT / "month1" / "audit.json", DATA / "laptops_month2.csv", out=OUT / "month2",
-                              force=True)
+    next_month = pandas.read_csv(DATA / "laptops_month2.csv", float_precision="round_trip")
+    month2 = stepledger.rerun(OUT / "month1" / "audit.json", next_month, out=OUT / "month2", force=True)
     print(month2.comparison_text())
     return 0 if check.holds else 1
 

@@ -23,7 +23,9 @@
 #include "stepledger/audit/prediction_json.h"
 #include "stepledger/audit/rerun.h"
 #include "stepledger/engine/csv.h"
+#include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/prediction.h"
+#include "stepledger/engine/row_cells.h"
 #include "stepledger/engine/errors.h"
 #include "stepledger/engine/limits.h"
 #include "stepledger/io/atomic_file.h"
@@ -124,8 +126,9 @@ DataArgument MakeData(const py::object& data) {
   return argument;
 }
 
-/// Runs work with the GIL released, the hooks set on the columns; a PythonStop ends in the
-/// kept Python error (KeyboardInterrupt for Ctrl-C), after the run's cleanup has run.
+/// Runs work with the GIL released, the hooks set on the columns and on the passes over the spill
+/// (PassCheckScope, engine/data_pass.h); a PythonStop ends in the kept Python error
+/// (KeyboardInterrupt for Ctrl-C), after the run's cleanup has run.
 template <typename Work>
 auto WithoutGil(PythonHooks& hooks, DataArgument* data, Work&& work) -> decltype(work()) {
   if (data != nullptr && data->columns) data->columns->SetHooks(&hooks);
@@ -135,6 +138,10 @@ auto WithoutGil(PythonHooks& hooks, DataArgument* data, Work&& work) -> decltype
       if (data != nullptr && data->columns) data->columns->SetHooks(nullptr);
     }
   } unset{data};
+  // Ctrl-C and progress inside the passes over the spill too (the factor pass, every replay),
+  // before each block of a few thousand rows.
+  const PassCheckScope pass_check(
+      [&hooks](const PassProgress& progress) { hooks.Report(progress.pass, progress.done, progress.total); });
   try {
     py::gil_scoped_release release;
     return work();
@@ -275,10 +282,15 @@ std::shared_ptr<RunHandle> Rerun(const std::string& audit_path, const py::object
   return handle;
 }
 
-/// Prices the rows of a CSV file with an audit's final model, as `predict --json` does: one JSON
-/// object per row (PredictedRowJson), in file order.
-py::tuple Predict(const std::string& audit_path, const std::string& rows_path, double level, const std::string& id_column,
-                  bool allow_unverified) {
+/// Prices rows with an audit's final model, as `predict --json` does: one JSON object per row
+/// (PredictedRowJson), in row order, handed to sink(bytes) as the text of a JSON array of up to
+/// kPredictSinkRows rows at a time (the package builds its table from them), so that nothing here
+/// grows with the rows. The rows are a CSV file (a path) or columns in memory (Columns), read
+/// through the same evaluator (engine/row_cells.h). Returns the warning ("" when none).
+constexpr std::size_t kPredictSinkRows = 4096;
+
+std::string Predict(const std::string& audit_path, const py::object& rows_argument, double level,
+                    const std::string& id_column, bool allow_unverified, const py::object& sink) {
   const nlohmann::json document = ReadAudit(audit_path);
   std::optional<FittedModel> fitted;
   try {
@@ -300,29 +312,104 @@ py::tuple Predict(const std::string& audit_path, const std::string& rows_path, d
   PredictionOptions options;
   options.level = level;
   options.Validate();
+  std::optional<DataArgument> in_memory;
+  if (py::isinstance<PythonColumns>(rows_argument)) in_memory = MakeData(rows_argument);
+  const std::string rows_path = in_memory ? std::string() : rows_argument.cast<std::string>();
   PythonHooks hooks{py::object(py::none())};
-  std::string rows_text = WithoutGil(hooks, nullptr, [&] {
+  WithoutGil(hooks, in_memory ? &*in_memory : nullptr, [&] {
     const Predictor predictor(MakePricingModel(*fitted), options);
-    CsvOptions csv;
-    csv.missing_tokens = fitted->missing_tokens;
-    CsvReader reader(rows_path, csv);
-    std::ptrdiff_t id_index = -1;
-    if (!id_column.empty()) {
-      id_index = reader.ColumnIndex(id_column);
-      if (id_index < 0) throw InputError(rows_path + ": no column '" + QuoteForMessage(id_column) + "' in the header (named by id)");
-    }
-    const PredictionRowEvaluator evaluator(predictor.design(), reader);
-    nlohmann::json rows = nlohmann::json::array();
-    CsvRecord record;
+    std::string text;
+    std::size_t rows_in_text = 0;
+    const auto flush = [&] {
+      if (rows_in_text == 0) return;
+      text += ']';
+      py::gil_scoped_acquire gil;
+      try {
+        sink(py::bytes(text));
+      } catch (py::error_already_set& error) {
+        error.restore();
+        hooks.StopWithPythonError();
+      }
+      text.clear();
+      rows_in_text = 0;
+    };
     std::string id;
-    while (reader.Next(record)) {
-      const PredictedRow row = predictor.Predict(evaluator.Evaluate(record));
-      if (id_index >= 0) id.assign(record.fields[static_cast<std::size_t>(id_index)].text);
-      rows.push_back(PredictedRowJson(row, id_index >= 0 ? &id : nullptr));
+    // id: the id cell's text (a CSV field as written; a column's cell as RowCell gives it), or null.
+    const auto add = [&](const PredictionRowEvaluator& evaluator, const RowCells& cells, const std::string* row_id) {
+      const PredictedRow row = predictor.Predict(evaluator.Evaluate(cells));
+      text += rows_in_text == 0 ? '[' : ',';
+      text += PredictedRowJson(row, row_id).dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
+      if (++rows_in_text == kPredictSinkRows) flush();
+    };
+    const auto id_index_in = [&](std::ptrdiff_t found, const std::string& name) {
+      if (id_column.empty()) return std::ptrdiff_t{-1};
+      if (found < 0) throw InputError(name + ": no column '" + QuoteForMessage(id_column) + "' in the header (named by id)");
+      return found;
+    };
+    if (in_memory) {
+      ColumnRows rows(*in_memory->columns);
+      const std::ptrdiff_t id_index = id_index_in(rows.ColumnIndex(id_column), rows.display_name());
+      const PredictionRowEvaluator evaluator(predictor.design(), rows);
+      while (rows.Next()) {
+        if (id_index >= 0) id.assign(rows.Cell(static_cast<std::size_t>(id_index)).text);
+        add(evaluator, rows, id_index >= 0 ? &id : nullptr);
+      }
+    } else {
+      CsvOptions csv;
+      csv.missing_tokens = fitted->missing_tokens;
+      CsvReader reader(rows_path, csv);
+      const std::ptrdiff_t id_index = id_index_in(reader.ColumnIndex(id_column), rows_path);
+      const PredictionRowEvaluator evaluator(predictor.design(), reader);
+      CsvRecord record;
+      while (reader.Next(record)) {
+        if (id_index >= 0) id.assign(record.fields[static_cast<std::size_t>(id_index)].text);
+        add(evaluator, CsvRowCells(reader, record), id_index >= 0 ? &id : nullptr);
+      }
     }
-    return rows.dump(-1, ' ', false, nlohmann::json::error_handler_t::replace);
+    flush();
+    return 0;
   });
-  return py::make_tuple(rows_text, warning);
+  return warning;
+}
+
+/// `report AUDIT --html OUT [--data DATA] [--title T] [--allow-unverified]`: the HTML report of
+/// an audit file, composed as the command composes it (integrity, DiagnoseAuditRows with data,
+/// BuildReportModel, RenderHtmlReport), written atomically (an existing file needs force). Data
+/// may be a path, a list of paths or columns in memory (DiagnoseAuditRows scans a DataSet and
+/// checks its fingerprint against the audit's).
+void Report(const std::string& audit_path, const std::string& out, const py::object& data, bool force,
+            bool allow_unverified, const std::string& title, int threads, const std::string& work_dir) {
+  const nlohmann::json audit = ReadAudit(audit_path);
+  const std::string audit_name = std::filesystem::path(audit_path).filename().string();
+  ReportOptions options;
+  options.title = title;
+  const InputLimits limits;
+  const VerifyReport integrity = CheckAuditIntegrity(audit, {}, limits);
+  if (!integrity.Holds()) {
+    if (!allow_unverified) {
+      throw AuditInputError(audit_path + ": the audit does not verify (" + integrity.problems.front() +
+                                "); refusing to render it. stepledger.verify lists every problem; "
+                                "allow_unverified=True renders it anyway, with a warning at the top",
+                            "");
+    }
+    options.integrity_problems = integrity.problems;
+  }
+  std::optional<ReportDiagnostics> diagnostics;
+  if (!data.is_none()) {
+    DataArgument argument = MakeData(data);
+    DataReadOptions read_options;
+    read_options.threads = threads;
+    read_options.work_dir = work_dir;
+    read_options.limits = limits;
+    PythonHooks hooks{py::object(py::none())};
+    diagnostics = WithoutGil(hooks, &argument, [&] {
+      return DiagnoseAuditRows(audit, argument.set, audit_name, {}, read_options);
+    });
+  }
+  const ReportModel model = BuildReportModel(audit, diagnostics ? &*diagnostics : nullptr, options);
+  AtomicWriteOptions write;
+  write.overwrite = force;
+  WriteFileAtomically(out, RenderHtmlReport(model, options.chart_width), write);
 }
 
 /// `profile --json` for Python: the columns, the fingerprint and, with a response, the starter plan.
@@ -409,7 +496,9 @@ PYBIND11_MODULE(_stepledger, module) {
   module.def("rerun", &Rerun, py::arg("audit"), py::arg("data"), py::arg("threads"), py::arg("work_dir"),
              py::arg("sign_key"), py::arg("progress"));
   module.def("predict", &Predict, py::arg("audit"), py::arg("rows"), py::arg("level"), py::arg("id"),
-             py::arg("allow_unverified"));
+             py::arg("allow_unverified"), py::arg("sink"));
+  module.def("report", &Report, py::arg("audit"), py::arg("out"), py::arg("data"), py::arg("force"),
+             py::arg("allow_unverified"), py::arg("title"), py::arg("threads"), py::arg("work_dir"));
   module.def("compare", &Compare, py::arg("old"), py::arg("new"));
   module.def("profile", &Profile, py::arg("data"), py::arg("response"), py::arg("threads"));
   module.def("fingerprint", &Fingerprint, py::arg("data"));

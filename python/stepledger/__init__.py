@@ -25,7 +25,7 @@ except ImportError:  # pragma: no cover - Debian's python3-pandas is installed b
 
 import numpy as _numpy
 
-__all__ = ["profile", "select", "fit", "verify", "compare", "rerun", "predict", "fingerprint", "Profile", "Result", "Verification", "Comparison",
+__all__ = ["profile", "select", "fit", "verify", "compare", "rerun", "predict", "report", "fingerprint", "Profile", "Result", "Verification", "Comparison",
            "InputError", "PlanError", "NumericalError", "AuditError"]
 
 for _error in (InputError, PlanError, NumericalError, AuditError):
@@ -150,9 +150,12 @@ _ORDER = ("index", "step", "action", "name", "term", "size", "terms", "estimate"
           "vif", "criterion_before", "criterion_value", "df", "rss", "score", "f", "eligible", "reason", "rule")
 
 
+def _ordered_keys(keys):
+    return sorted(keys, key=lambda key: (_ORDER.index(key) if key in _ORDER else len(_ORDER), key))
+
+
 def _table(rows):
-    rows = [dict(sorted(row.items(), key=lambda item: (_ORDER.index(item[0]) if item[0] in _ORDER else len(_ORDER),
-                                                       item[0]))) for row in rows]
+    rows = [{key: row[key] for key in _ordered_keys(row)} for row in rows]
     if _pandas is None:
         return rows
     return _pandas.DataFrame(rows)
@@ -366,8 +369,8 @@ def fingerprint(data):
 def rerun(audit, data, *, out=None, force=False, threads=None, work_dir=None, sign_key=None, progress=None):
     """The recorded plan of audit on new data (as `stepledger rerun`): a Result whose audit links to its parent.
 
-    With out, writes out/audit.json and out/report.html. For data in memory the old model's prices on the
-    new rows are not compared (comparison["prediction"]["available"] is false): give the new data as a file.
+    With out, writes out/audit.json and out/report.html. The comparison includes the old model's prices on
+    the new rows (comparison["prediction"]) for a file and for data in memory alike.
     """
     handle = _stepledger.rerun(os.fspath(audit), _data_argument(data), 0 if threads is None else int(threads),
                                os.fspath(work_dir) if work_dir else "", os.fspath(sign_key) if sign_key else "",
@@ -378,16 +381,78 @@ def rerun(audit, data, *, out=None, force=False, threads=None, work_dir=None, si
     return result
 
 
-def predict(audit, rows, *, level=0.95, id=None, allow_unverified=False):
-    """Prices the rows of a CSV file with the audit's final model (as `stepledger predict --json`).
+# predict's columns that hold numbers: counts, and numbers that are null where a row has none.
+_PREDICT_COUNTS = ("row", "line")
+_PREDICT_NUMBERS = ("prediction", "se_mean", "ci_low", "ci_high", "pi_low", "pi_high", "leverage", "weight")
 
+
+def _rows_argument(rows):
+    """predict's rows: a CSV path as is, a frame or mapping as _stepledger.Columns."""
+    if isinstance(rows, (str, os.PathLike)):
+        return os.fspath(rows)
+    if (_pandas is not None and isinstance(rows, _pandas.DataFrame)) or isinstance(rows, Mapping):
+        return _data_argument(rows)
+    raise TypeError("rows: expected a CSV file path, a pandas DataFrame or a mapping of column names to numpy "
+                    f"arrays or lists, got {type(rows).__name__}")
+
+
+def predict(audit, rows, *, level=0.95, id=None, allow_unverified=False):
+    """Prices rows with the audit's final model (as `stepledger predict --json`).
+
+    rows: a CSV file path, or rows in memory (a pandas DataFrame, or a mapping of column names to numpy
+    arrays or lists), read a chunk at a time through the same evaluator as a file: number columns as
+    doubles (NaN missing, as an empty cell), text and categorical columns as level text (None or NaN
+    missing); a text column is never read as numbers. Problems name a cell "memory:ROW:COLUMN" and
+    `line` is the 1-based row.
     Returns one row per record: prediction, se_mean, intervals (ci_*, pi_*), back_transformed (logged
-    response), leverage, flags, outside_range, problems, detail. An audit whose digests do not hold raises
-    AuditError unless allow_unverified.
+    response), leverage, weight, flags, outside_range, problems, detail, and id with id=COLUMN (a pandas
+    DataFrame; its number columns are float64 with NaN where a row has none). An audit
+    whose digests do not hold raises AuditError unless allow_unverified.
     """
-    rows_text, warning = _stepledger.predict(os.fspath(audit), os.fspath(rows), float(level), id or "",
-                                             bool(allow_unverified))
+    # The rows arrive a few thousand at a time as JSON text and go straight into the table's columns:
+    # numbers into numpy arrays a chunk at a time (NaN where a row has none), so that nothing but the
+    # table grows with the rows.
+    columns = {}
+    records = []
+
+    def sink(text):
+        parsed = json.loads(text)
+        if _pandas is None:
+            records.extend(parsed)
+            return
+        for key in parsed[0]:
+            values = [row[key] for row in parsed]
+            if key in _PREDICT_COUNTS:
+                values = _numpy.array(values, dtype=_numpy.int64)
+            elif key in _PREDICT_NUMBERS:
+                values = _numpy.array([_numpy.nan if value is None else value for value in values], dtype=_numpy.float64)
+            columns.setdefault(key, []).append(values)
+
+    warning = _stepledger.predict(os.fspath(audit), _rows_argument(rows), float(level), id or "",
+                                  bool(allow_unverified), sink)
     if warning:
         import warnings
         warnings.warn(warning)
-    return _table(json.loads(rows_text))
+    if _pandas is None:
+        return _table(records)
+    table = {}
+    for key in _ordered_keys(columns):
+        chunks = columns.pop(key)
+        table[key] = (_numpy.concatenate(chunks) if key in _PREDICT_COUNTS or key in _PREDICT_NUMBERS
+                      else [value for chunk in chunks for value in chunk])
+    return _pandas.DataFrame(table)
+
+
+def report(audit, out, data=None, *, force=False, allow_unverified=False, title=None, threads=None, work_dir=None):
+    """Writes the HTML report of an audit file to out (as `stepledger report AUDIT --html OUT`).
+
+    data (a path, a list of paths, a DataFrame or a mapping, as `--data`): the audited data, whose
+    fingerprint must be the audit's; adds the diagnostics of the final model. An existing out needs
+    force; an audit whose digests do not hold raises AuditError unless allow_unverified (then the
+    report opens with a warning). Returns out.
+    """
+    _stepledger.report(os.fspath(audit), os.fspath(out), None if data is None else _data_argument(data),
+                       bool(force), bool(allow_unverified), title or "",
+                       _default_threads() if threads is None else int(threads),
+                       os.fspath(work_dir) if work_dir else "")
+    return out

@@ -284,6 +284,56 @@ TEST(DataPassTest, ARefusedThreadRunsItsShareOnTheCallingThread) {
 
 // RequireSomethingToFit on passes made by hand: every branch, including a pass that read no row
 // (RunPlan never gets there: a header alone leaves the response empty, a PlanError).
+// PassCheckScope: the passes the thread runs call its check before each spill chunk (with the
+// chunks of its share done and in all); a check that throws stops the pass with its error, for one
+// thread and for several (the calling thread folds the last share and checks between its chunks;
+// the other shares stop at their next chunk); out of the scope nothing is called.
+TEST(DataPassTest, APassCheckSeesEveryChunkAndStopsThePassByThrowing) {
+  TempDir folder;
+  const Generated data = Generate(20000);  // 5 spill chunks
+  const auto path = folder.Write("generated.csv", data.text);
+  ScanOptions scan_options;
+  scan_options.work_dir = folder.path();
+  const ScanResult scan = ScanData(path, scan_options);
+  ASSERT_EQ(scan.spill->chunk_count(), 5u);
+  const Design design = BuildDesign(GeneratedSpec(), scan.profile);
+  PassOptions options;
+  const PassResult unchecked = RunFactorPass(*scan.spill, design, options);
+  struct Stop {};
+  for (int threads : {1, 3}) {
+    options.threads = threads;
+    std::vector<std::string> calls;
+    {
+      const PassCheckScope scope([&calls](const PassProgress& progress) {
+        calls.push_back(std::string(progress.pass) + " " + std::to_string(progress.done) + "/" +
+                        std::to_string(progress.total));
+      });
+      const PassResult checked = RunFactorPass(*scan.spill, design, options);
+      EXPECT_TRUE(arma::approx_equal(checked.factor.r, unchecked.factor.r, "reldiff", 1e-12));
+      ForEachUsedRow(*scan.spill, design, [](const UsedRow&) {});
+    }
+    // The calling thread's share: all 5 chunks with one thread, the last share (chunks 3 and 4 of
+    // 0..4: 5 * 2 / 3 = 3 to 5) with three; each check before a chunk and one at the end. Then
+    // the replay of all 5 chunks.
+    const std::vector<std::string> expected_pass =
+        threads == 1 ? std::vector<std::string>{"factor pass 0/5", "factor pass 1/5", "factor pass 2/5",
+                                                "factor pass 3/5", "factor pass 4/5", "factor pass 5/5"}
+                     : std::vector<std::string>{"factor pass 0/2", "factor pass 1/2", "factor pass 2/2"};
+    std::vector<std::string> expected = expected_pass;
+    for (int done = 0; done <= 5; ++done) expected.push_back("replay " + std::to_string(done) + "/5");
+    EXPECT_EQ(calls, expected) << threads << " threads";
+
+    const PassCheckScope stopping([](const PassProgress& progress) {
+      if (progress.done == 1) throw Stop{};
+    });
+    EXPECT_THROW(RunFactorPass(*scan.spill, design, options), Stop) << threads << " threads";
+    EXPECT_THROW(ForEachUsedRow(*scan.spill, design, [](const UsedRow&) {}), Stop);
+  }
+  // Out of every scope: no check.
+  options.threads = 1;
+  EXPECT_NO_THROW(RunFactorPass(*scan.spill, design, options));
+}
+
 TEST(DataPassTest, NothingToFitIsRefusedNamingWhy) {
   Design design;
   design.response = "price";

@@ -15,6 +15,7 @@
 #include <string>
 #include <vector>
 
+#include "stepledger/engine/column_source.h"
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/errors.h"
@@ -335,6 +336,103 @@ TEST_F(PredictionFlags, EachFlagOnTheRowBuiltForIt) {
             1e-12);
   EXPECT_LT(Relative(rows[0].ci->high - rows[0].ci->low, 2 * *Predictor(fitted_.model).t_quantile() * sigma * std::sqrt(h0)),
             1e-12);
+}
+
+// Columns in memory (engine/row_cells.h, ColumnRows) are priced by the same evaluator as the rows
+// of a file: the rows of EachFlagOnTheRowBuiltForIt (but "ten", which a number column cannot hold:
+// +infinity instead, "not a finite number" in both) give the same flags, problems and bits; places
+// are named "memory:ROW:COLUMN"; a column the model does not need is never read.
+class VectorColumns : public ColumnSource {
+ public:
+  std::vector<MemoryColumn> names;
+  std::vector<std::vector<double>> numbers;           // per column (empty for text columns)
+  std::vector<std::vector<const char*>> texts;        // per column (nullptr: missing)
+  std::vector<int> reads;
+  const std::vector<MemoryColumn>& columns() const override { return names; }
+  std::uint64_t rows() const override { return numbers[0].empty() ? texts[0].size() : numbers[0].size(); }
+  void ReadNumbers(std::size_t column, std::uint64_t first, std::size_t count, double* out) override {
+    ++reads[column];
+    for (std::size_t i = 0; i < count; ++i) out[i] = numbers[column][first + i];
+  }
+  void ReadTexts(std::size_t column, std::uint64_t first, std::size_t count, std::vector<std::string>& out,
+                 std::vector<char>& missing) override {
+    ++reads[column];
+    for (std::size_t i = 0; i < count; ++i) {
+      const char* text = texts[column][first + i];
+      missing[i] = text == nullptr ? 1 : 0;
+      if (text != nullptr) out[i] = text;
+    }
+  }
+};
+
+TEST_F(PredictionFlags, ColumnsInMemoryArePricedAsTheSameRowsOfAFile) {
+  const double nan = std::numeric_limits<double>::quiet_NaN();
+  const double inf = std::numeric_limits<double>::infinity();
+  const std::vector<PredictedRow> from_file = Price(
+      "g,d,b,a,w,unused\n"
+      "q,10,5,5,1,x\n"
+      "p,10,5,25,1,x\n"
+      "r,400,5,5,1,x\n"
+      "p,10,9.5,0.5,1,x\n"
+      "z,10,5,5,1,x\n"
+      "q,10,NA,5,1,x\n"
+      "q,inf,5,5,1,x\n"
+      "q,0,5,5,1,x\n"
+      "q,10,5,5,0,x\n"
+      "q,10,5,5,4,x\n");
+  VectorColumns columns;
+  columns.names = {{"g", MemoryColumnKind::kText}, {"d", MemoryColumnKind::kNumber}, {"b", MemoryColumnKind::kNumber},
+                   {"a", MemoryColumnKind::kNumber}, {"w", MemoryColumnKind::kNumber},
+                   {"unused", MemoryColumnKind::kText}};
+  columns.numbers = {{},
+                     {10, 10, 400, 10, 10, 10, inf, 0, 10, 10},
+                     {5, 5, 5, 9.5, 5, nan, 5, 5, 5, 5},
+                     {5, 25, 5, 0.5, 5, 5, 5, 5, 5, 5},
+                     {1, 1, 1, 1, 1, 1, 1, 1, 0, 4},
+                     {}};
+  columns.texts = {{"q", "p", "r", "p", "z", "q", "q", "q", "q", "q"}, {}, {}, {}, {}, std::vector<const char*>(10, "x")};
+  columns.reads.assign(6, 0);
+  const Predictor predictor(fitted_.model);
+  ColumnRows rows(columns);
+  const PredictionRowEvaluator evaluator(predictor.design(), rows);
+  std::vector<PredictedRow> from_memory;
+  while (rows.Next()) from_memory.push_back(predictor.Predict(evaluator.Evaluate(rows)));
+  ASSERT_EQ(from_memory.size(), from_file.size());
+  for (std::size_t i = 0; i < from_file.size(); ++i) {
+    const PredictedRow& file = from_file[i];
+    const PredictedRow& memory = from_memory[i];
+    EXPECT_EQ(memory.row_index, file.row_index);
+    EXPECT_EQ(memory.line, file.line - 1) << "memory rows count from 1, file lines after the header";
+    EXPECT_EQ(memory.flags, file.flags) << i;
+    EXPECT_EQ(memory.Detail(), file.Detail()) << i;
+    EXPECT_EQ(memory.weight, file.weight) << i;
+    ASSERT_EQ(memory.priced(), file.priced()) << i;
+    if (file.priced()) {
+      EXPECT_EQ(*memory.prediction, *file.prediction) << i;
+      EXPECT_EQ(*memory.leverage, *file.leverage) << i;
+      EXPECT_EQ(memory.pi->low, file.pi->low) << i;
+    }
+    ASSERT_EQ(memory.problems.size(), file.problems.size()) << i;
+    for (std::size_t p = 0; p < file.problems.size(); ++p) {
+      EXPECT_EQ(memory.problems[p].text, file.problems[p].text);
+      EXPECT_EQ(memory.problems[p].reason, file.problems[p].reason);
+    }
+  }
+  EXPECT_EQ(from_memory[5].problems.at(0).where, "memory:6:3");
+  EXPECT_EQ(from_memory[6].problems.at(0).text, "inf");
+  EXPECT_EQ(from_memory[6].problems.at(0).reason, "is not a finite number");
+  // One chunk: every needed column read once, the unused one never.
+  EXPECT_EQ(columns.reads, (std::vector<int>{1, 1, 1, 1, 1, 0}));
+  // A missing column is named as a file's is.
+  columns.names[2].name = "bb";
+  ColumnRows without_b(columns);
+  try {
+    const PredictionRowEvaluator refused(predictor.design(), without_b);
+    FAIL() << "no error";
+  } catch (const InputError& error) {
+    EXPECT_NE(std::string(error.what()).find("memory: no column 'b' in the header; term 'b'"), std::string::npos)
+        << error.what();
+  }
 }
 
 // Finite values so far out that a number of the row overflows: not priced (an invalid-value

@@ -236,7 +236,9 @@ AuditComparison CompareAudits(const nlohmann::json& old_audit, const nlohmann::j
 /// weighted by the plan's weights. new_model_rmse is sqrt(RSS / sum w) of the new audit.
 /// One pass over the rows; memory does not grow with them. Returns {"available": false,
 /// "reason": ...} when the old model cannot be rebuilt or the data lack its columns. new_data may
-/// be a data set (engine/data_set.h): its files are priced in reading order.
+/// be a data set (engine/data_set.h): its files are priced in reading order; or columns in memory
+/// (DataSet::columns), priced through the same evaluator a chunk of rows at a time
+/// (engine/row_cells.h, ColumnRows).
 nlohmann::json PredictionComparison(const nlohmann::json& old_audit, const nlohmann::json& new_audit,
                                     const DataSet& new_data, const CsvOptions& csv);
 

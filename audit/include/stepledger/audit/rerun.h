@@ -24,9 +24,9 @@ struct RerunResult {
 
 /// Runs the parent's recorded plan on data and builds the linked audit. The caller checks the
 /// parent's integrity first (each says in its own words why it refuses one that does not hold).
-/// parent_name (the parent's file name) names it in messages and the comparison. Data in memory
-/// (DataSet::columns) are compared without the old model's prices (`prediction.available` false:
-/// the prices are made from rows of files). Throws InputError as ReplayRecordedPlan does.
+/// parent_name (the parent's file name) names it in messages and the comparison. The old model
+/// prices the new rows (PredictionComparison) whether they are files or columns in memory
+/// (DataSet::columns). Throws InputError as ReplayRecordedPlan does.
 RerunResult RerunRecordedPlan(const nlohmann::json& parent, const DataSet& data, const std::string& parent_name,
                               const ReplayOverrides& overrides, SearchObserver* observer = nullptr,
                               const std::filesystem::path& sign_key = {});

@@ -21,6 +21,40 @@
 
 namespace stepledger {
 
+/// Where a pass over the spill is: the calling thread's share of it in spill chunks (up to
+/// kSpillChunkRows rows each), done of total; pass is "factor pass" or "replay".
+struct PassProgress {
+  const char* pass = "";
+  std::uint64_t done = 0;
+  std::uint64_t total = 0;
+};
+
+/// A check a pass over the spill calls before each chunk it reads (every few thousand rows: a few
+/// milliseconds of work), so that its caller can report progress or stop it: the check stops the
+/// pass by throwing (anything, a non-std::exception included), and the pass unwinds as from any
+/// other error (the spill is removed by its owner). Cost when none is set: one thread-local read
+/// per chunk.
+using PassCheck = std::function<void(const PassProgress&)>;
+
+/// Sets the check for the passes that the constructing thread runs (the factor pass, its
+/// share of a multi-threaded factor pass, every replay: ForEachUsedRow, BuildFoldFactors,
+/// SpillRowReplay) while the scope lives; restores the previous check on destruction. Thread
+/// local: threads a pass starts do not call it, but in a multi-threaded factor pass the calling
+/// thread folds a share of its own (detail::RunTasks runs one task on the calling thread), so
+/// the check is called throughout the pass, and when it throws the other shares stop at their
+/// next chunk. Used by the Python module for Ctrl-C (python/src/module.cpp).
+class PassCheckScope {
+ public:
+  explicit PassCheckScope(PassCheck check);
+  ~PassCheckScope();
+  PassCheckScope(const PassCheckScope&) = delete;
+  PassCheckScope& operator=(const PassCheckScope&) = delete;
+
+ private:
+  PassCheck check_;
+  const PassCheck* previous_;
+};
+
 struct PassOptions {
   /// Reading options for the conveniences that start from a file (the spill carries its own).
   CsvOptions csv;

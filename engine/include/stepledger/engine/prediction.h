@@ -4,8 +4,8 @@
 // flags that say when a row is an extrapolation or cannot be priced at all.
 //
 // Two steps, so that reading and arithmetic can be tested apart:
-//  1. PredictionRowEvaluator, bound to a CsvReader's header, turns each record into the design
-//     row x0 (through Design::EvaluateTerms, the same code that expands the fitted rows) or into
+//  1. PredictionRowEvaluator, bound to a header (a CsvReader's, or the column names of data in
+//     memory, engine/row_cells.h), turns each row into the design row x0 (through Design::EvaluateTerms, the same code that expands the fitted rows) or into
 //     problems: `missing` (an empty/NA cell), `unknown-level` (a level the fitted data did not
 //     have), `invalid-value` (text or a non-finite number in a numeric column, a non-positive
 //     value under a log, a weight that is not a positive number). A problem is a per-row
@@ -46,6 +46,7 @@
 #include "stepledger/engine/csv.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/fit.h"
+#include "stepledger/engine/row_cells.h"
 
 namespace stepledger {
 
@@ -79,12 +80,6 @@ struct RowProblem {
   std::string Describe() const;
 };
 
-/// Where a cell of a record is (as CsvField: 1-based line and byte column).
-struct CellPlace {
-  std::uint64_t line = 0;
-  std::uint64_t column = 0;
-};
-
 /// A record turned into the design row, or into the reasons it cannot be.
 struct EvaluatedRow {
   std::uint64_t row_index = 0;  ///< 0-based data record index
@@ -103,25 +98,36 @@ struct EvaluatedRow {
   bool ok() const { return problems.empty(); }
 };
 
-/// Reads the cells a design needs from records of one CSV file (its header decides where).
-/// The response is not needed and not read; the weights column is read when present.
+/// Reads the cells a design needs from the rows of one CSV file or of columns in memory (its
+/// header decides where); every row is read through RowCells (engine/row_cells.h), so that both
+/// are priced by the same code. The response is not needed and not read; the weights column is
+/// read when present.
 class PredictionRowEvaluator {
  public:
   /// Binds to the reader's header. Throws InputError "FILE: no column 'C' in the header; term
   /// 'T' needs it" for the first source column of a term that the header lacks. The design and
   /// the reader must outlive the evaluator.
   PredictionRowEvaluator(const Design& design, const CsvReader& reader);
+  /// Binds to the column names of data in memory ("memory: no column 'C' ..." as above). The
+  /// design and the rows must outlive the evaluator.
+  PredictionRowEvaluator(const Design& design, const ColumnRows& rows);
 
-  /// The row's design values, or its problems (every offending cell is listed).
+  /// The row's design values, or its problems (every offending cell is listed; `where` names a
+  /// cell as "NAME:LINE:COLUMN", NAME the file's or the rows' display name).
   /// Cost: O(cells + design columns) and a few small allocations per row.
+  EvaluatedRow Evaluate(const RowCells& cells) const;
+  /// A record of the reader this evaluator was bound to (Evaluate(CsvRowCells(reader, record))).
   EvaluatedRow Evaluate(const CsvRecord& record) const;
 
-  /// True when the file has the plan's weights column (so w0 comes from it).
+  /// True when the rows have the plan's weights column (so w0 comes from it).
   bool reads_weights() const { return weights_header_ >= 0; }
 
  private:
+  PredictionRowEvaluator(const Design& design, const std::vector<std::string>& header, const std::string& name,
+                         const CsvReader* reader);
   const Design* design_;
-  const CsvReader* reader_;
+  const CsvReader* reader_;          ///< null when bound to columns in memory
+  const std::string* display_name_;  ///< the reader's or the rows' (outlives the evaluator)
   std::vector<std::ptrdiff_t> cell_header_;  ///< per design cell: header index; -1 when not read
   std::vector<std::string> cell_term_;       ///< per design cell: the first term needing it
   std::ptrdiff_t weights_header_ = -1;
