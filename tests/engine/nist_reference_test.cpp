@@ -207,25 +207,7 @@ TEST_P(NistReference, RefinementSummedInPartsKeepsTheDigits) {
   const FitResult whole = FitProblem(problem, 256, arma::regspace<arma::uvec>(0, n - 1));
   // Parts as processes would hold them: an empty one, then uneven thirds.
   const std::vector<arma::uword> cuts{0, 0, n / 3, n / 3 + n / 4, n};
-  const SummingReplay parted = [&](std::string_view recipe) {
-    RowSums total;
-    for (std::size_t part = 0; part + 1 < cuts.size(); ++part) {
-      const std::unique_ptr<RowSumKernel> kernel = MakeRowSumKernel(recipe);
-      if (cuts[part + 1] > cuts[part]) {
-        const arma::uvec rows = arma::regspace<arma::uvec>(cuts[part], cuts[part + 1] - 1);
-        testing::MemoryRowReplay(problem.x.rows(rows), problem.y.elem(rows), {},
-                                 problem.x_low.rows(rows))([&](const UsedRow& row) { kernel->Add(row); });
-      }
-      RowSums sums = kernel->Finish();
-      if (part == 0) {
-        EXPECT_EQ(sums.rows, 0u);
-        total = std::move(sums);
-      } else {
-        total.Add(RowSums::Read(sums.Write()));  // through the bytes processes exchange
-      }
-    }
-    return total;
-  };
+  const SummingReplay parted = testing::PartedSummingReplay(problem.x, problem.y, {}, problem.x_low, cuts);
   const FitResult fit = FitModel(factor, problem.design, testing::AllTerms(problem.design), FitOptions{}, parted);
   ASSERT_EQ(fit.status, FitStatus::kCompleted);
   ExpectDigits(Score(fit, data), expected, "refinement summed in four parts");

@@ -73,24 +73,7 @@ TEST(RowSums, RefinementFromPartsMatchesOnePart) {
   for (const std::vector<arma::uword>& cuts : std::vector<std::vector<arma::uword>>{
            {0, 0, n}, {0, 1, n}, {0, 100, 101, 250, n}, {0, n - 1, n}}) {
     int parts_summed = 0;
-    const SummingReplay parted = [&](std::string_view recipe) {
-      RowSums total;
-      for (std::size_t part = 0; part + 1 < cuts.size(); ++part) {
-        const std::unique_ptr<RowSumKernel> kernel = MakeRowSumKernel(recipe);
-        if (cuts[part + 1] > cuts[part]) {
-          const arma::uvec rows = arma::regspace<arma::uvec>(cuts[part], cuts[part + 1] - 1);
-          testing::MemoryRowReplay(x.rows(rows), y.elem(rows), w.elem(rows))([&](const UsedRow& row) {
-            kernel->Add(row);
-          });
-        }
-        const RowSums sums = kernel->Finish();
-        EXPECT_EQ(sums.rows, cuts[part + 1] - cuts[part]);
-        if (part == 0) total = sums;
-        else total.Add(sums);
-        ++parts_summed;
-      }
-      return total;
-    };
+    const SummingReplay parted = testing::PartedSummingReplay(x, y, w, {}, cuts, &parts_summed);
     const FitResult fit = FitModel(factor, design, testing::AllTerms(design), FitOptions{}, parted);
     EXPECT_EQ(parts_summed, static_cast<int>(cuts.size() - 1) * fit.refinement_passes);
     EXPECT_EQ(fit.refinement_passes, whole.refinement_passes);

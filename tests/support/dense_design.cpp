@@ -5,6 +5,8 @@
 #include <stdexcept>
 #include <vector>
 
+#include <gtest/gtest.h>
+
 #include "stepledger/engine/resampling.h"
 
 namespace stepledger::testing {
@@ -107,6 +109,28 @@ RowReplay MemoryRowReplay(const arma::mat& x, const arma::vec& y, const arma::ve
       row.weight = (*weights)(i);
       visit(row);
     }
+  };
+}
+
+SummingReplay PartedSummingReplay(const arma::mat& x, const arma::vec& y, const arma::vec& w, const arma::mat& x_low,
+                                  std::vector<arma::uword> cuts, int* parts_summed) {
+  return [=](std::string_view recipe) {
+    RowSums total;
+    for (std::size_t part = 0; part + 1 < cuts.size(); ++part) {
+      const std::unique_ptr<RowSumKernel> kernel = MakeRowSumKernel(recipe);
+      if (cuts[part + 1] > cuts[part]) {
+        const arma::uvec rows = arma::regspace<arma::uvec>(cuts[part], cuts[part + 1] - 1);
+        MemoryRowReplay(x.rows(rows), y.elem(rows), w.is_empty() ? arma::vec() : arma::vec(w.elem(rows)),
+                        x_low.is_empty() ? arma::mat() : arma::mat(x_low.rows(rows)))(
+            [&](const UsedRow& row) { kernel->Add(row); });
+      }
+      const RowSums sums = kernel->Finish();
+      EXPECT_EQ(sums.rows, cuts[part + 1] - cuts[part]) << "part " << part;
+      if (part == 0) total = sums;
+      else total.Add(RowSums::Read(sums.Write()));
+      if (parts_summed != nullptr) ++*parts_summed;
+    }
+    return total;
   };
 }
 

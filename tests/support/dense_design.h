@@ -14,6 +14,7 @@
 #include "stepledger/engine/data_pass.h"
 #include "stepledger/engine/design.h"
 #include "stepledger/engine/factor.h"
+#include "stepledger/engine/row_sums.h"
 
 namespace stepledger::testing {
 
@@ -49,6 +50,14 @@ std::optional<std::vector<double>> BruteForceFoldSse(const arma::mat& x, const a
 /// x_low (optional, same shape as x): low-order parts of the design values (UsedRow::x_low).
 RowReplay MemoryRowReplay(const arma::mat& x, const arma::vec& y, const arma::vec& w = {},
                           const arma::mat& x_low = {});
+
+/// A SummingReplay (engine/row_sums.h) over the rows in memory cut into parts [cuts[i],
+/// cuts[i + 1]) (cuts ascending from 0 to the row count; a part may be empty): each part summed
+/// by its own kernel, the parts' sums added in order through the bytes processes exchange — what
+/// a run shared by processes does. Checks each part's row count; *parts_summed (when given)
+/// counts the kernels run.
+SummingReplay PartedSummingReplay(const arma::mat& x, const arma::vec& y, const arma::vec& w, const arma::mat& x_low,
+                                  std::vector<arma::uword> cuts, int* parts_summed = nullptr);
 
 /// A hand-built design: column 0 "intercept" when intercept is true, then the terms in order,
 /// each (name, number of columns); a term of one column names its column after itself, a term
