@@ -39,9 +39,9 @@ ModelState::ModelState(const Factor& factor, KernelOptions options)
   for (std::size_t column = 0; column < columns_; ++column) {
     column_norm_[column] = arma::norm(r_.col(column));
   }
-  const double y_norm = arma::norm(r_.col(columns_));
-  const double y_scale = scales_.back();
-  rss_empty_ = (y_norm / y_scale) * (y_norm / y_scale);
+  // The empty model's RSS by the very sum Rss() takes (the model is empty here), so that the two
+  // agree to the bit whatever BLAS kernel arma::norm would pick on this CPU.
+  rss_empty_ = Rss();
 }
 
 void ModelState::CheckColumn(std::size_t column, const char* caller) const {
