@@ -47,30 +47,30 @@ DiagnosticsResult DiagnoseAndLearnSupport(const FitResult& fit, const Design& de
     ranged_terms.push_back(term);
     ranged_columns.push_back(design.terms[term].first_column);
   }
-  // The rows' diagnostics come in record order, each with its row's weight: the largest unit
-  // leverage and the smearing sum follow them here (nothing kept per row); the ranges come back
-  // with the rows' extents.
+  // ComputeDiagnostics folds the rows' diagnostics, which come in record order each with its
+  // row's weight; the largest unit leverage and the smearing sum follow them on the way (nothing
+  // kept per row), and the ranges come back with the rows' extents.
   double smearing_sum = 0;
-  std::uint64_t rows_seen = 0;
-  const RowDiagnoser diagnoser(fit);
-  DiagnosticsAccumulator accumulator(StandOutThresholds::CommonPractice(fit.n, fit.k), options.rows_by_record);
-  const ColumnExtents extents = rows(diagnoser, ranged_columns, [&](const RowDiagnostic& row, double weight) {
-    ++rows_seen;
-    accumulator.Add(row, weight);
-    if (weight > 0) {
-      const double unit_leverage = row.leverage / weight;
-      if (!support.max_unit_leverage || unit_leverage > *support.max_unit_leverage) {
-        support.max_unit_leverage = unit_leverage;
-        support.max_unit_leverage_line = row.line;
-        support.max_unit_leverage_file = row.file;
+  ColumnExtents extents(ranged_columns.size());
+  const DiagnosingReplay learning = [&](const RowDiagnoser& diagnoser, std::span<const std::size_t>,
+                                        const std::function<void(const RowDiagnostic&, double)>& visit) {
+    extents = rows(diagnoser, ranged_columns, [&](const RowDiagnostic& row, double weight) {
+      if (weight > 0) {
+        const double unit_leverage = row.leverage / weight;
+        if (!support.max_unit_leverage || unit_leverage > *support.max_unit_leverage) {
+          support.max_unit_leverage = unit_leverage;
+          support.max_unit_leverage_line = row.line;
+          support.max_unit_leverage_file = row.file;
+        }
       }
-    }
-    smearing_sum += std::exp(std::sqrt(weight) * row.residual);
-    if (options.row_observer) options.row_observer(row);
-  });
-  DiagnosticsResult diagnostics = accumulator.Finish();
+      smearing_sum += std::exp(std::sqrt(weight) * row.residual);
+      visit(row, weight);
+    });
+    return extents;
+  };
+  DiagnosticsResult diagnostics = ComputeDiagnostics(fit, learning, options);
 
-  if (rows_seen > 0) {
+  if (diagnostics.rows > 0) {
     for (std::size_t i = 0; i < ranged_terms.size(); ++i) {
       const DesignTerm& term = design.terms[ranged_terms[i]];
       support.ranges.push_back({term.name, term.source_column, term.kind, extents.low[i], extents.high[i]});
