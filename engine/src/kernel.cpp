@@ -102,10 +102,11 @@ bool ModelState::IsAliased(std::size_t column) const {
   return RelativeResidualNorm(column) < options_.alias_tolerance;
 }
 
-// RSS after adding the column at `position` alone: the residual of r2y after its projection on
+// RSS after adding the column alone (at its position j): the residual of r2y after its projection on
 // v = R22[:, j], formed explicitly (||r2y - alpha v||^2) rather than as ||r2y||^2 - (v'r2y)^2/v'v,
 // which cancels when the column explains nearly all of the remaining RSS.
-GroupScore ModelState::SingleAddScaled(std::size_t position) const {
+GroupScore ModelState::SingleAddScore(std::size_t column, double relative_norm) const {
+  const std::size_t position = column_position_[column];
   const std::size_t s = model_.size();
   double vv = 0, vr = 0;
   for (std::size_t row = s; row <= position; ++row) {
@@ -113,28 +114,29 @@ GroupScore ModelState::SingleAddScaled(std::size_t position) const {
     vr += r_(row, position) * r_(row, columns_);
   }
   const double alpha = vr / vv;
-  GroupScore score;
-  score.df = 1;
+  double rss = 0;
   for (std::size_t row = s; row <= position; ++row) {
     const double residual = r_(row, columns_) - alpha * r_(row, position);
-    score.rss += residual * residual;
+    rss += residual * residual;
   }
-  for (std::size_t row = position + 1; row <= columns_; ++row) score.rss += r_(row, columns_) * r_(row, columns_);
+  for (std::size_t row = position + 1; row <= columns_; ++row) rss += r_(row, columns_) * r_(row, columns_);
+  const double y_scale2 = scales_.back() * scales_.back();
+  GroupScore score;
+  score.df = 1;
+  score.rss = rss / y_scale2;
   // The drop (v'r2y)^2 / v'v: products and a quotient, so as accurate as vr itself.
-  score.rss_change = alpha * vr;
+  score.rss_change = alpha * vr / y_scale2;
+  score.min_relative_norm = relative_norm;
   return score;
 }
 
 std::vector<std::optional<GroupScore>> ModelState::ScoreAllSingleAdds() const {
   std::vector<std::optional<GroupScore>> scores(columns_);
-  const double y_scale2 = scales_.back() * scales_.back();
   for (std::size_t column = 0; column < columns_; ++column) {
-    if (Contains(column) || IsAliased(column)) continue;
-    GroupScore score = SingleAddScaled(column_position_[column]);
-    score.rss /= y_scale2;
-    score.rss_change /= y_scale2;
-    score.min_relative_norm = RelativeResidualNorm(column);
-    scores[column] = std::move(score);
+    if (Contains(column)) continue;
+    const double relative_norm = RelativeResidualNorm(column);
+    if (relative_norm < options_.alias_tolerance) continue;  // aliased (IsAliased)
+    scores[column] = SingleAddScore(column, relative_norm);
   }
   return scores;
 }
@@ -167,10 +169,7 @@ GroupScore ModelState::ScoreAdd(std::span<const std::size_t> columns) const {
       score.aliased_columns.push_back(columns[0]);
       return score;
     }
-    const GroupScore scaled = SingleAddScaled(column_position_[columns[0]]);
-    score.rss = scaled.rss / y_scale2;
-    score.rss_change = scaled.rss_change / y_scale2;
-    return score;
+    return SingleAddScore(columns[0], score.min_relative_norm);
   }
   // Small QR of [R22[:, G] | r2y]: the diagonal gives each column's norm after projection on the
   // model and the group's earlier columns; the last diagonal entry is the remaining part of r2y.

@@ -161,9 +161,8 @@ std::vector<Move> SearchContext::ScoreAdditions() {
   for (std::size_t term : candidates_) {
     if (!in_model_[term] && term_columns_[term].size() == 1) any_single = true;
   }
-  std::vector<std::optional<GroupScore>> single_rss;
-  if (any_single) single_rss = state_.ScoreAllSingleAdds();
-  const double rss_now = state_.Rss();
+  std::vector<std::optional<GroupScore>> single_scores;
+  if (any_single) single_scores = state_.ScoreAllSingleAdds();
   const double n = criterion_context_.n;
   std::vector<std::size_t> columns_after = state_.model_columns();
   const std::size_t model_width = columns_after.size();
@@ -175,9 +174,9 @@ std::vector<Move> SearchContext::ScoreAdditions() {
     std::optional<double> rss_after;
     double rss_drop = 0;
     std::string alias_reason;
-    if (columns.size() == 1 && single_rss[columns[0]]) {
-      rss_after = single_rss[columns[0]]->rss;
-      rss_drop = single_rss[columns[0]]->rss_change;
+    if (columns.size() == 1 && single_scores[columns[0]]) {
+      rss_after = single_scores[columns[0]]->rss;
+      rss_drop = single_scores[columns[0]]->rss_change;
     } else {
       const GroupScore group = state_.ScoreAdd(columns);
       if (group.aliased) alias_reason = AliasReason(design_, group, run_.kernel.alias_tolerance);

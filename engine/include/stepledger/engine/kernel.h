@@ -115,7 +115,8 @@ class ModelState {
  private:
   void MoveColumn(std::size_t from_position, std::size_t to_position);
   void SwapAdjacent(std::size_t position);           // positions position, position+1
-  GroupScore SingleAddScaled(std::size_t position) const;  // rss and rss_change in factor units
+  // Adding one column that is not aliased (relative_norm: its RelativeResidualNorm), data units.
+  GroupScore SingleAddScore(std::size_t column, double relative_norm) const;
   double RssScaled() const;
   void CheckColumn(std::size_t column, const char* caller) const;
   std::size_t columns_;        // m
