@@ -248,18 +248,17 @@ void SharedRun::Serve(const std::optional<FoldSettings>& folds, const std::optio
       case Request::kDiagnoseRange: {
         const std::size_t range = static_cast<std::size_t>(in.U64());
         const auto set = static_cast<RowSet>(in.U64());
-        std::optional<RowDiagnoser> diagnoser;
-        std::vector<std::size_t> extent_columns;
-        const std::string diagnoser_bytes = in.Text();
-        extent_columns.resize(in.U64());
+        const std::string diagnoser = in.Text();
+        std::vector<std::size_t> extent_columns(in.U64());
         for (std::size_t& column : extent_columns) column = static_cast<std::size_t>(in.U64());
         ColumnExtents extents(extent_columns.size());
         StreamRange(
-            range, set,
-            [&](const UsedRow& row, ByteWriter& batch) {
-              if (!diagnoser) diagnoser.emplace(RowDiagnoser::Read(diagnoser_bytes));
-              extents.Widen(extent_columns, row.x);
-              WriteDiagnostic(batch, diagnoser->Diagnose(row), row.weight);
+            [&](ByteWriter& batch, const std::function<void()>& written) {
+              extents = DiagnoseHere(RangeRows(range, set))(RowDiagnoser::Read(diagnoser), extent_columns,
+                                                            [&](const RowDiagnostic& row, double weight) {
+                                                              WriteDiagnostic(batch, row, weight);
+                                                              written();
+                                                            });
             },
             [&](ByteWriter& tail) { WriteExtents(tail, extents); });
         break;
@@ -267,13 +266,13 @@ void SharedRun::Serve(const std::optional<FoldSettings>& folds, const std::optio
       case Request::kEvaluateRange: {
         const std::size_t range = static_cast<std::size_t>(in.U64());
         const auto set = static_cast<RowSet>(in.U64());
-        const std::string evaluator_bytes = in.Text();
-        std::optional<HeldOutEvaluator> evaluator;
+        const std::string evaluator = in.Text();
         StreamRange(
-            range, set,
-            [&](const UsedRow& row, ByteWriter& batch) {
-              if (!evaluator) evaluator.emplace(HeldOutEvaluator::Read(evaluator_bytes));
-              WriteHeldOutRow(batch, evaluator->Evaluate(row));
+            [&](ByteWriter& batch, const std::function<void()>& written) {
+              EvaluateHere(RangeRows(range, set))(HeldOutEvaluator::Read(evaluator), [&](const HeldOutRow& row) {
+                WriteHeldOutRow(batch, row);
+                written();
+              });
             },
             [](ByteWriter&) {});
         break;
@@ -308,27 +307,29 @@ void SharedRun::Serve(const std::optional<FoldSettings>& folds, const std::optio
   }
 }
 
-void SharedRun::StreamRange(std::size_t range, RowSet set, const std::function<void(const UsedRow&, ByteWriter&)>& write,
+RowReplay SharedRun::RangeRows(std::size_t range, RowSet set) const {
+  return [this, range, set](const std::function<void(const UsedRow&)>& visit) {
+    ForEachUsedRowInRanges(*spill_, design_, visit, holdout_, set, range, range + 1);
+  };
+}
+
+void SharedRun::StreamRange(const std::function<void(ByteWriter& batch, const std::function<void()>& written)>& produce,
                             const std::function<void(ByteWriter&)>& tail) {
   ByteWriter batch;
-  std::size_t rows = 0;
+  std::size_t records = 0;
   auto flush = [&](bool more) {
     ByteWriter head;
     head.U64(more ? 1 : 0);
-    head.U64(rows);
+    head.U64(records);
     if (!more) tail(batch);
     exchange_.Send(0, EncodeValue(head.bytes() + batch.bytes()));
     batch = ByteWriter();
-    rows = 0;
+    records = 0;
   };
   try {
-    ForEachUsedRowInRanges(
-        *spill_, design_,
-        [&](const UsedRow& row) {
-          write(row, batch);
-          if (++rows == kStreamBatchRecords) flush(true);
-        },
-        holdout_, set, range, range + 1);
+    produce(batch, [&]() {
+      if (++records == kStreamBatchRecords) flush(true);
+    });
     flush(false);
   } catch (...) {
     exchange_.Send(0, EncodeError(std::current_exception()));
@@ -364,7 +365,6 @@ void SharedRun::ReceiveRange(int process, const std::function<void(ByteReader&, 
   }
   if (failure) std::rethrow_exception(failure);
 }
-
 
 RowSums SharedRun::OwnSums(std::string_view recipe, RowSet set) const {
   const std::unique_ptr<RowSumKernel> kernel = MakeRowSumKernel(recipe);
@@ -410,18 +410,9 @@ DiagnosingReplay SharedRun::Diagnosing(RowSet set) {
     body.Text(diagnoser.Write());
     body.U64(extent_columns.size());
     for (std::size_t column : extent_columns) body.U64(column);
-    RowDiagnoser diagnosing = diagnoser;
     InRecordOrder(
         static_cast<std::uint64_t>(Request::kDiagnoseRange), set, body.bytes(),
-        [&](std::size_t range) {
-          ForEachUsedRowInRanges(
-              *spill_, design_,
-              [&](const UsedRow& row) {
-                extents.Widen(extent_columns, row.x);
-                visit(diagnosing.Diagnose(row), row.weight);
-              },
-              holdout_, set, range, range + 1);
-        },
+        [&](std::size_t range) { extents.Widen(DiagnoseHere(RangeRows(range, set))(diagnoser, extent_columns, visit)); },
         [&](ByteReader& in, bool visiting) {
           double weight = 0;
           const RowDiagnostic diagnostic = ReadDiagnostic(in, weight);
@@ -436,14 +427,9 @@ HeldOutReplay SharedRun::EvaluatingHeldOut() {
   return [this](const HeldOutEvaluator& evaluator, const std::function<void(const HeldOutRow&)>& visit) {
     ByteWriter body;
     body.Text(evaluator.Write());
-    HeldOutEvaluator evaluating = evaluator;
     InRecordOrder(
         static_cast<std::uint64_t>(Request::kEvaluateRange), RowSet::kHeldOutRows, body.bytes(),
-        [&](std::size_t range) {
-          ForEachUsedRowInRanges(
-              *spill_, design_, [&](const UsedRow& row) { visit(evaluating.Evaluate(row)); }, holdout_,
-              RowSet::kHeldOutRows, range, range + 1);
-        },
+        [&](std::size_t range) { EvaluateHere(RangeRows(range, RowSet::kHeldOutRows))(evaluator, visit); },
         [&](ByteReader& in, bool visiting) {
           const HeldOutRow row = ReadHeldOutRow(in);
           if (visiting) visit(row);

@@ -90,10 +90,13 @@ class SharedRun {
                      const std::function<void(std::size_t local_range)>& own,
                      const std::function<void(ByteReader&, bool visit)>& read,
                      const std::function<void(ByteReader&)>& read_tail);
-  /// Serving: streams one of this process's ranges to process 0 in batches of kStreamBatchRecords
-  /// records (`write` appends a row's record), the last batch ending with `tail`; an error is
-  /// sent in place of the batch it stopped.
-  void StreamRange(std::size_t range, RowSet set, const std::function<void(const UsedRow&, ByteWriter&)>& write,
+  /// The used rows of one of this process's ranges (the replay DiagnoseHere and EvaluateHere take,
+  /// on process 0 for its own ranges and on the others for the ranges they stream).
+  RowReplay RangeRows(std::size_t range, RowSet set) const;
+  /// Serving: streams records to process 0 in batches of kStreamBatchRecords: `produce` appends
+  /// them in order to `batch`, calling `written` after each; the last batch ends with `tail`. An
+  /// error is sent in place of the batch it stopped.
+  void StreamRange(const std::function<void(ByteWriter& batch, const std::function<void()>& written)>& produce,
                    const std::function<void(ByteWriter&)>& tail);
   /// Process 0: receives a range streamed by `process`, `read` decoding one record (and visiting it
   /// while `visit`), `read_tail` the last batch's tail. After a visit failed, the rest of the
