@@ -571,10 +571,12 @@ void CsvReader::CheckHeaderWidth() {
   }
 }
 
-std::ptrdiff_t CsvReader::ColumnIndex(std::string_view name) const {
-  const auto found = std::find(header_.begin(), header_.end(), name);
-  return found == header_.end() ? -1 : found - header_.begin();
+std::ptrdiff_t HeaderIndex(const std::vector<std::string>& header, std::string_view name) {
+  const auto found = std::find(header.begin(), header.end(), name);
+  return found == header.end() ? -1 : found - header.begin();
 }
+
+std::ptrdiff_t CsvReader::ColumnIndex(std::string_view name) const { return HeaderIndex(header_, name); }
 
 void CsvReader::SetByteObserver(std::function<void(std::string_view)> observer) {
   if (next_called_) {

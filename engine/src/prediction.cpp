@@ -108,10 +108,6 @@ PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const Colum
 PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const std::vector<std::string>& header,
                                                const std::string& name, const CsvReader* reader)
     : design_(&design), reader_(reader), display_name_(&name) {
-  const auto column_index = [&header](std::string_view column) -> std::ptrdiff_t {
-    const auto found = std::find(header.begin(), header.end(), column);
-    return found == header.end() ? -1 : found - header.begin();
-  };
   const auto& cells = design.source.cells;
   cell_header_.assign(cells.size(), -1);
   cell_term_.assign(cells.size(), std::string());
@@ -122,7 +118,7 @@ PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const std::
     const auto c = static_cast<std::size_t>(cell);
     if (!cell_term_[c].empty()) continue;
     cell_term_[c] = design.terms[t].name;
-    const std::ptrdiff_t header_index = column_index(cells[c].column_name);
+    const std::ptrdiff_t header_index = HeaderIndex(header, cells[c].column_name);
     if (header_index < 0) {
       // A file read with the wrong delimiter has one long column: say so.
       const std::optional<std::string> separator_hint =
@@ -133,7 +129,7 @@ PredictionRowEvaluator::PredictionRowEvaluator(const Design& design, const std::
     }
     cell_header_[c] = header_index;
   }
-  if (design.weights) weights_header_ = column_index(*design.weights);
+  if (design.weights) weights_header_ = HeaderIndex(header, *design.weights);
 }
 
 EvaluatedRow PredictionRowEvaluator::Evaluate(const CsvRecord& record) const {

@@ -32,10 +32,7 @@ ColumnRows::ColumnRows(ColumnSource& source)
 
 ColumnRows::~ColumnRows() = default;
 
-std::ptrdiff_t ColumnRows::ColumnIndex(std::string_view name) const {
-  const auto found = std::find(header_.begin(), header_.end(), name);
-  return found == header_.end() ? -1 : found - header_.begin();
-}
+std::ptrdiff_t ColumnRows::ColumnIndex(std::string_view name) const { return HeaderIndex(header_, name); }
 
 bool ColumnRows::Next() {
   const std::uint64_t next = started_ ? row_ + 1 : 0;

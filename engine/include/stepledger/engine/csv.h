@@ -69,6 +69,9 @@ enum class CellKind { kNumber, kMissing, kText, kNonFinite };
 CellKind ClassifyCell(std::string_view text, const std::vector<std::string>& missing_tokens,
                       double& value);
 
+/// Index of `name` in a header (the first match), or -1.
+std::ptrdiff_t HeaderIndex(const std::vector<std::string>& header, std::string_view name);
+
 /// Line and column numbers: lines are 1-based and count every LF, including LFs inside
 /// quoted fields. Columns are 1-based byte offsets from the start of the line (not
 /// characters); a UTF-8 byte-order mark at the start of the file is skipped and not counted,
